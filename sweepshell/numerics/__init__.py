@@ -1,0 +1,1 @@
+"""Numerical building blocks shared by several models (numpy/scipy only)."""
