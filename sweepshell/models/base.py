@@ -169,6 +169,9 @@ class OutputSpec:
         :attr:`SweepModel.extra_dims`.
     dtype
         Always a floating dtype: a point without a value holds NaN.
+    nullable
+        Whether the output may be NaN at a point whose status is trusted (its docstring
+        then says what NaN means there, e.g. "no fold within the confinement range").
     """
 
     name: str
@@ -177,6 +180,7 @@ class OutputSpec:
     dims: tuple[str, ...] = ()
     dtype: str = "float64"
     symbol: str = ""
+    nullable: bool = False
 
 
 @dataclass(frozen=True)
