@@ -1,0 +1,1 @@
+"""The ``sweepshell`` command line."""

@@ -1,0 +1,162 @@
+"""``sweepshell`` command line: parse arguments, call the library, print, exit.
+
+Exit codes: 0 done, 2 bad input (one clear line on stderr, nothing written), 130
+interrupted (the run resumes where it stopped). Heavy libraries are imported inside the
+commands that need them so that ``--help`` and ``status`` answer quickly.
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import logging
+import sys
+from collections.abc import Callable, Sequence
+from typing import Any
+
+from sweepshell import CAUTION, __version__
+from sweepshell.errors import SweepshellError
+
+__all__ = ["main", "build_parser"]
+
+EXIT_OK = 0
+EXIT_BAD_INPUT = 2
+EXIT_INTERRUPTED = 130
+
+_CAUTION_HELP = "CAUTION: " + CAUTION.removeprefix("Caution: ")
+
+
+class _Parser(argparse.ArgumentParser):
+    def error(self, message: str) -> None:  # argparse would print usage; we print one line
+        print(f"sweepshell: error: {message}; see `{self.prog} --help`", file=sys.stderr)
+        raise SystemExit(EXIT_BAD_INPUT)
+
+
+def build_parser() -> argparse.ArgumentParser:
+    """Return the argument parser of every command."""
+    parser = _Parser(
+        prog="sweepshell",
+        description="Sweep validated reduced-order buckling models of thin shells and sheets over parameter "
+                    "grids; keep every result in a labelled zarr store; query and map it.",
+        epilog=_CAUTION_HELP, formatter_class=argparse.RawDescriptionHelpFormatter)
+    parser.add_argument("--version", action="version", version=f"sweepshell {__version__}")
+    parser.add_argument("-v", "--verbose", action="store_true", help="log what the library does")
+    sub = parser.add_subparsers(dest="command", metavar="COMMAND", parser_class=_Parser)
+
+    run = sub.add_parser(
+        "run", help="run (or resume) a sweep",
+        description="Run a sweep: SWEEP is a name in configs/sweep/ or a path to a YAML file. Running it again "
+                    "continues where it stopped. Overrides use hydra's grammar, e.g. fixed.poisson_ratio=0.25 "
+                    "axes.shell_parameter=range(3,12,0.5) axes.edge=clamped,pinned store.path=scratch/x.zarr "
+                    "executor=threads executor.workers=1.",
+        epilog=_CAUTION_HELP)
+    run.add_argument("sweep", metavar="SWEEP")
+    run.add_argument("overrides", nargs="*", metavar="OVERRIDE")
+    run.add_argument("--config-dir", help="the configs/ folder (default: ./configs)")
+    run.add_argument("--progress", choices=("auto", "bar", "lines", "none"), default="auto",
+                     help="progress display (default: a bar on a terminal, periodic lines otherwise)")
+    run.add_argument("--dry-run", action="store_true",
+                     help="validate the sweep and print its plan; compute and write nothing")
+    run.set_defaults(func=_cmd_run)
+
+    status = sub.add_parser("status", help="what a store holds and how complete it is",
+                            description="Counts per status, model and version, axes, completeness.")
+    status.add_argument("store", metavar="STORE")
+    status.add_argument("--json", action="store_true", help="print JSON")
+    status.set_defaults(func=_cmd_status)
+
+    models = sub.add_parser("models", help="the registered models",
+                            description="List the registered models with parameters, outputs and regimes.")
+    models.add_argument("--json", action="store_true", help="print JSON")
+    models.set_defaults(func=_cmd_models)
+
+    for register in _EXTRA_COMMANDS:
+        register(sub)
+    return parser
+
+
+#: further commands register themselves here (query, map, ...); each takes the subparsers object
+_EXTRA_COMMANDS: list[Callable[[Any], None]] = []
+
+
+def _cmd_run(args: argparse.Namespace) -> int:
+    from sweepshell.config.loader import load_plan
+
+    plan = load_plan(args.sweep, args.overrides, config_dir=args.config_dir)
+    if args.dry_run:
+        shape = " x ".join(f"{a.name}[{len(a)}]" for a in plan.axes)
+        print(f"sweep {plan.name}: model {plan.model} {plan.model_version}, {plan.n_points} points ({shape}), "
+              f"store {plan.store_path}, executor {plan.executor.kind}")
+        print(plan.resolved_yaml, end="")
+        return EXIT_OK
+    from sweepshell.engine.observers import make_observer
+    from sweepshell.engine.runner import SweepInterrupted, run_plan
+
+    kind = {"lines": "lines", "bar": "bar", "none": "none"}.get(args.progress, "auto")
+    observer = make_observer(kind)
+    try:
+        summary = run_plan(plan, observer=observer)
+    except SweepInterrupted as stop:
+        print(f"interrupted: {stop.summary.to_line()}; run the same command again to continue",
+              file=sys.stderr)
+        return EXIT_INTERRUPTED
+    print(summary.to_line())
+    return EXIT_OK
+
+
+def _cmd_status(args: argparse.Namespace) -> int:
+    from sweepshell.store.summary import summarize_store
+
+    info = summarize_store(args.store)
+    if args.json:
+        print(json.dumps(info, indent=2))
+        return EXIT_OK
+    axes = ", ".join(f"{a['name']}[{a['size']}] {a['min']}..{a['max']}" for a in info["axes"])
+    counts = ", ".join(f"{v} {k}" for k, v in info["counts"].items() if v)
+    print(f"store {info['path']}: sweep {info['sweep']}, model {info['model']} {info['model_version']}")
+    print(f"  axes: {axes}")
+    print(f"  {info['total']} points: {counts}; {info['complete_fraction']:.1%} final"
+          + ("" if info["complete"] else " (run the sweep again to continue)"))
+    return EXIT_OK
+
+
+def _cmd_models(args: argparse.Namespace) -> int:
+    from sweepshell.models import list_models, make_model
+
+    described = [make_model(name).describe() for name in list_models()]
+    if args.json:
+        print(json.dumps(described, indent=2))
+        return EXIT_OK
+    for d in described:
+        print(f"{d['name']} {d['version']}: {d['summary']}")
+        for p in d["parameters"]:
+            print(f"  parameter {p['name']} [{p['units']}] {p['allowed']}, default {p['default']}: {p['doc']}")
+        for o in d["outputs"]:
+            dims = f" over {', '.join(o['dims'])}" if o["dims"] else ""
+            print(f"  output    {o['name']} [{o['units']}]{dims}: {o['doc']}")
+        print(f"  regimes   {', '.join(d['regimes'])}")
+    return EXIT_OK
+
+
+def main(argv: Sequence[str] | None = None) -> int:
+    """Entry point of the ``sweepshell`` console script; returns the exit code."""
+    parser = build_parser()
+    args = parser.parse_args(argv)
+    logging.basicConfig(level=logging.INFO if args.verbose else logging.WARNING,
+                        format="%(levelname)s %(name)s: %(message)s")
+    if args.command is None:
+        parser.print_help()
+        return EXIT_BAD_INPUT
+    try:
+        code: int = args.func(args)
+    except SweepshellError as err:
+        print(f"sweepshell: error: {err}", file=sys.stderr)
+        return err.exit_code
+    except KeyboardInterrupt:
+        print("interrupted; run the same command again to continue", file=sys.stderr)
+        return EXIT_INTERRUPTED
+    return code
+
+
+if __name__ == "__main__":  # pragma: no cover
+    raise SystemExit(main())

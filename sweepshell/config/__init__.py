@@ -1,0 +1,1 @@
+"""Configuration: the only layer that touches hydra."""

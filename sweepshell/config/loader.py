@@ -1,0 +1,411 @@
+"""From a sweep file and command-line overrides to a validated, frozen :class:`SweepPlan`.
+
+This is the only module that touches hydra. It uses hydra's compose API (no run
+directories, no logging set-up, no multirun launcher) for ``configs/config.yaml`` and the
+executor presets, and hydra's override parser for the command line, including sweep forms
+on axes (``axes.shell_parameter=range(3,12,0.5)``, ``axes.poisson_ratio=0.2,0.3,0.4``).
+
+Nothing in a config is ever imported or executed: the model is looked up by registered name
+and every value is plain data.
+"""
+
+from __future__ import annotations
+
+import inspect
+import json
+import math
+import os
+import re
+from collections.abc import Mapping, Sequence
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+import yaml
+from omegaconf import DictConfig, ListConfig, OmegaConf
+
+from sweepshell.engine.plan import Axis, ExecutorSpec, SweepPlan
+from sweepshell.errors import ConfigError, ParameterError
+from sweepshell.models import get_model
+from sweepshell.models.base import SweepModel
+
+__all__ = ["find_config_dir", "load_plan", "resolve_sweep_file", "parse_overrides"]
+
+SWEEP_KEYS = ("name", "model", "settings", "fixed", "axes", "store", "executor", "block", "limits",
+              "description")
+EXECUTOR_KINDS = ("local", "threads", "distributed")
+_NAME_RE = re.compile(r"^[A-Za-z0-9][A-Za-z0-9_.-]*$")
+
+
+def find_config_dir(explicit: str | os.PathLike[str] | None = None) -> Path:
+    """Return the ``configs/`` folder: the explicit one, ``./configs``, or the checkout's."""
+    candidates = []
+    if explicit is not None:
+        candidates.append(Path(explicit))
+    env = os.environ.get("SWEEPSHELL_CONFIG_DIR")
+    if env:
+        candidates.append(Path(env))
+    candidates.append(Path.cwd() / "configs")
+    candidates.append(Path(__file__).resolve().parents[2] / "configs")
+    for c in candidates:
+        if (c / "config.yaml").is_file():
+            return c.resolve()
+    raise ConfigError(
+        "no configs/config.yaml found (looked in " + ", ".join(str(c) for c in candidates)
+        + "); run from the project folder or pass --config-dir", field="config_dir")
+
+
+def resolve_sweep_file(sweep: str, config_dir: Path) -> Path:
+    """Return the YAML file of ``sweep``: a path, or a name in ``configs/sweep/``."""
+    p = Path(sweep)
+    if p.suffix in (".yaml", ".yml") or os.sep in sweep or p.is_file():
+        if p.is_file():
+            return p
+        raise ConfigError(f"sweep file {sweep!r} does not exist; give an existing YAML file or a name in "
+                          f"{config_dir / 'sweep'}", field="sweep", value=sweep)
+    candidate = config_dir / "sweep" / f"{sweep}.yaml"
+    if candidate.is_file():
+        return candidate
+    names = sorted(f.stem for f in (config_dir / "sweep").glob("*.yaml"))
+    raise ConfigError(f"sweep {sweep!r} is neither a file nor a name in {config_dir / 'sweep'}; "
+                      f"use one of {', '.join(names) or '(none)'} or a path to a YAML file",
+                      field="sweep", value=sweep)
+
+
+def parse_overrides(overrides: Sequence[str]) -> list[Any]:
+    """Parse command-line overrides with hydra's grammar; one clear error for a bad one."""
+    from hydra.core.override_parser.overrides_parser import OverridesParser
+    from hydra.errors import HydraException
+
+    parser = OverridesParser.create()
+    parsed = []
+    for text in overrides:
+        try:
+            parsed.append(parser.parse_override(text))
+        except HydraException as exc:
+            reason = str(exc).splitlines()[0]
+            raise ConfigError(f"override {text!r} is malformed ({reason}); write key=value, e.g. "
+                              "fixed.poisson_ratio=0.3 or axes.shell_parameter=range(3,12,0.5)",
+                              field="override", value=text) from None
+    return parsed
+
+
+def _compose_base(config_dir: Path, group_overrides: list[str]) -> DictConfig:
+    from hydra import compose, initialize_config_dir
+    from hydra.core.global_hydra import GlobalHydra
+    from hydra.errors import HydraException
+    from omegaconf.errors import OmegaConfBaseException
+
+    GlobalHydra.instance().clear()
+    try:
+        with initialize_config_dir(config_dir=str(config_dir), version_base=None):
+            cfg = compose(config_name="config", overrides=group_overrides)
+    except (HydraException, OmegaConfBaseException) as exc:
+        presets = sorted(f.stem for f in (config_dir / "executor").glob("*.yaml"))
+        raise ConfigError(f"{' '.join(group_overrides)} could not be applied ({str(exc).splitlines()[0]}); "
+                          f"executor presets are {', '.join(presets)}", field="executor",
+                          value=group_overrides) from None
+    finally:
+        GlobalHydra.instance().clear()
+    return cfg
+
+
+def _load_sweep_yaml(path: Path) -> DictConfig:
+    try:
+        text = path.read_text()
+        data = yaml.safe_load(text)
+    except yaml.YAMLError as exc:
+        line = getattr(getattr(exc, "problem_mark", None), "line", None)
+        where = f" at line {line + 1}" if line is not None else ""
+        raise ConfigError(f"sweep file {path} is not valid YAML{where}; fix the syntax",
+                          field="sweep", value=str(path)) from None
+    if not isinstance(data, dict):
+        raise ConfigError(f"sweep file {path} must hold a mapping (name, model, fixed, axes, ...); "
+                          f"it holds {type(data).__name__}", field="sweep", value=str(path))
+    unknown = sorted(set(data) - set(SWEEP_KEYS))
+    if unknown:
+        raise ConfigError(f"sweep file {path} has unknown key(s) {', '.join(unknown)}; allowed keys are "
+                          f"{', '.join(SWEEP_KEYS)}", field=unknown[0], value=unknown)
+    if "name" not in data:
+        data["name"] = path.stem
+    return OmegaConf.create(data)
+
+
+def load_plan(sweep: str, overrides: Sequence[str] = (), *, config_dir: str | os.PathLike[str] | None = None,
+              ) -> SweepPlan:
+    """Build the validated plan of a sweep.
+
+    Parameters
+    ----------
+    sweep
+        A name in ``configs/sweep/`` or a path to a YAML file.
+    overrides
+        Command-line overrides in hydra's grammar.
+    config_dir
+        The ``configs/`` folder; found automatically when ``None``.
+
+    Raises
+    ------
+    ConfigError, ParameterError, UnknownModelError
+        For any bad input; nothing is written anywhere.
+    """
+    cdir = find_config_dir(config_dir)
+    path = resolve_sweep_file(sweep, cdir)
+    parsed = parse_overrides(overrides)
+    group = [f"executor={o.value()}" for o in parsed
+             if o.key_or_group == "executor" and isinstance(o.value(), str) and not o.is_sweep_override()]
+    base = _compose_base(cdir, group)
+    OmegaConf.set_struct(base, False)
+    cfg = OmegaConf.merge(base, _load_sweep_yaml(path))
+    if group:  # a preset named on the command line wins over the sweep file's inline executor
+        cfg.executor = base.executor
+    axis_overrides: dict[str, list[Any]] = {}
+    for o in parsed:
+        key = o.key_or_group
+        if key == "executor" and not o.is_sweep_override():
+            continue
+        top = key.split(".")[0]
+        if top not in SWEEP_KEYS:
+            raise ConfigError(f"override {o.input_line!r} names unknown key {top!r}; allowed keys are "
+                              f"{', '.join(SWEEP_KEYS)}", field=key, value=o.input_line)
+        if o.is_delete():
+            _delete_key(cfg, key)
+            continue
+        if o.is_sweep_override():
+            if top != "axes" or key.count(".") != 1:
+                raise ConfigError(f"override {o.input_line!r} sweeps a value outside axes; only axes.NAME "
+                                  "takes several values (a list or range(...))", field=key,
+                                  value=o.input_line)
+            try:
+                values = list(o.sweep_iterator())
+            except Exception:
+                raise ConfigError(f"override {o.input_line!r} is not a finite set of values; use "
+                                  "range(start,stop,step), a comma list or choice(...)", field=key,
+                                  value=o.input_line) from None
+            axis_overrides[key.split(".", 1)[1]] = values
+            continue
+        OmegaConf.update(cfg, key, o.value(), merge=False, force_add=True)
+    container = OmegaConf.to_container(cfg, resolve=True, throw_on_missing=False)
+    assert isinstance(container, dict)
+    axes_cfg = container.get("axes") or {}
+    if not isinstance(axes_cfg, dict):
+        raise ConfigError("axes must be a mapping of parameter name to values", field="axes", value=axes_cfg)
+    for name, values in axis_overrides.items():
+        axes_cfg[name] = values
+    container["axes"] = axes_cfg
+    if OmegaConf.is_missing(cfg.executor, "address") and container["executor"].get("kind") == "distributed":
+        raise ConfigError("executor=distributed needs an address; add executor.address=tcp://HOST:PORT",
+                          field="executor.address")
+    return build_plan(container, source=str(path))
+
+
+def _delete_key(cfg: DictConfig, key: str) -> None:
+    parent_key, _, leaf = key.rpartition(".")
+    node = OmegaConf.select(cfg, parent_key) if parent_key else cfg
+    if not isinstance(node, DictConfig) or leaf not in node:
+        raise ConfigError(f"override ~{key} deletes a key that is not there; check the spelling",
+                          field=key)
+    del node[leaf]
+
+
+def build_plan(cfg: Mapping[str, Any], *, source: str = "<dict>") -> SweepPlan:
+    """Validate a plain sweep mapping into a :class:`SweepPlan` (no hydra needed).
+
+    Useful from Python: ``build_plan({"model": ..., "fixed": ..., "axes": ...})``.
+    """
+    cfg = dict(cfg)
+    unknown = sorted(set(cfg) - set(SWEEP_KEYS))
+    if unknown:
+        raise ConfigError(f"sweep has unknown key(s) {', '.join(unknown)}; allowed keys are "
+                          f"{', '.join(SWEEP_KEYS)}", field=unknown[0], value=unknown)
+    name = cfg.get("name") or Path(source).stem
+    if not isinstance(name, str) or not _NAME_RE.match(name):
+        raise ConfigError(f"name={name!r} is not a valid sweep name; use letters, digits, '_', '-', '.'",
+                          field="name", value=name)
+    model_name = cfg.get("model")
+    if model_name is None:
+        raise ConfigError(f"{source} names no model; add model: NAME (see `sweepshell models`)",
+                          field="model")
+    model_cls = get_model(model_name)
+    settings = _check_settings(model_cls, cfg.get("settings") or {})
+    fixed_in = cfg.get("fixed") or {}
+    axes_in = cfg.get("axes") or {}
+    if not isinstance(fixed_in, dict):
+        raise ConfigError("fixed must be a mapping of parameter name to value", field="fixed", value=fixed_in)
+    if not axes_in:
+        raise ConfigError("the sweep has no axes; add at least one under axes: (e.g. "
+                          "shell_parameter: {linspace: [3, 12, 10]})", field="axes")
+    axes: list[Axis] = []
+    for pname, spec in axes_in.items():
+        param = model_cls.get_parameter(pname)
+        axis = _make_axis(pname, spec)
+        param.check_values(list(axis.values), where=f"axes.{pname}")
+        axes.append(axis)
+    fixed: dict[str, Any] = {}
+    for pname, value in fixed_in.items():
+        param = model_cls.get_parameter(pname)
+        if pname in axes_in:
+            raise ConfigError(f"parameter {pname!r} is both fixed and swept; remove it from fixed or axes",
+                              field=pname)
+        if isinstance(value, (list, dict)):
+            raise ConfigError(f"fixed.{pname}={value!r} is not a single value; move it to axes to sweep it",
+                              field=f"fixed.{pname}", value=value)
+        param.check_values(value, where=f"fixed.{pname}")
+        fixed[pname] = float(value) if not param.is_categorical else value
+    for param in model_cls.parameters:
+        if param.name in axes_in or param.name in fixed:
+            continue
+        if param.default is None:
+            raise ParameterError(f"parameter {param.name!r} of model {model_cls.name!r} is required; add it "
+                                 f"to fixed or axes ({param.describe_allowed()})", field=param.name)
+        fixed[param.name] = param.default
+    model_cls.check_combination(fixed, {a.name: a.to_array() for a in axes})
+
+    limits = cfg.get("limits") or {}
+    max_points = _positive_int(limits.get("max_points", 20_000_000), "limits.max_points")
+    n_points = math.prod(len(a) for a in axes)
+    if n_points > max_points:
+        shape = " x ".join(str(len(a)) for a in axes)
+        raise ConfigError(f"the grid has {n_points} points ({shape}), above limits.max_points={max_points}; "
+                          "use fewer axis values or raise limits.max_points", field="axes", value=n_points)
+    executor = _make_executor(cfg.get("executor") or {})
+    block = cfg.get("block") or {}
+    if block.get("points") is not None:
+        block_points = _positive_int(block["points"], "block.points")
+    else:
+        seconds = float(block.get("target_seconds", 2.0))
+        if not seconds > 0:
+            raise ConfigError(f"block.target_seconds={seconds} must be positive", field="block.target_seconds")
+        block_points = int(min(1_000_000, max(16, seconds / max(model_cls.cost_hint, 1e-9))))
+    store = cfg.get("store") or {}
+    store_path = store.get("path") or os.path.join("results", f"{name}.zarr")
+    resolved = {
+        "name": name,
+        "model": model_name,
+        "settings": settings,
+        "fixed": {k: _plain(v) for k, v in fixed.items()},
+        "axes": {a.name: [_plain(v) for v in a.values] for a in axes},
+        "store": {"path": str(store_path)},
+        "executor": {"kind": executor.kind, "workers": executor.workers, "address": executor.address},
+        "block": {"points": block_points},
+        "limits": {"max_points": max_points},
+    }
+    return SweepPlan(
+        name=name, model=model_name, model_version=model_cls.version, settings=settings, fixed=fixed,
+        axes=tuple(axes), store_path=str(store_path), executor=executor, block_points=block_points,
+        resolved_yaml=yaml.safe_dump(resolved, sort_keys=False),
+    )
+
+
+def _plain(v: Any) -> Any:
+    if isinstance(v, float) and math.isnan(v):
+        return None
+    return v
+
+
+def _positive_int(value: Any, where: str) -> int:
+    if isinstance(value, bool) or not isinstance(value, (int, float)) or value != int(value) or value < 1:
+        raise ConfigError(f"{where}={value!r} must be a whole number ≥ 1", field=where, value=value)
+    return int(value)
+
+
+def _check_settings(model_cls: type[SweepModel], settings: Any) -> dict[str, Any]:
+    if not isinstance(settings, dict):
+        raise ConfigError("settings must be a mapping of setting name to value", field="settings",
+                          value=settings)
+    sig = inspect.signature(model_cls.__init__)
+    allowed = [p for p in sig.parameters if p != "self" and sig.parameters[p].kind == inspect.Parameter.KEYWORD_ONLY]
+    for key in settings:
+        if key not in allowed:
+            raise ConfigError(f"settings.{key} is not a setting of model {model_cls.name!r}; use one of "
+                              f"{', '.join(allowed) or '(none)'}", field=f"settings.{key}", value=key)
+    try:
+        model = model_cls(**settings)
+    except (TypeError, ValueError) as exc:
+        raise ConfigError(f"settings {json.dumps(settings)} rejected by model {model_cls.name!r}: {exc}",
+                          field="settings", value=settings) from None
+    return model.settings
+
+
+def _make_axis(name: str, spec: Any) -> Axis:
+    where = f"axes.{name}"
+    if isinstance(spec, (DictConfig, ListConfig)):
+        spec = OmegaConf.to_container(spec)
+    spacing = "list"
+    if isinstance(spec, dict):
+        if len(spec) != 1 or next(iter(spec)) not in ("linspace", "logspace", "range"):
+            raise ConfigError(f"{where}={spec!r} is not an axis form; use a list, {{linspace: [start, stop, "
+                              "count]}, {logspace: [exp_start, exp_stop, count]} or {range: [start, stop, step]}",
+                              field=where, value=spec)
+        form, args = next(iter(spec.items()))
+        values = _expand_form(where, form, args)
+        spacing = {"linspace": "linear", "logspace": "log", "range": "linear"}[form]
+    elif isinstance(spec, (list, tuple)):
+        values = list(spec)
+        nums = [v for v in values if isinstance(v, (int, float)) and not isinstance(v, bool)]
+        if values and len(nums) == len(values) and len(values) >= 3 and all(v > 0 for v in nums):
+            ratios = np.diff(np.log(np.asarray(nums, dtype=float)))
+            if np.allclose(ratios, ratios[0], rtol=1e-6) and abs(ratios[0]) > 0.5:
+                spacing = "log"
+    else:
+        raise ConfigError(f"{where}={spec!r} is a single value; an axis needs several values (a list, "
+                          "linspace, logspace or range) — or move it to fixed", field=where, value=spec)
+    if not values:
+        raise ConfigError(f"{where} has no values; give at least one", field=where, value=spec)
+    kinds = {isinstance(v, str) for v in values}
+    if len(kinds) > 1:
+        raise ConfigError(f"{where} mixes names and numbers ({values!r}); use one kind", field=where,
+                          value=values)
+    if not isinstance(values[0], str):
+        for v in values:
+            if isinstance(v, bool) or not isinstance(v, (int, float)):
+                raise ConfigError(f"{where} value {v!r} is neither a number nor a name", field=where, value=v)
+        values = [float(v) for v in values]
+    seen: set[Any] = set()
+    dupes = [v for v in values if v in seen or seen.add(v)]  # type: ignore[func-returns-value]
+    if dupes:
+        raise ConfigError(f"{where} repeats value(s) {sorted(set(dupes))[:5]}; each value may appear once",
+                          field=where, value=dupes)
+    return Axis(name=name, values=tuple(values), spacing=spacing)
+
+
+def _expand_form(where: str, form: str, args: Any) -> list[float]:
+    if not isinstance(args, (list, tuple)) or len(args) != 3 or not all(
+            isinstance(a, (int, float)) and not isinstance(a, bool) for a in args):
+        raise ConfigError(f"{where}: {form} takes three numbers [start, stop, {'step' if form == 'range' else 'count'}]"
+                          f", got {args!r}", field=where, value=args)
+    a, b, c = (float(x) for x in args)
+    if form == "range":
+        if c == 0 or (b - a) / c < 0:
+            raise ConfigError(f"{where}: range [{a:g}, {b:g}, {c:g}] has no values; the step must point from "
+                              "start to stop", field=where, value=args)
+        count = math.ceil((b - a) / c - 1e-9)
+        if count > 100_000_000:
+            raise ConfigError(f"{where}: range has {count} values; use a larger step", field=where, value=args)
+        return [a + i * c for i in range(count)]
+    if c != int(c) or c < 1:
+        raise ConfigError(f"{where}: {form} count={c:g} must be a whole number ≥ 1", field=where, value=args)
+    if c > 100_000_000:
+        raise ConfigError(f"{where}: {form} count={int(c)} is absurdly large; use fewer values", field=where,
+                          value=args)
+    if form == "linspace":
+        return [float(v) for v in np.linspace(a, b, int(c))]
+    if max(abs(a), abs(b)) > 300:
+        raise ConfigError(f"{where}: logspace exponents [{a:g}, {b:g}] overflow; use base-10 exponents within "
+                          "±300", field=where, value=args)
+    return [float(v) for v in np.logspace(a, b, int(c))]
+
+
+def _make_executor(spec: Mapping[str, Any]) -> ExecutorSpec:
+    kind = spec.get("kind", "local")
+    if kind not in EXECUTOR_KINDS:
+        raise ConfigError(f"executor.kind={kind!r} is unknown; use one of {', '.join(EXECUTOR_KINDS)}",
+                          field="executor.kind", value=kind)
+    workers = spec.get("workers")
+    if workers is not None:
+        workers = _positive_int(workers, "executor.workers")
+    address = spec.get("address")
+    if kind == "distributed" and not address:
+        raise ConfigError("executor=distributed needs an address; add executor.address=tcp://HOST:PORT",
+                          field="executor.address")
+    return ExecutorSpec(kind=kind, workers=workers, address=address)

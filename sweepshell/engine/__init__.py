@@ -1,0 +1,1 @@
+"""Orchestration: plans and blocks, the runner, workers and progress observers."""

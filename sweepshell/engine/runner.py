@@ -1,0 +1,213 @@
+"""Run a plan: create or reopen the store, find unfinished blocks, compute them on dask.
+
+Resume is the normal case: the ledger says which blocks are final, and only the others are
+submitted. Interrupting (Ctrl-C) cancels outstanding blocks; blocks whose status was not
+written are simply recomputed by the next run.
+"""
+
+from __future__ import annotations
+
+import contextlib
+import logging
+import os
+import time
+from collections.abc import Iterator, Sequence
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+
+from sweepshell.engine.observers import RunObserver, SilentObserver
+from sweepshell.engine.plan import ExecutorSpec, SweepPlan, choose_block_shape, iter_blocks
+from sweepshell.engine.worker import compute_block
+from sweepshell.models import make_model
+from sweepshell.models.base import Status
+from sweepshell.store.reader import read_ledger
+from sweepshell.store.writer import (check_store_matches, clean_stale_temporaries, create_store, is_store,
+                                     store_block_shape)
+
+__all__ = ["RunSummary", "SweepInterrupted", "run_sweep", "run_plan", "open_client", "prepare_store"]
+
+log = logging.getLogger(__name__)
+
+
+class SweepInterrupted(KeyboardInterrupt):
+    """The run was stopped by the user; the store is consistent and the run resumable."""
+
+    def __init__(self, summary: RunSummary) -> None:
+        super().__init__("interrupted")
+        self.summary = summary
+
+
+@dataclass(frozen=True)
+class RunSummary:
+    """What a run did.
+
+    Attributes
+    ----------
+    store_path
+        The store written.
+    total
+        Points in the sweep.
+    counts
+        Status name → number of points in the whole store after the run.
+    computed
+        Points computed by this run (0 if the store was already complete).
+    blocks
+        Blocks computed by this run.
+    wall_seconds
+        Wall time of the run, including start-up of workers.
+    model_seconds
+        Time spent inside the model, summed over workers.
+    """
+
+    store_path: str
+    total: int
+    counts: dict[str, int]
+    computed: int
+    blocks: int
+    wall_seconds: float
+    model_seconds: float = 0.0
+    extra: dict[str, Any] = field(default_factory=dict)
+
+    @property
+    def complete(self) -> bool:
+        return self.counts.get(Status.pending.name, 0) == 0
+
+    def to_line(self) -> str:
+        """Return the one-line summary printed at the end of a run."""
+        c = self.counts
+        parts = [f"{c.get(s.name, 0)} {s.name}" for s in Status if s is not Status.pending and c.get(s.name, 0)]
+        if c.get("pending"):
+            parts.append(f"{c['pending']} pending")
+        done = "nothing to compute, store already complete" if self.computed == 0 and self.complete else \
+            f"computed {self.computed} points in {self.wall_seconds:.1f} s"
+        return f"{done}: {self.total} points ({', '.join(parts) or 'none'}) -> {self.store_path}"
+
+
+def prepare_store(plan: SweepPlan) -> tuple[tuple[int, ...], bool]:
+    """Check or create the store of ``plan``; return its block shape and whether it was new."""
+    model = make_model(plan.model, plan.settings)
+    path = plan.store_path
+    if Path(path).exists():
+        check_store_matches(path, plan, model)
+        return store_block_shape(path), False
+    clean_stale_temporaries(path)
+    block_shape = choose_block_shape(plan.shape, plan.block_points)
+    create_store(plan, model, block_shape)
+    return (store_block_shape(path) if is_store(path) else block_shape), True
+
+
+@contextlib.contextmanager
+def open_client(spec: ExecutorSpec) -> Iterator[Any]:
+    """Yield a dask.distributed client for the executor spec and close what we started."""
+    import dask
+    from distributed import Client, LocalCluster
+
+    if spec.kind == "distributed":
+        client = Client(spec.address, timeout="20s")
+        try:
+            yield client
+        finally:
+            client.close()
+        return
+    if not log.isEnabledFor(logging.INFO):
+        logging.getLogger("distributed").setLevel(logging.ERROR)
+    with dask.config.set({"logging.distributed": "error"}):
+        if spec.kind == "threads":
+            cluster = LocalCluster(n_workers=1, threads_per_worker=spec.workers or 1, processes=False,
+                                   dashboard_address=None)
+        else:
+            cluster = LocalCluster(n_workers=spec.workers or (os.cpu_count() or 1), threads_per_worker=1,
+                                   processes=True, dashboard_address=None, silence_logs=logging.ERROR)
+    client = Client(cluster)
+    try:
+        yield client
+    finally:
+        client.close()
+        cluster.close()
+
+
+def _counts(ledger: np.ndarray) -> dict[str, int]:
+    raw = np.bincount(ledger.reshape(-1), minlength=len(Status))
+    return {s.name: int(raw[s.value]) for s in Status}
+
+
+def run_plan(plan: SweepPlan, *, observer: RunObserver | None = None) -> RunSummary:
+    """Compute every unfinished block of ``plan`` and return a summary.
+
+    Raises
+    ------
+    SweepInterrupted
+        On Ctrl-C; the store stays consistent and a new run resumes it.
+    """
+    observer = observer or SilentObserver()
+    t0 = time.perf_counter()
+    block_shape, _ = prepare_store(plan)
+    path = plan.store_path
+    ledger = read_ledger(path, block_shape)
+    pending = [b for b in iter_blocks(plan.shape, block_shape) if np.any(ledger[b.slices] == Status.pending)]
+    if not pending:
+        return RunSummary(store_path=path, total=plan.n_points, counts=_counts(ledger), computed=0, blocks=0,
+                          wall_seconds=time.perf_counter() - t0)
+    to_compute = sum(b.n_points for b in pending)
+    axis_values = [a.to_array() for a in plan.axes]
+    model_seconds = 0.0
+    computed = blocks = 0
+    observer.start(plan.n_points, plan.n_points - to_compute, to_compute)
+    try:
+        with open_client(plan.executor) as client:
+            from distributed import as_completed
+
+            futures = [
+                client.submit(compute_block, os.path.abspath(path), plan.model, plan.settings, plan.axis_names,
+                              [v[s] for v, s in zip(axis_values, b.slices, strict=True)], plan.fixed, b,
+                              key=f"sweepshell-block-{'-'.join(map(str, b.index))}-{os.getpid()}", pure=False)
+                for b in pending
+            ]
+            try:
+                for fut in as_completed(futures):
+                    info = fut.result()
+                    model_seconds += info["model_seconds"]
+                    computed += info["points"]
+                    blocks += 1
+                    observer.advance(info["points"])
+            except KeyboardInterrupt:
+                client.cancel(futures)
+                raise
+    except KeyboardInterrupt:
+        observer.close()
+        summary = _final_summary(plan, block_shape, computed, blocks, t0, model_seconds)
+        raise SweepInterrupted(summary) from None
+    observer.close()
+    return _final_summary(plan, block_shape, computed, blocks, t0, model_seconds)
+
+
+def _final_summary(plan: SweepPlan, block_shape: tuple[int, ...], computed: int, blocks: int, t0: float,
+                   model_seconds: float) -> RunSummary:
+    ledger = read_ledger(plan.store_path, block_shape)
+    return RunSummary(store_path=plan.store_path, total=plan.n_points, counts=_counts(ledger), computed=computed,
+                      blocks=blocks, wall_seconds=time.perf_counter() - t0, model_seconds=model_seconds)
+
+
+def run_sweep(sweep: str | SweepPlan, overrides: Sequence[str] = (), *, observer: RunObserver | None = None,
+              config_dir: str | None = None) -> RunSummary:
+    """Run a sweep by name, path or plan; running it again resumes it.
+
+    Parameters
+    ----------
+    sweep
+        A sweep name in ``configs/sweep/``, a path to a sweep YAML file, or a :class:`SweepPlan`.
+    overrides
+        hydra-style overrides (``fixed.poisson_ratio=0.25``, ``axes.x=range(0,1,0.1)``).
+    observer
+        Progress observer; silent by default.
+    """
+    if isinstance(sweep, SweepPlan):
+        plan = sweep
+    else:
+        from sweepshell.config.loader import load_plan
+
+        plan = load_plan(sweep, overrides, config_dir=config_dir)
+    return run_plan(plan, observer=observer)

@@ -1,0 +1,1 @@
+"""The results store: layout (names), writer (template, blocks) and reader."""

@@ -1,0 +1,88 @@
+"""Open stores for reading: the Dataset for users, the ledger for the runner."""
+
+from __future__ import annotations
+
+import json
+import logging
+import os
+from pathlib import Path
+from typing import TYPE_CHECKING, Any
+
+import numpy as np
+
+from sweepshell.errors import StoreNotFoundError, StoreSchemaError
+from sweepshell.store import layout
+from sweepshell.store.layout import ATTR
+
+if TYPE_CHECKING:
+    import xarray as xr
+
+__all__ = ["open_sweep", "read_attrs", "read_ledger", "check_readable_store"]
+
+log = logging.getLogger(__name__)
+
+
+def check_readable_store(path: str | os.PathLike[str]) -> dict[str, Any]:
+    """Return the store's attributes, or raise a clear error if it is not a store we can read."""
+    p = Path(path)
+    meta = p / "zarr.json"
+    if not p.exists():
+        raise StoreNotFoundError(f"no store at {str(p)!r}; check the path (stores are folders ending in .zarr)",
+                                 field="store", value=str(p))
+    try:
+        attrs: dict[str, Any] = json.loads(meta.read_text()).get("attributes", {})
+    except (OSError, ValueError):
+        raise StoreSchemaError(f"{str(p)!r} is not a zarr store written by sweepshell; give a store folder",
+                               field="store", value=str(p)) from None
+    schema = attrs.get(ATTR.schema)
+    if schema is None:
+        raise StoreSchemaError(f"{str(p)!r} is a zarr group but not a sweepshell store (no {ATTR.schema} "
+                               "attribute); open it with xarray directly", field="store", value=str(p))
+    if schema != layout.SCHEMA_VERSION:
+        raise StoreSchemaError(f"store {str(p)!r} has schema version {schema!r}; this sweepshell reads version "
+                               f"{layout.SCHEMA_VERSION}; upgrade sweepshell", field="store", value=str(p))
+    return attrs
+
+
+def read_attrs(path: str | os.PathLike[str]) -> dict[str, Any]:
+    """Return the provenance attributes of a store (checked to be a known schema)."""
+    return check_readable_store(path)
+
+
+def open_sweep(path: str | os.PathLike[str]) -> xr.Dataset:
+    """Open a sweep store as a lazy :class:`xarray.Dataset`.
+
+    Raises
+    ------
+    StoreNotFoundError, StoreSchemaError
+        If there is no store at ``path`` or its schema is unknown.
+    """
+    import xarray as xr
+
+    check_readable_store(path)
+    return xr.open_zarr(str(path), consolidated=True, zarr_format=3)
+
+
+def read_ledger(path: str | os.PathLike[str], block_shape: tuple[int, ...] | None = None) -> np.ndarray:
+    """Return the status ledger as a numpy array.
+
+    A chunk that cannot be decoded (a run killed while writing it) reads as ``pending``, so
+    its block is recomputed.
+    """
+    import zarr
+
+    arr = zarr.open_array(str(Path(path) / layout.STATUS_VAR), mode="r", zarr_format=3)
+    try:
+        return np.asarray(arr[...])
+    except Exception:  # a torn chunk: fall back to reading chunk by chunk
+        log.warning("ledger of %s has unreadable chunks; they will be recomputed", path)
+    from sweepshell.engine.plan import iter_blocks
+
+    out = np.zeros(arr.shape, dtype=np.uint8)
+    chunks = block_shape or tuple(arr.chunks)
+    for block in iter_blocks(tuple(arr.shape), chunks):
+        try:
+            out[block.slices] = arr[block.slices]
+        except Exception:
+            out[block.slices] = 0
+    return out

@@ -1,0 +1,249 @@
+"""Create a store from a plan, check an existing one against a plan, write blocks.
+
+Safety rules this module keeps (see DESIGN.md and STACK-NOTES.md):
+
+- The template (metadata, coordinates, attributes) is built in a temporary folder beside
+  the target and renamed into place, so a run killed during creation leaves no half store.
+- Every write covers whole chunks: a block is exactly one chunk of every variable.
+- A block's outputs are written first, its regime next and its ``status`` last; a block
+  whose status is not final is recomputed on resume. Writes are idempotent.
+- Attributes are written once, at creation, never updated concurrently.
+"""
+
+from __future__ import annotations
+
+import datetime as _dt
+import json
+import logging
+import math
+import os
+import shutil
+import warnings
+from collections.abc import Sequence
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+
+from sweepshell import CAUTION, __version__
+from sweepshell.engine.plan import Block, SweepPlan
+from sweepshell.errors import StoreMismatchError, StoreSchemaError
+from sweepshell.models.base import BatchResult, SweepModel
+from sweepshell.store import layout
+from sweepshell.store.layout import ATTR
+
+__all__ = ["is_store", "create_store", "check_store_matches", "write_block", "store_block_shape",
+           "clean_stale_temporaries", "plan_attrs"]
+
+log = logging.getLogger(__name__)
+
+
+def is_store(path: str | os.PathLike[str]) -> bool:
+    """Return whether ``path`` is a folder holding a sweepshell store (any schema)."""
+    meta = Path(path) / "zarr.json"
+    if not meta.is_file():
+        return False
+    try:
+        attrs = json.loads(meta.read_text()).get("attributes", {})
+    except (OSError, ValueError):
+        return False
+    return ATTR.schema in attrs
+
+
+def _read_attrs(path: str | os.PathLike[str]) -> dict[str, Any]:
+    meta = Path(path) / "zarr.json"
+    attrs: dict[str, Any] = json.loads(meta.read_text()).get("attributes", {})
+    return attrs
+
+
+def plan_attrs(plan: SweepPlan, model: SweepModel, block_shape: Sequence[int]) -> dict[str, Any]:
+    """Return the provenance attributes of a store made from ``plan``."""
+    return {
+        ATTR.tool: __version__,
+        ATTR.schema: layout.SCHEMA_VERSION,
+        ATTR.model: plan.model,
+        ATTR.model_version: plan.model_version,
+        ATTR.settings: _canonical_json(model.settings),
+        ATTR.fixed: _canonical_json(plan.fixed),
+        ATTR.axes: _canonical_json({a.name: list(a.values) for a in plan.axes}),
+        ATTR.sweep_name: plan.name,
+        ATTR.sweep_yaml: plan.resolved_yaml,
+        ATTR.created: _dt.datetime.now(_dt.UTC).isoformat(timespec="seconds"),
+        ATTR.caution: CAUTION,
+        ATTR.block_shape: [int(b) for b in block_shape],
+        ATTR.regimes: list(model.regimes),
+        ATTR.conventions: "CF-1.10",
+    }
+
+
+def _canonical_json(obj: Any) -> str:
+    def fix(v: Any) -> Any:
+        if isinstance(v, float) and math.isnan(v):
+            return None
+        if isinstance(v, dict):
+            return {str(k): fix(x) for k, x in v.items()}
+        if isinstance(v, (list, tuple)):
+            return [fix(x) for x in v]
+        if isinstance(v, np.generic):
+            return v.item()
+        return v
+
+    return json.dumps(fix(obj), sort_keys=True)
+
+
+def check_store_matches(path: str | os.PathLike[str], plan: SweepPlan, model: SweepModel) -> None:
+    """Raise unless the existing store at ``path`` was made by the same sweep definition.
+
+    Raises
+    ------
+    StoreSchemaError
+        If ``path`` exists but is not a sweepshell store of a known schema.
+    StoreMismatchError
+        If model, model version, settings, fixed parameters or axes differ; the message
+        names the first difference and suggests a new store path.
+    """
+    p = Path(path)
+    if not is_store(p):
+        what = "a file" if p.is_file() else "a folder that is not a sweepshell store"
+        raise StoreSchemaError(f"store.path={str(p)!r} is {what}; choose another path "
+                               f"(e.g. store.path={p.with_name(p.stem + '-2.zarr')})",
+                               field="store.path", value=str(p))
+    attrs = _read_attrs(p)
+    if attrs.get(ATTR.schema) != layout.SCHEMA_VERSION:
+        raise StoreSchemaError(f"store {str(p)!r} has schema version {attrs.get(ATTR.schema)!r}; this sweepshell "
+                               f"reads version {layout.SCHEMA_VERSION}; use a matching sweepshell or a new path",
+                               field="store.path", value=str(p))
+    new = f"store.path={p.with_name(p.stem + '-2.zarr')}"
+    checks = [
+        ("model", attrs.get(ATTR.model), plan.model),
+        ("model version", attrs.get(ATTR.model_version), plan.model_version),
+        ("settings", attrs.get(ATTR.settings), _canonical_json(model.settings)),
+        ("fixed parameters", attrs.get(ATTR.fixed), _canonical_json(plan.fixed)),
+        ("axes", attrs.get(ATTR.axes), _canonical_json({a.name: list(a.values) for a in plan.axes})),
+    ]
+    for what, stored, wanted in checks:
+        if stored != wanted:
+            detail = _describe_difference(what, stored, wanted)
+            raise StoreMismatchError(
+                f"store {str(p)!r} was made with other {what} ({detail}); run into a new store with {new} "
+                "(stores can be merged later)", field="store.path", value=str(p))
+
+
+def _describe_difference(what: str, stored: Any, wanted: Any) -> str:
+    if what in ("model", "model version"):
+        return f"store has {stored!r}, this sweep {wanted!r}"
+    try:
+        a, b = json.loads(stored), json.loads(wanted)
+    except (TypeError, ValueError):
+        return "unreadable record in the store"
+    keys = sorted(set(a) | set(b))
+    for k in keys:
+        if a.get(k) != b.get(k):
+            sa, sb = _short(a.get(k)), _short(b.get(k))
+            return f"{k}: store has {sa}, this sweep {sb}"
+    return "ordering differs"
+
+
+def _short(v: Any) -> str:
+    text = json.dumps(v)
+    return text if len(text) < 60 else text[:57] + "..."
+
+
+def store_block_shape(path: str | os.PathLike[str]) -> tuple[int, ...]:
+    """Return the block (= chunk) shape recorded in an existing store."""
+    return tuple(int(b) for b in _read_attrs(path)[ATTR.block_shape])
+
+
+def clean_stale_temporaries(path: str | os.PathLike[str]) -> None:
+    """Remove half-built templates left by runs that were killed while creating the store."""
+    p = Path(path)
+    for tmp in p.parent.glob(p.name + layout.TEMP_SUFFIX + "-*"):
+        pid_text = tmp.name.rsplit("-", 1)[-1]
+        if pid_text.isdigit() and _pid_alive(int(pid_text)):
+            continue
+        shutil.rmtree(tmp, ignore_errors=True)
+
+
+def _pid_alive(pid: int) -> bool:
+    try:
+        os.kill(pid, 0)
+    except ProcessLookupError:
+        return False
+    except PermissionError:
+        return True
+    return True
+
+
+def create_store(plan: SweepPlan, model: SweepModel, block_shape: Sequence[int]) -> None:
+    """Write the template of a new store (no values) and move it into place atomically."""
+    import dask.array as da
+    import xarray as xr
+    from zarr.codecs import ZstdCodec
+
+    target = Path(plan.store_path)
+    target.parent.mkdir(parents=True, exist_ok=True)
+    tmp = target.with_name(target.name + layout.TEMP_SUFFIX + f"-{os.getpid()}")
+    if tmp.exists():
+        shutil.rmtree(tmp)
+    block_shape = tuple(int(b) for b in block_shape)
+    shape = plan.shape
+    dims = plan.axis_names
+    extra = model.extra_dims
+    coords: dict[str, Any] = {}
+    for axis in plan.axes:
+        param = model.get_parameter(axis.name)
+        attrs = {"units": param.units, "long_name": param.doc, "spacing": axis.spacing}
+        if param.symbol:
+            attrs["symbol"] = param.symbol
+        coords[axis.name] = xr.Variable((axis.name,), axis.to_array(), attrs)
+    for dim, coord in model.extra_coords().items():
+        coords[dim] = xr.Variable((dim,), np.asarray(coord))
+    data_vars: dict[str, xr.Variable] = {}
+    encoding: dict[str, dict[str, Any]] = {}
+    compressors = (ZstdCodec(level=3, checksum=True),)
+    for out in model.outputs:
+        out_dims = dims + out.dims
+        out_shape = shape + tuple(extra[d] for d in out.dims)
+        chunks = block_shape + tuple(extra[d] for d in out.dims)
+        attrs = {"units": out.units, "long_name": out.doc}
+        if out.symbol:
+            attrs["symbol"] = out.symbol
+        data_vars[out.name] = xr.Variable(out_dims, da.full(out_shape, np.nan, dtype=out.dtype, chunks=chunks),
+                                          attrs)
+        encoding[out.name] = {"chunks": chunks, "fill_value": np.nan, "compressors": compressors}
+    data_vars[layout.REGIME_VAR] = xr.Variable(
+        dims, da.full(shape, -1, dtype=np.int8, chunks=block_shape), layout.regime_attrs(model.regimes))
+    encoding[layout.REGIME_VAR] = {"chunks": block_shape, "fill_value": -1, "compressors": compressors}
+    data_vars[layout.STATUS_VAR] = xr.Variable(
+        dims, da.zeros(shape, dtype=np.uint8, chunks=block_shape), layout.status_attrs())
+    encoding[layout.STATUS_VAR] = {"chunks": block_shape, "fill_value": 0, "compressors": compressors}
+    ds = xr.Dataset(data_vars, coords=coords, attrs=plan_attrs(plan, model, block_shape))
+    with warnings.catch_warnings():
+        # consolidated metadata lets plain xr.open_zarr(path) open the store quietly and fast; zarr warns
+        # that it is an extension of format 3, which we accept: arrays are never added after creation
+        warnings.filterwarnings("ignore", message=".*[Cc]onsolidated metadata.*")
+        ds.to_zarr(tmp, mode="w-", compute=False, zarr_format=3, consolidated=True, encoding=encoding)
+    try:
+        os.rename(tmp, target)
+    except OSError:
+        # another runner created the store first; theirs is as good as ours if it matches
+        shutil.rmtree(tmp, ignore_errors=True)
+        if not is_store(target):
+            raise
+        check_store_matches(target, plan, model)
+
+
+def write_block(path: str | os.PathLike[str], block: Block, result: BatchResult,
+                output_names: Sequence[str]) -> None:
+    """Write one block's results: outputs first, then regime, then the status ledger last."""
+    import zarr
+
+    group = zarr.open_group(str(path), mode="r+", zarr_format=3)
+    shape = block.shape
+    for name in output_names:
+        values = result.outputs[name]
+        arr = group[name]
+        values = values.reshape(shape + values.shape[1:])
+        arr[block.slices + (slice(None),) * (values.ndim - len(shape))] = values
+    group[layout.REGIME_VAR][block.slices] = result.regime.reshape(shape)
+    group[layout.STATUS_VAR][block.slices] = result.status.reshape(shape)
