@@ -267,6 +267,22 @@ class SweepModel:
         """
         return None
 
+    @classmethod
+    def sample_inputs(cls) -> dict[str, np.ndarray]:
+        """Return a few representative points for the contract test suite.
+
+        The default cycles categorical parameters through their choices and keeps every
+        other parameter at its default; models override it with cheap, telling points.
+        """
+        n = max([len(p.choices) for p in cls.parameters if p.choices] + [2])
+        out: dict[str, np.ndarray] = {}
+        for p in cls.parameters:
+            if p.choices is not None:
+                out[p.name] = np.array([p.choices[i % len(p.choices)] for i in range(n)])
+            else:
+                out[p.name] = np.full(n, np.nan if p.default is None else float(p.default))
+        return out
+
     # -- work ---------------------------------------------------------------------------
     def solve_batch(self, inputs: Mapping[str, np.ndarray]) -> BatchResult:
         """Solve n points at once.

@@ -1,0 +1,5 @@
+"""``python -m sweepshell`` is the same as the ``sweepshell`` command."""
+
+from sweepshell.cli.main import main
+
+raise SystemExit(main())
