@@ -55,7 +55,7 @@ class WinklerColumnModel(SweepModel):
         ParameterSpec("stiffness_ratio", "1", "foundation parameter eta = K L^4/(pi^4 B)",
                       default=0.0, bounds=(0.0, math.inf), symbol="η"),
         ParameterSpec("load_ratio", "1", "applied axial load over the Euler load pi^2 B/L^2",
-                      default=1.0, bounds=(0.0, math.inf), symbol="P/P_E"),
+                      default=None, bounds=(0.0, math.inf), symbol="P/P_E"),
         ParameterSpec("end", "1", "end condition", default="pinned", choices=("pinned", "weak")),
     )
     regimes: ClassVar[tuple[str, ...]] = ("stable", "buckled")

@@ -91,8 +91,8 @@ class ParameterSpec:
         if self.choices is not None:
             return "one of " + ", ".join(self.choices)
         lo, hi = self.bounds
-        left = "[" if self.closed[0] else "("
-        right = "]" if self.closed[1] else ")"
+        left = "[" if self.closed[0] and math.isfinite(lo) else "("
+        right = "]" if self.closed[1] and math.isfinite(hi) else ")"
         text = f"{left}{_fmt(lo)}, {_fmt(hi)}{right}"
         return text + (" (whole numbers)" if self.integer else "")
 
