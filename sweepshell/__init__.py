@@ -10,7 +10,7 @@ from typing import Any
 
 __version__ = "0.1.0"
 
-__all__ = ["__version__", "open_sweep", "run_sweep", "get_model", "CAUTION"]
+__all__ = ["CAUTION", "__version__", "get_model", "open_sweep", "run_sweep"]
 
 #: the caution printed wherever critical loads are shown
 CAUTION = (

@@ -9,14 +9,14 @@ from __future__ import annotations
 from typing import Any
 
 __all__ = [
-    "SweepshellError",
     "ConfigError",
     "ParameterError",
-    "UnknownModelError",
-    "StoreMismatchError",
-    "StoreSchemaError",
-    "StoreNotFoundError",
     "QueryError",
+    "StoreMismatchError",
+    "StoreNotFoundError",
+    "StoreSchemaError",
+    "SweepshellError",
+    "UnknownModelError",
 ]
 
 

@@ -12,12 +12,12 @@ import json
 import logging
 import sys
 from collections.abc import Callable, Sequence
-from typing import Any
+from typing import Any, NoReturn
 
 from sweepshell import CAUTION, __version__
 from sweepshell.errors import SweepshellError
 
-__all__ = ["main", "build_parser"]
+__all__ = ["build_parser", "main"]
 
 EXIT_OK = 0
 EXIT_BAD_INPUT = 2
@@ -27,7 +27,7 @@ _CAUTION_HELP = "CAUTION: " + CAUTION.removeprefix("Caution: ")
 
 
 class _Parser(argparse.ArgumentParser):
-    def error(self, message: str) -> None:  # argparse would print usage; we print one line
+    def error(self, message: str) -> NoReturn:  # argparse would print usage; we print one line
         print(f"sweepshell: error: {message}; see `{self.prog} --help`", file=sys.stderr)
         raise SystemExit(EXIT_BAD_INPUT)
 
@@ -141,7 +141,13 @@ def _cmd_models(args: argparse.Namespace) -> int:
 def main(argv: Sequence[str] | None = None) -> int:
     """Entry point of the ``sweepshell`` console script; returns the exit code."""
     parser = build_parser()
-    args = parser.parse_args(argv)
+    # overrides may follow options (`run SWEEP --progress none executor.workers=1`); argparse leaves them over
+    args, extra = parser.parse_known_args(argv)
+    if extra:
+        if getattr(args, "command", None) == "run" and not any(e.startswith("-") for e in extra):
+            args.overrides = [*args.overrides, *extra]
+        else:
+            parser.error(f"unrecognized arguments: {' '.join(extra)}")
     logging.basicConfig(level=logging.INFO if args.verbose else logging.WARNING,
                         format="%(levelname)s %(name)s: %(message)s")
     if args.command is None:

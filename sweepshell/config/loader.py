@@ -29,7 +29,7 @@ from sweepshell.errors import ConfigError, ParameterError
 from sweepshell.models import get_model
 from sweepshell.models.base import SweepModel
 
-__all__ = ["find_config_dir", "load_plan", "resolve_sweep_file", "parse_overrides"]
+__all__ = ["find_config_dir", "load_plan", "parse_overrides", "resolve_sweep_file"]
 
 SWEEP_KEYS = ("name", "model", "settings", "fixed", "axes", "store", "executor", "block", "limits",
               "description")
@@ -169,7 +169,7 @@ def load_plan(sweep: str, overrides: Sequence[str] = (), *, config_dir: str | os
             raise ConfigError(f"override {o.input_line!r} names unknown key {top!r}; allowed keys are "
                               f"{', '.join(SWEEP_KEYS)}", field=key, value=o.input_line)
         if o.is_delete():
-            _delete_key(cfg, key)
+            _delete_key(cfg, key)  # type: ignore[arg-type]
             continue
         if o.is_sweep_override():
             if top != "axes" or key.count(".") != 1:
@@ -196,7 +196,7 @@ def load_plan(sweep: str, overrides: Sequence[str] = (), *, config_dir: str | os
     if OmegaConf.is_missing(cfg.executor, "address") and container["executor"].get("kind") == "distributed":
         raise ConfigError("executor=distributed needs an address; add executor.address=tcp://HOST:PORT",
                           field="executor.address")
-    return build_plan(container, source=str(path))
+    return build_plan({str(k): v for k, v in container.items()}, source=str(path))
 
 
 def _delete_key(cfg: DictConfig, key: str) -> None:

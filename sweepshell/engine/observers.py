@@ -2,11 +2,12 @@
 
 from __future__ import annotations
 
+import math
 import sys
 import time
 from typing import Any, Protocol, TextIO
 
-__all__ = ["RunObserver", "SilentObserver", "LineObserver", "BarObserver", "make_observer"]
+__all__ = ["BarObserver", "LineObserver", "RunObserver", "SilentObserver", "make_observer"]
 
 
 class RunObserver(Protocol):
@@ -29,9 +30,9 @@ class SilentObserver:
 
 
 def _fmt_seconds(s: float) -> str:
-    if s != s or s == float("inf"):
+    if math.isnan(s) or math.isinf(s):
         return "?"
-    s = int(round(s))
+    s = round(s)
     h, rem = divmod(s, 3600)
     m, sec = divmod(rem, 60)
     return f"{h}:{m:02d}:{sec:02d}" if h else f"{m}:{sec:02d}"
@@ -66,8 +67,14 @@ class BarObserver:
     """A rich progress bar: points done, rate and ETA."""
 
     def __init__(self) -> None:
-        from rich.progress import (BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeElapsedColumn,
-                                   TimeRemainingColumn)
+        from rich.progress import (
+            BarColumn,
+            MofNCompleteColumn,
+            Progress,
+            TextColumn,
+            TimeElapsedColumn,
+            TimeRemainingColumn,
+        )
 
         self._progress = Progress(
             TextColumn("[bold]sweep"), BarColumn(), MofNCompleteColumn(), TextColumn("points"),

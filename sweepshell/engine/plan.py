@@ -15,7 +15,7 @@ from typing import Any
 
 import numpy as np
 
-__all__ = ["Axis", "ExecutorSpec", "SweepPlan", "Block", "choose_block_shape", "iter_blocks"]
+__all__ = ["Axis", "Block", "ExecutorSpec", "SweepPlan", "choose_block_shape", "iter_blocks"]
 
 
 @dataclass(frozen=True)

@@ -24,10 +24,15 @@ from sweepshell.engine.worker import compute_block
 from sweepshell.models import make_model
 from sweepshell.models.base import Status
 from sweepshell.store.reader import read_ledger
-from sweepshell.store.writer import (check_store_matches, clean_stale_temporaries, create_store, is_store,
-                                     store_block_shape)
+from sweepshell.store.writer import (
+    check_store_matches,
+    clean_stale_temporaries,
+    create_store,
+    is_store,
+    store_block_shape,
+)
 
-__all__ = ["RunSummary", "SweepInterrupted", "run_sweep", "run_plan", "open_client", "prepare_store"]
+__all__ = ["RunSummary", "SweepInterrupted", "open_client", "prepare_store", "run_plan", "run_sweep"]
 
 log = logging.getLogger(__name__)
 

@@ -19,7 +19,7 @@ from sweepshell.engine.plan import Block
 from sweepshell.models import make_model
 from sweepshell.models.base import BatchResult, Status, SweepModel
 
-__all__ = ["compute_block", "solve_points", "make_block_inputs"]
+__all__ = ["compute_block", "make_block_inputs", "solve_points"]
 
 log = logging.getLogger(__name__)
 

@@ -7,6 +7,7 @@ config or read from a store is ever imported: an unknown name is an error.
 from __future__ import annotations
 
 import importlib
+import importlib.util
 from typing import Any
 
 from sweepshell.errors import UnknownModelError
@@ -21,16 +22,16 @@ from sweepshell.models.base import (
 )
 
 __all__ = [
-    "get_model",
-    "make_model",
-    "list_models",
-    "Status",
-    "ParameterSpec",
-    "OutputSpec",
-    "BatchResult",
-    "SweepModel",
     "FINAL_STATUSES",
     "TRUSTED_STATUSES",
+    "BatchResult",
+    "OutputSpec",
+    "ParameterSpec",
+    "Status",
+    "SweepModel",
+    "get_model",
+    "list_models",
+    "make_model",
 ]
 
 # name -> (module, class); a fixed table of our own code, never extended from input

@@ -20,13 +20,13 @@ import numpy as np
 from sweepshell.errors import ParameterError
 
 __all__ = [
-    "Status",
-    "ParameterSpec",
-    "OutputSpec",
-    "BatchResult",
-    "SweepModel",
     "FINAL_STATUSES",
     "TRUSTED_STATUSES",
+    "BatchResult",
+    "OutputSpec",
+    "ParameterSpec",
+    "Status",
+    "SweepModel",
 ]
 
 

@@ -10,15 +10,15 @@ from __future__ import annotations
 from sweepshell.models.base import Status
 
 __all__ = [
-    "SCHEMA_VERSION",
-    "STATUS_VAR",
-    "REGIME_VAR",
     "ATTR",
-    "STATUS_FLAG_VALUES",
+    "REGIME_VAR",
+    "SCHEMA_VERSION",
     "STATUS_FLAG_MEANINGS",
+    "STATUS_FLAG_VALUES",
+    "STATUS_VAR",
     "TEMP_SUFFIX",
-    "status_attrs",
     "regime_attrs",
+    "status_attrs",
 ]
 
 #: version of the layout below; readers refuse stores with a version they do not know

@@ -17,7 +17,7 @@ from sweepshell.store.layout import ATTR
 if TYPE_CHECKING:
     import xarray as xr
 
-__all__ = ["open_sweep", "read_attrs", "read_ledger", "check_readable_store"]
+__all__ = ["check_readable_store", "open_sweep", "read_attrs", "read_ledger"]
 
 log = logging.getLogger(__name__)
 

@@ -32,8 +32,15 @@ from sweepshell.models.base import BatchResult, SweepModel
 from sweepshell.store import layout
 from sweepshell.store.layout import ATTR
 
-__all__ = ["is_store", "create_store", "check_store_matches", "write_block", "store_block_shape",
-           "clean_stale_temporaries", "plan_attrs"]
+__all__ = [
+    "check_store_matches",
+    "clean_stale_temporaries",
+    "create_store",
+    "is_store",
+    "plan_attrs",
+    "store_block_shape",
+    "write_block",
+]
 
 log = logging.getLogger(__name__)
 
@@ -242,8 +249,10 @@ def write_block(path: str | os.PathLike[str], block: Block, result: BatchResult,
     shape = block.shape
     for name in output_names:
         values = result.outputs[name]
-        arr = group[name]
+        arr: Any = group[name]
         values = values.reshape(shape + values.shape[1:])
         arr[block.slices + (slice(None),) * (values.ndim - len(shape))] = values
-    group[layout.REGIME_VAR][block.slices] = result.regime.reshape(shape)
-    group[layout.STATUS_VAR][block.slices] = result.status.reshape(shape)
+    regime: Any = group[layout.REGIME_VAR]
+    status: Any = group[layout.STATUS_VAR]
+    regime[block.slices] = result.regime.reshape(shape)
+    status[block.slices] = result.status.reshape(shape)

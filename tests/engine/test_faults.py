@@ -1,0 +1,109 @@
+"""A run killed with SIGKILL at any instant resumes to a store identical to an uninterrupted run."""
+
+from __future__ import annotations
+
+import contextlib
+import os
+import signal
+import subprocess
+import sys
+import time
+from pathlib import Path
+
+import numpy as np
+import pytest
+import xarray as xr
+
+from sweepshell import open_sweep, run_sweep
+from sweepshell.models.base import Status
+from tests.conftest import CONFIGS, write_sweep
+
+pytestmark = pytest.mark.faults
+
+SLOW_SWEEP = """\
+name: slow_column
+model: winkler_column
+settings: {work_seconds: 0.004}
+fixed: {end: pinned}
+axes:
+  stiffness_ratio: {logspace: [-1, 3, 24]}
+  load_ratio: {linspace: [0.5, 40, 25]}
+block: {points: 25}
+"""
+
+
+def _start(sweep: Path, cwd: Path, *extra: str) -> subprocess.Popen[bytes]:
+    env = dict(os.environ, SWEEPSHELL_CONFIG_DIR=str(CONFIGS))
+    return subprocess.Popen([sys.executable, "-m", "sweepshell", "run", str(sweep), "--progress", "none", *extra],
+                            cwd=cwd, env=env, stdout=subprocess.PIPE, stderr=subprocess.PIPE,
+                            start_new_session=True)
+
+
+def _kill_group(proc: subprocess.Popen[bytes]) -> None:
+    with contextlib.suppress(ProcessLookupError):
+        os.killpg(proc.pid, signal.SIGKILL)
+    proc.wait(timeout=60)
+
+
+def test_sigkill_at_random_instants_then_resume_is_identical(workdir, rng):
+    sweep = write_sweep(workdir, SLOW_SWEEP)
+    reference = run_sweep(str(sweep), ["executor=threads", "store.path=reference.zarr"])
+    assert reference.complete
+    # instants spread over start-up, template creation, mid-block and mid-write
+    instants = [0.4, 0.9, *np.sort(rng.uniform(1.2, 5.0, size=4)).tolist()]
+    killed_with_store = 0
+    for t in instants:
+        proc = _start(sweep, workdir, "executor.workers=2")
+        time.sleep(t)
+        finished = proc.poll() is not None
+        _kill_group(proc)
+        store = workdir / "results" / "slow_column.zarr"
+        if store.exists():
+            killed_with_store += not finished
+            ledger = open_sweep(store).status.values
+            assert set(np.unique(ledger)) <= {Status.pending, Status.ok, Status.no_instability}
+    assert killed_with_store >= 2, "no kill happened while the store was being filled; lengthen the sweep"
+    proc = _start(sweep, workdir, "executor.workers=2")
+    out, err = proc.communicate(timeout=300)
+    assert proc.returncode == 0, err.decode()
+    assert b"points" in out
+    got = open_sweep(workdir / "results" / "slow_column.zarr").load()
+    want = open_sweep(workdir / "reference.zarr").load()
+    xr.testing.assert_identical(got.drop_attrs(), want.drop_attrs())
+    assert not list(workdir.glob("results/*sweepshell-tmp*")), "a half-built template was left behind"
+
+
+def test_interrupt_exits_130_and_the_next_run_continues(workdir):
+    sweep = write_sweep(workdir, SLOW_SWEEP)
+    proc = _start(sweep, workdir, "executor.workers=1")
+    time.sleep(2.5)
+    proc.send_signal(signal.SIGINT)
+    _, err = proc.communicate(timeout=120)
+    assert proc.returncode == 130, err.decode()
+    assert b"run the same command again to continue" in err
+    proc = _start(sweep, workdir, "executor.workers=2")
+    _, err = proc.communicate(timeout=300)
+    assert proc.returncode == 0, err.decode()
+    ds = open_sweep(workdir / "results" / "slow_column.zarr")
+    assert not np.any(ds.status.values == Status.pending)
+
+
+def test_torn_status_chunk_is_recomputed(workdir):
+    sweep = write_sweep(workdir, SLOW_SWEEP.replace("work_seconds: 0.004", "work_seconds: 0.0"))
+    run_sweep(str(sweep), ["executor=threads"])
+    path = workdir / "results" / "slow_column.zarr"
+    reference = open_sweep(path).load()
+    chunk = next(p for p in sorted((path / "status" / "c").rglob("*")) if p.is_file())
+    chunk.write_bytes(chunk.read_bytes()[:5])  # a write cut short by a crash
+    summary = run_sweep(str(sweep), ["executor=threads"])
+    assert summary.computed == 25 and summary.complete
+    xr.testing.assert_identical(open_sweep(path).load().drop_attrs(), reference.drop_attrs())
+
+
+def test_stale_template_folder_is_cleaned_and_store_created(workdir):
+    sweep = write_sweep(workdir, SLOW_SWEEP.replace("work_seconds: 0.004", "work_seconds: 0.0"))
+    stale = workdir / "results" / "slow_column.zarr.sweepshell-tmp-999999999"
+    stale.mkdir(parents=True)
+    (stale / "zarr.json").write_text("{")
+    summary = run_sweep(str(sweep), ["executor=threads"])
+    assert summary.complete and not stale.exists()
