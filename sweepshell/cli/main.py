@@ -8,10 +8,12 @@ commands that need them so that ``--help`` and ``status`` answer quickly.
 from __future__ import annotations
 
 import argparse
+import importlib
+import importlib.util
 import json
 import logging
 import sys
-from collections.abc import Callable, Sequence
+from collections.abc import Sequence
 from typing import Any, NoReturn
 
 from sweepshell import CAUTION, __version__
@@ -70,13 +72,16 @@ def build_parser() -> argparse.ArgumentParser:
     models.add_argument("--json", action="store_true", help="print JSON")
     models.set_defaults(func=_cmd_models)
 
-    for register in _EXTRA_COMMANDS:
-        register(sub)
+    for module_name in _COMMAND_MODULES:
+        if importlib.util.find_spec(module_name) is not None:
+            module = importlib.import_module(module_name)
+            module.register(sub)
     return parser
 
 
-#: further commands register themselves here (query, map, ...); each takes the subparsers object
-_EXTRA_COMMANDS: list[Callable[[Any], None]] = []
+#: modules adding further commands; each has ``register(subparsers)`` and imports heavy libraries lazily.
+#: Every command function returns an exit code and raises SweepshellError for bad input.
+_COMMAND_MODULES: tuple[str, ...] = ("sweepshell.cli.analysis", "sweepshell.cli.team")
 
 
 def _cmd_run(args: argparse.Namespace) -> int:
