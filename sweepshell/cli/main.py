@@ -14,7 +14,7 @@ import json
 import logging
 import sys
 from collections.abc import Sequence
-from typing import Any, NoReturn
+from typing import NoReturn
 
 from sweepshell import CAUTION, __version__
 from sweepshell.errors import SweepshellError
