@@ -1,0 +1,266 @@
+"""``shallow_cap``: snap-through and asymmetric buckling of shallow spherical caps (Föppl–von Kármán).
+
+Governing equations
+-------------------
+A spherical cap of base radius a, sphere radius R, thickness h, Young's modulus E and
+Poisson's ratio ν, edge at r = a. Marguerre's shallow-shell (Föppl–von Kármán) equations for
+the deflection W (positive upwards, away from the sphere's centre), the Airy stress function
+F and the stress-free surface Z₀ = −r²/(2R) − w₀(r) (sphere minus an inward apex dimple w₀)::
+
+    D ∇⁴W − [F, Z] = q_z,        ∇⁴F / (E h) = −½ ([Z, Z] − [Z₀, Z₀]),     Z = Z₀ + W,
+
+with [A, B] = A_xx B_yy + A_yy B_xx − 2 A_xy B_xy and D = E h³/(12(1−ν²)).
+
+Non-dimensionalisation: x = r/a, W = h ω/(2c), F = D Φ, c = √(3(1−ν²)), which turns both
+equations into ``∇⁴ω − [Φ, ζ] = q̂`` and ``∇⁴Φ = −½([ζ,ζ] − [ζ₀,ζ₀])`` with the perfect
+sphere ζ₀ = −λ²x²/2. The single geometric parameter is the shell parameter
+
+    λ = [12(1−ν²)]^{1/4} a / √(R h),   λ² = 2c a²/(R h),   λ⁴ = 12(1−ν²) a⁴/(R h)²,
+    a²/(R h) = λ²/(2c),   H/h = λ²/(4c)   (H = a²/(2R) the rise),
+
+so λ = k_c a with k_c = [12(1−ν²)]^{1/4}/√(Rh) the classical critical wavenumber of the
+sphere (Budiansky 1959; Huang 1964 use the same λ). Axisymmetric states are solved in the
+once-integrated form for y = ω' and f = −Φ' (both odd in x)::
+
+    x L[f] = −s₀ y + y²/2,      −x L[y] + f (s₀ − y) = 2 λ⁴ q x² + κ λ² P,
+    L[u] = u'' + u'/x − u/x²,   s₀ = λ² x − g(x),   κ = 2c²/π,
+
+where q = p/p_cl is the pressure over the classical buckling pressure of the complete
+sphere p_cl = 2 E h²/(R² c) (Zoelly 1915) and P = F_apex R/(E h³) the apex force. The dimple
+w₀ = δ_d h exp(−(r/(b ℓ))²), ℓ = √(Rh)/[12(1−ν²)]^{1/4} = a/λ, enters through
+g = 4c δ_d (λ/b)² x exp(−(λx/b)²) (``dimple_amplitude`` δ_d, ``dimple_width`` b).
+
+Conventions
+-----------
+* Pressure is a dead load along the cap axis (shallow-shell sense), positive inwards.
+* The apex force acts inwards along the axis; its whole path is traced by pseudo-arclength
+  continuation in (state, force), i.e. as under displacement control, snap-backs included.
+  Its critical state is the first force maximum (snap-through under force control) or the
+  first asymmetric bifurcation, whichever comes first. The force unit is E h³/R; the linear
+  stiffness unit is Reissner's k_R = 4 E h²/(R c) (Reissner 1946).
+* Edge r = a: W = 0 and clamped (W' = 0) or pinned (M_r = 0). In-plane: ``immovable``
+  (u_r = 0, and u_θ = 0 for asymmetric modes) by default, or ``sliding`` (N_r = N_rθ = 0).
+* Asymmetric bifurcation: the linearised equations for w(r) cos nθ, Φ(r) cos nθ about the
+  axisymmetric state, n = 1…N; a zero crossing of the determinant of the discretised
+  problem marks a bifurcation (dead pressure: no load-stiffness term).
+* ``critical_deflection`` is the apex deflection δ/h; ``critical_volume_change`` the swept
+  volume over the cap volume π a² H/2 (2 at mirror inversion).
+* ``bistable``: the path, continued past the first limit point, returns to zero load at a
+  second (inverted) state whose determinants for n = 0…N have their unloaded signs (a parity
+  test of stability). NaN where that part of the path was not followed.
+
+Numerics
+--------
+Chebyshev collocation on the odd half grid (``nodes`` points in 0 < x ≤ 1), Newton with the
+analytic Jacobian and the stretching block eliminated (Schur complement), batched lock-step
+pseudo-arclength continuation with step control on Newton work and tangent turning, and
+regula-falsi refinement of limit points (zero of dq/ds) and of determinant sign changes.
+The apex-force singularity y ∝ x log x is subtracted analytically.
+
+Range of validity
+-----------------
+Shallow caps (a/R ≲ 0.5; points with physical dimensions and a/R > ``max_base_ratio`` get
+``outside_validity``), elastic, moderate rotations, axisymmetric stress-free shape. The
+default resolution resolves λ up to about 20 (see the convergence test).
+
+References checked by the tests
+-------------------------------
+Zoelly 1915 (p_cl); Reissner 1946, J. Math. Phys. 25 (apex stiffness); Budiansky 1959,
+Weinitschke 1960 J. Math. Phys. 38:209, Huang 1964 J. Appl. Mech. 31:447 (clamped caps:
+onset of snapping near λ ≈ 3.2–3.4, limit pressure, asymmetric bifurcation first above λ ≈
+5.5); Hutchinson 2016 Proc. R. Soc. A 472:20160577 and Lee et al. 2016 J. Appl. Mech.
+83:111005 (knock-down against dimple amplitude).
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Mapping
+from typing import Any, ClassVar
+
+import numpy as np
+
+from sweepshell.models.base import BatchResult, OutputSpec, ParameterSpec, Status, SweepModel
+from sweepshell.models.shallow_cap_solver import CapSolution, solve_caps
+
+__all__ = ["ShallowCapModel"]
+
+_NAN = math.nan
+
+
+class ShallowCapModel(SweepModel):
+    """Shallow spherical cap under pressure or an apex force: limit points and bifurcations."""
+
+    name: ClassVar[str] = "shallow_cap"
+    version: ClassVar[str] = "1.0"
+    summary: ClassVar[str] = ("shallow spherical cap (Föppl–von Kármán): snap-through, asymmetric "
+                              "bifurcation, apex indentation, dimple imperfections")
+    parameters: ClassVar[tuple[ParameterSpec, ...]] = (
+        ParameterSpec("shell_parameter", "1", "lambda = [12(1-nu^2)]^(1/4) a/sqrt(R h)", default=6.0,
+                      bounds=(0.0, 30.0), closed=(False, True), symbol="λ"),
+        ParameterSpec("poisson_ratio", "1", "Poisson's ratio", default=0.3, bounds=(-0.9, 0.5),
+                      closed=(True, False), symbol="ν"),
+        ParameterSpec("edge", "1", "bending condition at the edge", default="clamped",
+                      choices=("clamped", "pinned")),
+        ParameterSpec("edge_inplane", "1", "in-plane condition at the edge (immovable: u = 0; sliding: N_r = 0)",
+                      default="immovable", choices=("immovable", "sliding")),
+        ParameterSpec("load", "1", "uniform dead pressure or inward apex force", default="pressure",
+                      choices=("pressure", "apex_force")),
+        ParameterSpec("dimple_amplitude", "1", "inward Gaussian apex dimple amplitude over thickness",
+                      default=0.0, bounds=(0.0, 10.0), symbol="δ_d/h"),
+        ParameterSpec("dimple_width", "1", "dimple width over sqrt(R h)/[12(1-nu^2)]^(1/4)", default=2.0,
+                      bounds=(0.0, 100.0), closed=(False, True), symbol="b"),
+        ParameterSpec("thickness", "m", "shell thickness h (optional; NaN = not given)", default=_NAN,
+                      bounds=(0.0, math.inf), closed=(False, False), symbol="h"),
+        ParameterSpec("sphere_radius", "m", "sphere radius R (optional; NaN = not given)", default=_NAN,
+                      bounds=(0.0, math.inf), closed=(False, False), symbol="R"),
+        ParameterSpec("base_radius", "m", "base radius a (optional; if given with h and R it sets lambda)",
+                      default=_NAN, bounds=(0.0, math.inf), closed=(False, False), symbol="a"),
+        ParameterSpec("youngs_modulus", "Pa", "Young's modulus E (optional; NaN = not given)", default=_NAN,
+                      bounds=(0.0, math.inf), closed=(False, False), symbol="E"),
+    )
+    regimes: ClassVar[tuple[str, ...]] = ("stable", "limit_point", "bifurcation")
+    cost_hint: ClassVar[float] = 8e-3
+
+    def __init__(self, *, nodes: int = 28, asymmetric_modes: int = 30, max_pressure: float = 2.0,
+                 max_indentation: float = 1.0, path_samples: int = 64, check_bistability: bool = True,
+                 tolerance: float = 1e-10, max_points: int = 400, max_base_ratio: float = 0.5) -> None:
+        super().__init__()
+        self._settings: dict[str, Any] = {
+            "nodes": int(nodes), "asymmetric_modes": int(asymmetric_modes),
+            "max_pressure": float(max_pressure), "max_indentation": float(max_indentation),
+            "path_samples": int(path_samples), "check_bistability": bool(check_bistability),
+            "tolerance": float(tolerance), "max_points": int(max_points),
+            "max_base_ratio": float(max_base_ratio),
+        }
+
+    @property
+    def outputs(self) -> tuple[OutputSpec, ...]:
+        return (
+            OutputSpec("critical_load", "1", "critical pressure over p_cl = 2Eh^2/(R^2 c), or apex force "
+                       "over E h^3/R; NaN when stable within the load range", nullable=True),
+            OutputSpec("knockdown", "1", "critical load over the classical pressure p_cl (pressure) or over "
+                       "the same cap without dimple (apex force); NaN when undefined", nullable=True),
+            OutputSpec("critical_wavenumber", "1", "circumferential wave number of the critical mode "
+                       "(0 = axisymmetric limit point); NaN when stable", nullable=True),
+            OutputSpec("critical_deflection", "1", "apex deflection over thickness at the critical state",
+                       nullable=True),
+            OutputSpec("critical_volume_change", "1", "swept volume over cap volume pi a^2 H/2 at the "
+                       "critical state", nullable=True),
+            OutputSpec("stiffness", "1", "initial slope: (p/p_cl)/(delta/h) for pressure; F/delta over "
+                       "Reissner's 4Eh^2/(R c) for apex force"),
+            OutputSpec("bistable", "1", "1 if a stable inverted equilibrium exists at zero load, else 0; "
+                       "NaN when not checked", nullable=True),
+            OutputSpec("load_path", "1", "equilibrium path sampled evenly along its length: load (as "
+                       "critical_load) and apex deflection over h", dims=("path_sample", "path_component")),
+            OutputSpec("critical_pressure_si", "Pa", "critical pressure; NaN unless E, h, R are given "
+                       "and the load is pressure", nullable=True),
+            OutputSpec("critical_force_si", "N", "critical apex force; NaN unless E, h, R are given and "
+                       "the load is an apex force", nullable=True),
+        )
+
+    @property
+    def extra_dims(self) -> dict[str, int]:
+        return {"path_sample": self._settings["path_samples"], "path_component": 2}
+
+    def extra_coords(self) -> dict[str, np.ndarray]:
+        return {"path_sample": np.arange(self._settings["path_samples"]),
+                "path_component": np.array(["load", "deflection"])}
+
+    @classmethod
+    def check_combination(cls, fixed: Mapping[str, Any], axes: Mapping[str, np.ndarray]) -> None:
+        from sweepshell.errors import ParameterError
+
+        given = {k for k in ("base_radius", "thickness", "sphere_radius")
+                 if k in axes or (k in fixed and not _is_nan(fixed[k]))}
+        if "base_radius" in given and "shell_parameter" in axes:
+            raise ParameterError(
+                "axes.shell_parameter cannot be swept while base_radius is given (base_radius, thickness "
+                "and sphere_radius set lambda); remove one of them", field="axes.shell_parameter")
+        if "base_radius" in given and given != {"base_radius", "thickness", "sphere_radius"}:
+            raise ParameterError(
+                "base_radius needs thickness and sphere_radius as well to set lambda; give all three",
+                field="base_radius")
+
+    def solve_batch(self, inputs: Mapping[str, np.ndarray]) -> BatchResult:
+        s = self._settings
+        lam = np.asarray(inputs["shell_parameter"], dtype=float).copy()
+        n = lam.shape[0]
+        nu = np.asarray(inputs["poisson_ratio"], dtype=float)
+        c = np.sqrt(3.0 * (1.0 - nu**2))
+        h = _get(inputs, "thickness", n)
+        big_r = _get(inputs, "sphere_radius", n)
+        a = _get(inputs, "base_radius", n)
+        e_mod = _get(inputs, "youngs_modulus", n)
+        geometric = np.isfinite(a) & np.isfinite(h) & np.isfinite(big_r)
+        with np.errstate(invalid="ignore", divide="ignore"):
+            lam = np.where(geometric, np.sqrt(np.abs(2.0 * c * a**2 / (big_r * h))), lam)
+        outside = (geometric & (a / np.where(geometric, big_r, 1.0) > s["max_base_ratio"])) | ~(lam > 0)
+        outside |= lam > 30.0
+        apex = np.asarray(inputs["load"]).astype(str) == "apex_force"
+        amp = np.asarray(inputs["dimple_amplitude"], dtype=float)
+        width = np.asarray(inputs["dimple_width"], dtype=float)
+        clamped = np.asarray(inputs["edge"]).astype(str) == "clamped"
+        immovable = np.asarray(inputs["edge_inplane"]).astype(str) == "immovable"
+        res = self.empty_result(n)
+        work = np.nonzero(~outside)[0]
+        res.status[outside] = Status.outside_validity
+        if work.size == 0:
+            return res
+        # the apex-force knock-down compares with the same cap without a dimple, solved alongside
+        ref = work[apex[work] & (amp[work] != 0.0)]
+        rows = np.concatenate([work, ref])
+        amp_rows = np.concatenate([amp[work], np.zeros(ref.size)])
+        sol = solve_caps(lam[rows], nu[rows], clamped[rows], immovable[rows], apex[rows], amp_rows,
+                         width[rows], settings=s)
+        main = _take(sol, slice(0, work.size))
+        _fill(res, work, main, apex[work], s)
+        if ref.size:
+            perfect = _take(sol, slice(work.size, None))
+            pos = np.searchsorted(work, ref)
+            kd = res.outputs["knockdown"]
+            with np.errstate(invalid="ignore", divide="ignore"):
+                kd[ref] = main.critical_load[pos] / perfect.critical_load
+        pressure_si = res.outputs["critical_pressure_si"]
+        force_si = res.outputs["critical_force_si"]
+        crit = res.outputs["critical_load"]
+        pcl = 2.0 * e_mod * h**2 / (big_r**2 * c)
+        pressure_si[:] = np.where(~apex, crit * pcl, np.nan)
+        force_si[:] = np.where(apex, crit * e_mod * h**3 / big_r, np.nan)
+        trusted = (res.status == Status.ok) | (res.status == Status.no_instability)
+        for v in res.outputs.values():
+            v[~trusted] = np.nan
+        res.regime[~trusted] = -1
+        return res
+
+
+def _is_nan(v: Any) -> bool:
+    try:
+        return math.isnan(float(v))
+    except (TypeError, ValueError):
+        return False
+
+
+def _get(inputs: Mapping[str, np.ndarray], key: str, n: int) -> np.ndarray:
+    if key in inputs:
+        return np.asarray(inputs[key], dtype=float)
+    return np.full(n, np.nan)
+
+
+def _take(sol: CapSolution, sl: slice) -> CapSolution:
+    return CapSolution(**{k: v[sl] for k, v in vars(sol).items()})
+
+
+def _fill(res: BatchResult, rows: np.ndarray, sol: CapSolution, apex: np.ndarray, s: Mapping[str, Any]) -> None:
+    out = res.outputs
+    res.status[rows] = sol.status
+    res.regime[rows] = sol.regime
+    out["critical_load"][rows] = sol.critical_load
+    out["knockdown"][rows] = np.where(apex, np.where(np.isfinite(sol.critical_load), 1.0, np.nan),
+                                      sol.critical_load)
+    out["critical_wavenumber"][rows] = sol.critical_wavenumber
+    out["critical_deflection"][rows] = sol.critical_deflection
+    out["critical_volume_change"][rows] = sol.critical_volume_change
+    out["stiffness"][rows] = sol.stiffness
+    out["bistable"][rows] = sol.bistable
+    out["load_path"][rows] = sol.load_path

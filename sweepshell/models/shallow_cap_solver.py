@@ -1,0 +1,289 @@
+"""Path following and critical-state search of the shallow-cap model (batched, numpy only).
+
+See :mod:`sweepshell.models.shallow_cap` for the equations and conventions. Steps:
+
+1. trace every cap's axisymmetric path by pseudo-arclength continuation from the unloaded
+   state until the load range ends, or (when bistability is checked) until the path
+   returns to zero load after its first limit point;
+2. bracket the first limit point (sign change of dμ/ds) and, for n = 1…N, the first sign
+   change of the stability determinants along the path before it;
+3. refine whichever comes first by regula falsi along the arc; classify the point.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Mapping
+from dataclasses import dataclass
+from typing import Any
+
+import numpy as np
+
+from sweepshell.models.base import Status
+from sweepshell.models.shallow_cap_kernels import CapPathProblem, compute_mode_determinants
+from sweepshell.numerics.arclength import (
+    TRACE_DONE,
+    compute_tangent,
+    refine_on_arc,
+    trace_paths,
+)
+from sweepshell.numerics.radial_chebyshev import make_radial_grid
+
+__all__ = ["CapSolution", "solve_caps"]
+
+_REGIME_STABLE, _REGIME_LIMIT, _REGIME_BIFURCATION = 0, 1, 2
+_DET_CHUNK = 1024
+
+
+@dataclass
+class CapSolution:
+    """Per-cap results (arrays over caps); see the model's outputs for meanings."""
+
+    status: np.ndarray
+    regime: np.ndarray
+    critical_load: np.ndarray
+    critical_wavenumber: np.ndarray
+    critical_deflection: np.ndarray
+    critical_volume_change: np.ndarray
+    stiffness: np.ndarray
+    bistable: np.ndarray
+    load_path: np.ndarray
+
+
+def make_problem(lam: np.ndarray, nu: np.ndarray, clamped: np.ndarray, immovable: np.ndarray,
+                 apex: np.ndarray, amplitude: np.ndarray, width: np.ndarray, nodes: int) -> CapPathProblem:
+    """Return the batched axisymmetric problem of the given caps."""
+    grid = make_radial_grid(nodes)
+    x = grid.x
+    c = np.sqrt(3.0 * (1.0 - nu**2))
+    lw = (lam / width)[:, None]
+    imperfection = 4.0 * (c * amplitude / width**2)[:, None] * x[None, :] * np.exp(-(lw * x[None, :]) ** 2)
+    force_scale = np.where(apex, 1.0 + lam**2 / (4.0 * c), 1.0)
+    return CapPathProblem(grid=grid, lam=lam.astype(float), nu=nu.astype(float), clamped=clamped,
+                          immovable=immovable, apex=apex, imperfection=imperfection, force_scale=force_scale)
+
+
+def _modes_determinants(pb: CapPathProblem, z: np.ndarray, idx: np.ndarray,
+                        modes: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    sign = np.empty((z.shape[0], modes.size))
+    logdet = np.empty_like(sign)
+    for lo in range(0, z.shape[0], _DET_CHUNK):
+        sl = slice(lo, lo + _DET_CHUNK)
+        sign[sl], logdet[sl] = compute_mode_determinants(pb, z[sl], idx[sl], modes)
+    return sign, logdet
+
+
+def solve_caps(lam: np.ndarray, nu: np.ndarray, clamped: np.ndarray, immovable: np.ndarray,
+               apex: np.ndarray, amplitude: np.ndarray, width: np.ndarray, *,
+               settings: Mapping[str, Any]) -> CapSolution:
+    """Solve n caps; every array argument has shape ``(n,)``.
+
+    Parameters
+    ----------
+    lam, nu
+        Shell parameter λ and Poisson's ratio.
+    clamped, immovable, apex
+        Edge and load flags (see :class:`CapPathProblem`).
+    amplitude, width
+        Dimple amplitude (over h) and width (over ℓ = a/λ).
+    settings
+        The model settings.
+    """
+    n = lam.shape[0]
+    nodes = int(settings["nodes"])
+    pb = make_problem(lam, nu, clamped, immovable, apex, amplitude, width, nodes)
+    m = pb.unknowns
+    w = np.full(m + 1, 1.0 / m)
+    w[-1] = 1.0
+    idx = np.arange(n)
+    c = np.sqrt(3.0 * (1.0 - nu**2))
+    z0 = np.zeros((n, m + 1))
+    e_mu = np.zeros((n, m + 1))
+    e_mu[:, -1] = 1.0
+    _, lin = pb.linearize(z0, idx)
+    t0 = compute_tangent(lin, e_mu, w)
+    load_unit = pb.force_scale
+    d_defl = pb.apex_deflection(t0, idx)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        slope = t0[:, -1] * load_unit / d_defl
+    stiffness = np.where(apex, slope * c / 4.0, slope)
+
+    mu_max = np.where(apex, np.inf, float(settings["max_pressure"]))
+    inversion = lam**2 / (2.0 * c)  # 2H/h
+    defl_max = np.where(apex, float(settings["max_indentation"]) * inversion, 1.5 * inversion + 2.0)
+    check_bi = bool(settings["check_bistability"])
+    fold_seen = np.zeros(n, dtype=bool)
+    went_negative = np.zeros(n, dtype=bool)
+
+    def is_finished(zp: np.ndarray, zn: np.ndarray, tn: np.ndarray, rows: np.ndarray) -> np.ndarray:
+        mu_p, mu_n = zp[:, -1], zn[:, -1]
+        fold_seen[rows] |= mu_n < mu_p
+        done = (mu_n > mu_max[rows]) | (pb.apex_deflection(zn, rows) > defl_max[rows])
+        if not check_bi:
+            return done | fold_seen[rows]
+        went_negative[rows] |= fold_seen[rows] & (mu_n < 0)
+        done |= went_negative[rows] & (mu_n >= 0)
+        done |= mu_n < -mu_max[rows]
+        return done
+
+    hist = trace_paths(pb, z0, t0, idx, w, first_step=0.02, max_step=0.25, min_step=1e-7,
+                       max_points=int(settings["max_points"]), max_angle_deg=12.0,
+                       tol=float(settings["tolerance"]), max_iter=8, is_finished=is_finished)
+    tol = float(settings["tolerance"])
+    count = hist.count
+    tmu = hist.t[:, :, -1]
+    mu = hist.z[:, :, -1]
+    steps = np.arange(hist.z.shape[1])
+    valid = steps[None, :] < count[:, None]
+    # first limit point: dμ/ds changes from positive to non-positive within the load range
+    fold_b = valid[:, 1:] & (tmu[:, :-1] > 0) & (tmu[:, 1:] <= 0) & (mu[:, :-1] <= mu_max[:, None])
+    has_fold = fold_b.any(axis=1)
+    jf = np.where(has_fold, np.argmax(fold_b, axis=1), -1)
+    scan_end = np.where(has_fold, jf + 1, count - 1)
+
+    # asymmetric scan along the path up to the fold bracket
+    n_modes = int(settings["asymmetric_modes"])
+    jb = np.full(n, -1)
+    bif_mode = np.zeros(n, dtype=int)
+    bif_ratio = np.ones(n)
+    ref_sign = np.ones((n, max(n_modes, 1)))
+    ref_logdet = np.zeros((n, max(n_modes, 1)))
+    modes = np.arange(1, n_modes + 1)
+    if n_modes > 0:
+        pi, pj = np.nonzero(steps[None, :] <= scan_end[:, None])
+        sg, ld = _modes_determinants(pb, hist.z[pi, pj], pi, modes)
+        first = pj == 0
+        ref_sign[pi[first]] = sg[first]
+        ref_logdet[pi[first]] = ld[first]
+        flipped = (sg != ref_sign[pi]).any(axis=1) & (pj > 0)
+        sg_full = np.zeros((n, hist.z.shape[1], n_modes))
+        ld_full = np.zeros_like(sg_full)
+        sg_full[pi, pj] = sg
+        ld_full[pi, pj] = ld
+        for i in np.unique(pi[flipped]):
+            j = int(pj[flipped & (pi == i)].min())
+            prev_s, prev_l = sg_full[i, j - 1], ld_full[i, j - 1]
+            now_s, now_l = sg_full[i, j], ld_full[i, j]
+            cross = now_s != prev_s
+            ratio = prev_s * now_s * np.exp(np.clip(now_l - prev_l, -700, 700))
+            est = np.where(cross, 1.0 / (1.0 - ratio), np.inf)
+            k = int(np.argmin(est))
+            jb[i], bif_mode[i], bif_ratio[i] = j, modes[k], ratio[k]
+            ref_sign[i, 0], ref_logdet[i, 0] = prev_s[k], prev_l[k]
+
+    crit_z = np.full((n, m + 1), np.nan)
+    crit_s_fold = np.full(n, np.inf)
+    crit_s_bif = np.full(n, np.inf)
+    refine_ok = np.ones(n, dtype=bool)
+    z_fold = np.full((n, m + 1), np.nan)
+    z_bif = np.full((n, m + 1), np.nan)
+    rf = np.nonzero(has_fold & ((jb < 0) | (jb >= jf + 1)))[0]
+    if rf.size:
+        j = jf[rf]
+        zf, _, sf, okf = refine_on_arc(
+            pb, hist.z[rf, j], hist.t[rf, j], hist.step[rf, j + 1], tmu[rf, j], tmu[rf, j + 1], rf, w,
+            lambda z, t, ii: t[:, -1], tol=tol, max_iter=8, iterations=40, s_tol=1e-9)
+        z_fold[rf], crit_s_fold[rf] = zf, sf
+        refine_ok[rf] &= okf
+    rb = np.nonzero(jb > 0)[0]
+    if rb.size:
+        j = jb[rb]
+        mode_of = np.zeros(n, dtype=int)
+        mode_of[rb] = bif_mode[rb]
+
+        def measure(z: np.ndarray, t: np.ndarray, ii: np.ndarray) -> np.ndarray:
+            out = np.empty(z.shape[0])
+            for mode in np.unique(mode_of[ii]):
+                sel = mode_of[ii] == mode
+                sg, ld = compute_mode_determinants(pb, z[sel], ii[sel], np.array([mode]))
+                out[sel] = sg[:, 0] * ref_sign[ii[sel], 0] * np.exp(np.clip(ld[:, 0] - ref_logdet[ii[sel], 0],
+                                                                            -700, 700))
+            return out
+
+        zb, _, sb, okb = refine_on_arc(
+            pb, hist.z[rb, j - 1], hist.t[rb, j - 1], hist.step[rb, j], np.ones(rb.size), bif_ratio[rb], rb, w,
+            measure, tol=tol, max_iter=8, iterations=40, s_tol=1e-9)
+        z_bif[rb], crit_s_bif[rb] = zb, sb
+        refine_ok[rb] &= okb
+
+    # which comes first along the path (compare arclength positions step index + offset)
+    pos_fold = np.where(np.isfinite(crit_s_fold), jf + crit_s_fold / np.maximum(hist.step[idx, np.maximum(jf, 0) + 1],
+                                                                                 1e-300), np.inf)
+    pos_bif = np.where(np.isfinite(crit_s_bif), jb - 1 + crit_s_bif / np.maximum(hist.step[idx, np.maximum(jb, 0)],
+                                                                                 1e-300), np.inf)
+    use_bif = pos_bif < pos_fold
+    crit_z = np.where(use_bif[:, None], z_bif, z_fold)
+    found = np.isfinite(pos_bif) | np.isfinite(pos_fold)
+    crit_mu = crit_z[:, -1]
+    crit_load = crit_mu * load_unit
+    in_range = found & (crit_mu <= mu_max)
+    regime = np.where(in_range, np.where(use_bif, _REGIME_BIFURCATION, _REGIME_LIMIT), _REGIME_STABLE)
+    status = np.where(in_range, Status.ok, Status.no_instability).astype(np.uint8)
+    reached = (hist.state == TRACE_DONE) | has_fold | (jb > 0)
+    status[~reached | (in_range & ~refine_ok)] = Status.not_converged
+    crit_load = np.where(in_range, crit_load, np.nan)
+    wavenumber = np.where(in_range, np.where(use_bif, bif_mode, 0).astype(float), np.nan)
+    deflection = np.where(in_range, pb.apex_deflection(np.nan_to_num(crit_z), idx), np.nan)
+    volume = np.where(in_range, pb.volume_change(np.nan_to_num(crit_z), idx), np.nan)
+    bistable = _check_bistability(pb, hist, w, has_fold, jf, modes, ref_sign_all=None, tol=tol) \
+        if check_bi else np.full(n, np.nan)
+    path = _sample_paths(pb, hist, load_unit, int(settings["path_samples"]))
+    return CapSolution(status=status, regime=np.where(status <= Status.no_instability, regime, -1).astype(np.int8),
+                       critical_load=crit_load, critical_wavenumber=wavenumber, critical_deflection=deflection,
+                       critical_volume_change=volume, stiffness=stiffness, bistable=bistable, load_path=path)
+
+
+def _check_bistability(pb: CapPathProblem, hist: Any, w: np.ndarray, has_fold: np.ndarray, jf: np.ndarray,
+                       modes: np.ndarray, ref_sign_all: Any, tol: float) -> np.ndarray:
+    """Return 1/0 per cap: a stable state at zero load beyond the first limit point; NaN if unknown."""
+    n = hist.count.shape[0]
+    out = np.zeros(n)
+    mu = hist.z[:, :, -1]
+    tmu = hist.t[:, :, -1]
+    steps = np.arange(mu.shape[1])
+    valid = steps[None, :] < hist.count[:, None]
+    after = steps[None, 1:] > jf[:, None] + 1
+    up = valid[:, 1:] & after & (mu[:, :-1] < 0) & (mu[:, 1:] >= 0) & has_fold[:, None]
+    rows = np.nonzero(up.any(axis=1))[0]
+    unknown = has_fold & (hist.state != TRACE_DONE)
+    out[unknown] = np.nan
+    if rows.size == 0:
+        return out
+    j = np.argmax(up[rows], axis=1)
+    zr, _, _, ok = refine_on_arc(pb, hist.z[rows, j], hist.t[rows, j], hist.step[rows, j + 1],
+                                 mu[rows, j], mu[rows, j + 1], rows, w, lambda z, t, ii: z[:, -1],
+                                 tol=tol, max_iter=8, iterations=30, s_tol=1e-6)
+    # axisymmetric stability by fold parity: an even number of sign changes of dμ/ds so far
+    changes = np.array([np.count_nonzero(np.diff(np.sign(tmu[r, : jj + 1])) != 0)
+                        for r, jj in zip(rows, j, strict=True)])
+    stable = ok & (changes % 2 == 0) & (tmu[rows, j] > 0)
+    if modes.size and ok.any():
+        z_ref = np.zeros((rows.size, hist.z.shape[2]))
+        s0, _ = compute_mode_determinants(pb, z_ref, rows, modes)
+        s1, _ = compute_mode_determinants(pb, np.nan_to_num(zr), rows, modes)
+        stable &= (s0 == s1).all(axis=1)
+    out[rows] = np.where(ok, stable.astype(float), np.nan)
+    return out
+
+
+def _sample_paths(pb: CapPathProblem, hist: Any, load_unit: np.ndarray, samples: int) -> np.ndarray:
+    """Return ``(n, samples, 2)``: (load, apex deflection/h) evenly spaced along each path."""
+    n, cap, m1 = hist.z.shape
+    out = np.empty((n, samples, 2))
+    flat = hist.z.reshape(n * cap, m1)
+    rows = np.repeat(np.arange(n), cap)
+    defl = pb.apex_deflection(np.nan_to_num(flat), rows).reshape(n, cap)
+    load = hist.z[:, :, -1] * load_unit[:, None]
+    u = np.linspace(0.0, 1.0, samples)
+    for i in range(n):
+        c = int(hist.count[i])
+        lo, de = load[i, :c], defl[i, :c]
+        scale_l = max(np.abs(lo).max(), 1e-12)
+        scale_d = max(np.abs(de).max(), 1e-12)
+        seg = np.hypot(np.diff(lo) / scale_l, np.diff(de) / scale_d)
+        s = np.concatenate([[0.0], np.cumsum(seg)])
+        if s[-1] <= 0:
+            out[i, :, 0], out[i, :, 1] = lo[0], de[0]
+            continue
+        out[i, :, 0] = np.interp(u * s[-1], s, lo)
+        out[i, :, 1] = np.interp(u * s[-1], s, de)
+    return out

@@ -1,0 +1,286 @@
+"""Batched pseudo-arclength continuation with fold detection and refinement (numpy only).
+
+Many small problems ``R(z) = 0``, ``z = (u, μ)`` with ``u ∈ R^m`` and one load parameter ``μ``,
+are continued in lock-step: every problem takes its own steps (own step length, own
+acceptance), and the arrays only share the loop. Converged or finished problems are frozen
+by masks, so a problem's answer never depends on which others share the batch.
+
+The corrector solves the bordered system (Keller 1977, pseudo-arclength)::
+
+    R(z) = 0,    tᵀ W (z − z_k) = s,
+
+with ``t`` the unit tangent at the anchor ``z_k`` in the weighted norm ``‖v‖² = Σ w_i v_i²``.
+A fold (limit point) of ``μ`` is where the tangent's ``μ`` component changes sign; it is
+refined by regula falsi (Illinois variant) on that component along the arc.
+
+A problem is any object with ``linearize(z, idx) -> (R, lin)`` where ``z`` is ``(k, m+1)``,
+``idx`` the ``(k,)`` problem indices, ``R`` is ``(k, m)`` and ``lin.solve_bordered(row, r, c)``
+solves the bordered systems ``[∂R/∂z; row] d = [r; c]`` (``row`` ``(k, m+1)``, ``r`` ``(k, m)``,
+``c`` ``(k,)``), so that a model can exploit the structure of its Jacobian.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Callable
+from dataclasses import dataclass
+from typing import Protocol
+
+import numpy as np
+
+__all__ = [
+    "TRACE_DONE",
+    "TRACE_RUNNING",
+    "TRACE_STALLED",
+    "TRACE_STEP_LIMIT",
+    "ContinuationProblem",
+    "PathHistory",
+    "compute_tangent",
+    "correct_on_arc",
+    "refine_on_arc",
+    "trace_paths",
+]
+
+TRACE_RUNNING = 0
+TRACE_DONE = 1
+TRACE_STALLED = 2  # step length fell below its minimum: Newton kept failing
+TRACE_STEP_LIMIT = 3
+
+
+class BorderedSolver(Protocol):
+    def solve_bordered(self, row: np.ndarray, r: np.ndarray, c: np.ndarray) -> np.ndarray:
+        ...  # pragma: no cover - protocol
+
+
+class ContinuationProblem(Protocol):
+    def linearize(self, z: np.ndarray, idx: np.ndarray) -> tuple[np.ndarray, BorderedSolver]:
+        ...  # pragma: no cover - protocol
+
+
+@dataclass
+class PathHistory:
+    """Accepted points of every path.
+
+    Attributes
+    ----------
+    z, t
+        ``(n, S, m+1)`` states and unit tangents; rows past ``count`` are NaN.
+    step
+        ``(n, S)`` arclength from the previous accepted point (0 for the first).
+    count
+        ``(n,)`` number of accepted points.
+    state
+        ``(n,)`` one of ``TRACE_DONE``, ``TRACE_STALLED``, ``TRACE_STEP_LIMIT``.
+    """
+
+    z: np.ndarray
+    t: np.ndarray
+    step: np.ndarray
+    count: np.ndarray
+    state: np.ndarray
+
+
+def _wdot(a: np.ndarray, b: np.ndarray, w: np.ndarray) -> np.ndarray:
+    return np.einsum("ki,ki,i->k", a, b, w)
+
+
+def compute_tangent(lin: BorderedSolver, t_prev: np.ndarray, w: np.ndarray) -> np.ndarray:
+    """Return unit tangents ``t`` with ``(∂R/∂z) t = 0`` oriented along ``t_prev``.
+
+    Parameters
+    ----------
+    lin
+        Linearisation at the states (from ``problem.linearize``).
+    t_prev
+        ``(k, m+1)`` previous tangents (orientation and bordering row).
+    w
+        ``(m+1,)`` norm weights.
+    """
+    k, m1 = t_prev.shape
+    t = lin.solve_bordered(t_prev * w, np.zeros((k, m1 - 1)), np.ones(k))
+    with np.errstate(invalid="ignore", divide="ignore"):
+        t /= np.sqrt(_wdot(t, t, w))[:, None]
+    return t
+
+
+def correct_on_arc(problem: ContinuationProblem, anchor: np.ndarray, tangent: np.ndarray,
+                   s: np.ndarray, idx: np.ndarray, w: np.ndarray, *, tol: float,
+                   max_iter: int) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Newton-correct predictor ``anchor + s·tangent`` onto ``R = 0`` at arclength ``s``.
+
+    Returns
+    -------
+    z, converged, iterations
+        Corrected states ``(k, m+1)``, a bool mask and the Newton iterations used ``(k,)``.
+    """
+    z = anchor + s[:, None] * tangent
+    k = z.shape[0]
+    conv = np.zeros(k, dtype=bool)
+    alive = np.ones(k, dtype=bool)
+    its = np.zeros(k, dtype=int)
+    last = np.full(k, np.inf)
+    for _ in range(max_iter):
+        act = np.nonzero(alive & ~conv)[0]
+        if act.size == 0:
+            break
+        r, lin = problem.linearize(z[act], idx[act])
+        c = s[act] - _wdot(tangent[act], z[act] - anchor[act], w)
+        with np.errstate(all="ignore"):
+            dz = lin.solve_bordered(tangent[act] * w, -r, c)
+            size = np.sqrt(_wdot(dz, dz, w))
+        bad = ~np.isfinite(size) | ((size > 4.0 * last[act] + 1e-14) & (its[act] > 1))
+        alive[act[bad]] = False
+        good = act[~bad]
+        z[good] += dz[~bad]
+        its[good] += 1
+        last[good] = size[~bad]
+        conv[good[size[~bad] < tol]] = True
+    return z, conv, its
+
+
+
+def trace_paths(problem: ContinuationProblem, z0: np.ndarray, t0: np.ndarray, idx: np.ndarray,
+                w: np.ndarray, *, first_step: float, max_step: float, min_step: float,
+                max_points: int, max_angle_deg: float, tol: float, max_iter: int,
+                is_finished: Callable[[np.ndarray, np.ndarray, np.ndarray, np.ndarray], np.ndarray],
+                ) -> PathHistory:
+    """Continue every path from ``z0`` along ``t0`` until ``is_finished`` says so.
+
+    Parameters
+    ----------
+    z0, t0
+        ``(n, m+1)`` start states and unit tangents (``μ`` component positive to load up).
+    idx
+        ``(n,)`` problem indices passed to ``problem.evaluate``.
+    w
+        ``(m+1,)`` norm weights.
+    first_step, max_step, min_step
+        Arclength steps in the weighted norm.
+    max_points
+        Capacity of the history; a path that fills it ends with ``TRACE_STEP_LIMIT``.
+    max_angle_deg
+        Largest accepted turn of the tangent per step; larger turns halve the step, so a
+        sharp double fold is never stepped over.
+    is_finished
+        ``f(z_prev, z_new, t_new, rows) -> bool mask``: whether each path just accepted its
+        last point (``rows`` are the path numbers 0…n-1).
+    """
+    n, m1 = z0.shape
+    zh = np.full((n, max_points, m1), np.nan)
+    th = np.full((n, max_points, m1), np.nan)
+    sh = np.zeros((n, max_points))
+    zh[:, 0] = z0
+    th[:, 0] = t0
+    count = np.ones(n, dtype=int)
+    state = np.full(n, TRACE_RUNNING, dtype=np.int8)
+    h = np.full(n, float(first_step))
+    cos_max = np.cos(np.radians(max_angle_deg))
+    rows_all = np.arange(n)
+    while True:
+        act = np.nonzero(state == TRACE_RUNNING)[0]
+        if act.size == 0:
+            break
+        zc = zh[act, count[act] - 1]
+        tc = th[act, count[act] - 1]
+        z, conv, its = correct_on_arc(problem, zc, tc, h[act], idx[act], w, tol=tol, max_iter=max_iter)
+        ok = conv.copy()
+        tn = np.zeros_like(tc)
+        if ok.any():
+            _, lin = problem.linearize(z[ok], idx[act[ok]])
+            tn[ok] = compute_tangent(lin, tc[ok], w)
+        with np.errstate(invalid="ignore"):
+            cosang = _wdot(tn, tc, w)
+        dmu = z[:, -1] - zc[:, -1]
+        # both ends rising (or falling) but the load moved the other way: a fold pair was skipped
+        skipped = ((tc[:, -1] > 0) & (tn[:, -1] > 0) & (dmu < 0)) | ((tc[:, -1] < 0) & (tn[:, -1] < 0) & (dmu > 0))
+        ok &= (cosang > cos_max) & ~skipped
+        rej = act[~ok]
+        h[rej] *= 0.5
+        state[rej[h[rej] < min_step]] = TRACE_STALLED
+        acc = act[ok]
+        if acc.size:
+            c = count[acc]
+            zh[acc, c] = z[ok]
+            th[acc, c] = tn[ok]
+            sh[acc, c] = h[acc]
+            count[acc] += 1
+            grow = np.where(its[ok] <= 2, 1.6, np.where(its[ok] <= 3, 1.25, np.where(its[ok] <= 5, 1.0, 0.7)))
+            # a strongly turning path gets shorter steps before the angle test rejects them
+            grow = np.where(cosang[ok] < 0.5 * (1.0 + cos_max), np.minimum(grow, 0.8), grow)
+            h[acc] = np.minimum(h[acc] * grow, max_step)
+            fin = is_finished(zc[ok], z[ok], tn[ok], rows_all[acc])
+            state[acc[fin]] = TRACE_DONE
+            full = (count[acc] >= max_points) & ~fin
+            state[acc[full]] = TRACE_STEP_LIMIT
+    return PathHistory(z=zh, t=th, step=sh, count=count, state=state)
+
+
+def refine_on_arc(problem: ContinuationProblem, anchor: np.ndarray, tangent: np.ndarray,
+                  s_hi: np.ndarray, g_lo: np.ndarray, g_hi: np.ndarray, idx: np.ndarray,
+                  w: np.ndarray, measure: Callable[[np.ndarray, np.ndarray, np.ndarray], np.ndarray],
+                  *, tol: float, max_iter: int, iterations: int, s_tol: float,
+                  ) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+    """Find the arclength ``s ∈ (0, s_hi)`` from ``anchor`` where ``measure`` changes sign.
+
+    Parameters
+    ----------
+    anchor, tangent
+        ``(k, m+1)`` accepted point before the sign change and its tangent.
+    s_hi
+        ``(k,)`` arclength of the accepted point after the sign change.
+    g_lo, g_hi
+        ``(k,)`` values of ``measure`` at both ends (opposite signs).
+    measure
+        ``f(z, t, idx) -> (k,)`` scalar whose zero is sought (e.g. the tangent's load
+        component for a fold, or a stability determinant for a bifurcation).
+
+    Returns
+    -------
+    z, t, s, ok
+        The refined states, tangents, arclengths from the anchor and a success mask.
+    """
+    k = anchor.shape[0]
+    lo = np.zeros(k)
+    hi = s_hi.astype(float).copy()
+    glo = g_lo.astype(float).copy()
+    ghi = g_hi.astype(float).copy()
+    side = np.zeros(k, dtype=int)
+    z_best = np.full_like(anchor, np.nan)
+    t_best = np.full_like(anchor, np.nan)
+    ok = np.ones(k, dtype=bool)
+    done = np.zeros(k, dtype=bool)
+    for _ in range(iterations):
+        act = np.nonzero(~done & ok)[0]
+        if act.size == 0:
+            break
+        denom = ghi[act] - glo[act]
+        s = np.where(denom != 0, (lo[act] * ghi[act] - hi[act] * glo[act]) / np.where(denom != 0, denom, 1.0),
+                     0.5 * (lo[act] + hi[act]))
+        width = hi[act] - lo[act]
+        s = np.clip(s, lo[act] + 0.01 * width, hi[act] - 0.01 * width)
+        z, conv, _ = correct_on_arc(problem, anchor[act], tangent[act], s, idx[act], w,
+                                    tol=tol, max_iter=max_iter)
+        ok[act[~conv]] = False
+        c = np.nonzero(conv)[0]
+        if c.size == 0:
+            continue
+        a = act[c]
+        _, lin = problem.linearize(z[c], idx[a])
+        t = compute_tangent(lin, tangent[a], w)
+        g = measure(z[c], t, idx[a])
+        z_best[a] = z[c]
+        t_best[a] = t
+        same_lo = np.sign(g) == np.sign(glo[a])
+        # Illinois: halve the stale end's value when the same end moves twice
+        lo_move = a[same_lo]
+        hi_move = a[~same_lo]
+        ghi[lo_move[side[lo_move] == -1]] *= 0.5
+        glo[hi_move[side[hi_move] == 1]] *= 0.5
+        lo[lo_move] = s[c][same_lo]
+        glo[lo_move] = g[same_lo]
+        side[lo_move] = -1
+        hi[hi_move] = s[c][~same_lo]
+        ghi[hi_move] = g[~same_lo]
+        side[hi_move] = 1
+        done[a[(hi[a] - lo[a]) < s_tol * np.maximum(s_hi[a], 1e-300)]] = True
+    s_out = 0.5 * (lo + hi)
+    return z_best, t_best, s_out, ok

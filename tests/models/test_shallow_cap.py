@@ -1,0 +1,96 @@
+"""Unit, contract and convergence tests of the ``shallow_cap`` model."""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+from scipy import special
+
+from sweepshell.models import Status, make_model
+from sweepshell.models.shallow_cap_kernels import CapPathProblem
+from sweepshell.models.shallow_cap_solver import make_problem
+from sweepshell.numerics.arclength import compute_tangent
+
+NU = 0.3
+C = np.sqrt(3.0 * (1.0 - NU**2))
+
+
+def make_inputs(lam, **over):
+    lam = np.atleast_1d(np.asarray(lam, dtype=float))
+    n = lam.size
+    base = {"shell_parameter": lam, "poisson_ratio": np.full(n, NU), "edge": np.array(["clamped"] * n),
+            "edge_inplane": np.array(["immovable"] * n), "load": np.array(["pressure"] * n),
+            "dimple_amplitude": np.zeros(n), "dimple_width": np.full(n, 2.0)}
+    for k in ("thickness", "sphere_radius", "base_radius", "youngs_modulus"):
+        base[k] = np.full(n, np.nan)
+    for k, v in over.items():
+        base[k] = np.asarray(v) if np.ndim(v) else np.full(n, v, dtype=object if isinstance(v, str) else float)
+        if isinstance(v, str):
+            base[k] = base[k].astype(str)
+    return base
+
+
+def linear_apex_deflection(pb: CapPathProblem) -> np.ndarray:
+    """Return dδ/dμ of the linearised problem (initial tangent)."""
+    n = pb.lam.size
+    m = pb.unknowns
+    w = np.full(m + 1, 1.0 / m)
+    w[-1] = 1.0
+    z0 = np.zeros((n, m + 1))
+    e = np.zeros((n, m + 1))
+    e[:, -1] = 1.0
+    _, lin = pb.linearize(z0, np.arange(n))
+    t = compute_tangent(lin, e, w)
+    return pb.apex_deflection(t, np.arange(n)) / t[:, -1]
+
+
+def exact_linear_pressure_deflection(lam: float, nu: float = NU) -> float:
+    """δ/h per unit q of the linear clamped, immovable cap (Bessel functions of x e^{iπ/4})."""
+    # L[Ψ] + iλ²Ψ = 0 for Ψ = y + i f − 2iλ² q x; Ψ_h = C J1(k x), k = λ e^{iπ/4}
+    k = lam * np.exp(1j * np.pi / 4)
+    j1 = special.jv(1, k)
+    dj1 = k * (special.jv(0, k) - j1 / k)
+    # unknown complex C = cr + i ci; conditions: Re Ψ(1) = 0 ; Im(Ψ'(1) − νΨ(1)) + (1 − ν)·2λ² = 0
+    a = np.array([[j1.real, -j1.imag], [(dj1 - nu * j1).imag, (dj1 - nu * j1).real]])
+    rhs = np.array([0.0, -(1 - nu) * 2 * lam**2])
+    cr, ci = np.linalg.solve(a, rhs)
+    coef = cr + 1j * ci
+    # ∫0^1 J1(kx) dx = (1 − J0(k))/k
+    integral_y = (coef * (1 - special.jv(0, k)) / k).real
+    return lam**2 / (2 * C) * integral_y / lam**2
+
+
+@pytest.mark.parametrize("lam", [2.0, 6.0, 15.0])
+def test_linear_pressure_response_matches_bessel_solution(lam):
+    # linear shallow-shell theory of the clamped cap (Reissner 1946 Bessel-function solution, re-derived)
+    pb = make_problem(np.array([lam]), np.array([NU]), np.array([True]), np.array([True]), np.array([False]),
+                      np.zeros(1), np.full(1, 2.0), 32)
+    got = linear_apex_deflection(pb)[0]
+    assert got == pytest.approx(exact_linear_pressure_deflection(lam), rel=1e-8)
+
+
+def test_outputs_nan_exactly_where_untrusted_and_dtypes():
+    model = make_model("shallow_cap", {"asymmetric_modes": 4, "path_samples": 16})
+    res = model.solve_batch(make_inputs([2.0, 4.0, 8.0, 40.0]))
+    trusted = np.isin(res.status, [Status.ok, Status.no_instability])
+    assert res.status.dtype == np.uint8 and res.regime.dtype == np.int8
+    assert list(res.status) == [Status.no_instability, Status.ok, Status.ok, Status.outside_validity]
+    nullable = {o.name for o in model.outputs if o.nullable}
+    for o in model.outputs:
+        v = res.outputs[o.name]
+        assert v.dtype == np.float64
+        assert np.isnan(v[~trusted]).all()
+        if o.name not in nullable:
+            assert np.isfinite(v[trusted]).all(), o.name
+    assert list(res.regime) == [0, 1, 2, -1]
+
+
+def test_batch_invariance_and_determinism():
+    model = make_model("shallow_cap", {"asymmetric_modes": 6, "path_samples": 8})
+    lam = np.array([3.8, 6.5, 9.0])
+    full = model.solve_batch(make_inputs(lam, dimple_amplitude=np.array([0.0, 0.3, 0.0])))
+    for i in range(3):
+        one = model.solve_batch(make_inputs(lam[i:i + 1], dimple_amplitude=np.array([[0.0, 0.3, 0.0][i]])))
+        for name, v in full.outputs.items():
+            np.testing.assert_array_equal(v[i:i + 1], one.outputs[name], err_msg=name)
+        assert one.status[0] == full.status[i]
