@@ -122,10 +122,10 @@ def open_client(spec: ExecutorSpec) -> Iterator[Any]:
     with dask.config.set({"logging.distributed": "error"}):
         if spec.kind == "threads":
             cluster = LocalCluster(n_workers=1, threads_per_worker=spec.workers or 1, processes=False,
-                                   dashboard_address=None)
+                                   dashboard_address=":0")
         else:
             cluster = LocalCluster(n_workers=spec.workers or (os.cpu_count() or 1), threads_per_worker=1,
-                                   processes=True, dashboard_address=None, silence_logs=logging.ERROR)
+                                   processes=True, dashboard_address=":0", silence_logs=logging.ERROR)
     client = Client(cluster)
     try:
         yield client

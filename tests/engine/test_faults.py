@@ -23,7 +23,7 @@ pytestmark = pytest.mark.faults
 SLOW_SWEEP = """\
 name: slow_column
 model: winkler_column
-settings: {work_seconds: 0.004}
+settings: {work_seconds: 0.01}
 fixed: {end: pinned}
 axes:
   stiffness_ratio: {logspace: [-1, 3, 24]}
@@ -45,29 +45,43 @@ def _kill_group(proc: subprocess.Popen[bytes]) -> None:
     proc.wait(timeout=60)
 
 
+def _wait_for(predicate, proc: subprocess.Popen[bytes], timeout: float = 60.0) -> bool:
+    t_end = time.monotonic() + timeout
+    while time.monotonic() < t_end:
+        if predicate():
+            return True
+        if proc.poll() is not None:
+            return False
+        time.sleep(0.01)
+    return False
+
+
 def test_sigkill_at_random_instants_then_resume_is_identical(workdir, rng):
     sweep = write_sweep(workdir, SLOW_SWEEP)
     reference = run_sweep(str(sweep), ["executor=threads", "store.path=reference.zarr"])
     assert reference.complete
-    # instants spread over start-up, template creation, mid-block and mid-write
-    instants = [0.4, 0.9, *np.sort(rng.uniform(1.2, 5.0, size=4)).tolist()]
-    killed_with_store = 0
-    for t in instants:
+    store = workdir / "results" / "slow_column.zarr"
+    # 1: during template creation (as soon as the temporary template folder appears)
+    proc = _start(sweep, workdir, "executor.workers=2")
+    _wait_for(lambda: any(workdir.glob("results/*sweepshell-tmp*")) or store.exists(), proc)
+    _kill_group(proc)
+    # 2..6: at random instants while blocks are being computed and written
+    killed_mid_run = 0
+    for delay in rng.uniform(0.05, 1.2, size=5):
         proc = _start(sweep, workdir, "executor.workers=2")
-        time.sleep(t)
+        assert _wait_for(store.exists, proc) or proc.returncode == 0
+        time.sleep(delay)
         finished = proc.poll() is not None
         _kill_group(proc)
-        store = workdir / "results" / "slow_column.zarr"
-        if store.exists():
-            killed_with_store += not finished
-            ledger = open_sweep(store).status.values
-            assert set(np.unique(ledger)) <= {Status.pending, Status.ok, Status.no_instability}
-    assert killed_with_store >= 2, "no kill happened while the store was being filled; lengthen the sweep"
+        ledger = open_sweep(store).status.values
+        assert set(np.unique(ledger)) <= {Status.pending, Status.ok, Status.no_instability}
+        killed_mid_run += not finished and bool(np.any(ledger == Status.pending))
+    assert killed_mid_run >= 2, "no kill happened while the store was being filled; lengthen the sweep"
     proc = _start(sweep, workdir, "executor.workers=2")
     out, err = proc.communicate(timeout=300)
     assert proc.returncode == 0, err.decode()
     assert b"points" in out
-    got = open_sweep(workdir / "results" / "slow_column.zarr").load()
+    got = open_sweep(store).load()
     want = open_sweep(workdir / "reference.zarr").load()
     xr.testing.assert_identical(got.drop_attrs(), want.drop_attrs())
     assert not list(workdir.glob("results/*sweepshell-tmp*")), "a half-built template was left behind"
@@ -89,7 +103,7 @@ def test_interrupt_exits_130_and_the_next_run_continues(workdir):
 
 
 def test_torn_status_chunk_is_recomputed(workdir):
-    sweep = write_sweep(workdir, SLOW_SWEEP.replace("work_seconds: 0.004", "work_seconds: 0.0"))
+    sweep = write_sweep(workdir, SLOW_SWEEP.replace("work_seconds: 0.01", "work_seconds: 0.0"))
     run_sweep(str(sweep), ["executor=threads"])
     path = workdir / "results" / "slow_column.zarr"
     reference = open_sweep(path).load()
@@ -101,7 +115,7 @@ def test_torn_status_chunk_is_recomputed(workdir):
 
 
 def test_stale_template_folder_is_cleaned_and_store_created(workdir):
-    sweep = write_sweep(workdir, SLOW_SWEEP.replace("work_seconds: 0.004", "work_seconds: 0.0"))
+    sweep = write_sweep(workdir, SLOW_SWEEP.replace("work_seconds: 0.01", "work_seconds: 0.0"))
     stale = workdir / "results" / "slow_column.zarr.sweepshell-tmp-999999999"
     stale.mkdir(parents=True)
     (stale / "zarr.json").write_text("{")
