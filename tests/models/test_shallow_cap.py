@@ -94,3 +94,40 @@ def test_batch_invariance_and_determinism():
         for name, v in full.outputs.items():
             np.testing.assert_array_equal(v[i:i + 1], one.outputs[name], err_msg=name)
         assert one.status[0] == full.status[i]
+
+
+def test_limit_pressure_converges_spectrally_with_resolution():
+    # common practice, no source: observed order from np.polyfit of log error vs log nodes
+    lam = [12.5]
+    ref = make_model("shallow_cap", {"nodes": 48, "asymmetric_modes": 0, "check_bistability": False}
+                     ).solve_batch(make_inputs(lam)).outputs["critical_load"][0]
+    nodes = np.array([14, 18, 22, 26])
+    err = []
+    for m in nodes:
+        q = make_model("shallow_cap", {"nodes": int(m), "asymmetric_modes": 0, "check_bistability": False}
+                       ).solve_batch(make_inputs(lam)).outputs["critical_load"][0]
+        err.append(abs(q - ref) / ref)
+    order = -np.polyfit(np.log(nodes), np.log(err), 1)[0]
+    assert order > 6.0  # spectral: faster than any fixed algebraic order (observed ≈ 13)
+    assert err[-1] < 1e-5
+
+
+@pytest.mark.parametrize("lam", [5.75, 8.75, 11.75, 15.25])
+def test_first_limit_point_is_not_stepped_over_near_fold_jumps(lam):
+    # near these λ the first pressure maximum moves to another fold (steep drops of the limit-pressure
+    # curve); a continuation with 4x finer turning control must find the same first maximum
+    bold = make_model("shallow_cap", {"asymmetric_modes": 0, "check_bistability": False})
+    careful = make_model("shallow_cap", {"asymmetric_modes": 0, "check_bistability": False, "max_turn_deg": 3.0})
+    a = bold.solve_batch(make_inputs([lam])).outputs["critical_load"][0]
+    b = careful.solve_batch(make_inputs([lam])).outputs["critical_load"][0]
+    assert a == pytest.approx(b, rel=1e-7)
+
+
+def test_apex_force_initial_stiffness_is_reissner_like_and_path_is_traced():
+    model = make_model("shallow_cap", {"asymmetric_modes": 0, "path_samples": 32})
+    res = model.solve_batch(make_inputs([8.0], load="apex_force"))
+    # Reissner 1946 stiffness 4Eh²/(Rc) is approached for λ ≫ 1; the edge stiffens a λ = 8 cap a little
+    assert 1.0 < res.outputs["stiffness"][0] < 1.06
+    path = res.outputs["load_path"][0]
+    assert path.shape == (32, 2)
+    assert path[0, 0] == 0.0 and np.nanmax(path[:, 0]) >= res.outputs["critical_load"][0] * (1 - 1e-9)

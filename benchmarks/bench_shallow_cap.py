@@ -1,0 +1,100 @@
+"""Speed of the ``shallow_cap`` model against a straightforward reference, one run.
+
+Reference: ``scipy.integrate.solve_bvp`` on the same axisymmetric equations, continued in the
+apex deflection (a natural-parameter loop, one cap at a time, the pressure as unknown
+parameter); the limit pressure is the parabola vertex through the largest sampled pressures.
+Prints ms per point and the speed ratio; no asserts on time.
+
+Run: ``python benchmarks/bench_shallow_cap.py``
+"""
+
+from __future__ import annotations
+
+import time
+
+import numpy as np
+from scipy.integrate import solve_bvp
+
+from sweepshell.models import make_model
+
+NU = 0.3
+C = np.sqrt(3.0 * (1.0 - NU**2))
+LAMBDAS = np.array([3.6, 4.0, 4.5, 5.0])  # displacement control is monotone here
+
+
+def make_inputs(lam: np.ndarray) -> dict[str, np.ndarray]:
+    n = lam.size
+    out = {"shell_parameter": lam, "poisson_ratio": np.full(n, NU), "edge": np.array(["clamped"] * n),
+           "edge_inplane": np.array(["immovable"] * n), "load": np.array(["pressure"] * n),
+           "dimple_amplitude": np.zeros(n), "dimple_width": np.full(n, 2.0)}
+    for k in ("thickness", "sphere_radius", "base_radius", "youngs_modulus"):
+        out[k] = np.full(n, np.nan)
+    return out
+
+
+def reference_limit_pressure(lam: float, x0: float = 1e-4) -> float:
+    """Limit pressure of a clamped immovable cap by solve_bvp in displacement control."""
+    l2, l4 = lam**2, lam**4
+
+    def rhs(x, u, p):
+        y, dy, f, df, _ = u
+        q = p[0]
+        s0 = l2 * x
+        xly = f * (s0 - y) - 2.0 * l4 * q * x**2
+        xlf = -s0 * y + 0.5 * y**2
+        return np.vstack([dy, (xly - dy + y / x) / x, df, (xlf - df + f / x) / x, y])
+
+    def make_bc(target):
+        def bc(ua, ub, p):
+            return np.array([ua[0], ua[2], ua[4], ub[0], ub[3] - NU * ub[2], ub[4] - target])
+        return bc
+
+    x = np.linspace(x0, 1.0, 60)
+    u = np.zeros((5, x.size))
+    p = np.array([0.0])
+    depth = l2 / (2 * C)  # 2H/h
+    qs, ds = [], []
+    for delta in np.linspace(0.0, 0.5 * depth, 120)[1:]:
+        target = delta * 2 * C  # ∫ y dx = 2c δ/h
+        sol = solve_bvp(rhs, make_bc(target), x, u, p, tol=1e-8, max_nodes=20000)
+        if not sol.success:
+            break
+        x, u, p = sol.x, sol.y, sol.p
+        qs.append(p[0])
+        ds.append(delta)
+        if len(qs) > 3 and qs[-1] < qs[-2] < qs[-3]:
+            break
+    k = int(np.argmax(qs))
+    a, b, c = np.polyfit(ds[k - 1:k + 2], qs[k - 1:k + 2], 2)
+    return float(c - b * b / (4 * a))
+
+
+def main() -> None:
+    fast = make_model("shallow_cap", {"asymmetric_modes": 0, "check_bistability": False})
+    full = make_model("shallow_cap", {})
+    fast.solve_batch(make_inputs(LAMBDAS[:1]))  # warm caches
+    big = np.linspace(3.5, 20.0, 200)
+    t = time.perf_counter()
+    fast.solve_batch(make_inputs(big))
+    t_fast = (time.perf_counter() - t) / big.size
+    mid = np.linspace(3.5, 20.0, 40)
+    t = time.perf_counter()
+    full.solve_batch(make_inputs(mid))
+    t_full = (time.perf_counter() - t) / mid.size
+    t = time.perf_counter()
+    ours = fast.solve_batch(make_inputs(LAMBDAS)).outputs["critical_load"]
+    t_ours = (time.perf_counter() - t) / LAMBDAS.size
+    t = time.perf_counter()
+    ref = np.array([reference_limit_pressure(lam) for lam in LAMBDAS])
+    t_ref = (time.perf_counter() - t) / LAMBDAS.size
+    print("lambda  model q_max   reference q_max   rel. diff")
+    for lam, a, b in zip(LAMBDAS, ours, ref, strict=True):
+        print(f"{lam:6.2f}  {a:.8f}    {b:.8f}        {abs(a - b) / b:.1e}")
+    print(f"axisymmetric limit pressure, batch of {big.size}: {t_fast * 1e3:.2f} ms/point")
+    print(f"full analysis (n = 1..30, bistability), batch of {mid.size}: {t_full * 1e3:.2f} ms/point")
+    print(f"same {LAMBDAS.size} caps: model {t_ours * 1e3:.2f} ms/point, reference {t_ref * 1e3:.1f} ms/point,"
+          f" ratio {t_ref / t_ours:.0f}x (batched model {t_ref / t_fast:.0f}x)")
+
+
+if __name__ == "__main__":
+    main()
