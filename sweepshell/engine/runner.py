@@ -18,12 +18,13 @@ from typing import Any
 
 import numpy as np
 
+from sweepshell.engine.claims import ClaimBook
 from sweepshell.engine.observers import RunObserver, SilentObserver
-from sweepshell.engine.plan import ExecutorSpec, SweepPlan, choose_block_shape, iter_blocks
+from sweepshell.engine.plan import Block, ExecutorSpec, SweepPlan, choose_block_shape, iter_blocks
 from sweepshell.engine.worker import compute_block
 from sweepshell.models import make_model
 from sweepshell.models.base import Status
-from sweepshell.store.reader import read_ledger
+from sweepshell.store.reader import is_block_final, read_ledger
 from sweepshell.store.writer import (
     check_store_matches,
     clean_stale_temporaries,
@@ -139,8 +140,12 @@ def _counts(ledger: np.ndarray) -> dict[str, int]:
     return {s.name: int(raw[s.value]) for s in Status}
 
 
-def run_plan(plan: SweepPlan, *, observer: RunObserver | None = None) -> RunSummary:
+def run_plan(plan: SweepPlan, *, observer: RunObserver | None = None, claim_ttl: float = 60.0) -> RunSummary:
     """Compute every unfinished block of ``plan`` and return a summary.
+
+    Several runners may work on one store at once: each block is claimed before it is
+    submitted (see :mod:`sweepshell.engine.claims`), and blocks claimed by a live runner
+    are left to it and picked up from the ledger when they are done.
 
     Raises
     ------
@@ -157,43 +162,85 @@ def run_plan(plan: SweepPlan, *, observer: RunObserver | None = None) -> RunSumm
         return RunSummary(store_path=path, total=plan.n_points, counts=_counts(ledger), computed=0, blocks=0,
                           wall_seconds=time.perf_counter() - t0)
     to_compute = sum(b.n_points for b in pending)
-    axis_values = [a.to_array() for a in plan.axes]
-    model_seconds = 0.0
-    computed = blocks = 0
+    tally = {"model_seconds": 0.0, "computed": 0, "blocks": 0, "by_others": 0}
     observer.start(plan.n_points, plan.n_points - to_compute, to_compute)
+    claims = ClaimBook(path, ttl=claim_ttl)
     try:
         with open_client(plan.executor) as client:
-            from distributed import as_completed
-
-            futures = [
-                client.submit(compute_block, os.path.abspath(path), plan.model, plan.settings, plan.axis_names,
-                              [v[s] for v, s in zip(axis_values, b.slices, strict=True)], plan.fixed, b,
-                              key=f"sweepshell-block-{'-'.join(map(str, b.index))}-{os.getpid()}", pure=False)
-                for b in pending
-            ]
-            try:
-                for fut in as_completed(futures):
-                    info = fut.result()
-                    model_seconds += info["model_seconds"]
-                    computed += info["points"]
-                    blocks += 1
-                    observer.advance(info["points"])
-            except KeyboardInterrupt:
-                client.cancel(futures)
-                raise
+            _drive(client, plan, pending, claims, observer, tally)
     except KeyboardInterrupt:
+        claims.release_all()
         observer.close()
-        summary = _final_summary(plan, block_shape, computed, blocks, t0, model_seconds)
+        summary = _final_summary(plan, block_shape, tally, t0)
         raise SweepInterrupted(summary) from None
+    claims.release_all()
     observer.close()
-    return _final_summary(plan, block_shape, computed, blocks, t0, model_seconds)
+    return _final_summary(plan, block_shape, tally, t0)
 
 
-def _final_summary(plan: SweepPlan, block_shape: tuple[int, ...], computed: int, blocks: int, t0: float,
-                   model_seconds: float) -> RunSummary:
+def _drive(client: Any, plan: SweepPlan, pending: list[Block], claims: ClaimBook, observer: RunObserver,
+           tally: dict[str, Any]) -> None:
+    """Submit claimed blocks, a few per worker at a time, until every block is final."""
+    from distributed import wait
+
+    path = plan.store_path
+    axis_values = [a.to_array() for a in plan.axes]
+    slots = max(2, 2 * sum(client.nthreads().values()))
+    waiting = list(pending)           # not yet submitted by us
+    in_flight: dict[Any, Block] = {}
+    last_beat = time.monotonic()
+    heartbeat = max(0.5, claims.ttl / 4)
+    try:
+        while waiting or in_flight:
+            held_elsewhere: list[Block] = []
+            while waiting and len(in_flight) < slots:
+                block = waiting.pop(0)
+                if not claims.try_claim(block.index):
+                    held_elsewhere.append(block)
+                    continue
+                if is_block_final(path, block):  # another runner finished it since we read the ledger
+                    claims.release(block.index)
+                    tally["by_others"] += block.n_points
+                    observer.advance(block.n_points)
+                    continue
+                future = client.submit(
+                    compute_block, os.path.abspath(path), plan.model, plan.settings, plan.axis_names,
+                    [v[s] for v, s in zip(axis_values, block.slices, strict=True)], plan.fixed, block,
+                    key=f"sweepshell-block-{'-'.join(map(str, block.index))}-{claims.runner}", pure=False)
+                in_flight[future] = block
+            if held_elsewhere:  # another runner has them; drop the ones it finished, retry the rest later
+                ledger = read_ledger(path)
+                for block in held_elsewhere:
+                    if np.any(ledger[block.slices] == Status.pending):
+                        waiting.append(block)
+                    else:
+                        tally["by_others"] += block.n_points
+                        observer.advance(block.n_points)
+            if not in_flight:
+                time.sleep(min(1.0, heartbeat))
+            else:
+                done, _ = wait(list(in_flight), timeout=heartbeat, return_when="FIRST_COMPLETED")
+                for future in done:
+                    block = in_flight.pop(future)
+                    info = future.result()
+                    claims.release(block.index)
+                    tally["model_seconds"] += info["model_seconds"]
+                    tally["computed"] += info["points"]
+                    tally["blocks"] += 1
+                    observer.advance(info["points"])
+            if time.monotonic() - last_beat >= heartbeat:
+                claims.heartbeat()
+                last_beat = time.monotonic()
+    except KeyboardInterrupt:
+        client.cancel(list(in_flight))
+        raise
+
+
+def _final_summary(plan: SweepPlan, block_shape: tuple[int, ...], tally: dict[str, Any], t0: float) -> RunSummary:
     ledger = read_ledger(plan.store_path, block_shape)
-    return RunSummary(store_path=plan.store_path, total=plan.n_points, counts=_counts(ledger), computed=computed,
-                      blocks=blocks, wall_seconds=time.perf_counter() - t0, model_seconds=model_seconds)
+    return RunSummary(store_path=plan.store_path, total=plan.n_points, counts=_counts(ledger),
+                      computed=tally["computed"], blocks=tally["blocks"], wall_seconds=time.perf_counter() - t0,
+                      model_seconds=tally["model_seconds"], extra={"by_other_runners": tally["by_others"]})
 
 
 def run_sweep(sweep: str | SweepPlan, overrides: Sequence[str] = (), *, observer: RunObserver | None = None,

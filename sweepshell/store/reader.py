@@ -17,7 +17,9 @@ from sweepshell.store.layout import ATTR
 if TYPE_CHECKING:
     import xarray as xr
 
-__all__ = ["check_readable_store", "open_sweep", "read_attrs", "read_ledger"]
+    from sweepshell.engine.plan import Block
+
+__all__ = ["check_readable_store", "is_block_final", "open_sweep", "read_attrs", "read_ledger"]
 
 log = logging.getLogger(__name__)
 
@@ -86,3 +88,14 @@ def read_ledger(path: str | os.PathLike[str], block_shape: tuple[int, ...] | Non
         except Exception:
             out[block.slices] = 0
     return out
+
+
+def is_block_final(path: str | os.PathLike[str], block: Block) -> bool:
+    """Return whether every point of ``block`` has a final status (an unreadable chunk is not final)."""
+    import zarr
+
+    arr = zarr.open_array(str(Path(path) / layout.STATUS_VAR), mode="r", zarr_format=3)
+    try:
+        return bool(np.all(np.asarray(arr[block.slices]) != 0))
+    except Exception:
+        return False
