@@ -1,0 +1,73 @@
+"""Commands for sharing results: ``catalog`` (more to come).
+
+Each command takes the parsed arguments and returns an exit code; bad input raises a
+:class:`~sweepshell.errors.SweepshellError` that ``main`` prints as one line (exit 2).
+``verify`` exits 1 when it finds problems. xarray, zarr and pandas are imported inside the
+commands, so ``sweepshell --help`` stays fast.
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+from typing import Any
+
+__all__ = ["register"]
+
+EXIT_OK = 0
+EXIT_PROBLEMS = 1
+
+
+def register(subparsers: Any) -> None:
+    """Add the sharing commands to the ``sweepshell`` parser."""
+    cat = subparsers.add_parser(
+        "catalog", help="list the stores under a results folder",
+        description="List the stores under a results folder (default results/): model and version, axes and "
+                    "their ranges, points by status, size on disk, created and updated times. An index "
+                    "(DIR/.sweepshell-catalog.sqlite) caches what did not change; the stores stay the source "
+                    "of truth and a damaged or foreign index is rebuilt.")
+    cat.add_argument("dir", metavar="DIR", nargs="?", default="results", help="results folder (default results/)")
+    cat.add_argument("--json", action="store_true", help="print JSON")
+    cat.add_argument("--no-index", action="store_true", help="read every store; neither read nor write the index")
+    cat.set_defaults(func=_cmd_catalog)
+
+
+def _format_bytes(n: int) -> str:
+    size = float(n)
+    for unit in ("B", "kB", "MB", "GB"):
+        if size < 1000 or unit == "GB":
+            return f"{size:.0f} {unit}" if unit == "B" else f"{size:.1f} {unit}"
+        size /= 1000
+    return f"{n} B"  # pragma: no cover
+
+
+def _format_axis(axis: dict[str, Any]) -> str:
+    low, high = axis["min"], axis["max"]
+    if isinstance(low, float) and isinstance(high, float):
+        return f"{axis['name']}[{axis['size']}] {low:g}..{high:g}"
+    return f"{axis['name']}[{axis['size']}] {low}..{high}"
+
+
+def _cmd_catalog(args: argparse.Namespace) -> int:
+    from sweepshell.store.catalog import read_catalog
+
+    listing = read_catalog(args.dir, use_index=not args.no_index)
+    if args.json:
+        print(json.dumps(listing.to_dict(), indent=2))
+        return EXIT_OK
+    if not listing.entries:
+        print(f"no stores under {listing.results_dir}")
+        return EXIT_OK
+    for e in listing.entries:
+        if e.problem is not None:
+            print(f"{e.path}: unreadable ({e.problem}); {_format_bytes(e.bytes_on_disk)}")
+            continue
+        final = e.total - e.counts.get("pending", 0)
+        counts = ", ".join(f"{v} {k}" for k, v in e.counts.items() if v)
+        print(f"{e.path}: {e.model} {e.model_version}, sweep {e.sweep}, {final}/{e.total} final ({counts}), "
+              f"{_format_bytes(e.bytes_on_disk)}")
+        print(f"    axes: {', '.join(_format_axis(a) for a in e.axes)}")
+        print(f"    created {e.created}, updated {e.updated}")
+    print(f"{len(listing.entries)} stores under {listing.results_dir} ({listing.reread} read, "
+          f"{len(listing.entries) - listing.reread} from the index)")
+    return EXIT_OK
