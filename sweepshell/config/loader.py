@@ -110,10 +110,20 @@ def _compose_base(config_dir: Path, group_overrides: list[str]) -> DictConfig:
     return cfg
 
 
+class _SweepYamlLoader(yaml.SafeLoader):
+    """Safe YAML that also reads ``70.0e9`` and ``1e-3`` as numbers (YAML 1.1 wants a dot and a sign)."""
+
+
+_SweepYamlLoader.add_implicit_resolver(
+    "tag:yaml.org,2002:float",
+    re.compile(r"^[-+]?(?:[0-9][0-9_]*(?:\.[0-9_]*)?|\.[0-9_]+)[eE][-+]?[0-9]+$"),
+    list("-+0123456789."))
+
+
 def _load_sweep_yaml(path: Path) -> DictConfig:
     try:
         text = path.read_text()
-        data = yaml.safe_load(text)
+        data = yaml.load(text, Loader=_SweepYamlLoader)  # a SafeLoader subclass: builds plain data only
     except yaml.YAMLError as exc:
         line = getattr(getattr(exc, "problem_mark", None), "line", None)
         where = f" at line {line + 1}" if line is not None else ""

@@ -115,3 +115,11 @@ def test_store_path_that_is_a_file(workdir, capsys):
 def test_status_of_a_missing_store(workdir, capsys):
     assert main(["status", "results/none.zarr"]) == 2
     assert "no store at 'results/none.zarr'" in capsys.readouterr().err
+
+
+def test_numbers_with_unsigned_exponents_are_numbers(workdir):
+    from sweepshell.config.loader import load_plan
+
+    sweep = write_sweep(workdir, COLUMN_SWEEP.replace("{linspace: [0.5, 40, 15]}", "[1e0, 2.5e1, 4E+1]"))
+    plan = load_plan(str(sweep))
+    assert plan.axes[1].values == (1.0, 25.0, 40.0)
