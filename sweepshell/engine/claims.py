@@ -113,5 +113,8 @@ class ClaimBook:
             self._path(index).unlink(missing_ok=True)
 
     def release_all(self) -> None:
+        """Drop every claim; remove the claims folder when no other runner has one (zarr warns about it)."""
         for index in list(self.held):
             self.release(index)
+        with contextlib.suppress(OSError):
+            self.folder.rmdir()

@@ -135,3 +135,16 @@ def test_local_worker_processes_match_threads(workdir):
     a = open_sweep(workdir / "results" / "a.zarr").load()
     b = open_sweep(workdir / "results" / "b.zarr").load()
     xr.testing.assert_identical(a.drop_attrs(), b.drop_attrs())
+
+
+def test_finished_store_lists_cleanly_without_consolidated_metadata(workdir):
+    import zarr
+
+    sweep = write_sweep(workdir, COLUMN_SWEEP)
+    run_sweep(str(sweep))
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")
+        group = zarr.open_group(str(workdir / "results" / "column.zarr"), mode="r", use_consolidated=False)
+        assert "status" in set(group.array_keys())
+        ds = xr.open_zarr(workdir / "results" / "column.zarr", consolidated=False)
+    assert ds.status.dtype == np.uint8
