@@ -1,8 +1,8 @@
-"""Commands for sharing results: ``catalog`` (more to come).
+"""Commands for sharing results: ``catalog``, ``merge`` (more to come).
 
 Each command takes the parsed arguments and returns an exit code; bad input raises a
 :class:`~sweepshell.errors.SweepshellError` that ``main`` prints as one line (exit 2).
-``verify`` exits 1 when it finds problems. xarray, zarr and pandas are imported inside the
+xarray, zarr and pandas are imported inside the
 commands, so ``sweepshell --help`` stays fast.
 """
 
@@ -30,6 +30,20 @@ def register(subparsers: Any) -> None:
     cat.add_argument("--json", action="store_true", help="print JSON")
     cat.add_argument("--no-index", action="store_true", help="read every store; neither read nor write the index")
     cat.set_defaults(func=_cmd_catalog)
+
+    merge = subparsers.add_parser(
+        "merge", help="combine two stores of the same model, version and settings",
+        description="Combine stores A and B made by the same model, model version, settings and fixed "
+                    "parameters into a new store C over the union of their axis values (numeric axes sorted). "
+                    "Points computed in neither are pending: `sweepshell run` on C's sweep computes them. A "
+                    "point final in both with different values is a conflict: merge stops and names the first "
+                    "few unless --prefer picks a side. C records both sources in its merged_from_json "
+                    "attribute.")
+    merge.add_argument("a", metavar="A")
+    merge.add_argument("b", metavar="B")
+    merge.add_argument("-o", "--output", required=True, metavar="C", help="the new store (must not exist)")
+    merge.add_argument("--prefer", choices=("a", "b"), help="on conflicting points keep A's (a) or B's (b) values")
+    merge.set_defaults(func=_cmd_merge)
 
 
 def _format_bytes(n: int) -> str:
@@ -70,4 +84,12 @@ def _cmd_catalog(args: argparse.Namespace) -> int:
         print(f"    created {e.created}, updated {e.updated}")
     print(f"{len(listing.entries)} stores under {listing.results_dir} ({listing.reread} read, "
           f"{len(listing.entries) - listing.reread} from the index)")
+    return EXIT_OK
+
+
+def _cmd_merge(args: argparse.Namespace) -> int:
+    from sweepshell.store.merge import merge_stores
+
+    report = merge_stores(args.a, args.b, args.output, prefer=args.prefer)
+    print(report.to_line())
     return EXIT_OK
