@@ -67,6 +67,9 @@ class WinklerColumnModel(SweepModel):
         self._settings = {"path_samples": int(path_samples), "validity_limit": float(validity_limit),
                           "fail_at": float(fail_at), "work_seconds": float(work_seconds)}
 
+    def estimated_cost(self) -> float:
+        return self.cost_hint + self._settings["work_seconds"]
+
     @classmethod
     def sample_inputs(cls) -> dict[str, np.ndarray]:
         return {"stiffness_ratio": np.array([0.0, 1.0, 10.0, 100.0, 1000.0, 2e6]),

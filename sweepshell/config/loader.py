@@ -237,7 +237,8 @@ def build_plan(cfg: Mapping[str, Any], *, source: str = "<dict>") -> SweepPlan:
         raise ConfigError(f"{source} names no model; add model: NAME (see `sweepshell models`)",
                           field="model")
     model_cls = get_model(model_name)
-    settings = _check_settings(model_cls, cfg.get("settings") or {})
+    model = _make_checked_model(model_cls, cfg.get("settings") or {})
+    settings = model.settings
     fixed_in = cfg.get("fixed") or {}
     axes_in = cfg.get("axes") or {}
     if not isinstance(fixed_in, dict):
@@ -286,7 +287,11 @@ def build_plan(cfg: Mapping[str, Any], *, source: str = "<dict>") -> SweepPlan:
         seconds = float(block.get("target_seconds", 2.0))
         if not seconds > 0:
             raise ConfigError(f"block.target_seconds={seconds} must be positive", field="block.target_seconds")
-        block_points = int(min(1_000_000, max(16, seconds / max(model_cls.cost_hint, 1e-9))))
+        block_points = int(min(1_000_000, max(16, seconds / max(model.estimated_cost(), 1e-9))))
+        # enough blocks to keep every worker busy and the progress bar moving (the store keeps the chunking it
+        # was created with, so a later run with another worker count still resumes it)
+        workers = executor.workers or os.cpu_count() or 1
+        block_points = max(16, min(block_points, math.ceil(n_points / (4 * workers))))
     store = cfg.get("store") or {}
     store_path = store.get("path") or os.path.join("results", f"{name}.zarr")
     resolved = {
@@ -319,7 +324,7 @@ def _positive_int(value: Any, where: str) -> int:
     return int(value)
 
 
-def _check_settings(model_cls: type[SweepModel], settings: Any) -> dict[str, Any]:
+def _make_checked_model(model_cls: type[SweepModel], settings: Any) -> SweepModel:
     if not isinstance(settings, dict):
         raise ConfigError("settings must be a mapping of setting name to value", field="settings",
                           value=settings)
@@ -334,7 +339,7 @@ def _check_settings(model_cls: type[SweepModel], settings: Any) -> dict[str, Any
     except (TypeError, ValueError) as exc:
         raise ConfigError(f"settings {json.dumps(settings)} rejected by model {model_cls.name!r}: {exc}",
                           field="settings", value=settings) from None
-    return model.settings
+    return model
 
 
 def _make_axis(name: str, spec: Any) -> Axis:

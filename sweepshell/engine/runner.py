@@ -219,7 +219,10 @@ def _drive(client: Any, plan: SweepPlan, pending: list[Block], claims: ClaimBook
             if not in_flight:
                 time.sleep(min(1.0, heartbeat))
             else:
-                done, _ = wait(list(in_flight), timeout=heartbeat, return_when="FIRST_COMPLETED")
+                try:
+                    done, _ = wait(list(in_flight), timeout=heartbeat, return_when="FIRST_COMPLETED")
+                except TimeoutError:  # nothing finished yet: beat the claims and wait again
+                    done = set()
                 for future in done:
                     block = in_flight.pop(future)
                     info = future.result()

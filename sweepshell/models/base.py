@@ -244,6 +244,10 @@ class SweepModel:
         """Optional coordinate values of extra output dimensions."""
         return {}
 
+    def estimated_cost(self) -> float:
+        """Seconds per point on one core with this instance's settings (sizes blocks); ``cost_hint`` by default."""
+        return float(self.cost_hint)
+
     @property
     def settings(self) -> dict[str, Any]:
         """The numerical settings this instance was built with (plain Python types)."""
