@@ -32,7 +32,7 @@ from sweepshell.models.base import SweepModel
 __all__ = ["find_config_dir", "load_plan", "parse_overrides", "resolve_sweep_file"]
 
 SWEEP_KEYS = ("name", "model", "settings", "fixed", "axes", "store", "executor", "block", "limits",
-              "description")
+              "description", "reuse")
 EXECUTOR_KINDS = ("local", "threads", "distributed")
 _NAME_RE = re.compile(r"^[A-Za-z0-9][A-Za-z0-9_.-]*$")
 
@@ -292,6 +292,9 @@ def build_plan(cfg: Mapping[str, Any], *, source: str = "<dict>") -> SweepPlan:
         # was created with, so a later run with another worker count still resumes it)
         workers = executor.workers or os.cpu_count() or 1
         block_points = max(16, min(block_points, math.ceil(n_points / (4 * workers))))
+    reuse = cfg.get("reuse", True)
+    if not isinstance(reuse, bool):
+        raise ConfigError(f"reuse={reuse!r} must be true or false", field="reuse", value=reuse)
     store = cfg.get("store") or {}
     store_path = store.get("path") or os.path.join("results", f"{name}.zarr")
     resolved = {
@@ -308,7 +311,7 @@ def build_plan(cfg: Mapping[str, Any], *, source: str = "<dict>") -> SweepPlan:
     return SweepPlan(
         name=name, model=model_name, model_version=model_cls.version, settings=settings, fixed=fixed,
         axes=tuple(axes), store_path=str(store_path), executor=executor, block_points=block_points,
-        resolved_yaml=yaml.safe_dump(resolved, sort_keys=False),
+        resolved_yaml=yaml.safe_dump(resolved, sort_keys=False), reuse=reuse,
     )
 
 

@@ -87,6 +87,8 @@ class SweepPlan:
         :func:`choose_block_shape`, or from the store's chunks when it exists).
     resolved_yaml
         The fully resolved sweep as YAML (recorded in the store).
+    reuse
+        Whether points already computed in compatible stores beside this one are copied.
     """
 
     name: str
@@ -99,6 +101,7 @@ class SweepPlan:
     executor: ExecutorSpec = field(default_factory=ExecutorSpec)
     block_points: int = 1024
     resolved_yaml: str = ""
+    reuse: bool = True
 
     @property
     def shape(self) -> tuple[int, ...]:

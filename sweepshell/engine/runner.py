@@ -21,6 +21,7 @@ import numpy as np
 from sweepshell.engine.claims import ClaimBook
 from sweepshell.engine.observers import RunObserver, SilentObserver
 from sweepshell.engine.plan import Block, ExecutorSpec, SweepPlan, choose_block_shape, iter_blocks
+from sweepshell.engine.reuse import Donor, find_donors
 from sweepshell.engine.worker import compute_block
 from sweepshell.models import make_model
 from sweepshell.models.base import Status
@@ -59,7 +60,9 @@ class RunSummary:
     counts
         Status name → number of points in the whole store after the run.
     computed
-        Points computed by this run (0 if the store was already complete).
+        Points finished by this run (0 if the store was already complete), including reused ones.
+    reused
+        Points of ``computed`` copied from compatible stores instead of solved.
     blocks
         Blocks computed by this run.
     wall_seconds
@@ -75,6 +78,7 @@ class RunSummary:
     blocks: int
     wall_seconds: float
     model_seconds: float = 0.0
+    reused: int = 0
     extra: dict[str, Any] = field(default_factory=dict)
 
     @property
@@ -89,6 +93,8 @@ class RunSummary:
             parts.append(f"{c['pending']} pending")
         done = "nothing to compute, store already complete" if self.computed == 0 and self.complete else \
             f"computed {self.computed} points in {self.wall_seconds:.1f} s"
+        if self.reused:
+            done += f" ({self.reused} reused from other stores)"
         return f"{done}: {self.total} points ({', '.join(parts) or 'none'}) -> {self.store_path}"
 
 
@@ -162,12 +168,13 @@ def run_plan(plan: SweepPlan, *, observer: RunObserver | None = None, claim_ttl:
         return RunSummary(store_path=path, total=plan.n_points, counts=_counts(ledger), computed=0, blocks=0,
                           wall_seconds=time.perf_counter() - t0)
     to_compute = sum(b.n_points for b in pending)
-    tally = {"model_seconds": 0.0, "computed": 0, "blocks": 0, "by_others": 0}
+    tally = {"model_seconds": 0.0, "computed": 0, "blocks": 0, "by_others": 0, "reused": 0}
     observer.start(plan.n_points, plan.n_points - to_compute, to_compute)
     claims = ClaimBook(path, ttl=claim_ttl)
+    donors = find_donors(plan, make_model(plan.model, plan.settings)) if plan.reuse else []
     try:
         with open_client(plan.executor) as client:
-            _drive(client, plan, pending, claims, observer, tally)
+            _drive(client, plan, pending, claims, observer, tally, donors)
     except KeyboardInterrupt:
         claims.release_all()
         observer.close()
@@ -179,7 +186,7 @@ def run_plan(plan: SweepPlan, *, observer: RunObserver | None = None, claim_ttl:
 
 
 def _drive(client: Any, plan: SweepPlan, pending: list[Block], claims: ClaimBook, observer: RunObserver,
-           tally: dict[str, Any]) -> None:
+           tally: dict[str, Any], donors: list[Donor]) -> None:
     """Submit claimed blocks, a few per worker at a time, until every block is final."""
     from distributed import wait
 
@@ -205,7 +212,7 @@ def _drive(client: Any, plan: SweepPlan, pending: list[Block], claims: ClaimBook
                     continue
                 future = client.submit(
                     compute_block, os.path.abspath(path), plan.model, plan.settings, plan.axis_names,
-                    [v[s] for v, s in zip(axis_values, block.slices, strict=True)], plan.fixed, block,
+                    [v[s] for v, s in zip(axis_values, block.slices, strict=True)], plan.fixed, block, donors,
                     key=f"sweepshell-block-{'-'.join(map(str, block.index))}-{claims.runner}", pure=False)
                 in_flight[future] = block
             if held_elsewhere:  # another runner has them; drop the ones it finished, retry the rest later
@@ -228,6 +235,7 @@ def _drive(client: Any, plan: SweepPlan, pending: list[Block], claims: ClaimBook
                     info = future.result()
                     claims.release(block.index)
                     tally["model_seconds"] += info["model_seconds"]
+                    tally["reused"] += info["reused"]
                     tally["computed"] += info["points"]
                     tally["blocks"] += 1
                     observer.advance(info["points"])
@@ -243,7 +251,8 @@ def _final_summary(plan: SweepPlan, block_shape: tuple[int, ...], tally: dict[st
     ledger = read_ledger(plan.store_path, block_shape)
     return RunSummary(store_path=plan.store_path, total=plan.n_points, counts=_counts(ledger),
                       computed=tally["computed"], blocks=tally["blocks"], wall_seconds=time.perf_counter() - t0,
-                      model_seconds=tally["model_seconds"], extra={"by_other_runners": tally["by_others"]})
+                      model_seconds=tally["model_seconds"], reused=tally["reused"],
+                      extra={"by_other_runners": tally["by_others"]})
 
 
 def run_sweep(sweep: str | SweepPlan, overrides: Sequence[str] = (), *, observer: RunObserver | None = None,

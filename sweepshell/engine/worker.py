@@ -16,6 +16,7 @@ from typing import Any
 import numpy as np
 
 from sweepshell.engine.plan import Block
+from sweepshell.engine.reuse import Donor, take_from_donors
 from sweepshell.models import make_model
 from sweepshell.models.base import BatchResult, Status, SweepModel
 
@@ -92,16 +93,35 @@ def _checked(model: SweepModel, result: BatchResult, n: int) -> BatchResult:
 
 
 def compute_block(store_path: str, model_name: str, settings: Mapping[str, Any], axis_names: Sequence[str],
-                  axis_values: Sequence[np.ndarray], fixed: Mapping[str, Any], block: Block) -> dict[str, Any]:
-    """Evaluate one block and write it; return status counts and the time spent in the model."""
+                  axis_values: Sequence[np.ndarray], fixed: Mapping[str, Any], block: Block,
+                  donors: Sequence[Donor] = ()) -> dict[str, Any]:
+    """Evaluate one block (copying what donors already have) and write it.
+
+    Returns status counts, points reused and the time spent in the model.
+    """
     from sweepshell.store.writer import write_block
 
     model = _cached_model(model_name, settings)
     inputs = make_block_inputs(model, axis_names, axis_values, fixed)
     t0 = time.perf_counter()
-    result = solve_points(model, inputs)
+    matched = np.zeros(block.n_points, dtype=bool)
+    copied = None
+    if donors:
+        matched, copied = take_from_donors(donors, model, inputs)
+    if copied is None:
+        result = solve_points(model, inputs)
+    elif matched.all():
+        result = copied
+    else:
+        rest = np.flatnonzero(~matched)
+        solved = solve_points(model, {k: v[rest] for k, v in inputs.items()})
+        result = copied
+        for name, values in solved.outputs.items():
+            result.outputs[name][rest] = values
+        result.status[rest] = solved.status
+        result.regime[rest] = solved.regime
     model_seconds = time.perf_counter() - t0
     write_block(store_path, block, result, [o.name for o in model.outputs])
     counts = np.bincount(result.status, minlength=len(Status)).tolist()
-    return {"index": block.index, "counts": counts, "model_seconds": model_seconds,
+    return {"index": block.index, "counts": counts, "model_seconds": model_seconds, "reused": int(matched.sum()),
             "seconds": time.perf_counter() - t0, "points": block.n_points}
