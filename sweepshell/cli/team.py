@@ -1,4 +1,4 @@
-"""Commands for sharing results: ``catalog``, ``merge``, ``verify`` (more to come).
+"""Commands for sharing results: ``catalog``, ``merge``, ``verify``, ``export``.
 
 Each command takes the parsed arguments and returns an exit code; bad input raises a
 :class:`~sweepshell.errors.SweepshellError` that ``main`` prints as one line (exit 2).
@@ -10,6 +10,7 @@ from __future__ import annotations
 
 import argparse
 import json
+import sys
 from typing import Any
 
 __all__ = ["register"]
@@ -58,6 +59,19 @@ def register(subparsers: Any) -> None:
                         help="set blocks whose status is final but whose chunks do not decode or whose values break "
                              "the ledger rules back to pending, so the next run recomputes them")
     verify.set_defaults(func=_cmd_verify)
+
+    export = subparsers.add_parser(
+        "export", help="write a store as netCDF, CSV or Parquet",
+        description="Write a store for tools outside the zarr world. netcdf: the whole Dataset (netCDF3 through "
+                    "scipy; status stored as int8, list attributes joined into strings). csv and parquet: one "
+                    "row per grid point with the axis values, every output without extra dimensions, the regime "
+                    "name and the status name (parquet needs pyarrow).")
+    export.add_argument("store", metavar="STORE")
+    export.add_argument("--format", required=True, choices=("netcdf", "csv", "parquet"))
+    export.add_argument("-o", "--output", metavar="FILE",
+                        help="output file (default: STORE with .nc/.csv/.parquet); '-' writes CSV to stdout")
+    export.add_argument("--force", action="store_true", help="replace FILE if it exists")
+    export.set_defaults(func=_cmd_export)
 
 
 def _format_bytes(n: int) -> str:
@@ -119,3 +133,13 @@ def _cmd_verify(args: argparse.Namespace) -> int:
         for line in report.to_lines():
             print(line)
     return EXIT_OK if report.consistent else EXIT_PROBLEMS
+
+
+def _cmd_export(args: argparse.Namespace) -> int:
+    from sweepshell.store.export import export_store
+
+    target = export_store(args.store, args.format, args.output, overwrite=args.force,
+                          stdout=sys.stdout if args.output == "-" else None)
+    if target is not None:
+        print(f"wrote {target}", file=sys.stderr if args.output == "-" else sys.stdout)
+    return EXIT_OK
