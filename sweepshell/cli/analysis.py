@@ -57,6 +57,8 @@ def register(subparsers: Any) -> None:
                         "failed), with their status")
     q.add_argument("--grid-only", action="store_true", help="leave out points evaluated off the grid")
     q.set_defaults(func=_cmd_query)
+    _register_map(subparsers)
+    _register_boundary(subparsers)
 
 
 def _open(store: str) -> Any:
@@ -126,3 +128,140 @@ def _format_table(table: pd.DataFrame) -> str:
                                                                              strict=True)).rstrip() + "\n"
 
     return line(header) + line(["-" * w for w in widths]) + "".join(line(r) for r in rows)
+
+
+def _register_map(subparsers: Any) -> None:
+    m = subparsers.add_parser(
+        "map", help="draw a regime map (phase diagram) or an output across a sweep",
+        description="With --y AXIS: a regime map over two axes — regimes as filled regions (colour-blind-safe "
+                    "palette), boundaries as lines, optional contours of an output, failed / unconverged / "
+                    "outside-validity points marked. With --y OUTPUT: the output against --x, one line per value "
+                    "of a third axis (--color AXIS, default the first other axis with few values). Axes given in "
+                    "log spacing are drawn on log scales. Every other axis is fixed by --at NAME=VALUE (nearest "
+                    "grid value, reported) or at its first value.")
+    m.add_argument("store", metavar="STORE")
+    m.add_argument("--x", required=True, metavar="AXIS", help="axis along the horizontal")
+    m.add_argument("--y", required=True, metavar="AXIS|OUTPUT", help="axis (regime map) or output (line plot)")
+    m.add_argument("--color", metavar="VAR", help="map: 'regime' (default) or a scalar output drawn as a colour "
+                   "field; line plot: the axis giving one line per value")
+    m.add_argument("--contour", metavar="OUTPUT", help="labelled contour lines of a scalar output (map)")
+    m.add_argument("--at", action="append", metavar="NAME=VALUE", help="fix another axis (repeatable)")
+    m.add_argument("--show-points", action="store_true", help="mark the off-grid points (refinement, bisection)")
+    m.add_argument("--out", metavar="FILE", help="FILE.png or FILE.svg (default: <store>-<x>-<y>.png)")
+    m.set_defaults(func=_cmd_map)
+
+
+def _out_path(args: argparse.Namespace, suffix: str) -> str:
+    from pathlib import Path
+
+    if args.out:
+        out = Path(args.out)
+        if out.suffix.lower() not in (".png", ".svg"):
+            raise QueryError(f"--out {args.out!r} must end in .png or .svg", field="out", value=args.out)
+        if not out.parent.exists():
+            raise QueryError(f"--out {args.out!r}: folder {str(out.parent)!r} does not exist", field="out",
+                             value=args.out)
+        return str(out)
+    store = Path(args.store.rstrip("/"))
+    return str(store.with_name(f"{store.stem}-{suffix}.png"))
+
+
+def _cmd_map(args: argparse.Namespace) -> int:
+    from sweepshell.plot.regime_map import draw_output_lines, draw_regime_map
+    from sweepshell.plot.style import save_figure
+    from sweepshell.query.slicing import parse_at
+    from sweepshell.query.table import describe_fields
+
+    ds = _open(args.store)
+    at = parse_at(args.at)
+    out = _out_path(args, f"{args.x}-{args.y}")
+    info = describe_fields(ds)
+    if args.y in info.axes:
+        result = draw_regime_map(ds, args.x, args.y, color=args.color, contour=args.contour, at=at,
+                                 show_points=args.show_points)
+    else:
+        if args.contour:
+            raise QueryError("--contour applies to regime maps (--y AXIS), not to line plots", field="contour")
+        result = draw_output_lines(ds, args.x, args.y, series=args.color, at=at)
+    save_figure(result.figure, out)
+    for cut in result.view.cuts:
+        print(f"fixed {cut.describe()}", file=sys.stderr)
+    for note in result.notes:
+        print(note, file=sys.stderr)
+    print(out)
+    return 0
+
+
+def _register_boundary(subparsers: Any) -> None:
+    b = subparsers.add_parser(
+        "boundary", help="export the boundary between two regimes as polylines (CSV/JSON)",
+        description="Trace the boundary between regimes A and B over two axes and locate it more precisely than "
+                    "the grid spacing: each grid edge joining an A point and a B point is bisected --bisections "
+                    "times with new model evaluations (the model is rebuilt from the store by registered name; a "
+                    "store of another model version is refused). New points are recorded in the store's point "
+                    "list, so later maps, queries and boundaries use them. Other axes are fixed by --at.")
+    b.add_argument("store", metavar="STORE")
+    b.add_argument("--between", nargs=2, required=True, metavar=("A", "B"), help="two regime names")
+    b.add_argument("--x", metavar="AXIS", help="horizontal axis (default: the first numeric axis)")
+    b.add_argument("--y", metavar="AXIS", help="vertical axis (default: the next numeric axis)")
+    b.add_argument("--at", action="append", metavar="NAME=VALUE", help="fix another axis (repeatable)")
+    b.add_argument("--bisections", type=int, default=6,
+                   help="bisections per grid edge (default 6: brackets of 1/64 of the spacing); 0 = no new "
+                        "evaluations")
+    b.add_argument("--no-record", action="store_true", help="do not add the new points to the store")
+    b.add_argument("--format", choices=("csv", "json"), default="csv", help="output format (default csv)")
+    b.add_argument("--out", metavar="FILE", help="write to FILE instead of stdout")
+    b.set_defaults(func=_cmd_boundary)
+
+
+def _default_axes(ds: Any, x: str | None, y: str | None) -> tuple[str, str]:
+    from sweepshell.query.table import describe_fields
+
+    info = describe_fields(ds)
+    numeric = [a for a in info.axes if ds[a].dtype.kind in "fiu" and ds.sizes[a] > 1 and a not in (x, y)]
+    if x is None:
+        if not numeric:
+            raise QueryError("the store has no numeric axis with several values left for --x", field="x")
+        x = numeric.pop(0)
+    if y is None:
+        if not numeric:
+            raise QueryError("the store has no second numeric axis for --y; a boundary needs two axes", field="y")
+        y = numeric.pop(0)
+    return x, y
+
+
+def _cmd_boundary(args: argparse.Namespace) -> int:
+    from pathlib import Path
+
+    from sweepshell.query.boundary import boundary_to_records, find_boundary
+    from sweepshell.query.slicing import parse_at
+
+    ds = _open(args.store)
+    x, y = _default_axes(ds, args.x, args.y)
+    if args.out and not Path(args.out).parent.exists():
+        raise QueryError(f"--out {args.out!r}: folder does not exist", field="out", value=args.out)
+    boundary, view = find_boundary(ds, x, y, (args.between[0], args.between[1]), at=parse_at(args.at),
+                                   bisections=args.bisections, record=not args.no_record)
+    for cut in view.cuts:
+        print(f"fixed {cut.describe()}", file=sys.stderr)
+    print(f"{len(boundary.lines)} polyline(s), {boundary.n_vertices} vertices, {boundary.evaluations} model "
+          f"evaluations", file=sys.stderr)
+    out = open(args.out, "w", newline="") if args.out else sys.stdout  # noqa: SIM115
+    try:
+        if args.format == "json":
+            record = boundary_to_records(boundary, {"model": ds.attrs.get("model"),
+                                                    "model_version": ds.attrs.get("model_version"),
+                                                    "fixed": view.fixed_values})
+            json.dump(record, out, indent=1)
+            out.write("\n")
+        else:
+            writer = csv.writer(out, lineterminator="\n")
+            writer.writerow(["line", x, y, "bracket_axis", "bracket_low", "bracket_high"])
+            for i, line in enumerate(boundary.lines):
+                for k in range(len(line.x)):
+                    writer.writerow([i, repr(float(line.x[k])), repr(float(line.y[k])), (x, y)[int(line.along[k])],
+                                     repr(float(line.low[k])), repr(float(line.high[k]))])
+    finally:
+        if args.out:
+            out.close()
+    return 0

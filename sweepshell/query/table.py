@@ -94,7 +94,7 @@ def describe_fields(ds: xr.Dataset) -> SweepFields:
         SOURCE_COLUMN: list(SOURCES),
     }
     for a in axes:
-        if ds[a].dtype == object or ds[a].dtype.kind in "US":
+        if ds[a].dtype.kind not in "fiu":
             categories[a] = [str(v) for v in ds[a].values]
     return SweepFields(axes=axes, scalar_outputs=scalar, path_outputs=paths, regimes=regimes,
                        categories=categories)

@@ -1,0 +1,91 @@
+"""Shared look of sweepshell figures: palette, labels, title and caution footer.
+
+The regime palette is the eight-colour set of Okabe & Ito (2008, "Color Universal Design"),
+distinguishable with the common forms of colour blindness, lightened for filled regions so
+boundary lines and contours stay readable on top. Untrusted points are grey; statuses have
+distinct black marker shapes, so they read without colour.
+"""
+
+from __future__ import annotations
+
+import re
+import textwrap
+from typing import TYPE_CHECKING, Any
+
+from sweepshell import CAUTION
+
+if TYPE_CHECKING:
+    from matplotlib.figure import Figure
+
+__all__ = ["STATUS_MARKERS", "add_caution_footer", "axis_label", "make_figure", "regime_colors"]
+
+#: Okabe–Ito colours in the order regimes take them (sky blue, orange, bluish green, reddish purple,
+#: yellow, blue, vermillion); black is kept for lines and markers
+OKABE_ITO = ("#56B4E9", "#E69F00", "#009E73", "#CC79A7", "#F0E442", "#0072B2", "#D55E00")
+UNTRUSTED_COLOR = "#D9D9D9"
+PENDING_COLOR = "#FFFFFF"
+BOUNDARY_COLOR = "#1A1A1A"
+CONTOUR_COLOR = "#3B3B3B"
+
+#: marker, size and label of each untrustworthy status drawn on maps
+STATUS_MARKERS: dict[str, tuple[str, float, str]] = {
+    "not_converged": ("o", 18.0, "not converged"),
+    "outside_validity": ("s", 10.0, "outside validity"),
+    "failed": ("x", 22.0, "failed"),
+}
+
+
+def _lighten(color: str, amount: float) -> tuple[float, float, float]:
+    from matplotlib.colors import to_rgb
+
+    r, g, b = to_rgb(color)
+    return (r + (1 - r) * amount, g + (1 - g) * amount, b + (1 - b) * amount)
+
+
+def regime_colors(n: int, *, fill: bool = True) -> list[Any]:
+    """Return ``n`` colour-blind-safe colours (lightened for fills)."""
+    base = [OKABE_ITO[i % len(OKABE_ITO)] for i in range(n)]
+    return [_lighten(c, 0.25) for c in base] if fill else list(base)
+
+
+def _mathtext(symbol: str) -> str:
+    if not symbol.isascii() or not any(ch in symbol for ch in "_^"):
+        return symbol
+    return "$" + re.sub(r"_([A-Za-z0-9]+)", r"_{\1}", symbol) + "$"
+
+
+def axis_label(name: str, attrs: dict[str, Any]) -> str:
+    """Return an axis label such as ``stiffness ratio η`` or ``thickness h [m]``."""
+    words = name.replace("_", " ")
+    symbol = str(attrs.get("symbol", "")).strip()
+    units = str(attrs.get("units", "")).strip()
+    label = f"{words}  {_mathtext(symbol)}" if symbol else words
+    if units and units not in ("1", "-", "dimensionless"):
+        label += f"  [{units}]"
+    return label
+
+
+def make_figure(width: float = 7.4, height: float = 5.6) -> Figure:
+    """Return an empty figure drawn with Agg (no display needed)."""
+    from matplotlib.figure import Figure
+
+    fig = Figure(figsize=(width, height), dpi=100, layout="constrained")
+    fig.get_layout_engine().set(h_pad=0.06, w_pad=0.06)  # type: ignore[call-arg, union-attr]
+    return fig
+
+
+def add_caution_footer(fig: Figure, width_chars: int = 125) -> None:
+    """Write the caution text under the plot in small grey type."""
+    text = "\n".join(textwrap.wrap(CAUTION, width_chars))
+    fig.supxlabel(text, fontsize=6.2, color="#555555", ha="center", linespacing=1.25)
+
+
+def title_lines(attrs: dict[str, Any], what: str, cut: str = "") -> str:
+    """Return the two-line title: ``what — model version`` and the fixed values."""
+    head = f"{what} — {attrs.get('model', '?')} {attrs.get('model_version', '')}".rstrip()
+    return head + (f"\n{cut}" if cut else "")
+
+
+def save_figure(fig: Figure, path: str) -> None:
+    """Save as PNG (150 dpi) or SVG by the file's extension."""
+    fig.savefig(path, dpi=150)
