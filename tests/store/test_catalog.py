@@ -24,18 +24,20 @@ LOAD = [0.5, 1.0, 5.0, 20.0, 40.0]
 
 def make_column_store(path: Path, stiffness_ratio: list[Any], load_ratio: list[Any], *,
                       settings: dict[str, Any] | None = None, fixed: dict[str, Any] | None = None,
-                      block_points: int = 10, name: str = "column") -> Path:
+                      block_points: int = 10, name: str = "column", reuse: bool = False) -> Path:
     """Run the cheap winkler_column model over a grid into ``path`` (threads executor); return the path.
 
-    Shared by the store tests (catalog, merge, verify, export) and the CLI tests.
+    Shared by the store tests (catalog, merge, verify, export) and the CLI tests. Reuse of
+    points from sibling stores is off by default, so every store is an independent computation
+    (a reference to compare a merge against must not be a copy of its sources).
     """
     plan = build_plan({"name": name, "model": "winkler_column", "settings": settings or {},
                        "fixed": fixed if fixed is not None else {"end": "pinned"},
                        "axes": {"stiffness_ratio": stiffness_ratio, "load_ratio": load_ratio},
                        "store": {"path": str(path)}, "executor": {"kind": "threads", "workers": 1},
-                       "block": {"points": block_points}})
+                       "block": {"points": block_points}, "reuse": reuse})
     summary = run_sweep(plan)
-    assert summary.complete
+    assert summary.complete and summary.computed == summary.total
     return path
 
 
@@ -53,6 +55,7 @@ def results_template(tmp_path_factory) -> Path:
 def results(results_template, tmp_path) -> Path:
     root = tmp_path / "results"
     shutil.copytree(results_template, root, symlinks=True)
+    (root / CATALOG_FILE).unlink(missing_ok=True)
     return root
 
 

@@ -72,7 +72,8 @@ def test_points_missing_on_both_sides_are_pending_and_a_run_completes_them(store
     # the merged store is a normal store: a run over the union axes fills exactly the pending blocks
     plan = build_plan({"name": "c", "model": "winkler_column", "fixed": {"end": "pinned"},
                        "axes": {"stiffness_ratio": ETA, "load_ratio": LOAD}, "store": {"path": str(out)},
-                       "executor": {"kind": "threads", "workers": 1}, "block": {"points": 10}})
+                       "executor": {"kind": "threads", "workers": 1}, "block": {"points": 10},
+                       "reuse": False})
     summary = run_sweep(plan)
     # blocks are 2 x 5 points: rows (eta) 2-3 and row 4 hold the pending points
     assert summary.complete and summary.computed == 15

@@ -64,7 +64,8 @@ def test_a_flipped_byte_in_an_output_chunk_is_found_and_repair_recomputes_it(sto
     assert verify_store(store).recompute_blocks == ((1, 0),)
     plan = build_plan({"name": "v", "model": "winkler_column", "fixed": {"end": "pinned"},
                        "axes": {"stiffness_ratio": ETA, "load_ratio": LOAD}, "store": {"path": str(store)},
-                       "executor": {"kind": "threads", "workers": 1}, "block": {"points": 10}})
+                       "executor": {"kind": "threads", "workers": 1}, "block": {"points": 10},
+                       "reuse": False})
     assert run_sweep(plan).computed == 10
     assert verify_store(store).consistent
     xr.testing.assert_identical(open_sweep(store).load().drop_attrs(), open_sweep(clean_store).load().drop_attrs())
