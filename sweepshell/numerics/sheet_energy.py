@@ -1,0 +1,418 @@
+"""Pseudo-spectral energy of a periodic Föppl–von Kármán film cell on a linear substrate.
+
+Governing energy (per unit area of a square periodic cell, in-plane displacements
+eliminated exactly, see Notes)::
+
+    Π[w] = ½ ē:C:ē + (E_f h/2) Σ_{k≠0} |Ĝ_k|²/|k|⁴ + ½ Σ_k (D|k|⁴ + K(|k|)) |ŵ_k|²
+
+with ``ē = ½⟨∇w ⊗ ∇w⟩ − diag(ε₁, ε₂)`` the mean membrane strain (compressive mismatch
+strains ε₁, ε₂ positive), ``C`` the plane-stress membrane stiffness ``Ē_f h[(1−ν)𝟙 +
+ν I⊗I]``, ``G = w_xx w_yy − w_xy²`` (the FvK Gaussian curvature, whose incompatibility the
+in-plane displacements cannot relax), ``D = Ē_f h³/12`` and ``K(k)`` the substrate
+stiffness per unit area of mode k: ``Ē_s k/2`` for an elastic half-space, a constant for a
+Winkler bed. Normalisation ``⟨f²⟩ = Σ_k |f̂_k|²``.
+
+Non-dimensionalisation: lengths in 1/k₀ (k₀ the critical wavenumber of the substrate),
+height in b = √ε_c/k₀, energy in Ē_f h ε_c² (ε_c the uniaxial plane-strain critical
+strain). The scaled energy then depends only on the substrate kind, the film Poisson
+ratio ν and the overstrains s = ε/ε_c::
+
+    Π̃ = ½[(1−ν) M:M + ν (tr M)²] + ((1−ν²)/2) Σ |ĝ|²/|K|⁴ + ½ Σ L(|K|) |Ŵ|²,
+    M = ½⟨∇W ⊗ ∇W⟩ − diag(s₁, s₂),
+    L(K) = K⁴/3 + 2K/3   (half-space),     L(K) = K⁴/2 + 1/2   (Winkler),
+
+so that a single mode along x is neutrally stable at |K| = 1 when s₁ + ν s₂ = 1. The
+reported energy is Π̃ minus its value for the flat film.
+
+Discretisation: n × n grid on a cell of ``cells`` critical wavelengths per side, so the
+grid wavenumbers are integers over ``cells``. The height holds only the modes with
+``|m_x|, |m_y| ≤ n/3`` (2/3 rule) and zero mean; the curvature field G is truncated to the
+same band, so the discrete energy is a well defined function of the grid values and the
+gradient below is its exact gradient. Minimisation uses L-BFGS (our own, see
+:func:`minimize_sheet_energy`) on the preconditioned variable z with
+``Ŵ = L(K)^{-1/2} ẑ``, which makes the bending/substrate part of the Hessian the identity.
+
+Notes
+-----
+Eliminating the in-plane displacements: for a given w the membrane strain is
+``sym ∇u + ½∇w⊗∇w − diag(ε₁, ε₂)``; the mean part is fixed by the substrate and the
+periodic part of ``sym ∇u`` relaxes every compatible fluctuation. What remains is the
+Airy stress function χ with ``∇⁴χ = −E_f h G`` and stretching energy ``(1/2E_f h)⟨(∇²χ)²⟩``
+(the Gaussian term of the Airy energy integrates to zero on a periodic cell). In-plane
+tractions of the substrate are neglected, which is accurate for Ē_f ≫ Ē_s (Huang, Hong &
+Suo 2005).
+
+References
+----------
+Allen 1969; Chen & Hutchinson 2004, J. Appl. Mech. 71:597; Huang, Hong & Suo 2005,
+JMPS 53:2101; Audoly & Boudaoud 2008, JMPS 56:2401.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+import numpy as np
+import scipy.fft
+
+__all__ = [
+    "SUBSTRATE_KINDS",
+    "SheetMinimum",
+    "SheetProblem",
+    "compute_substrate_stiffness",
+    "evaluate_sheet_energy",
+    "make_sheet_problem",
+    "minimize_sheet_energy",
+    "to_height_field",
+    "to_preconditioned_variable",
+]
+
+SUBSTRATE_KINDS = ("half_space", "winkler")
+
+
+@dataclass(frozen=True)
+class SheetProblem:
+    """One scaled cell problem: grid operators, load and material constants.
+
+    Attributes
+    ----------
+    n
+        Grid points per side.
+    cells
+        Cell side in critical wavelengths.
+    poisson_ratio
+        Film Poisson ratio ν.
+    overstrain
+        ``(s₁, s₂) = (ε₁, ε₂)/ε_c``.
+    kx, ky
+        Scaled wavenumbers in the ``rfft2`` layout, shape ``(n, n//2 + 1)``.
+    weight
+        Parseval weights of the half spectrum (1 or 2).
+    band
+        Resolved modes (2/3 rule, zero mean excluded).
+    stiffness
+        L(|K|), bending plus substrate, per mode.
+    precondition
+        ``band / √L``: the map from the optimisation variable to the height.
+    curvature_filter
+        ``band / |K|⁴`` applied to the curvature field.
+    hessian_symbols, adjoint_symbols
+        Fourier symbols of (∂xx, ∂yy, ∂xy) and of their adjoint combination in the
+        curvature gradient, stacked for batched FFTs.
+    moment_symbols
+        Weighted (kx², ky², kx ky, L) rows: one matrix product gives the mean strains and
+        the linear energy by Parseval.
+    """
+
+    n: int
+    cells: int
+    substrate: str
+    poisson_ratio: float
+    overstrain: tuple[float, float]
+    kx: np.ndarray = field(repr=False)
+    ky: np.ndarray = field(repr=False)
+    weight: np.ndarray = field(repr=False)
+    band: np.ndarray = field(repr=False)
+    stiffness: np.ndarray = field(repr=False)
+    precondition: np.ndarray = field(repr=False)
+    curvature_filter: np.ndarray = field(repr=False)
+    hessian_symbols: np.ndarray = field(repr=False)
+    moment_symbols: np.ndarray = field(repr=False)
+    adjoint_symbols: np.ndarray = field(repr=False)
+
+    @property
+    def flat_energy(self) -> float:
+        """Scaled energy of the flat film (subtracted from every reported energy)."""
+        s1, s2 = self.overstrain
+        nu = self.poisson_ratio
+        return 0.5 * ((1 - nu) * (s1 * s1 + s2 * s2) + nu * (s1 + s2) ** 2)
+
+    def linear_stability_margin(self) -> float:
+        """Return the smallest eigenvalue of the flat-state Hessian over the resolved modes.
+
+        Negative means the flat film of this discrete cell is unstable. The flat state is
+        the global minimum when it is non-negative (every quartic term is non-negative).
+        """
+        s1, s2 = self.overstrain
+        nu = self.poisson_ratio
+        sig1, sig2 = s1 + nu * s2, s2 + nu * s1
+        values = self.stiffness - sig1 * self.kx**2 - sig2 * self.ky**2
+        return float(np.min(values[self.band]))
+
+
+def compute_substrate_stiffness(k: np.ndarray, substrate: str) -> np.ndarray:
+    """Return the scaled bending-plus-substrate stiffness L(k) of mode |K| = k.
+
+    Parameters
+    ----------
+    k
+        Scaled wavenumber |K| = |k|/k₀ (dimensionless).
+    substrate
+        ``half_space`` (K⁴/3 + 2K/3) or ``winkler`` (K⁴/2 + 1/2).
+    """
+    if substrate == "half_space":
+        return k**4 / 3.0 + 2.0 * k / 3.0
+    if substrate == "winkler":
+        return 0.5 * k**4 + 0.5
+    raise ValueError(f"substrate={substrate!r}; use one of {SUBSTRATE_KINDS}")
+
+
+def make_sheet_problem(n: int, cells: int, substrate: str, poisson_ratio: float,
+                       overstrain: tuple[float, float]) -> SheetProblem:
+    """Build the grid operators of one scaled cell problem.
+
+    Parameters
+    ----------
+    n
+        Grid points per side (the ``modes`` parameter).
+    cells
+        Cell side in critical wavelengths (the ``cell_wavelengths`` parameter).
+    substrate
+        One of :data:`SUBSTRATE_KINDS`.
+    poisson_ratio
+        Film Poisson ratio.
+    overstrain
+        Mismatch strains over the critical strain, ``(ε₁/ε_c, ε₂/ε_c)``.
+    """
+    my = np.fft.fftfreq(n, 1.0 / n)
+    mx = np.fft.rfftfreq(n, 1.0 / n)
+    MY, MX = np.meshgrid(my, mx, indexing="ij")
+    kx, ky = MX / cells, MY / cells
+    weight = np.where((MX == 0) | ((n % 2 == 0) & (n // 2 == MX)), 1.0, 2.0)
+    band = (np.abs(MX) <= n // 3) & (np.abs(MY) <= n // 3) & ~((MX == 0) & (MY == 0))
+    kk = np.sqrt(kx**2 + ky**2)
+    stiffness = compute_substrate_stiffness(kk, substrate)
+    safe = np.where(band, kk, 1.0)
+    precondition = np.where(band, 1.0 / np.sqrt(np.where(band, stiffness, 1.0)), 0.0)
+    curvature_filter = np.where(band, 1.0 / safe**4, 0.0)
+    hessian_symbols = np.stack([-kx * kx, -ky * ky, -kx * ky])
+    adjoint_symbols = np.stack([-ky * ky, -kx * kx, 2.0 * kx * ky])
+    moment_symbols = (weight * np.where(band, 1.0, 0.0) * np.stack(
+        [kx * kx, ky * ky, kx * ky, np.where(band, stiffness, 0.0)])).reshape(4, -1)
+    return SheetProblem(n=int(n), cells=int(cells), substrate=substrate,
+                        poisson_ratio=float(poisson_ratio),
+                        overstrain=(float(overstrain[0]), float(overstrain[1])),
+                        kx=kx, ky=ky, weight=weight, band=band, stiffness=stiffness,
+                        precondition=precondition, curvature_filter=curvature_filter,
+                        hessian_symbols=hessian_symbols, adjoint_symbols=adjoint_symbols,
+                        moment_symbols=moment_symbols)
+
+
+def _rfft2(a: np.ndarray) -> np.ndarray:
+    return scipy.fft.rfft2(a, axes=(-2, -1), workers=1)
+
+
+def _irfft2(a: np.ndarray, n: int) -> np.ndarray:
+    return scipy.fft.irfft2(a, s=(n, n), axes=(-2, -1), workers=1)
+
+
+def evaluate_sheet_energy(problem: SheetProblem, z: np.ndarray) -> tuple[float, np.ndarray]:
+    """Return the objective ``f = n²(Π̃ − Π̃_flat)`` and its exact gradient in z.
+
+    Parameters
+    ----------
+    problem
+        The cell problem.
+    z
+        Preconditioned variable, flat array of n² grid values.
+
+    Returns
+    -------
+    f, gradient
+        Scaled energy times n² (so the bending/substrate Hessian is the identity) and
+        ``∂f/∂z`` as a flat array.
+    """
+    p = problem
+    n = p.n
+    nu = p.poisson_ratio
+    s1, s2 = p.overstrain
+    inv4 = 1.0 / float(n) ** 4
+    W = p.precondition * _rfft2(z.reshape(n, n))
+    W2 = W.real**2 + W.imag**2
+    # Parseval sums of (kx², ky², kx ky, L)·weight in one product: mean strains exact
+    Pxx, Pyy, Pxy, e_lin = (p.moment_symbols @ W2.ravel()) * inv4
+    Pxx, Pyy, Pxy, e_lin = 0.5 * Pxx, 0.5 * Pyy, 0.5 * Pxy, 0.5 * e_lin
+    Mxx, Myy, Mxy = Pxx - s1, Pyy - s2, Pxy
+    trM = Mxx + Myy
+    e_mean = 0.5 * ((1 - nu) * (Mxx * Mxx + Myy * Myy + 2 * Mxy * Mxy) + nu * trM * trM)
+    Nxx, Nyy, Nxy = (1 - nu) * Mxx + nu * trM, (1 - nu) * Myy + nu * trM, (1 - nu) * Mxy
+    # Gaussian-curvature (Airy) part; the three second derivatives share one batched FFT
+    H = _irfft2(p.hessian_symbols * W, n)
+    Wxx, Wyy, Wxy = H[0], H[1], H[2]
+    g = Wxx * Wyy - Wxy * Wxy
+    G = _rfft2(g)
+    cG = 0.5 * (1 - nu * nu)
+    QG = p.curvature_filter * G
+    e_gauss = cG * inv4 * float(np.sum(p.weight * (G.real * QG.real + G.imag * QG.imag)))
+    phi = (2.0 * cG) * _irfft2(QG, n)
+    # adjoint of (Wxx, Wyy, Wxy) -> g: ∂yy(φ Wxx) + ∂xx(φ Wyy) − 2 ∂xy(φ Wxy)
+    F = _rfft2(phi * H)
+    R = (p.stiffness + Nxx * p.hessian_symbols[0] * -1.0 + Nyy * p.hessian_symbols[1] * -1.0
+         - 2 * Nxy * p.hessian_symbols[2]) * W
+    R += p.adjoint_symbols[0] * F[0] + p.adjoint_symbols[1] * F[1] + p.adjoint_symbols[2] * F[2]
+    grad = _irfft2(p.precondition * R, n)
+    f = (e_mean + e_lin + e_gauss - p.flat_energy) * float(n * n)
+    return f, grad.ravel()
+
+
+def to_height_field(problem: SheetProblem, z: np.ndarray) -> np.ndarray:
+    """Return the scaled height W (n × n grid) of a preconditioned variable z."""
+    n = problem.n
+    return _irfft2(problem.precondition * _rfft2(z.reshape(n, n)), n)
+
+
+def to_preconditioned_variable(problem: SheetProblem, height: np.ndarray) -> np.ndarray:
+    """Return a z whose height is the band-limited part of ``height`` (scaled, n × n)."""
+    n = problem.n
+    inverse = np.where(problem.band, 1.0 / np.where(problem.band, problem.precondition, 1.0), 0.0)
+    return _irfft2(inverse * _rfft2(height), n).ravel()
+
+
+@dataclass(frozen=True)
+class SheetMinimum:
+    """Result of one minimisation.
+
+    Attributes
+    ----------
+    height
+        Scaled equilibrium height W on the n × n grid.
+    energy
+        Scaled energy Π̃ − Π̃_flat (units of Ē_f h ε_c²).
+    converged
+        Whether the minimiser met its gradient or energy-change tolerance.
+    finite
+        Whether every value stayed finite.
+    iterations
+        L-BFGS iterations used.
+    gradient_norm
+        Largest component of the final gradient in z.
+    history
+        Scaled energy after each iteration (empty unless recorded).
+    """
+
+    height: np.ndarray
+    energy: float
+    converged: bool
+    finite: bool
+    iterations: int
+    gradient_norm: float
+    history: tuple[float, ...] = ()
+
+
+def minimize_sheet_energy(problem: SheetProblem, z0: np.ndarray, *, gradient_tolerance: float = 1e-6,
+                          max_iterations: int = 4000, record: bool = False,
+                          memory: int = 8) -> SheetMinimum:
+    """Minimise the cell energy with L-BFGS from the preconditioned start ``z0``.
+
+    A small L-BFGS of our own (two-loop recursion, Armijo backtracking, step doubling along
+    directions of negative curvature) rather than ``scipy.optimize``'s, whose BLAS calls on
+    tiny matrices cost milliseconds per iteration when the BLAS library runs threaded.
+    Every accepted step lowers the energy (Armijo), so the energy history is monotone.
+
+    Parameters
+    ----------
+    problem
+        The cell problem.
+    z0
+        Start (flat array of n² values), typically a small random field.
+    gradient_tolerance
+        Stop when the largest gradient component in z falls below this (the variable is
+        preconditioned to a unit bending/substrate Hessian, so this is a tolerance on a
+        well-scaled problem).
+    max_iterations
+        Iteration cap; reaching it means not converged.
+    record
+        Keep the energy after every iteration (for tests of monotone descent).
+    memory
+        Number of L-BFGS correction pairs.
+
+    Returns
+    -------
+    SheetMinimum
+    """
+    n2 = float(problem.n**2)
+    x = np.array(z0, dtype=float)
+    f, g = evaluate_sheet_energy(problem, x)
+    steps: list[np.ndarray] = []
+    changes: list[np.ndarray] = []
+    history: list[float] = []
+    converged = False
+    iterations = 0
+    while iterations < max_iterations:
+        if float(np.max(np.abs(g))) <= gradient_tolerance:
+            converged = True
+            break
+        iterations += 1
+        d = _compute_lbfgs_direction(g, steps, changes)
+        slope = float(g @ d)
+        if not slope < 0.0:
+            steps.clear()
+            changes.clear()
+            d, slope = -g, -float(g @ g)
+        accepted = _search_line(problem, x, f, d, slope)
+        if accepted is None:
+            break
+        t, f_new, g_new = accepted
+        s_vec, y_vec = t * d, g_new - g
+        if float(s_vec @ y_vec) > 1e-12 * float(np.sqrt((s_vec @ s_vec) * (y_vec @ y_vec))):
+            steps.append(s_vec)
+            changes.append(y_vec)
+            if len(steps) > memory:
+                steps.pop(0)
+                changes.pop(0)
+        x, f, g = x + s_vec, f_new, g_new
+        if record:
+            history.append(f / n2)
+        if not np.isfinite(f):
+            break
+    gnorm = float(np.max(np.abs(g)))
+    finite = bool(np.isfinite(f) and np.all(np.isfinite(x)))
+    # a line search that stalls at round-off with a small gradient is converged in practice
+    converged = finite and (converged or gnorm <= 100.0 * gradient_tolerance)
+    return SheetMinimum(height=to_height_field(problem, x), energy=f / n2, converged=converged,
+                        finite=finite, iterations=iterations, gradient_norm=gnorm,
+                        history=tuple(history))
+
+
+def _compute_lbfgs_direction(g: np.ndarray, steps: list[np.ndarray],
+                             changes: list[np.ndarray]) -> np.ndarray:
+    """Return the L-BFGS descent direction by the two-loop recursion."""
+    q = -g.copy()
+    alphas = []
+    for s_vec, y_vec in zip(reversed(steps), reversed(changes), strict=True):
+        a = float(s_vec @ q) / float(s_vec @ y_vec)
+        alphas.append(a)
+        q -= a * y_vec
+    if steps:
+        q *= float(steps[-1] @ changes[-1]) / float(changes[-1] @ changes[-1])
+    for (s_vec, y_vec), a in zip(zip(steps, changes, strict=True), reversed(alphas), strict=True):
+        b = float(y_vec @ q) / float(s_vec @ y_vec)
+        q += (a - b) * s_vec
+    return q
+
+
+def _search_line(problem: SheetProblem, x: np.ndarray, f: float, d: np.ndarray,
+                 slope: float) -> tuple[float, float, np.ndarray] | None:
+    """Return (step, energy, gradient) of an Armijo step along d, or None if none is found.
+
+    The step starts at 1, halves until the Armijo condition holds, and doubles while the
+    energy keeps falling and the directional derivative stays negative (the start near a
+    saddle, where the quadratic model underestimates the useful step).
+    """
+    c1 = 1e-4
+    t = 1.0
+    for _ in range(60):
+        f_t, g_t = evaluate_sheet_energy(problem, x + t * d)
+        if np.isfinite(f_t) and f_t <= f + c1 * t * slope:
+            break
+        t *= 0.5
+    else:
+        return None
+    for _ in range(20):
+        if float(g_t @ d) >= 0.5 * slope:
+            break
+        f_2, g_2 = evaluate_sheet_energy(problem, x + 2.0 * t * d)
+        if not (np.isfinite(f_2) and f_2 <= f + c1 * 2.0 * t * slope and f_2 < f_t):
+            break
+        t, f_t, g_t = 2.0 * t, f_2, g_2
+    return t, float(f_t), g_t

@@ -1,0 +1,192 @@
+"""``foundation_sheet``: the model seam, statuses, the discrete energy and its minimiser.
+
+Physics checks against published values live in
+``tests/reference/test_foundation_sheet_reference.py``.
+"""
+
+from __future__ import annotations
+
+from typing import Any
+
+import numpy as np
+import pytest
+
+from sweepshell.errors import ParameterError
+from sweepshell.models import Status, get_model, make_model
+from sweepshell.models.base import TRUSTED_STATUSES
+from sweepshell.models.foundation_sheet import FoundationSheetModel, compute_sheet_scales
+from sweepshell.numerics.sheet_energy import (
+    evaluate_sheet_energy,
+    make_sheet_problem,
+    minimize_sheet_energy,
+    to_height_field,
+)
+
+# E_f/E_s = 1000 at equal Poisson ratios: ε_c = ¼(3/1000)^{2/3}
+EPS_C = 0.25 * (3.0 / 1000.0) ** (2.0 / 3.0)
+
+
+def make_inputs(model: FoundationSheetModel, **columns: Any) -> dict[str, np.ndarray]:
+    """Return solve_batch inputs: defaults, a 1000:1 film/substrate pair, then ``columns``."""
+    n = len(next(iter(columns.values()))) if columns else 1
+    base: dict[str, Any] = {p.name: p.default for p in model.parameters}
+    base.update(film_modulus=1e9, substrate_modulus=1e6, film_poisson_ratio=0.3,
+                substrate_poisson_ratio=0.3, modes=16, cell_wavelengths=2)
+    out = {}
+    for name, default in base.items():
+        value = columns.get(name, [default] * n)
+        out[name] = np.asarray(value, dtype=object if isinstance(default, str) else float)
+    return out
+
+
+@pytest.fixture(scope="module")
+def model() -> FoundationSheetModel:
+    return FoundationSheetModel(seeds=(1, 2), height_samples=8)
+
+
+def test_registry_returns_the_model() -> None:
+    assert get_model("foundation_sheet") is FoundationSheetModel
+    built = make_model("foundation_sheet", {"seeds": [4, 5], "height_samples": 0})
+    assert built.settings["seeds"] == [4, 5]
+    assert "height" not in [o.name for o in built.outputs]
+    assert built.extra_dims == {}
+
+
+def test_settings_are_plain_json_types(model: FoundationSheetModel) -> None:
+    import json
+
+    assert json.loads(json.dumps(model.settings)) == model.settings
+    assert model.describe()["regimes"] == ["flat", "stripes", "checkerboard", "herringbone", "labyrinth"]
+
+
+def test_bad_settings_raise_parameter_error() -> None:
+    with pytest.raises(ParameterError):
+        FoundationSheetModel(seeds=())
+    with pytest.raises(ParameterError):
+        FoundationSheetModel(height_samples=-1)
+
+
+def test_check_combination_rejects_unresolved_cells() -> None:
+    FoundationSheetModel.check_combination({"modes": 32}, {"cell_wavelengths": np.array([2.0, 8.0])})
+    with pytest.raises(ParameterError, match="modes"):
+        FoundationSheetModel.check_combination({"modes": 16}, {"cell_wavelengths": np.array([2.0, 8.0])})
+
+
+def test_batch_shapes_dtypes_statuses_and_nan(model: FoundationSheetModel) -> None:
+    strains = [0.5, 1.5, 1.5, 0.0, -1.0, 50.0]
+    ratio = [1000, 1000, 1000, 1000, 1000, 1000]
+    inputs = make_inputs(model, strain_x=[s * EPS_C for s in strains],
+                         strain_y=[0.0, 0.0, 0.0, 0.0, 0.0, 0.0],
+                         substrate=["half_space", "half_space", "winkler", "half_space", "half_space",
+                                    "half_space"],
+                         film_modulus=[r * 1e6 for r in ratio])
+    res = model.solve_batch(inputs)
+    n = len(strains)
+    assert res.status.dtype == np.uint8 and res.status.shape == (n,)
+    assert res.regime.dtype == np.int8
+    for spec in model.outputs:
+        arr = res.outputs[spec.name]
+        assert arr.dtype == np.float64
+        assert arr.shape == (n, *(model.extra_dims[d] for d in spec.dims))
+    assert list(res.status) == [Status.no_instability, Status.ok, Status.ok, Status.no_instability,
+                                Status.no_instability, Status.outside_validity]
+    trusted = np.isin(res.status, [int(s) for s in TRUSTED_STATUSES])
+    for spec in model.outputs:
+        arr = res.outputs[spec.name].reshape(n, -1)
+        assert np.all(np.isnan(arr[~trusted]))
+        if not spec.nullable:
+            assert np.all(np.isfinite(arr[trusted]))
+    assert list(res.regime) == [0, 1, 1, 0, 0, -1]
+    assert np.isnan(res.outputs["wavelength"][0]) and np.isfinite(res.outputs["wavelength"][1])
+    assert res.outputs["amplitude_rms"][0] == 0.0 and res.outputs["energy"][1] < 0.0
+
+
+def test_low_contrast_is_outside_validity(model: FoundationSheetModel) -> None:
+    res = model.solve_batch(make_inputs(model, film_modulus=[2e6], strain_x=[0.3]))
+    assert res.status[0] == Status.outside_validity and res.regime[0] == -1
+
+
+def test_deterministic_and_batch_invariant(model: FoundationSheetModel) -> None:
+    sx = [1.6 * EPS_C, 1.2 * EPS_C, 1.1 * EPS_C]
+    sy = [0.2 * EPS_C, 1.2 * EPS_C, 0.0]
+    together = model.solve_batch(make_inputs(model, strain_x=sx, strain_y=sy))
+    again = model.solve_batch(make_inputs(model, strain_x=sx, strain_y=sy))
+    alone = model.solve_batch(make_inputs(model, strain_x=sx[1:2], strain_y=sy[1:2]))
+    for name, arr in together.outputs.items():
+        np.testing.assert_array_equal(arr, again.outputs[name])
+        np.testing.assert_array_equal(arr[1], alone.outputs[name][0])
+    assert together.regime[1] == alone.regime[0]
+
+
+def test_iteration_cap_gives_not_converged_with_nan() -> None:
+    capped = FoundationSheetModel(seeds=(1,), max_iterations=2, height_samples=4)
+    res = capped.solve_batch(make_inputs(capped, strain_x=[2.0 * EPS_C]))
+    assert res.status[0] == Status.not_converged and res.regime[0] == -1
+    assert all(np.all(np.isnan(v)) for v in res.outputs.values())
+
+
+def test_height_output_samples_the_equilibrium(model: FoundationSheetModel) -> None:
+    res = model.solve_batch(make_inputs(model, strain_x=[2.0 * EPS_C]))
+    height = res.outputs["height"][0]
+    # uniaxial stripes along x: every row is the same profile, rms matches the fine field
+    np.testing.assert_allclose(height, np.broadcast_to(height[0], height.shape), atol=1e-3 * np.abs(height).max())
+    assert np.sqrt(np.mean(height**2)) == pytest.approx(res.outputs["amplitude_rms"][0], rel=1e-4)
+    assert model.extra_coords()["height_x"][1] == pytest.approx(1.0 / 8.0)
+
+
+def test_scales_match_closed_forms_for_both_substrates() -> None:
+    sc = compute_sheet_scales(np.array([1e-6, 1e-6]), np.array([1e9, 1e9]), np.array([0.0, 0.0]),
+                              np.array([1e6, 1e6]), np.array([0.0, 0.0]),
+                              np.array(["half_space", "winkler"]))
+    D, K = 1e9 * 1e-18 / 12.0, 1e6 * (3e-3) ** (1 / 3) / 1e-6 / 2.0
+    # Winkler bed: critical force 2√(DK) and wavelength 2π(D/K)^{1/4} (Hetényi 1946)
+    assert sc["critical_strain"][1] * 1e9 * 1e-6 == pytest.approx(2 * np.sqrt(D * K), rel=1e-12)
+    assert sc["critical_wavelength"][1] == pytest.approx(2 * np.pi * (D / K) ** 0.25, rel=1e-12)
+    assert sc["critical_strain"][0] == pytest.approx(EPS_C, rel=1e-12)
+
+
+@pytest.mark.parametrize("substrate", ["half_space", "winkler"])
+def test_energy_gradient_matches_finite_differences(substrate: str) -> None:
+    problem = make_sheet_problem(16, 2, substrate, 0.3, (1.5, 0.7))
+    rng = np.random.default_rng(3)
+    z = 0.5 * rng.standard_normal(256)
+    d = rng.standard_normal(256)
+    _, grad = evaluate_sheet_energy(problem, z)
+    step = 1e-5
+    fd = (evaluate_sheet_energy(problem, z + step * d)[0]
+          - evaluate_sheet_energy(problem, z - step * d)[0]) / (2 * step)
+    assert grad @ d == pytest.approx(fd, rel=1e-6)
+
+
+def test_energy_decreases_monotonically_in_the_minimiser() -> None:
+    problem = make_sheet_problem(24, 3, "half_space", 0.3, (1.2, 1.2))
+    z0 = 0.05 * np.random.default_rng(1).standard_normal(24 * 24)
+    found = minimize_sheet_energy(problem, z0, gradient_tolerance=1e-6, record=True)
+    history = np.array(found.history)
+    assert found.converged and len(history) > 10
+    assert np.all(np.diff(history) <= 1e-12 * np.abs(history[:-1]).max())
+    assert history[-1] == pytest.approx(found.energy, rel=1e-9)
+    assert found.energy < -0.1  # equibiaxial overstress 1.56: clearly wrinkled
+
+
+def test_flat_start_stays_flat_and_zero_energy() -> None:
+    problem = make_sheet_problem(16, 2, "half_space", 0.3, (2.0, 0.0))
+    f, grad = evaluate_sheet_energy(problem, np.zeros(256))
+    assert f == 0.0 and np.all(grad == 0.0)
+    assert problem.linear_stability_margin() < 0.0
+    assert make_sheet_problem(16, 2, "half_space", 0.3, (0.99, 0.0)).linear_stability_margin() > 0.0
+    z = np.random.default_rng(0).standard_normal(256)
+    assert to_height_field(problem, z).mean() == pytest.approx(0.0, abs=1e-12)
+
+
+def test_swapping_strains_turns_the_stripes(model: FoundationSheetModel) -> None:
+    # uniaxial-dominated loading: stripes whose wavevector follows the larger compression
+    sx, sy = [1.8 * EPS_C, 0.2 * EPS_C], [0.2 * EPS_C, 1.8 * EPS_C]
+    res = model.solve_batch(make_inputs(model, strain_x=sx, strain_y=sy))
+    assert list(res.regime) == [1, 1]
+    h0, h1 = res.outputs["height"]
+    # stripes normal to x: the height varies along x only, and the swap transposes it
+    assert np.ptp(h0, axis=0).max() < 1e-3 * np.abs(h0).max()
+    assert np.ptp(h1, axis=1).max() < 1e-3 * np.abs(h1).max()
+    for name in ("amplitude_rms", "amplitude_peak", "energy", "wavelength"):
+        assert res.outputs[name][0] == pytest.approx(res.outputs[name][1], rel=1e-4)
