@@ -58,6 +58,8 @@ CATALOG_FILE = ".sweepshell-catalog.sqlite"
 _APPLICATION_ID = 0x53575043
 #: version of the index tables below; another version is rebuilt
 _INDEX_VERSION = 1
+#: how long to wait for another process holding the index, s
+_LOCK_TIMEOUT_SECONDS = 10.0
 
 
 @dataclass(frozen=True)
@@ -294,7 +296,7 @@ def _connect_index(path: Path) -> tuple[sqlite3.Connection | None, bool]:
     existed = path.exists()
     for attempt in range(2):
         try:
-            con = sqlite3.connect(str(path), timeout=10.0)
+            con = sqlite3.connect(str(path), timeout=_LOCK_TIMEOUT_SECONDS)
             app_id = con.execute("PRAGMA application_id").fetchone()[0]
             version = con.execute("PRAGMA user_version").fetchone()[0]
             tables = {r[0] for r in con.execute("SELECT name FROM sqlite_master WHERE type='table'")}
@@ -309,7 +311,11 @@ def _connect_index(path: Path) -> tuple[sqlite3.Connection | None, bool]:
                 return con, existed
             con.close()
             reason = "foreign or outdated"
-        except sqlite3.DatabaseError as exc:
+        except sqlite3.OperationalError as exc:
+            # locked by another process, or not openable here: use no index rather than delete a good one
+            log.warning("catalog index %s is busy or cannot be opened (%s); listing without it", path, exc)
+            return None, False
+        except sqlite3.DatabaseError as exc:  # "file is not a database": garbage in our file name
             reason = f"unreadable ({exc})"
         except OSError as exc:
             log.warning("catalog index %s cannot be opened (%s); listing without an index", path, exc)

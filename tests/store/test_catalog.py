@@ -122,6 +122,23 @@ def test_corrupted_foreign_or_forged_index_is_rebuilt_or_ignored(results, damage
     assert read_catalog(results).reread == 0  # and the rebuilt index is usable
 
 
+def test_a_busy_index_is_left_alone_and_the_listing_still_works(results, monkeypatch):
+    from sweepshell.store import catalog
+
+    first = read_catalog(results)
+    monkeypatch.setattr(catalog, "_LOCK_TIMEOUT_SECONDS", 0.05)
+    holder = sqlite3.connect(results / CATALOG_FILE)
+    holder.execute("BEGIN EXCLUSIVE")  # another process is writing the index
+    try:
+        busy = read_catalog(results)
+    finally:
+        holder.rollback()
+        holder.close()
+    assert busy.index_path is None and busy.reread == 3
+    assert [e.to_dict() for e in busy.entries] == [e.to_dict() for e in first.entries]
+    assert read_catalog(results).reread == 0  # the index survived
+
+
 def test_paths_cannot_escape_the_results_folder(results, tmp_path):
     outside = tmp_path / "elsewhere"
     outside.mkdir()

@@ -13,7 +13,6 @@ import zarr
 
 from sweepshell import open_sweep, run_sweep
 from sweepshell.cli.main import main
-from sweepshell.config.loader import build_plan
 from sweepshell.errors import StoreMismatchError
 from sweepshell.models.base import Status
 from sweepshell.store.merge import MergeConflictError, merge_stores, union_axis_values
@@ -69,12 +68,10 @@ def test_points_missing_on_both_sides_are_pending_and_a_run_completes_them(store
     ledger = open_sweep(out).status
     assert (ledger.sel(stiffness_ratio=[100.0, 1000.0], load_ratio=[20.0, 40.0]) == Status.pending).all()
     assert int((ledger == Status.pending).sum()) == 4
-    # the merged store is a normal store: a run over the union axes fills exactly the pending blocks
-    plan = build_plan({"name": "c", "model": "winkler_column", "fixed": {"end": "pinned"},
-                       "axes": {"stiffness_ratio": ETA, "load_ratio": LOAD}, "store": {"path": str(out)},
-                       "executor": {"kind": "threads", "workers": 1}, "block": {"points": 10},
-                       "reuse": False})
-    summary = run_sweep(plan)
+    # the merged store is a normal store: running the sweep it records (union axes, store path C) resumes it
+    sweep = tmp_path / "c.yaml"
+    sweep.write_text(open_sweep(out).attrs["sweep_yaml"])
+    summary = run_sweep(str(sweep), ["reuse=false"])
     # blocks are 2 x 5 points: rows (eta) 2-3 and row 4 hold the pending points
     assert summary.complete and summary.computed == 15
     xr.testing.assert_identical(_data(out), _data(stores["u"]))
