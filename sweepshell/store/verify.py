@@ -18,6 +18,10 @@ Checks, in order:
    known. Pending points may hold anything (a run killed after writing outputs leaves them;
    they are recomputed).
 
+The off-grid point list (sub-group ``points``), when present, is checked the same way: its
+chunks decode and its final points obey the ledger rules (its pending points are an
+interrupted append, ignored by readers). ``repair`` does not touch it.
+
 A run recomputes every block holding a pending point; a block whose ledger chunk cannot be
 decoded reads as pending, so it is recomputed too. A block whose *output* chunk is
 unreadable while its ledger says final is not recomputed by a run: ``repair=True`` sets such
@@ -365,6 +369,7 @@ def verify_store(path: str | os.PathLike[str], *, repair: bool = False) -> Verif
             if block.index not in recompute:
                 recompute.append(block.index)
                 recompute_points += block.n_points
+    problems += _check_point_list(root, names, len(regimes))
     named = {s.name: int(counts[s.value]) for s in Status}
     unknown = int(counts[len(Status):].sum())
     if unknown:
@@ -415,3 +420,43 @@ def _check_ledger(block: Any, status: np.ndarray, values: dict[str, np.ndarray],
                                                     f"have values in {name} (must be NaN)", variable=name,
                                           block=block.index, points=int(bad.sum()), recomputed=will_recompute))
     return problems
+
+
+_POINTS_GROUP = "points"
+_POINT_BOOKKEEPING = ("level", "origin")
+
+
+def _check_point_list(root: Path, axis_names: list[str], n_regimes: int) -> list[VerifyProblem]:
+    """Check the off-grid point list: chunks decode, final points obey the ledger rules."""
+    import zarr
+
+    folder = root / _POINTS_GROUP
+    if not (folder / "zarr.json").is_file():
+        return []
+    problems: list[VerifyProblem] = []
+    values: dict[str, np.ndarray] = {}
+    for sub in sorted(p for p in folder.iterdir() if p.is_dir() and (p / "zarr.json").is_file()):
+        name = f"{_POINTS_GROUP}/{sub.name}"
+        try:
+            values[sub.name] = np.asarray(zarr.open_array(str(sub), mode="r", zarr_format=3)[...])
+        except Exception as exc:
+            problems.append(VerifyProblem("chunk", f"{name} does not decode ({_reason(exc)})", variable=name))
+    status = values.get(layout.STATUS_VAR)
+    if status is None:
+        if not any(p.variable == f"{_POINTS_GROUP}/{layout.STATUS_VAR}" for p in problems):
+            problems.append(VerifyProblem("layout", "the point list has no status array",
+                                          variable=f"{_POINTS_GROUP}/{layout.STATUS_VAR}"))
+        return problems
+    skip = {*axis_names, layout.STATUS_VAR, layout.REGIME_VAR, *_POINT_BOOKKEEPING}
+    outputs = [n for n in values if n not in skip]
+    clipped = {n: v[: status.shape[0]] for n, v in values.items()}
+    found = _check_ledger(_PointListBlock(), status, clipped, outputs, n_regimes, False)
+    return problems + [VerifyProblem(p.kind, p.message.replace("block []", "point list"),
+                                     variable=f"{_POINTS_GROUP}/{p.variable}", points=p.points) for p in found]
+
+
+@dataclass(frozen=True)
+class _PointListBlock:
+    """Stands for a block in messages about the point list."""
+
+    index: tuple[int, ...] = ()

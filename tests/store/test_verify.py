@@ -124,3 +124,22 @@ def test_bad_input_exits_2(tmp_path, capsys):
     (tmp_path / "plain.zarr" / "zarr.json").write_text('{"zarr_format": 3, "node_type": "group", "attributes": {}}')
     assert main(["verify", str(tmp_path / "plain.zarr")]) == 2
     assert "not a sweepshell store" in capsys.readouterr().err
+
+
+def test_the_off_grid_point_list_is_checked_too(store):
+    from sweepshell.store.points import append_points
+
+    def append(status: int, critical_load: float, regime: int) -> None:
+        append_points(store, {"stiffness_ratio": np.array([3.0]), "load_ratio": np.array([2.0])},
+                      {"critical_load": np.array([critical_load]), "margin": np.array([np.nan]),
+                       "mode_number": np.array([np.nan])},
+                      np.array([regime], dtype=np.int8), np.array([status], dtype=np.uint8), origin="refine")
+
+    append(Status.ok, 4.0, 1)
+    append(Status.failed, np.nan, -1)
+    assert verify_store(store).consistent
+    append(Status.failed, 5.0, -1)  # a failed point with a value
+    append(Status.ok, 4.0, -1)  # a trusted point without a regime
+    problems = verify_store(store).problems
+    assert sorted((p.variable, p.points) for p in problems) == [("points/critical_load", 1), ("points/regime", 1)]
+    assert all(p.kind == "ledger" and "point list" in p.message for p in problems)
