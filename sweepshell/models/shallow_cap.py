@@ -93,7 +93,7 @@ class ShallowCapModel(SweepModel):
     """Shallow spherical cap under pressure or an apex force: limit points and bifurcations."""
 
     name: ClassVar[str] = "shallow_cap"
-    version: ClassVar[str] = "1.0"
+    version: ClassVar[str] = "1.1"
     summary: ClassVar[str] = ("shallow spherical cap (Föppl–von Kármán): snap-through, asymmetric "
                               "bifurcation, apex indentation, dimple imperfections")
     parameters: ClassVar[tuple[ParameterSpec, ...]] = (
@@ -126,7 +126,7 @@ class ShallowCapModel(SweepModel):
     def __init__(self, *, nodes: int = 34, asymmetric_modes: int = 30, max_pressure: float = 2.0,
                  max_indentation: float = 1.0, path_samples: int = 64, check_bistability: bool = True,
                  tolerance: float = 1e-10, max_points: int = 400, max_base_ratio: float = 0.5,
-                 max_turn_deg: float = 12.0) -> None:
+                 max_turn_deg: float = 12.0, scan_stride: int = 1) -> None:
         super().__init__()
         self._settings: dict[str, Any] = {
             "nodes": int(nodes), "asymmetric_modes": int(asymmetric_modes),
@@ -134,6 +134,7 @@ class ShallowCapModel(SweepModel):
             "path_samples": int(path_samples), "check_bistability": bool(check_bistability),
             "tolerance": float(tolerance), "max_points": int(max_points),
             "max_base_ratio": float(max_base_ratio), "max_turn_deg": float(max_turn_deg),
+            "scan_stride": max(int(scan_stride), 1),
         }
 
     @property

@@ -16,16 +16,14 @@ with the apex-force singularity ``σ = −½ x log x`` (``x L[σ] = −1``) remo
 from __future__ import annotations
 
 from dataclasses import dataclass
-from functools import lru_cache
 
 import numpy as np
 
-from sweepshell.numerics.radial_chebyshev import RadialGrid, make_radial_grid
+from sweepshell.numerics.radial_chebyshev import RadialGrid
 
 __all__ = [
+    "CapLinearization",
     "CapPathProblem",
-    "compute_mode_determinants",
-    "make_mode_operators",
     "singular_slope",
 ]
 
@@ -175,12 +173,20 @@ class CapLinearization:
     b: np.ndarray
 
     def solve_bordered(self, row: np.ndarray, r: np.ndarray, c: np.ndarray) -> np.ndarray:
-        """Solve ``[J; row] d = [r; c]`` for ``d = (dY, dF, dμ)``."""
+        """Solve ``[J; row] d = [r; c]`` for ``d = (dY, dF, dμ)``.
+
+        ``r`` is ``(k, 2M)`` and ``c`` ``(k,)``, or ``(k, 2M, p)`` and ``(k, p)`` for ``p``
+        right-hand sides sharing one factorisation (then ``d`` is ``(k, 2M+1, p)``).
+        """
+        single = r.ndim == 2
+        if single:
+            r = r[:, :, None]
+            c = c[:, None]
         k, m = self.arm.shape
         arm, b = self.arm, self.b
         r1, r2 = r[:, :m], r[:, m:]
         ry, rf, rmu = row[:, :m], row[:, m:2 * m], row[:, -1]
-        br2 = np.einsum("kij,kj->ki", b, r2)
+        br2 = b @ r2
         bj = np.einsum("kij,kj->ki", b, self.j2mu)
         btrf = np.einsum("kji,kj->ki", b, rf)
         a = np.empty((k, m + 1, m + 1))
@@ -188,148 +194,13 @@ class CapLinearization:
         a[:, :m, m] = self.j1mu - arm * bj
         a[:, m, :m] = ry - arm * btrf
         a[:, m, m] = rmu - np.einsum("ki,ki->k", rf, bj)
-        rhs = np.empty((k, m + 1, 1))
-        rhs[:, :m, 0] = r1 - arm * br2
-        rhs[:, m, 0] = c - np.einsum("ki,ki->k", rf, br2)
-        sol = np.linalg.solve(a, rhs)[..., 0]
+        rhs = np.empty((k, m + 1, r.shape[2]))
+        rhs[:, :m] = r1 - arm[:, :, None] * br2
+        rhs[:, m] = c - np.einsum("ki,kip->kp", rf, br2)
+        sol = np.linalg.solve(a, rhs)
         dy, dmu = sol[:, :m], sol[:, m]
-        out = np.empty((k, 2 * m + 1))
+        out = np.empty((k, 2 * m + 1, r.shape[2]))
         out[:, :m] = dy
-        out[:, m:2 * m] = br2 - np.einsum("kij,kj->ki", b, arm * dy) - bj * dmu[:, None]
+        out[:, m:2 * m] = br2 - b @ (arm[:, :, None] * dy) - bj[:, :, None] * dmu[:, None, :]
         out[:, -1] = dmu
-        return out
-
-
-@dataclass(frozen=True)
-class FieldOperators:
-    """Values and derivatives of ``x^m v`` (rows: nodes, columns: half-grid values of ``v``)."""
-
-    w0: np.ndarray
-    w1: np.ndarray
-    w2: np.ndarray
-    w3_edge: np.ndarray
-    bilaplacian: np.ndarray  # x² ∇⁴_n (x^m v)
-
-
-@dataclass(frozen=True)
-class ModeOperators:
-    """State-independent pieces of the stability matrix of circumferential wave number n.
-
-    The deflection is ``w = x^m v`` with ``m = min(n, 2)``, so the polynomial ``v`` excludes the
-    non-smooth ``x^0 cos 2θ``; the stress function is ``Φ = x^m φ`` with ``m = 3`` for n = 1,
-    which removes the stress-free gauge ``Φ = x cos θ`` (a linear function, zero stress).
-    """
-
-    n: int
-    deflection: FieldOperators
-    stress: FieldOperators
-
-
-def _field_operators(size: int, n: int, m: int) -> FieldOperators:
-    g = make_radial_grid(size)
-    x = g.x
-    pv = 1 if (n - m) % 2 == 0 else -1
-    pn = 1 if n % 2 == 0 else -1
-    d1, d2, d3 = g.d1[pv], g.d2[pv], g.d3[pv]
-    xm = x**m
-    eye = np.eye(size)
-    w0 = np.diag(xm)
-    w1 = np.diag(m * x ** (m - 1)) + xm[:, None] * d1
-    w2 = np.diag(m * (m - 1) * x ** (m - 2)) + (2 * m * x ** (m - 1))[:, None] * d1 + xm[:, None] * d2
-    w3_edge = m * (m - 1) * (m - 2) * eye[0] + 3 * m * (m - 1) * d1[0] + 3 * m * d2[0] + d3[0]
-    lap = (x ** (m - 2))[:, None] * ((x**2)[:, None] * d2 + ((2 * m + 1) * x)[:, None] * d1 + (m * m - n * n) * eye)
-    outer = (x**2)[:, None] * g.d2[pn] + x[:, None] * g.d1[pn] - n * n * eye
-    return FieldOperators(w0=w0, w1=w1, w2=w2, w3_edge=w3_edge, bilaplacian=outer @ lap)
-
-
-@lru_cache(maxsize=256)
-def make_mode_operators(size: int, n: int) -> ModeOperators:
-    """Return the operators of wave number ``n ≥ 1`` on a half grid of ``size`` nodes (cached)."""
-    return ModeOperators(n=n, deflection=_field_operators(size, n, 1 if n == 1 else 2),
-                         stress=_field_operators(size, n, 3 if n == 1 else 2))
-
-
-def build_mode_matrices(ops: ModeOperators, x: np.ndarray, f: np.ndarray, df: np.ndarray,
-                        zeta1: np.ndarray, zeta2: np.ndarray, nu: np.ndarray,
-                        clamped: np.ndarray, immovable: np.ndarray) -> np.ndarray:
-    """Return the ``(k, 2M, 2M)`` linear stability matrices of wave number ``ops.n``.
-
-    Parameters
-    ----------
-    x
-        Half-grid nodes.
-    f, df
-        ``(k, M)`` compressive stress-function slope ``f = −Φ₀'`` and its derivative.
-    zeta1, zeta2
-        ``(k, M)`` slope and curvature of the deformed surface, ``ζ'`` and ``ζ''``.
-    nu, clamped, immovable
-        ``(k,)`` Poisson's ratio and edge flags.
-    """
-    n = ops.n
-    k, m = f.shape
-    wo, so = ops.deflection, ops.stress
-    a = np.zeros((k, 2 * m, 2 * m))
-    w_b = x[:, None] * wo.w1 - n * n * wo.w0
-    s_b = x[:, None] * so.w1 - n * n * so.w0
-    # x² × (∇⁴w − [Φ₀, w] − [Φ, ζ]) and x² × (∇⁴Φ + [ζ, w]) at the interior nodes
-    a[:, :m, :m] = wo.bilaplacian + df[:, :, None] * w_b + (x * f)[:, :, None] * wo.w2
-    a[:, :m, m:] = -(zeta2[:, :, None] * s_b + (x * zeta1)[:, :, None] * so.w2)
-    a[:, m:, :m] = zeta2[:, :, None] * w_b + (x * zeta1)[:, :, None] * wo.w2
-    a[:, m:, m:] = so.bilaplacian
-    # two edge conditions per field replace the collocation rows at the two outer nodes
-    a[:, 0, :] = 0.0
-    a[:, 1, :] = 0.0
-    a[:, 0, :m] = wo.w0[0]
-    a[:, 1, :m] = np.where(clamped[:, None], wo.w1[0][None, :], wo.w2[0][None, :] + nu[:, None] * wo.w1[0][None, :])
-    a[:, m, :] = 0.0
-    a[:, m + 1, :] = 0.0
-    f0, f1, f2, f3 = so.w0[0], so.w1[0], so.w2[0], so.w3_edge
-    n2 = n * n
-    nuc = nu[:, None]
-    # immovable: ε_θ = 0 and ∂_r(r ε_θ) − ε_r − ∂_θ γ + ζ' w' = 0 (u_r = u_θ = 0 along the edge)
-    e_theta = f2[None, :] - nuc * (f1 - n2 * f0)[None, :]
-    de_theta = f3[None, :] - nuc * (f2 - f1 - n2 * f1 + 2 * n2 * f0)[None, :]
-    e_r = (f1 - n2 * f0)[None, :] - nuc * f2[None, :]
-    shear = 2.0 * (1.0 + nuc) * n2 * (f1 - f0)[None, :]
-    a[:, m, m:] = np.where(immovable[:, None], e_theta, f0[None, :])
-    a[:, m + 1, m:] = np.where(immovable[:, None], de_theta - e_r - shear, f1[None, :])
-    a[:, m + 1, :m] = np.where(immovable[:, None], zeta1[:, :1] * wo.w1[0][None, :], 0.0)
-    return a
-
-
-def compute_mode_determinants(problem: CapPathProblem, z: np.ndarray, idx: np.ndarray,
-                              modes: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-    """Return ``(sign, log|det|)`` of the stability matrices, shape ``(k, len(modes))``.
-
-    Parameters
-    ----------
-    z
-        ``(k, 2M+1)`` axisymmetric states.
-    idx
-        ``(k,)`` problem indices of the states.
-    modes
-        Wave numbers ``n ≥ 1``.
-    """
-    g = problem.grid
-    x = g.x
-    lam2 = problem.lam[idx] ** 2
-    y, fs, _, p = problem.split(z, idx)
-    kap = problem.kappa[idx]
-    ybar = y + (kap * p)[:, None] * problem.sigma[None, :]
-    dybar = np.einsum("ij,kj->ki", g.d1[-1], y) + (kap * p)[:, None] * problem.dsigma[None, :]
-    imp = problem.imperfection[idx]
-    dimp = np.einsum("ij,kj->ki", g.d1[-1], imp)
-    f = lam2[:, None] * fs
-    df = lam2[:, None] * np.einsum("ij,kj->ki", g.d1[-1], fs)
-    zeta1 = lam2[:, None] * (-(x[None, :] - imp) + ybar)
-    zeta2 = lam2[:, None] * (-(1.0 - dimp) + dybar)
-    sign = np.empty((z.shape[0], len(modes)))
-    logdet = np.empty_like(sign)
-    nu = problem.nu[idx]
-    cl = problem.clamped[idx]
-    im = problem.immovable[idx]
-    for j, n in enumerate(modes):
-        ops = make_mode_operators(g.size, int(n))
-        a = build_mode_matrices(ops, x, f, df, zeta1, zeta2, nu, cl, im)
-        sign[:, j], logdet[:, j] = np.linalg.slogdet(a)
-    return sign, logdet
+        return out[:, :, 0] if single else out

@@ -19,7 +19,8 @@ from typing import Any
 import numpy as np
 
 from sweepshell.models.base import Status
-from sweepshell.models.shallow_cap_kernels import CapPathProblem, compute_mode_determinants
+from sweepshell.models.shallow_cap_kernels import CapPathProblem
+from sweepshell.models.shallow_cap_modes import compute_mode_determinants
 from sweepshell.numerics.arclength import (
     TRACE_DONE,
     compute_tangent,
@@ -32,6 +33,7 @@ __all__ = ["CapSolution", "solve_caps"]
 
 _REGIME_STABLE, _REGIME_LIMIT, _REGIME_BIFURCATION = 0, 1, 2
 _DET_CHUNK = 1024
+_FIRST_STEP, _MAX_STEP = 0.1, 0.25
 
 
 @dataclass
@@ -70,6 +72,88 @@ def _modes_determinants(pb: CapPathProblem, z: np.ndarray, idx: np.ndarray,
         sl = slice(lo, lo + _DET_CHUNK)
         sign[sl], logdet[sl] = compute_mode_determinants(pb, z[sl], idx[sl], modes)
     return sign, logdet
+
+
+@dataclass(frozen=True)
+class ModeCrossings:
+    """Wave numbers whose stability determinant changed sign in a cap's first flipped step.
+
+    Arrays over crossings: the cap (``point``), the wave number, the determinant ratio across
+    the step and the determinant's sign and log|det| at the step before.
+    """
+
+    point: np.ndarray
+    mode: np.ndarray
+    ratio: np.ndarray
+    sign: np.ndarray
+    logdet: np.ndarray
+
+
+def _scan_modes(pb: CapPathProblem, zh: np.ndarray, scanned: np.ndarray, scan_end: np.ndarray,
+                modes: np.ndarray, stride: int) -> tuple[np.ndarray, ModeCrossings]:
+    """Return the first path step where a stability determinant changed sign, per cap.
+
+    All wave numbers are evaluated at every ``stride``-th accepted step (and at the last one);
+    path steps are short where the state changes fast (near folds), so this sampling is
+    densest where determinants move fastest. Inside the first sampled interval whose end has a
+    flipped sign, only the flipped wave numbers are evaluated at the steps in between, and the
+    first step with a flip is kept. A wave number whose determinant changes sign twice between
+    two evaluations (two eigenvalues crossing) is missed: ``stride = 1`` (every step) is the
+    safe default.
+
+    Returns
+    -------
+    step, crossings
+        ``(n,)`` index of the first step with a flip (-1: none), and the wave numbers that
+        flipped in that step.
+    """
+    n = zh.shape[0]
+    jb = np.full(n, -1)
+    none = ModeCrossings(*(np.zeros(0, dtype=t) for t in (int, int, float, float, float)))
+    if modes.size == 0 or not scanned.any():
+        return jb, none
+    steps = np.arange(zh.shape[1])
+    inside = (steps[None, :] <= scan_end[:, None]) & scanned[:, None]
+    sampled = inside & ((steps[None, :] % stride == 0) | (steps[None, :] == scan_end[:, None]))
+    pi, pj = np.nonzero(sampled)
+    sg, ld = _modes_determinants(pb, zh[pi, pj], pi, modes)
+    sg_all = np.full((n, zh.shape[1], modes.size), np.nan)
+    ld_all = np.full_like(sg_all, np.nan)
+    sg_all[pi, pj] = sg
+    ld_all[pi, pj] = ld
+    ref = sg_all[:, 0]
+    flip_at = (sg_all != ref[:, None, :]) & sampled[:, :, None]
+    any_flip = flip_at.any(axis=2)
+    rows = np.nonzero(any_flip.any(axis=1))[0]
+    if rows.size == 0:
+        return jb, none
+    j_hi = np.argmax(any_flip[rows], axis=1)
+    j_lo = (j_hi - 1) // stride * stride
+    flipped = flip_at[rows, j_hi]  # (r, modes)
+    if stride > 1:
+        # the steps strictly between the two samples, only for the wave numbers that flipped
+        for col in np.nonzero(flipped.any(axis=0))[0]:
+            sel = flipped[:, col]
+            ri = np.repeat(rows[sel], stride)
+            rj = (j_lo[sel][:, None] + np.arange(1, stride + 1)[None, :]).ravel()
+            keep = rj < np.repeat(j_hi[sel], stride)
+            ri, rj = ri[keep], rj[keep]
+            if ri.size:
+                s1, l1 = _modes_determinants(pb, zh[ri, rj], ri, modes[col:col + 1])
+                sg_all[ri, rj, col], ld_all[ri, rj, col] = s1[:, 0], l1[:, 0]
+    out: list[tuple[int, int, float, float, float]] = []
+    for r, i in enumerate(rows):
+        cand = flipped[r]
+        seg = sg_all[i, j_lo[r] + 1:j_hi[r] + 1][:, cand] != ref[i, cand][None, :]
+        j = int(j_lo[r] + 1 + np.argmax(seg.any(axis=1)))
+        prev_s, prev_l = sg_all[i, j - 1], ld_all[i, j - 1]
+        now_s, now_l = sg_all[i, j], ld_all[i, j]
+        jb[i] = j
+        for k in np.nonzero(cand & (now_s != prev_s))[0]:
+            ratio = prev_s[k] * now_s[k] * np.exp(np.clip(now_l[k] - prev_l[k], -700, 700))
+            out.append((int(i), int(modes[k]), float(ratio), float(prev_s[k]), float(prev_l[k])))
+    cols = list(zip(*out, strict=True))
+    return jb, ModeCrossings(*(np.asarray(c) for c in cols))
 
 
 def solve_caps(lam: np.ndarray, nu: np.ndarray, clamped: np.ndarray, immovable: np.ndarray,
@@ -130,7 +214,7 @@ def solve_caps(lam: np.ndarray, nu: np.ndarray, clamped: np.ndarray, immovable: 
         done |= fold_seen[rows] & ~went_negative[rows] & (mu_n > first_max[rows])
         return done
 
-    hist = trace_paths(pb, z0, t0, idx, w, first_step=0.02, max_step=0.25, min_step=1e-7,
+    hist = trace_paths(pb, z0, t0, idx, w, first_step=_FIRST_STEP, max_step=_MAX_STEP, min_step=1e-7,
                        max_points=int(settings["max_points"]), max_angle_deg=float(settings["max_turn_deg"]),
                        tol=float(settings["tolerance"]), max_iter=8, is_finished=is_finished)
     tol = float(settings["tolerance"])
@@ -147,35 +231,11 @@ def solve_caps(lam: np.ndarray, nu: np.ndarray, clamped: np.ndarray, immovable: 
 
     # asymmetric scan along the path up to the fold bracket
     n_modes = int(settings["asymmetric_modes"])
-    jb = np.full(n, -1)
-    bif_mode = np.zeros(n, dtype=int)
-    bif_ratio = np.ones(n)
-    ref_sign = np.ones((n, max(n_modes, 1)))
-    ref_logdet = np.zeros((n, max(n_modes, 1)))
     modes = np.arange(1, n_modes + 1)
-    if n_modes > 0:
-        # apex-force paths are not scanned: the x log x singularity of their curvature gives
-        # spurious determinant sign changes at small forces (open issue), so only force maxima count
-        pi, pj = np.nonzero((steps[None, :] <= scan_end[:, None]) & ~apex[:, None])
-        sg, ld = _modes_determinants(pb, hist.z[pi, pj], pi, modes)
-        first = pj == 0
-        ref_sign[pi[first]] = sg[first]
-        ref_logdet[pi[first]] = ld[first]
-        flipped = (sg != ref_sign[pi]).any(axis=1) & (pj > 0)
-        sg_full = np.zeros((n, hist.z.shape[1], n_modes))
-        ld_full = np.zeros_like(sg_full)
-        sg_full[pi, pj] = sg
-        ld_full[pi, pj] = ld
-        for i in np.unique(pi[flipped]):
-            j = int(pj[flipped & (pi == i)].min())
-            prev_s, prev_l = sg_full[i, j - 1], ld_full[i, j - 1]
-            now_s, now_l = sg_full[i, j], ld_full[i, j]
-            cross = now_s != prev_s
-            ratio = prev_s * now_s * np.exp(np.clip(now_l - prev_l, -700, 700))
-            est = np.where(cross, 1.0 / (1.0 - ratio), np.inf)
-            k = int(np.argmin(est))
-            jb[i], bif_mode[i], bif_ratio[i] = j, modes[k], ratio[k]
-            ref_sign[i, 0], ref_logdet[i, 0] = prev_s[k], prev_l[k]
+    # apex-force paths are not scanned: the x log x singularity of their curvature gives
+    # spurious determinant sign changes at small forces (open issue), so only force maxima count
+    jb, crossings = _scan_modes(pb, hist.z, ~apex, scan_end, modes, int(settings["scan_stride"]))
+    bif_mode = np.zeros(n, dtype=int)
 
     crit_z = np.full((n, m + 1), np.nan)
     crit_s_fold = np.full(n, np.inf)
@@ -188,29 +248,34 @@ def solve_caps(lam: np.ndarray, nu: np.ndarray, clamped: np.ndarray, immovable: 
         jr = jf[rf]
         zf, _, sf, okf = refine_on_arc(
             pb, hist.z[rf, jr], hist.t[rf, jr], hist.step[rf, jr + 1], tmu[rf, jr], tmu[rf, jr + 1], rf, w,
-            lambda z, t, ii: t[:, -1], tol=tol, max_iter=8, iterations=40, s_tol=1e-9)
+            lambda z, t, ii: t[:, -1], tol=tol, max_iter=8, iterations=40, s_tol=1e-7)
         z_fold[rf], crit_s_fold[rf] = zf, sf
         refine_ok[rf] &= okf
-    rb = np.nonzero(jb > 0)[0]
-    if rb.size:
-        jr = jb[rb]
-        mode_of = np.zeros(n, dtype=int)
-        mode_of[rb] = bif_mode[rb]
+    if crossings.point.size:
+        # every wave number that changed sign in the first flipped step is refined: when several
+        # cross within one step, a linear estimate of which came first is not reliable
+        cp, cm = crossings.point, crossings.mode
+        jr = jb[cp]
 
-        def measure(z: np.ndarray, t: np.ndarray, ii: np.ndarray) -> np.ndarray:
+        def measure(z: np.ndarray, t: np.ndarray, pos: np.ndarray) -> np.ndarray:
             out = np.empty(z.shape[0])
-            for mode in np.unique(mode_of[ii]):
-                sel = mode_of[ii] == mode
-                sg, ld = compute_mode_determinants(pb, z[sel], ii[sel], np.array([mode]))
-                out[sel] = sg[:, 0] * ref_sign[ii[sel], 0] * np.exp(np.clip(ld[:, 0] - ref_logdet[ii[sel], 0],
-                                                                            -700, 700))
+            for mode in np.unique(cm[pos]):
+                sel = cm[pos] == mode
+                rows = pos[sel]
+                sg, ld = compute_mode_determinants(pb, z[sel], cp[rows], np.array([mode]))
+                out[sel] = sg[:, 0] * crossings.sign[rows] * np.exp(np.clip(ld[:, 0] - crossings.logdet[rows],
+                                                                             -700, 700))
             return out
 
         zb, _, sb, okb = refine_on_arc(
-            pb, hist.z[rb, jr - 1], hist.t[rb, jr - 1], hist.step[rb, jr], np.ones(rb.size), bif_ratio[rb], rb, w,
+            pb, hist.z[cp, jr - 1], hist.t[cp, jr - 1], hist.step[cp, jr], np.ones(cp.size), crossings.ratio, cp, w,
             measure, tol=tol, max_iter=8, iterations=40, s_tol=1e-9)
-        z_bif[rb], crit_s_bif[rb] = zb, sb
-        refine_ok[rb] &= okb
+        sb = np.where(okb, sb, np.inf)
+        order = np.lexsort((sb, cp))
+        first = order[np.r_[True, cp[order][1:] != cp[order][:-1]]]
+        pts = cp[first]
+        z_bif[pts], crit_s_bif[pts], bif_mode[pts] = zb[first], sb[first], cm[first]
+        refine_ok[pts] &= np.isfinite(sb[first])
 
     # which comes first along the path (compare arclength positions step index + offset)
     pos_fold = np.where(np.isfinite(crit_s_fold), jf + crit_s_fold / np.maximum(hist.step[idx, np.maximum(jf, 0) + 1],

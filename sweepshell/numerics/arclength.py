@@ -104,16 +104,23 @@ def compute_tangent(lin: BorderedSolver, t_prev: np.ndarray, w: np.ndarray) -> n
 
 def correct_on_arc(problem: ContinuationProblem, anchor: np.ndarray, tangent: np.ndarray,
                    s: np.ndarray, idx: np.ndarray, w: np.ndarray, *, tol: float,
-                   max_iter: int) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+                   max_iter: int) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
     """Newton-correct predictor ``anchor + s·tangent`` onto ``R = 0`` at arclength ``s``.
+
+    Every Newton solve carries a second right-hand side ``(0, 1)``: with the same bordered
+    matrix it gives the unit tangent at the iterate, so a converged point needs no extra
+    factorisation for its tangent (it is the tangent at the last-but-one iterate, within the
+    Newton tolerance of the converged state).
 
     Returns
     -------
-    z, converged, iterations
-        Corrected states ``(k, m+1)``, a bool mask and the Newton iterations used ``(k,)``.
+    z, converged, iterations, t
+        Corrected states ``(k, m+1)``, a bool mask, the Newton iterations used ``(k,)`` and
+        the unit tangents oriented along ``tangent`` (NaN where not converged).
     """
     z = anchor + s[:, None] * tangent
-    k = z.shape[0]
+    k, m1 = z.shape
+    t_out = np.full_like(z, np.nan)
     conv = np.zeros(k, dtype=bool)
     alive = np.ones(k, dtype=bool)
     its = np.zeros(k, dtype=int)
@@ -123,19 +130,34 @@ def correct_on_arc(problem: ContinuationProblem, anchor: np.ndarray, tangent: np
         if act.size == 0:
             break
         r, lin = problem.linearize(z[act], idx[act])
-        c = s[act] - _wdot(tangent[act], z[act] - anchor[act], w)
+        rhs = np.zeros((act.size, m1 - 1, 2))
+        rhs[:, :, 0] = -r
+        cc = np.empty((act.size, 2))
+        cc[:, 0] = s[act] - _wdot(tangent[act], z[act] - anchor[act], w)
+        cc[:, 1] = 1.0
         with np.errstate(all="ignore"):
-            dz = lin.solve_bordered(tangent[act] * w, -r, c)
+            both = lin.solve_bordered(tangent[act] * w, rhs, cc)
+            dz = both[..., 0]
+            tn = both[..., 1]
             size = np.sqrt(_wdot(dz, dz, w))
-        bad = ~np.isfinite(size) | ((size > 4.0 * last[act] + 1e-14) & (its[act] > 1))
+            tn /= np.sqrt(_wdot(tn, tn, w))[:, None]
+        prev = last[act]
+        # a corrector that stops contracting quadratically will not recover: fail fast, the
+        # caller shortens the step
+        bad = ~np.isfinite(size) | ((size > 0.5 * prev + 1e-14) & (its[act] > 1))
         alive[act[bad]] = False
         good = act[~bad]
         z[good] += dz[~bad]
+        t_out[good] = tn[~bad]
         its[good] += 1
         last[good] = size[~bad]
-        conv[good[size[~bad] < tol]] = True
-    return z, conv, its
-
+        # quadratic convergence: the next correction would be about size³/prev², so the state
+        # is already within tol when that is below tol
+        sz, pv = size[~bad], prev[~bad]
+        with np.errstate(all="ignore"):
+            done = (sz < tol) | (np.isfinite(pv) & (sz**3 < tol * pv**2) & (sz < 1e-4))
+        conv[good[done]] = True
+    return z, conv, its, t_out
 
 
 def trace_paths(problem: ContinuationProblem, z0: np.ndarray, t0: np.ndarray, idx: np.ndarray,
@@ -165,9 +187,11 @@ def trace_paths(problem: ContinuationProblem, z0: np.ndarray, t0: np.ndarray, id
         last point (``rows`` are the path numbers 0…n-1).
     """
     n, m1 = z0.shape
-    zh = np.full((n, max_points, m1), np.nan)
-    th = np.full((n, max_points, m1), np.nan)
-    sh = np.zeros((n, max_points))
+    # the history grows on demand: most paths need a few dozen points, not max_points
+    cap = min(max_points, 48)
+    zh = np.full((n, cap, m1), np.nan)
+    th = np.full((n, cap, m1), np.nan)
+    sh = np.zeros((n, cap))
     zh[:, 0] = z0
     th[:, 0] = t0
     count = np.ones(n, dtype=int)
@@ -179,14 +203,17 @@ def trace_paths(problem: ContinuationProblem, z0: np.ndarray, t0: np.ndarray, id
         act = np.nonzero(state == TRACE_RUNNING)[0]
         if act.size == 0:
             break
+        if count[act].max() >= cap:
+            grow_to = min(max_points, 2 * cap)
+            zh = np.concatenate([zh, np.full((n, grow_to - cap, m1), np.nan)], axis=1)
+            th = np.concatenate([th, np.full((n, grow_to - cap, m1), np.nan)], axis=1)
+            sh = np.concatenate([sh, np.zeros((n, grow_to - cap))], axis=1)
+            cap = grow_to
         zc = zh[act, count[act] - 1]
         tc = th[act, count[act] - 1]
-        z, conv, its = correct_on_arc(problem, zc, tc, h[act], idx[act], w, tol=tol, max_iter=max_iter)
+        z, conv, its, tn = correct_on_arc(problem, zc, tc, h[act], idx[act], w, tol=tol, max_iter=max_iter)
         ok = conv.copy()
-        tn = np.zeros_like(tc)
-        if ok.any():
-            _, lin = problem.linearize(z[ok], idx[act[ok]])
-            tn[ok] = compute_tangent(lin, tc[ok], w)
+        tn[~ok] = 0.0
         with np.errstate(invalid="ignore"):
             cosang = _wdot(tn, tc, w)
         dmu = z[:, -1] - zc[:, -1]
@@ -230,8 +257,10 @@ def refine_on_arc(problem: ContinuationProblem, anchor: np.ndarray, tangent: np.
     g_lo, g_hi
         ``(k,)`` values of ``measure`` at both ends (opposite signs).
     measure
-        ``f(z, t, idx) -> (k,)`` scalar whose zero is sought (e.g. the tangent's load
-        component for a fold, or a stability determinant for a bifurcation).
+        ``f(z, t, rows) -> (k,)`` scalar whose zero is sought (e.g. the tangent's load
+        component for a fold, or a stability determinant for a bifurcation); ``rows`` are the
+        positions of the states among the ``k`` refined here (not problem indices), so one
+        problem may be refined for several measures at once.
 
     Returns
     -------
@@ -244,6 +273,10 @@ def refine_on_arc(problem: ContinuationProblem, anchor: np.ndarray, tangent: np.
     glo = g_lo.astype(float).copy()
     ghi = g_hi.astype(float).copy()
     side = np.zeros(k, dtype=int)
+    # the two latest evaluations, for secant steps (superlinear) inside the safe bracket
+    s_a, g_a = np.full(k, np.nan), np.full(k, np.nan)
+    s_b, g_b = np.full(k, np.nan), np.full(k, np.nan)
+    s_last = np.full(k, np.nan)
     z_best = np.full_like(anchor, np.nan)
     t_best = np.full_like(anchor, np.nan)
     ok = np.ones(k, dtype=bool)
@@ -252,35 +285,44 @@ def refine_on_arc(problem: ContinuationProblem, anchor: np.ndarray, tangent: np.
         act = np.nonzero(~done & ok)[0]
         if act.size == 0:
             break
-        denom = ghi[act] - glo[act]
-        s = np.where(denom != 0, (lo[act] * ghi[act] - hi[act] * glo[act]) / np.where(denom != 0, denom, 1.0),
-                     0.5 * (lo[act] + hi[act]))
         width = hi[act] - lo[act]
-        s = np.clip(s, lo[act] + 0.01 * width, hi[act] - 0.01 * width)
-        z, conv, _ = correct_on_arc(problem, anchor[act], tangent[act], s, idx[act], w,
-                                    tol=tol, max_iter=max_iter)
+        with np.errstate(all="ignore"):
+            denom = ghi[act] - glo[act]
+            s = np.where(denom != 0, (lo[act] * ghi[act] - hi[act] * glo[act]) / denom, 0.5 * (lo[act] + hi[act]))
+            sec = s_b[act] - g_b[act] * (s_b[act] - s_a[act]) / (g_b[act] - g_a[act])
+        inside = np.isfinite(sec) & (sec > lo[act] + 1e-3 * width) & (sec < hi[act] - 1e-3 * width)
+        s = np.where(inside, sec, np.clip(np.nan_to_num(s), lo[act] + 0.01 * width, hi[act] - 0.01 * width))
+        z, conv, _, t_all = correct_on_arc(problem, anchor[act], tangent[act], s, idx[act], w,
+                                           tol=tol, max_iter=max_iter)
         ok[act[~conv]] = False
         c = np.nonzero(conv)[0]
         if c.size == 0:
             continue
         a = act[c]
-        _, lin = problem.linearize(z[c], idx[a])
-        t = compute_tangent(lin, tangent[a], w)
-        g = measure(z[c], t, idx[a])
+        sc = s[c]
+        t = t_all[c]
+        g = measure(z[c], t, a)
         z_best[a] = z[c]
         t_best[a] = t
+        s_a[a], g_a[a] = s_b[a], g_b[a]
+        s_b[a], g_b[a] = sc, g
+        moved = np.abs(sc - s_last[a])
+        s_last[a] = sc
         same_lo = np.sign(g) == np.sign(glo[a])
         # Illinois: halve the stale end's value when the same end moves twice
         lo_move = a[same_lo]
         hi_move = a[~same_lo]
         ghi[lo_move[side[lo_move] == -1]] *= 0.5
         glo[hi_move[side[hi_move] == 1]] *= 0.5
-        lo[lo_move] = s[c][same_lo]
+        lo[lo_move] = sc[same_lo]
         glo[lo_move] = g[same_lo]
         side[lo_move] = -1
-        hi[hi_move] = s[c][~same_lo]
+        hi[hi_move] = sc[~same_lo]
         ghi[hi_move] = g[~same_lo]
         side[hi_move] = 1
-        done[a[(hi[a] - lo[a]) < s_tol * np.maximum(s_hi[a], 1e-300)]] = True
-    s_out = 0.5 * (lo + hi)
+        scale = np.maximum(s_hi[a], 1e-300)
+        with np.errstate(invalid="ignore"):
+            fin = ((hi[a] - lo[a]) < s_tol * scale) | (moved < s_tol * scale) | (g == 0.0)
+        done[a[fin]] = True
+    s_out = np.where(np.isfinite(s_last), s_last, 0.5 * (lo + hi))
     return z_best, t_best, s_out, ok

@@ -1,0 +1,226 @@
+"""Linear stability of axisymmetric cap states against ``cos nθ`` modes (shallow-cap model).
+
+Notation of :mod:`sweepshell.models.shallow_cap`. About an axisymmetric state with slope and
+curvature ``ζ'``, ``ζ''`` of the deformed surface and compressive stress-function slope
+``f = −Φ₀'``, the perturbation ``w(x) cos nθ``, ``Φ(x) cos nθ`` satisfies (times x²)::
+
+    x²(∇⁴w − [Φ₀, w] − [Φ, ζ]) = 0,      x²(∇⁴Φ + [ζ, w]) = 0,
+
+with two edge conditions per field (``w = 0``, clamped ``w' = 0`` or pinned ``M_r = 0``;
+immovable ``u_r = u_θ = 0`` or sliding ``N_r = N_rθ = 0``). The collocated matrix is
+
+    [[A(z), B(z)], [C(z), S]],
+
+and its stress block ``S`` (in-plane bilaplacian with its edge rows) does not depend on the
+state. So ``det = det S · det(A − B S⁻¹ C)`` and the state-dependent factor, an ``M``-square
+determinant instead of a ``2M``-square one, carries every sign change along a path. ``S⁻¹`` is
+folded into two fixed matrices per wave number, Poisson's ratio and in-plane edge.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from functools import lru_cache
+
+import numpy as np
+
+from sweepshell.models.shallow_cap_kernels import CapPathProblem
+from sweepshell.numerics.radial_chebyshev import make_radial_grid
+
+__all__ = [
+    "ModeCoefficients",
+    "build_mode_matrices",
+    "compute_mode_coefficients",
+    "compute_mode_determinants",
+    "make_mode_operators",
+]
+
+
+@dataclass(frozen=True)
+class FieldOperators:
+    """Values and derivatives of ``x^m v`` (rows: nodes, columns: half-grid values of ``v``)."""
+
+    w0: np.ndarray
+    w1: np.ndarray
+    w2: np.ndarray
+    w3_edge: np.ndarray
+    bilaplacian: np.ndarray  # x² ∇⁴_n (x^m v)
+    bracket: np.ndarray  # x (x^m v)' − n² x^m v, the radial part of x² [ζ₀-like, ·]
+
+
+@dataclass(frozen=True)
+class ModeOperators:
+    """State-independent pieces of the stability matrix of circumferential wave number n.
+
+    The deflection is ``w = x^m v`` with ``m = min(n, 2)``, so the polynomial ``v`` excludes the
+    non-smooth ``x^0 cos 2θ``; the stress function is ``Φ = x^m φ`` with ``m = 3`` for n = 1,
+    which removes the stress-free gauge ``Φ = x cos θ`` (a linear function, zero stress).
+    """
+
+    n: int
+    deflection: FieldOperators
+    stress: FieldOperators
+
+
+def _field_operators(size: int, n: int, m: int) -> FieldOperators:
+    g = make_radial_grid(size)
+    x = g.x
+    pv = 1 if (n - m) % 2 == 0 else -1
+    pn = 1 if n % 2 == 0 else -1
+    d1, d2, d3 = g.d1[pv], g.d2[pv], g.d3[pv]
+    xm = x**m
+    eye = np.eye(size)
+    w0 = np.diag(xm)
+    w1 = np.diag(m * x ** (m - 1)) + xm[:, None] * d1
+    w2 = np.diag(m * (m - 1) * x ** (m - 2)) + (2 * m * x ** (m - 1))[:, None] * d1 + xm[:, None] * d2
+    w3_edge = m * (m - 1) * (m - 2) * eye[0] + 3 * m * (m - 1) * d1[0] + 3 * m * d2[0] + d3[0]
+    lap = (x ** (m - 2))[:, None] * ((x**2)[:, None] * d2 + ((2 * m + 1) * x)[:, None] * d1 + (m * m - n * n) * eye)
+    outer = (x**2)[:, None] * g.d2[pn] + x[:, None] * g.d1[pn] - n * n * eye
+    return FieldOperators(w0=w0, w1=w1, w2=w2, w3_edge=w3_edge, bilaplacian=outer @ lap,
+                          bracket=x[:, None] * w1 - n * n * w0)
+
+
+@lru_cache(maxsize=512)
+def make_mode_operators(size: int, n: int) -> ModeOperators:
+    """Return the operators of wave number ``n ≥ 1`` on a half grid of ``size`` nodes (cached)."""
+    return ModeOperators(n=n, deflection=_field_operators(size, n, 1 if n == 1 else 2),
+                         stress=_field_operators(size, n, 3 if n == 1 else 2))
+
+
+def _stress_edge_rows(ops: ModeOperators, nu: float, immovable: bool) -> tuple[np.ndarray, np.ndarray]:
+    """Return the two edge rows of the stress block (``u_r = u_θ = 0`` or ``N_r = N_rθ = 0``)."""
+    so = ops.stress
+    f0, f1, f2, f3 = so.w0[0], so.w1[0], so.w2[0], so.w3_edge
+    if not immovable:
+        return f0, f1
+    n2 = ops.n * ops.n
+    # immovable: ε_θ = 0 and ∂_r(r ε_θ) − ε_r − ∂_θ γ + ζ' w' = 0 (u_r = u_θ = 0 along the edge);
+    # the ζ' w' part couples to the deflection and sits in the C block
+    e_theta = f2 - nu * (f1 - n2 * f0)
+    de_theta = f3 - nu * (f2 - f1 - n2 * f1 + 2 * n2 * f0)
+    e_r = (f1 - n2 * f0) - nu * f2
+    shear = 2.0 * (1.0 + nu) * n2 * (f1 - f0)
+    return e_theta, de_theta - e_r - shear
+
+
+@lru_cache(maxsize=2048)
+def _make_stress_reduction(size: int, n: int, nu: float, immovable: bool) -> np.ndarray:
+    """Return ``[P₁; P₂] S⁻¹`` (``2M × M``), the fixed part of ``B S⁻¹`` (cached).
+
+    ``B = −(diag(ζ'') P₁ + diag(x ζ') P₂)`` with ``P₁ = x φ' − n² φ``, ``P₂ = φ''`` operators on
+    the stress function, zero on the two edge rows.
+    """
+    ops = make_mode_operators(size, n)
+    so = ops.stress
+    s = so.bilaplacian.copy()
+    s[0], s[1] = _stress_edge_rows(ops, nu, immovable)
+    p = np.concatenate([so.bracket, so.w2], axis=0)
+    k = np.linalg.solve(s.T, p.T).T
+    k[[0, 1, size, size + 1]] = 0.0
+    k.setflags(write=False)
+    return k
+
+
+@dataclass(frozen=True)
+class ModeCoefficients:
+    """State-dependent coefficients of the stability operators, ``(k, M)`` each.
+
+    ``f``, ``df``: compressive stress-function slope ``−Φ₀'`` and its derivative; ``zeta1``,
+    ``zeta2``: slope and curvature of the deformed surface; plus the point's ``nu``,
+    ``clamped`` and ``immovable`` flags ``(k,)``.
+    """
+
+    f: np.ndarray
+    df: np.ndarray
+    zeta1: np.ndarray
+    zeta2: np.ndarray
+    nu: np.ndarray
+    clamped: np.ndarray
+    immovable: np.ndarray
+
+
+def compute_mode_coefficients(problem: CapPathProblem, z: np.ndarray, idx: np.ndarray) -> ModeCoefficients:
+    """Return the stability coefficients of axisymmetric states ``z`` ``(k, 2M+1)``."""
+    g = problem.grid
+    x = g.x
+    lam2 = problem.lam[idx] ** 2
+    y, fs, _, p = problem.split(z, idx)
+    kap = problem.kappa[idx]
+    ybar = y + (kap * p)[:, None] * problem.sigma[None, :]
+    d1t = g.d1[-1].T
+    dybar = y @ d1t + (kap * p)[:, None] * problem.dsigma[None, :]
+    imp = problem.imperfection[idx]
+    dimp = imp @ d1t
+    return ModeCoefficients(
+        f=lam2[:, None] * fs, df=lam2[:, None] * (fs @ d1t),
+        zeta1=lam2[:, None] * (-(x[None, :] - imp) + ybar),
+        zeta2=lam2[:, None] * (-(1.0 - dimp) + dybar),
+        nu=problem.nu[idx], clamped=problem.clamped[idx], immovable=problem.immovable[idx])
+
+
+def _deflection_blocks(ops: ModeOperators, x: np.ndarray, co: ModeCoefficients) -> tuple[np.ndarray, np.ndarray]:
+    """Return the ``A`` and ``C`` blocks ``(k, M, M)`` with their edge rows."""
+    wo = ops.deflection
+    a = wo.bilaplacian + co.df[:, :, None] * wo.bracket + (x * co.f)[:, :, None] * wo.w2
+    a[:, 0] = wo.w0[0]
+    a[:, 1] = np.where(co.clamped[:, None], wo.w1[0][None, :], wo.w2[0][None, :] + co.nu[:, None] * wo.w1[0][None, :])
+    c = co.zeta2[:, :, None] * wo.bracket + (x * co.zeta1)[:, :, None] * wo.w2
+    c[:, 0] = 0.0
+    c[:, 1] = np.where(co.immovable[:, None], co.zeta1[:, :1] * wo.w1[0][None, :], 0.0)
+    return a, c
+
+
+def build_mode_matrices(ops: ModeOperators, x: np.ndarray, co: ModeCoefficients) -> np.ndarray:
+    """Return the full ``(k, 2M, 2M)`` stability matrices of wave number ``ops.n`` (for tests)."""
+    k, m = co.f.shape
+    so = ops.stress
+    out = np.zeros((k, 2 * m, 2 * m))
+    out[:, :m, :m], out[:, m:, :m] = _deflection_blocks(ops, x, co)
+    out[:, :m, m:] = -(co.zeta2[:, :, None] * so.bracket + (x * co.zeta1)[:, :, None] * so.w2)
+    out[:, :2, m:] = 0.0
+    out[:, m:, m:] = so.bilaplacian
+    for i in range(k):
+        out[i, m, m:], out[i, m + 1, m:] = _stress_edge_rows(ops, float(co.nu[i]), bool(co.immovable[i]))
+    return out
+
+
+def compute_mode_determinants(problem: CapPathProblem, z: np.ndarray, idx: np.ndarray, modes: np.ndarray,
+                              coefficients: ModeCoefficients | None = None) -> tuple[np.ndarray, np.ndarray]:
+    """Return ``(sign, log|det|)`` of the reduced stability matrices, shape ``(k, len(modes))``.
+
+    The determinant is that of ``A − B S⁻¹ C``: the full one divided by the state-independent
+    ``det S``, so its sign changes and log-differences along a path are those of the full one.
+
+    Parameters
+    ----------
+    z
+        ``(k, 2M+1)`` axisymmetric states.
+    idx
+        ``(k,)`` problem indices of the states.
+    modes
+        Wave numbers ``n ≥ 1``.
+    coefficients
+        Precomputed :func:`compute_mode_coefficients` of the same states, if at hand.
+    """
+    co = compute_mode_coefficients(problem, z, idx) if coefficients is None else coefficients
+    x = problem.grid.x
+    k, m = co.f.shape
+    sign = np.empty((k, len(modes)))
+    logdet = np.empty_like(sign)
+    # rows 0, 1 of B are edge rows (zero): the multipliers vanish there
+    z2 = co.zeta2.copy()
+    xz1 = x * co.zeta1
+    z2[:, :2] = 0.0
+    xz1[:, :2] = 0.0
+    groups: dict[tuple[float, bool], list[int]] = {}
+    for i, key in enumerate(zip(co.nu.tolist(), co.immovable.tolist(), strict=True)):
+        groups.setdefault(key, []).append(i)
+    for j, n in enumerate(modes):
+        ops = make_mode_operators(m, int(n))
+        a, c = _deflection_blocks(ops, x, co)
+        for (nu, im), rows in groups.items():
+            sel = np.asarray(rows) if len(groups) > 1 else slice(None)
+            kc = _make_stress_reduction(m, int(n), nu, im) @ c[sel]
+            a[sel] += z2[sel, :, None] * kc[:, :m] + xz1[sel, :, None] * kc[:, m:]
+        sign[:, j], logdet[:, j] = np.linalg.slogdet(a)
+    return sign, logdet
