@@ -27,7 +27,7 @@ __all__ = ["register"]
 _WHERE_HELP = (
     "keep points where EXPR holds. Grammar: comparisons (< <= > >= == != , chains like 2 < x <= 5, "
     "`in [..]`, `not in [..]`) of axes, scalar outputs, regime, status and source, combined with and / or / "
-    "not and parentheses; arithmetic + - * / ** % between numbers. regime and status compare by name "
+    "not and parentheses; arithmetic + - * / ** %% between numbers. regime and status compare by name "
     "(regime == \"buckled\"); source is \"grid\" or \"points\" (evaluated off the grid). Strings in double or "
     "single quotes. No calls, attribute access, indexing or other names: an expression never runs code. "
     "Example: --where 'stiffness_ratio > 5 and regime == \"buckled\"'"
@@ -41,7 +41,7 @@ def register(subparsers: Any) -> None:
         "query", help="select points of a store (table, CSV or JSON)",
         description="Select points of a store: by default every point with a trustworthy status (ok, "
                     "no_instability), grid and refined points alike, with its axis values, scalar outputs and "
-                    "regime. " + _WHERE_HELP.replace("keep points", "--where EXPR keeps points", 1),
+                    "regime. " + _WHERE_HELP.replace("keep points", "--where EXPR keeps points", 1).replace("%%", "%"),
         epilog="JSON is a list of objects, one per point, with the axis values and the requested fields "
                "(regime and status as names, missing values as null). The caution about critical loads goes "
                "to stderr, so stdout stays clean CSV/JSON.")
@@ -59,6 +59,8 @@ def register(subparsers: Any) -> None:
     q.set_defaults(func=_cmd_query)
     _register_map(subparsers)
     _register_boundary(subparsers)
+    _register_path(subparsers)
+    _register_report(subparsers)
 
 
 def _open(store: str) -> Any:
@@ -264,4 +266,63 @@ def _cmd_boundary(args: argparse.Namespace) -> int:
     finally:
         if args.out:
             out.close()
+    return 0
+
+
+def _register_path(subparsers: Any) -> None:
+    p = subparsers.add_parser(
+        "path", help="plot load paths (outputs sampled along an extra dimension) at chosen points",
+        description="Plot an output with an extra dimension (e.g. a sampled load path) at one or more points, "
+                    "overlaid. Each --at gives one point as comma-separated NAME=VALUE pairs (nearest grid values, "
+                    "reported); axes not named take their first value.")
+    p.add_argument("store", metavar="STORE")
+    p.add_argument("--at", action="append", metavar="NAME=VALUE[,NAME=VALUE...]", help="one point (repeatable)")
+    p.add_argument("--y", metavar="OUTPUT", help="path output to draw (default: the first)")
+    p.add_argument("--x", metavar="OUTPUT", help="path output along the horizontal (default: the sample index)")
+    p.add_argument("--out", metavar="FILE", help="FILE.png or FILE.svg (default: <store>-path.png)")
+    p.set_defaults(func=_cmd_path)
+
+
+def _cmd_path(args: argparse.Namespace) -> int:
+    from sweepshell.plot.paths import draw_load_paths, parse_point
+    from sweepshell.plot.style import save_figure
+
+    ds = _open(args.store)
+    points = [parse_point(text) for text in args.at or []]
+    out = _out_path(args, "path")
+    result = draw_load_paths(ds, points, y=args.y, x=args.x)
+    save_figure(result.figure, out)
+    for note in result.notes:
+        print(note, file=sys.stderr)
+    print(out)
+    return 0
+
+
+def _register_report(subparsers: Any) -> None:
+    r = subparsers.add_parser(
+        "report", help="write a self-contained HTML report of a store",
+        description="Write one HTML file (images embedded) with what was computed (model, version, settings, "
+                    "axes, completeness, provenance), regime maps, the boundaries (from stored points; sharpen them "
+                    "first with `sweepshell boundary` or `sweepshell refine`), the extreme points of every output "
+                    "and the caution.")
+    r.add_argument("store", metavar="STORE")
+    r.add_argument("--out", metavar="FILE.html", help="output file (default: <store>-report.html)")
+    r.set_defaults(func=_cmd_report)
+
+
+def _cmd_report(args: argparse.Namespace) -> int:
+    from pathlib import Path
+
+    from sweepshell.plot.report import write_report
+
+    if args.out is not None and not args.out.endswith((".html", ".htm")):
+        raise QueryError(f"--out {args.out!r} must end in .html", field="out", value=args.out)
+    if args.out is not None and not Path(args.out).parent.exists():
+        raise QueryError(f"--out {args.out!r}: folder does not exist", field="out", value=args.out)
+    ds = _open(args.store)
+    store = Path(args.store.rstrip("/"))
+    out = Path(args.out) if args.out else store.with_name(f"{store.stem}-report.html")
+    text = write_report(ds, str(store))
+    out.write_text(text, encoding="utf-8")
+    print(out)
     return 0

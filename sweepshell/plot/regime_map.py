@@ -20,7 +20,10 @@ from sweepshell.errors import QueryError
 from sweepshell.models.base import Status
 from sweepshell.plot.style import (
     BOUNDARY_COLOR,
+    COLORBAR_AXES,
     CONTOUR_COLOR,
+    FIELD_AXES,
+    MAIN_AXES,
     OKABE_ITO,
     PENDING_COLOR,
     STATUS_MARKERS,
@@ -136,7 +139,8 @@ def draw_regime_map(ds: xr.Dataset, x: str, y: str, *, color: str | None = None,
     points = read_store_points(ds)
     known = known_points(points, view.fixed_values, x, y)
     fig = make_figure()
-    ax = fig.add_subplot()
+    continuous = color not in (None, "regime")
+    ax = fig.add_axes(FIELD_AXES if continuous else MAIN_AXES)
     handles: list[Any] = []
     notes: list[str] = []
 
@@ -145,14 +149,19 @@ def draw_regime_map(ds: xr.Dataset, x: str, y: str, *, color: str | None = None,
     from matplotlib.patches import Patch
 
     fill_colors = [PENDING_COLOR, UNTRUSTED_COLOR, *regime_colors(len(regimes))]
-    continuous = color not in (None, "regime")
     if continuous:
         assert color is not None
         field_values = np.asarray(view.ds[color].values, float)
         field_values = np.where(codes >= 0, field_values, np.nan)
         cmap = _cmap_with_bad()
-        mesh = _draw_field(ax, xu, yu, field_values, view.log, known=None, cmap=cmap)
-        cbar = fig.colorbar(mesh, ax=ax, shrink=0.85, pad=0.02)
+        finite = field_values[np.isfinite(field_values)]
+        norm = None
+        if finite.size and finite.min() > 0 and finite.max() / finite.min() > 100:
+            from matplotlib.colors import LogNorm
+
+            norm = LogNorm(finite.min(), finite.max())  # values over decades read better on a log scale
+        mesh = _draw_field(ax, xu, yu, field_values, view.log, known=None, cmap=cmap, norm=norm)
+        cbar = fig.colorbar(mesh, cax=fig.add_axes(COLORBAR_AXES))
         cbar.set_label(axis_label(color, dict(view.ds[color].attrs)))
     else:
         cmap = ListedColormap(fill_colors)
@@ -200,7 +209,8 @@ def draw_regime_map(ds: xr.Dataset, x: str, y: str, *, color: str | None = None,
     title = "Regime map" if not continuous else f"{str(color).replace('_', ' ')} with regime boundaries"
     ax.set_title(title_lines(dict(ds.attrs), title, _subtitle(ds, view)), fontsize=10, loc="left")
     if handles and continuous:  # right of the colour bar
-        fig.legend(handles=handles, loc="outside right upper", fontsize=8.5, frameon=False)
+        fig.legend(handles=handles, loc="upper left", bbox_to_anchor=(0.79, 0.88), fontsize=8.5, frameon=False,
+                   borderaxespad=0.0)
     elif handles:
         ax.legend(handles=handles, loc="upper left", bbox_to_anchor=(1.02, 1.0), fontsize=8.5, frameon=False,
                   borderaxespad=0.0)
@@ -243,12 +253,12 @@ def _cmap_with_bad() -> Any:
 
 def _draw_field(ax: Axes, xu: np.ndarray, yu: np.ndarray, values: np.ndarray, log: tuple[bool, ...], *,
                 known: Mapping[str, np.ndarray] | None, cmap: Any, vmin: float | None = None,
-                vmax: float | None = None) -> Any:
+                vmax: float | None = None, norm: Any = None) -> Any:
     """Draw a field given on the grid (nx, ny); off-grid points refine it by nearest neighbour."""
     if known is None and values.size <= _MAX_CELLS:
         ex, ey = from_unit(_edges(xu), log[0]), from_unit(_edges(yu), log[1])
-        return ax.pcolormesh(ex, ey, values.T, cmap=cmap, vmin=vmin, vmax=vmax, shading="flat",
-                             rasterized=True, linewidth=0)
+        return ax.pcolormesh(ex, ey, values.T, cmap=cmap, vmin=vmin, vmax=vmax, norm=norm,
+                             shading="flat", rasterized=True, linewidth=0)
     exu, eyu = _edges(xu), _edges(yu)
     rx = np.linspace(exu[0], exu[-1], _RASTER + 1)
     ry = np.linspace(eyu[0], eyu[-1], _RASTER + 1)
@@ -258,7 +268,7 @@ def _draw_field(ax: Axes, xu: np.ndarray, yu: np.ndarray, values: np.ndarray, lo
     else:
         raster = _interpolate_classes(xu, yu, values, known, log, cx, cy)
     return ax.pcolormesh(from_unit(rx, log[0]), from_unit(ry, log[1]), raster.T, cmap=cmap, vmin=vmin, vmax=vmax,
-                         shading="flat", rasterized=True, linewidth=0)
+                         norm=norm, shading="flat", rasterized=True, linewidth=0)
 
 
 def _interpolate_classes(xu: np.ndarray, yu: np.ndarray, values: np.ndarray, known: Mapping[str, np.ndarray],
@@ -361,7 +371,7 @@ def draw_output_lines(ds: xr.Dataset, x: str, output: str, *, series: str | None
     values = np.where(codes >= 0, np.asarray(view.ds[output].values, float), np.nan)
     xv = np.asarray(view.ds[x].values, float)
     fig = make_figure(7.4, 5.0)
-    ax = fig.add_subplot()
+    ax = fig.add_axes((0.085, 0.22, 0.7 if series is None else 0.68, 0.66))
     n_lines = 1 if series is None else view.ds.sizes[series]
     if values.ndim == 1:
         values = values[:, None]

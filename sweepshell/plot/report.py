@@ -1,0 +1,165 @@
+"""A self-contained HTML report of a store: what was computed, regime maps, boundaries, extremes, caution.
+
+Images are embedded as base64 PNG, so the single file can be mailed or archived. Boundaries
+in the report use the stored points only (no model evaluations): run ``sweepshell boundary``
+or ``sweepshell refine`` first to sharpen them.
+"""
+
+from __future__ import annotations
+
+import base64
+import html
+import io
+import itertools
+import json
+from typing import TYPE_CHECKING, Any
+
+import numpy as np
+
+from sweepshell import CAUTION
+from sweepshell.query.boundary import find_boundary
+from sweepshell.query.table import describe_fields, select_points
+from sweepshell.store.layout import ATTR
+
+if TYPE_CHECKING:
+    import xarray as xr
+    from matplotlib.figure import Figure
+
+__all__ = ["write_report"]
+
+_MAX_MAPS = 4
+_MAX_VERTICES = 25
+
+_STYLE = """
+body { font-family: system-ui, -apple-system, "Segoe UI", sans-serif; max-width: 1000px; margin: 2em auto;
+       color: #1a1a1a; line-height: 1.45; padding: 0 1em; }
+h1 { font-size: 1.6em; margin-bottom: 0.2em; } h2 { font-size: 1.2em; margin-top: 1.8em;
+     border-bottom: 1px solid #ddd; padding-bottom: 0.2em; }
+table { border-collapse: collapse; margin: 0.6em 0; font-size: 0.92em; }
+th, td { border: 1px solid #ddd; padding: 0.25em 0.6em; text-align: left; }
+td.num { text-align: right; font-variant-numeric: tabular-nums; }
+.caution { background: #fff6e0; border-left: 4px solid #E69F00; padding: 0.8em 1em; }
+img { max-width: 100%; } pre { background: #f6f6f6; padding: 0.8em; overflow-x: auto; font-size: 0.85em; }
+.muted { color: #666; }
+"""
+
+
+def _png(fig: Figure) -> str:
+    buffer = io.BytesIO()
+    fig.savefig(buffer, format="png", dpi=110)
+    return base64.b64encode(buffer.getvalue()).decode("ascii")
+
+
+def _fmt(v: Any) -> str:
+    if isinstance(v, (float, np.floating)):
+        return "" if not np.isfinite(v) else f"{float(v):.6g}"
+    return html.escape(str(v))
+
+
+def _table(header: list[str], rows: list[list[Any]]) -> str:
+    head = "".join(f"<th>{html.escape(h)}</th>" for h in header)
+    body = "".join(
+        "<tr>" + "".join(f'<td class="num">{_fmt(v)}</td>' if isinstance(v, (int, float, np.number))
+                         and not isinstance(v, bool) else f"<td>{_fmt(v)}</td>" for v in row) + "</tr>"
+        for row in rows)
+    return f"<table><thead><tr>{head}</tr></thead><tbody>{body}</tbody></table>"
+
+
+def _map_views(ds: xr.Dataset, info: Any) -> list[tuple[str, str, dict[str, str]]]:
+    numeric = [a for a in info.axes if ds[a].dtype.kind in "fiu" and ds.sizes[a] > 1]
+    if len(numeric) < 2:
+        return []
+    x, y = numeric[0], numeric[1]
+    named = [a for a in info.axes if a not in (x, y) and ds[a].dtype.kind not in "fiu" and ds.sizes[a] > 1]
+    if not named:
+        return [(x, y, {})]
+    values = [[str(v) for v in ds[a].values] for a in named]
+    return [(x, y, dict(zip(named, combo, strict=True))) for combo in itertools.islice(itertools.product(*values),
+                                                                                       _MAX_MAPS)]
+
+
+def write_report(ds: xr.Dataset, store_path: str) -> str:
+    """Return the HTML report of a store as one self-contained string."""
+    from sweepshell.plot.regime_map import draw_regime_map
+    from sweepshell.store.points import read_count
+    from sweepshell.store.summary import summarize_store
+
+    info = describe_fields(ds)
+    summary = summarize_store(store_path)
+    attrs = dict(ds.attrs)
+    title = f"{attrs.get(ATTR.sweep_name, 'sweep')}: {attrs.get(ATTR.model)} {attrs.get(ATTR.model_version)}"
+    parts = [f"<!DOCTYPE html><html lang='en'><head><meta charset='utf-8'><title>{html.escape(title)}</title>"
+             f"<style>{_STYLE}</style></head><body>",
+             f"<h1>{html.escape(title)}</h1>",
+             f"<p class='muted'>store {html.escape(store_path)} · created {html.escape(str(attrs.get(ATTR.created)))}"
+             f" · sweepshell {html.escape(str(attrs.get(ATTR.tool)))}</p>",
+             f"<div class='caution'><strong>Caution.</strong> {html.escape(CAUTION.removeprefix('Caution: '))}</div>"]
+
+    parts.append("<h2>What was computed</h2>")
+    model_rows: list[list[Any]] = [["model", attrs.get(ATTR.model)], ["model version", attrs.get(ATTR.model_version)],
+                  ["regimes", ", ".join(info.regimes)]]
+    model_rows += [[f"setting {k}", v] for k, v in summary["settings"].items()]
+    model_rows += [[f"fixed {k}", v] for k, v in summary["fixed"].items()]
+    parts.append(_table(["", "value"], model_rows))
+    axis_rows = []
+    by_name = {a["name"]: a for a in summary["axes"]}
+    for a in (by_name[name] for name in info.axes):
+        coord = ds[a["name"]].attrs
+        axis_rows.append([a["name"], coord.get("symbol", ""), coord.get("units", ""), a["size"], a["min"], a["max"],
+                          coord.get("spacing", "")])
+    parts.append(_table(["axis", "symbol", "units", "values", "min", "max", "spacing"], axis_rows))
+    counts = [[name, n] for name, n in summary["counts"].items() if n]
+    off_grid = read_count(store_path)
+    parts.append(f"<p>{summary['total']} grid points, {summary['complete_fraction']:.1%} final"
+                 f"{'' if summary['complete'] else ' (run the sweep again to finish)'}; {off_grid} points "
+                 "evaluated off the grid (refinement, boundary bisection).</p>")
+    parts.append(_table(["status", "points"], counts))
+
+    parts.append("<h2>Regime maps</h2>")
+    views = _map_views(ds, info)
+    if not views:
+        parts.append("<p>The store has fewer than two numeric axes with several values; no map.</p>")
+    boundary_sections = []
+    for x, y, at in views:
+        result = draw_regime_map(ds, x, y, at=at, contour=None)
+        cut = result.view.describe_cuts()
+        parts.append(f"<figure><img alt='regime map over {html.escape(x)} and {html.escape(y)}' "
+                     f"src='data:image/png;base64,{_png(result.figure)}'><figcaption class='muted'>"
+                     f"{html.escape(cut or 'all axes shown')}</figcaption></figure>")
+        for a, b in itertools.combinations(info.regimes, 2):
+            boundary, _ = find_boundary(ds, x, y, (a, b), at=at, bisections=0, evaluate=False)
+            if not boundary.lines:
+                continue
+            rows = []
+            for i, line in enumerate(boundary.lines):
+                for k in range(len(line.x)):
+                    rows.append([i, float(line.x[k]), float(line.y[k]), float(line.low[k]), float(line.high[k]),
+                                 (x, y)[int(line.along[k])]])
+            shown = rows[:_MAX_VERTICES]
+            more = f" (first {_MAX_VERTICES} of {len(rows)} vertices; export all with `sweepshell boundary`)" \
+                if len(rows) > _MAX_VERTICES else ""
+            boundary_sections.append(
+                f"<h3>{html.escape(a)} / {html.escape(b)}{' — ' + html.escape(cut) if cut else ''}</h3>"
+                f"<p class='muted'>{len(boundary.lines)} polyline(s){html.escape(more)}</p>"
+                + _table(["line", x, y, "bracket low", "bracket high", "bracket along"], shown))
+    parts.append("<h2>Boundaries</h2>")
+    parts.extend(boundary_sections or ["<p>No boundary between two regimes on these maps.</p>"])
+
+    parts.append("<h2>Extreme points</h2><p class='muted'>Smallest and largest value of each scalar output over "
+                 "the points with a trustworthy status.</p>")
+    rows = []
+    for output in info.scalar_outputs:
+        for label, sort in (("min", output), ("max", "-" + output)):
+            top = select_points(ds, f"{output} == {output}", [output, "regime"], sort=sort, limit=1)
+            if len(top):
+                row = top.iloc[0]
+                where = ", ".join(f"{a} = {_fmt(row[a])}" for a in info.axes)
+                rows.append([output, label, float(row[output]), str(row["regime"]), where])
+    parts.append(_table(["output", "", "value", "regime", "at"], rows) if rows else "<p>No trusted points.</p>")
+
+    parts.append("<h2>Provenance</h2>")
+    parts.append(f"<pre>{html.escape(str(attrs.get(ATTR.sweep_yaml, '')))}</pre>")
+    parts.append(f"<p class='muted'>model settings {html.escape(json.dumps(summary['settings']))}</p>")
+    parts.append(f"<div class='caution'><strong>Caution.</strong> {html.escape(CAUTION.removeprefix('Caution: '))}"
+                 "</div></body></html>")
+    return "\n".join(parts)
