@@ -70,6 +70,7 @@ from sweepshell.numerics.sheet_energy import (
     make_sheet_problem,
     minimize_sheet_energy,
     to_height_field,
+    to_mode_variable,
 )
 from sweepshell.numerics.sheet_patterns import (
     PATTERN_NAMES,
@@ -255,7 +256,7 @@ class FoundationSheetModel(SweepModel):
     def sample_inputs(cls) -> dict[str, np.ndarray]:
         """Return five cheap, telling points: flat, stripes, checkerboard, Winkler, invalid."""
         n = 5
-        out: dict[str, np.ndarray] = {p.name: np.full(n, float(p.default)) for p in cls.parameters
+        out: dict[str, np.ndarray] = {p.name: np.full(n, p.default, dtype=float) for p in cls.parameters
                                       if p.choices is None}
         out["substrate"] = np.array(["half_space", "half_space", "half_space", "winkler", "half_space"])
         out["modes"][:] = 16.0
@@ -330,9 +331,11 @@ class FoundationSheetModel(SweepModel):
         """Run every seed; return the lowest-energy converged minimum, or None."""
         s = self._settings
         best: SheetMinimum | None = None
-        size = problem.n * problem.n
         for j, seed in enumerate(s["seeds"]):
-            z0 = np.random.default_rng(seed).standard_normal(size)
+            # white noise on the grid, projected onto the resolved modes: depends only on
+            # the seed and the grid, never on the point or its place in the batch
+            grid_noise = np.random.default_rng(seed).standard_normal((problem.n, problem.n))
+            z0 = to_mode_variable(problem, grid_noise)
             start_rms = float(np.sqrt(np.mean(to_height_field(problem, z0) ** 2)))
             # initial rms height = perturbation × h, i.e. perturbation × h/b in scaled units
             z0 *= s["perturbation"] / height_ratio / start_rms

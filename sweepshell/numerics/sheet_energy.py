@@ -64,6 +64,7 @@ __all__ = [
     "make_sheet_problem",
     "minimize_sheet_energy",
     "to_height_field",
+    "to_mode_variable",
     "to_preconditioned_variable",
 ]
 
@@ -96,12 +97,24 @@ class SheetProblem:
         ``band / √L``: the map from the optimisation variable to the height.
     curvature_filter
         ``band / |K|⁴`` applied to the curvature field.
-    hessian_symbols, adjoint_symbols
-        Fourier symbols of (∂xx, ∂yy, ∂xy) and of their adjoint combination in the
-        curvature gradient, stacked for batched FFTs.
+    hessian_symbols
+        Fourier symbols of (∂xx, ∂yy, ∂xy), stacked for one batched FFT.
+    unique_index
+        Flat ``rfft2`` indices of the unique resolved modes (one of each ±k pair); the
+        optimisation variable holds their real and imaginary parts.
+    mirror_source, mirror_target
+        Modes on the k_x = 0 axis and the flat indices of their conjugate partners.
+    unique_precondition
+        ``(n/√2)/√L`` at the unique modes: the map from the variable to the height
+        spectrum (unit metric, bending/substrate Hessian the identity).
+    unique_curvature_filter
+        ``1/|K|⁴`` at the unique modes.
+    unique_symbols
+        Rows (L, kx², ky², kx ky, −ky², −kx², 2kx ky) at the unique modes: the linear,
+        prestress and curvature-adjoint symbols of the gradient.
     moment_symbols
-        Weighted (kx², ky², kx ky, L) rows: one matrix product gives the mean strains and
-        the linear energy by Parseval.
+        Rows (kx², ky², kx ky, L): one product gives the mean strains and the linear
+        energy by Parseval.
     """
 
     n: int
@@ -117,8 +130,23 @@ class SheetProblem:
     precondition: np.ndarray = field(repr=False)
     curvature_filter: np.ndarray = field(repr=False)
     hessian_symbols: np.ndarray = field(repr=False)
+    unique_index: np.ndarray = field(repr=False)
+    mirror_source: np.ndarray = field(repr=False)
+    mirror_target: np.ndarray = field(repr=False)
+    unique_precondition: np.ndarray = field(repr=False)
+    unique_curvature_filter: np.ndarray = field(repr=False)
+    unique_symbols: np.ndarray = field(repr=False)
     moment_symbols: np.ndarray = field(repr=False)
-    adjoint_symbols: np.ndarray = field(repr=False)
+
+    @property
+    def modes(self) -> int:
+        """Number of unique resolved modes (the variable holds their real and imaginary parts)."""
+        return int(self.unique_index.size)
+
+    @property
+    def size(self) -> int:
+        """Length of the optimisation variable."""
+        return 2 * self.modes
 
     @property
     def flat_energy(self) -> float:
@@ -186,16 +214,31 @@ def make_sheet_problem(n: int, cells: int, substrate: str, poisson_ratio: float,
     precondition = np.where(band, 1.0 / np.sqrt(np.where(band, stiffness, 1.0)), 0.0)
     curvature_filter = np.where(band, 1.0 / safe**4, 0.0)
     hessian_symbols = np.stack([-kx * kx, -ky * ky, -kx * ky])
-    adjoint_symbols = np.stack([-ky * ky, -kx * kx, 2.0 * kx * ky])
-    moment_symbols = (weight * np.where(band, 1.0, 0.0) * np.stack(
-        [kx * kx, ky * ky, kx * ky, np.where(band, stiffness, 0.0)])).reshape(4, -1)
+    # the variable: real and imaginary parts of one mode of each ±k pair of the band
+    unique = band & ((MX > 0) | ((MX == 0) & (MY > 0)))
+    unique_index = np.flatnonzero(unique)
+    iy, ix = np.unravel_index(unique_index, MX.shape)
+    on_axis = ix == 0
+    mirror_source = np.flatnonzero(on_axis)
+    mirror_target = ((n - iy[on_axis]) % n) * MX.shape[1]
+    # Ŵ = (n/√2)·P·(v_re + i v_im): unit metric Σ z² = Σ v² of the grid variable
+    unique_precondition = precondition.ravel()[unique_index] * (n / np.sqrt(2.0))
+    u = unique_index
+    kxu, kyu = kx.ravel()[u], ky.ravel()[u]
+    unique_symbols = np.stack([stiffness.ravel()[u], kxu * kxu, kyu * kyu, kxu * kyu,
+                               -kyu * kyu, -kxu * kxu, 2.0 * kxu * kyu])
+    # a unique mode stands for its pair: Parseval weight 2, times ½ of the mean strain
+    moment_symbols = unique_symbols[[1, 2, 3, 0]]
     return SheetProblem(n=int(n), cells=int(cells), substrate=substrate,
                         poisson_ratio=float(poisson_ratio),
                         overstrain=(float(overstrain[0]), float(overstrain[1])),
                         kx=kx, ky=ky, weight=weight, band=band, stiffness=stiffness,
                         precondition=precondition, curvature_filter=curvature_filter,
-                        hessian_symbols=hessian_symbols, adjoint_symbols=adjoint_symbols,
-                        moment_symbols=moment_symbols)
+                        hessian_symbols=hessian_symbols, unique_index=unique_index,
+                        mirror_source=mirror_source, mirror_target=mirror_target,
+                        unique_precondition=unique_precondition,
+                        unique_curvature_filter=curvature_filter.ravel()[u],
+                        unique_symbols=unique_symbols, moment_symbols=moment_symbols)
 
 
 def _rfft2(a: np.ndarray) -> np.ndarray:
@@ -206,66 +249,88 @@ def _irfft2(a: np.ndarray, n: int) -> np.ndarray:
     return scipy.fft.irfft2(a, s=(n, n), axes=(-2, -1), workers=1)
 
 
-def evaluate_sheet_energy(problem: SheetProblem, z: np.ndarray) -> tuple[float, np.ndarray]:
-    """Return the objective ``f = n²(Π̃ − Π̃_flat)`` and its exact gradient in z.
+def evaluate_sheet_energy(problem: SheetProblem, v: np.ndarray) -> tuple[float, np.ndarray]:
+    """Return the objective ``f = n²(Π̃ − Π̃_flat)`` and its exact gradient in v.
 
     Parameters
     ----------
     problem
         The cell problem.
-    z
-        Preconditioned variable, flat array of n² grid values.
+    v
+        Preconditioned mode variable (real and imaginary parts of the unique resolved
+        modes, see :class:`SheetProblem`), length ``problem.size``.
 
     Returns
     -------
     f, gradient
         Scaled energy times n² (so the bending/substrate Hessian is the identity) and
-        ``∂f/∂z`` as a flat array.
+        ``∂f/∂v``.
     """
     p = problem
     n = p.n
     nu = p.poisson_ratio
     s1, s2 = p.overstrain
     inv4 = 1.0 / float(n) ** 4
-    W = p.precondition * _rfft2(z.reshape(n, n))
-    W2 = W.real**2 + W.imag**2
-    # Parseval sums of (kx², ky², kx ky, L)·weight in one product: mean strains exact
-    Pxx, Pyy, Pxy, e_lin = (p.moment_symbols @ W2.ravel()) * inv4
-    Pxx, Pyy, Pxy, e_lin = 0.5 * Pxx, 0.5 * Pyy, 0.5 * Pxy, 0.5 * e_lin
+    Wu = p.unique_precondition * (v[: p.modes] + 1j * v[p.modes:])
+    W = _scatter_modes(p, Wu)
+    # Parseval sums of (kx², ky², kx ky, L) over the resolved modes: mean strains, exact
+    Pxx, Pyy, Pxy, e_lin = (p.moment_symbols @ (Wu.real**2 + Wu.imag**2)) * inv4
     Mxx, Myy, Mxy = Pxx - s1, Pyy - s2, Pxy
     trM = Mxx + Myy
     e_mean = 0.5 * ((1 - nu) * (Mxx * Mxx + Myy * Myy + 2 * Mxy * Mxy) + nu * trM * trM)
     Nxx, Nyy, Nxy = (1 - nu) * Mxx + nu * trM, (1 - nu) * Myy + nu * trM, (1 - nu) * Mxy
     # Gaussian-curvature (Airy) part; the three second derivatives share one batched FFT
     H = _irfft2(p.hessian_symbols * W, n)
-    Wxx, Wyy, Wxy = H[0], H[1], H[2]
-    g = Wxx * Wyy - Wxy * Wxy
+    g = H[0] * H[1] - H[2] * H[2]
     G = _rfft2(g)
     cG = 0.5 * (1 - nu * nu)
     QG = p.curvature_filter * G
-    e_gauss = cG * inv4 * float(np.sum(p.weight * (G.real * QG.real + G.imag * QG.imag)))
+    Gu = G.ravel()[p.unique_index]
+    e_gauss = 2.0 * cG * inv4 * float(np.sum(p.unique_curvature_filter * (Gu.real**2 + Gu.imag**2)))
     phi = (2.0 * cG) * _irfft2(QG, n)
-    # adjoint of (Wxx, Wyy, Wxy) -> g: ∂yy(φ Wxx) + ∂xx(φ Wyy) − 2 ∂xy(φ Wxy)
-    F = _rfft2(phi * H)
-    R = (p.stiffness + Nxx * p.hessian_symbols[0] * -1.0 + Nyy * p.hessian_symbols[1] * -1.0
-         - 2 * Nxy * p.hessian_symbols[2]) * W
-    R += p.adjoint_symbols[0] * F[0] + p.adjoint_symbols[1] * F[1] + p.adjoint_symbols[2] * F[2]
-    grad = _irfft2(p.precondition * R, n)
+    # adjoint of (Wxx, Wyy, Wxy) -> g: ∂yy(φ Wxx) + ∂xx(φ Wyy) − 2 ∂xy(φ Wxy), resolved modes only
+    F = _rfft2(phi * H).reshape(3, -1)[:, p.unique_index]
+    a = p.unique_symbols
+    Ru = (a[0] + Nxx * a[1] + Nyy * a[2] + 2.0 * Nxy * a[3]) * Wu
+    Ru += a[4] * F[0] + a[5] * F[1] + a[6] * F[2]
+    Ru *= p.unique_precondition * (2.0 / float(n * n))
     f = (e_mean + e_lin + e_gauss - p.flat_energy) * float(n * n)
-    return f, grad.ravel()
+    return f, np.concatenate([Ru.real, Ru.imag])
 
 
-def to_height_field(problem: SheetProblem, z: np.ndarray) -> np.ndarray:
-    """Return the scaled height W (n × n grid) of a preconditioned variable z."""
-    n = problem.n
-    return _irfft2(problem.precondition * _rfft2(z.reshape(n, n)), n)
+def _scatter_modes(p: SheetProblem, values: np.ndarray) -> np.ndarray:
+    """Return the full half spectrum holding ``values`` at the unique modes (mirror filled)."""
+    full = np.zeros(p.kx.shape, dtype=complex)
+    flat = full.ravel()
+    flat[p.unique_index] = values
+    flat[p.mirror_target] = np.conj(values[p.mirror_source])
+    return full
+
+
+def to_height_field(problem: SheetProblem, v: np.ndarray) -> np.ndarray:
+    """Return the scaled height W (n × n grid) of a preconditioned mode variable v."""
+    p = problem
+    Wu = p.unique_precondition * (v[: p.modes] + 1j * v[p.modes:])
+    return _irfft2(_scatter_modes(p, Wu), p.n)
+
+
+def to_mode_variable(problem: SheetProblem, field: np.ndarray) -> np.ndarray:
+    """Return the mode variable whose preconditioned field is the band part of ``field``.
+
+    This is the projection of a grid field z onto the variable space: a white-noise grid
+    field gives white-noise modes (used for the seeded random starts).
+    """
+    p = problem
+    Zu = _rfft2(np.asarray(field, dtype=float)).ravel()[p.unique_index] * (np.sqrt(2.0) / p.n)
+    return np.concatenate([Zu.real, Zu.imag])
 
 
 def to_preconditioned_variable(problem: SheetProblem, height: np.ndarray) -> np.ndarray:
-    """Return a z whose height is the band-limited part of ``height`` (scaled, n × n)."""
-    n = problem.n
-    inverse = np.where(problem.band, 1.0 / np.where(problem.band, problem.precondition, 1.0), 0.0)
-    return _irfft2(inverse * _rfft2(height), n).ravel()
+    """Return the mode variable v whose height is the band-limited part of ``height`` (scaled)."""
+    p = problem
+    Hu = _rfft2(np.asarray(height, dtype=float)).ravel()[p.unique_index]
+    Zu = Hu / p.unique_precondition
+    return np.concatenate([Zu.real, Zu.imag])
 
 
 @dataclass(frozen=True)

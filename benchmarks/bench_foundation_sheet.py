@@ -1,0 +1,96 @@
+"""Speed of ``foundation_sheet`` against a straightforward reference implementation (same run).
+
+Two measurements, each printed with its agreement check:
+
+1. the model at default settings (64 × 64 grid, 8 critical wavelengths per cell side, all
+   seeds) on three pattern points (uniaxial stripes, equibiaxial herringbone, equibiaxial
+   labyrinth): seconds per point against the 2 s target;
+2. one minimisation per point, the fast solver (Airy-reduced energy, preconditioned
+   L-BFGS of our own) vs the reference in :mod:`sweepshell.numerics.sheet_reference`
+   (in-plane displacements kept as unknowns, collocation, no preconditioning,
+   ``scipy.optimize`` L-BFGS-B) on a 32 × 32 grid from the same start: energy agreement
+   and the time ratio. Points whose equilibrium is unique from any start (stripes, and
+   the checkerboard just above onset) are used, so the energies must agree.
+
+The script pins BLAS to one thread (the "one core" figure). No asserts on time.
+"""
+
+from __future__ import annotations
+
+import os
+
+os.environ.setdefault("OPENBLAS_NUM_THREADS", "1")
+os.environ.setdefault("OMP_NUM_THREADS", "1")
+os.environ.setdefault("MKL_NUM_THREADS", "1")
+
+import time
+
+import numpy as np
+
+from sweepshell.models import make_model
+from sweepshell.models.foundation_sheet import compute_sheet_scales
+from sweepshell.numerics.sheet_energy import (
+    make_sheet_problem,
+    minimize_sheet_energy,
+    to_height_field,
+    to_mode_variable,
+)
+from sweepshell.numerics.sheet_reference import minimize_reference_energy
+
+
+def make_inputs(model, n, **columns):
+    return {p.name: np.broadcast_to(np.asarray(columns.get(p.name, p.default)), (n,)).copy()
+            for p in model.parameters}
+
+
+def bench_default_points() -> float:
+    model = make_model("foundation_sheet", {})
+    d = {p.name: p.default for p in model.parameters}
+    eps_c = float(compute_sheet_scales(d["film_thickness"], d["film_modulus"], d["film_poisson_ratio"],
+                                       d["substrate_modulus"], d["substrate_poisson_ratio"],
+                                       d["substrate"])["critical_strain"])
+    nu = d["film_poisson_ratio"]
+    points = {"uniaxial 1.5": (1.5, 0.0), "equibiaxial 1.2": (1.2 / (1 + nu),) * 2,
+              "equibiaxial 2.0": (2.0 / (1 + nu),) * 2}
+    print(f"1. model at default settings {model.settings['seeds']} seeds, "
+          f"modes={d['modes']}, cell_wavelengths={d['cell_wavelengths']}")
+    times = []
+    for label, (s1, s2) in points.items():
+        inputs = make_inputs(model, 1, strain_x=s1 * eps_c, strain_y=s2 * eps_c)
+        t = time.perf_counter()
+        res = model.solve_batch(inputs)
+        dt = time.perf_counter() - t
+        times.append(dt)
+        print(f"   {label:16s} {model.regimes[res.regime[0]]:12s} status={res.status[0]} "
+              f"iterations={res.diagnostics['iterations'][0]:5d}  {dt:6.2f} s/point")
+    mean = float(np.mean(times))
+    print(f"   mean {mean:.2f} s/point (target <= 2 s)")
+    return mean
+
+
+def bench_against_reference() -> None:
+    n, cells, nu = 32, 4, 0.3
+    cases = {"stripes (1.5, 0)": (1.5, 0.0), "checkerboard (1.05 equibiaxial)": (1.05 / 1.3, 1.05 / 1.3)}
+    print(f"2. fast solver vs displacement-form reference, {n}x{n}, {cells} wavelengths, one start")
+    ratios = []
+    for label, s in cases.items():
+        problem = make_sheet_problem(n, cells, "half_space", nu, s)
+        z0 = to_mode_variable(problem, np.random.default_rng(1).standard_normal((n, n)))
+        z0 *= 0.02 / np.sqrt(np.mean(to_height_field(problem, z0) ** 2))
+        t = time.perf_counter()
+        fast = minimize_sheet_energy(problem, z0, gradient_tolerance=1e-4)
+        t_fast = time.perf_counter() - t
+        t = time.perf_counter()
+        ref = minimize_reference_energy(n, cells, "half_space", nu, s, to_height_field(problem, z0))
+        t_ref = time.perf_counter() - t
+        rel = abs(fast.energy - ref.energy) / abs(ref.energy)
+        ratios.append(t_ref / t_fast)
+        print(f"   {label:32s} energy {fast.energy:.8f} vs {ref.energy:.8f} (rel diff {rel:.1e})  "
+              f"fast {t_fast:.3f} s ({fast.iterations} it)  reference {t_ref:.2f} s ({ref.iterations} it)  "
+              f"ratio {t_ref / t_fast:.0f}x")
+    print(f"   speed-up over the reference: {min(ratios):.0f}x to {max(ratios):.0f}x")
+
+
+if __name__ == "__main__":
+    bench_default_points()
+    bench_against_reference()
