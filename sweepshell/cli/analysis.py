@@ -61,6 +61,7 @@ def register(subparsers: Any) -> None:
     _register_boundary(subparsers)
     _register_path(subparsers)
     _register_report(subparsers)
+    _register_refine(subparsers)
 
 
 def _open(store: str) -> Any:
@@ -325,4 +326,32 @@ def _cmd_report(args: argparse.Namespace) -> int:
     text = write_report(ds, str(store))
     out.write_text(text, encoding="utf-8")
     print(out)
+    return 0
+
+
+def _register_refine(subparsers: Any) -> None:
+    r = subparsers.add_parser(
+        "refine", help="evaluate new points along regime boundaries, level by level",
+        description="Adaptive refinement on views of two numeric axes: every grid cell whose corners carry "
+                    "different regimes is split in four, new points evaluated, and so on for --levels levels "
+                    "(finest spacing = grid spacing / 2^levels). New points go to the store's point list and are "
+                    "used by query, map and boundary; running refine again reuses them. Other axes: every "
+                    "combination of their values, or fixed with --at.")
+    r.add_argument("store", metavar="STORE")
+    r.add_argument("--levels", type=int, default=3, help="levels of refinement (default 3)")
+    r.add_argument("--x", metavar="AXIS", help="first axis (default: the first numeric axis)")
+    r.add_argument("--y", metavar="AXIS", help="second axis (default: the next numeric axis)")
+    r.add_argument("--at", action="append", metavar="NAME=VALUE", help="fix another axis (repeatable)")
+    r.add_argument("--max-evaluations", type=int, default=2_000_000, help="refuse to exceed this many new points")
+    r.set_defaults(func=_cmd_refine)
+
+
+def _cmd_refine(args: argparse.Namespace) -> int:
+    from sweepshell.engine.refine import describe_budget, refine_store
+    from sweepshell.query.slicing import parse_at
+
+    summary = refine_store(args.store, x=args.x, y=args.y, at=parse_at(args.at), levels=args.levels,
+                           max_evaluations=args.max_evaluations)
+    print(summary.to_line())
+    print(describe_budget(summary), file=sys.stderr)
     return 0
