@@ -15,7 +15,7 @@ over π²B/L², ``end`` (``pinned`` only as physics; ``weak`` halves the result,
 variant for categorical tests).
 
 Status rules (for tests): η above ``validity_limit`` → ``outside_validity``; a load ratio
-exactly equal to ``fail_at`` (setting, NaN = never) → ``failed``; a load ratio below the
+exactly equal to ``fail_at`` (setting, None = never) → ``failed``; a load ratio below the
 critical load → ``no_instability`` with regime ``stable``.
 """
 
@@ -62,10 +62,11 @@ class WinklerColumnModel(SweepModel):
     cost_hint: ClassVar[float] = 2e-6
 
     def __init__(self, *, path_samples: int = 8, validity_limit: float = 1e6,
-                 fail_at: float = math.nan, work_seconds: float = 0.0) -> None:
+                 fail_at: float | None = None, work_seconds: float = 0.0) -> None:
         super().__init__()
         self._settings = {"path_samples": int(path_samples), "validity_limit": float(validity_limit),
-                          "fail_at": float(fail_at), "work_seconds": float(work_seconds)}
+                          "fail_at": None if fail_at is None else float(fail_at),
+                          "work_seconds": float(work_seconds)}
 
     def estimated_cost(self) -> float:
         return self.cost_hint + self._settings["work_seconds"]
@@ -102,7 +103,8 @@ class WinklerColumnModel(SweepModel):
         pcr = np.where(end == "weak", 0.5 * pcr, pcr)
         status = np.where(load >= pcr, Status.ok, Status.no_instability).astype(np.uint8)
         status[eta > s["validity_limit"]] = Status.outside_validity
-        status[load == s["fail_at"]] = Status.failed
+        if s["fail_at"] is not None:
+            status[load == s["fail_at"]] = Status.failed
         regime = np.where(load >= pcr, 1, 0).astype(np.int8)
         trusted = (status == Status.ok) | (status == Status.no_instability)
         regime[~trusted] = -1

@@ -10,7 +10,7 @@ from typing import Any
 import numpy as np
 
 from sweepshell.models.base import Status
-from sweepshell.store.layout import ATTR
+from sweepshell.store.layout import ATTR, STATUS_VAR
 from sweepshell.store.reader import check_readable_store, read_ledger
 
 __all__ = ["summarize_store"]
@@ -25,8 +25,11 @@ def summarize_store(path: str | os.PathLike[str]) -> dict[str, Any]:
     counts = {s.name: int(raw[s.value]) for s in Status}
     total = int(ledger.size)
     axes_values: dict[str, list[Any]] = json.loads(attrs[ATTR.axes])
+    meta = json.loads((Path(path) / STATUS_VAR / "zarr.json").read_text())
+    order = [d for d in meta.get("dimension_names") or [] if d in axes_values]  # plan order, not sorted keys
     axes = []
-    for name, values in axes_values.items():
+    for name in order:
+        values = axes_values[name]
         numeric = [v for v in values if isinstance(v, (int, float))]
         axes.append({"name": name, "size": len(values),
                      "min": min(numeric) if numeric else values[0],
