@@ -48,7 +48,8 @@ if TYPE_CHECKING:
 __all__ = ["MapResult", "draw_output_lines", "draw_regime_map"]
 
 _MAX_CELLS = 250_000      # above this many grid cells (or with off-grid points) the fill is rasterised
-_RASTER = 600             # raster size per axis
+_RASTER = 420             # raster size per axis (about the axes' size in pixels at 150 dpi / 1.5)
+_MAX_CONTOUR = 400        # contour lines of an output are drawn from at most this many points per axis
 _MAX_MARKERS = 20_000     # untrusted points drawn individually up to this many
 
 
@@ -187,8 +188,10 @@ def draw_regime_map(ds: xr.Dataset, x: str, y: str, *, color: str | None = None,
             handles.append(Line2D([], [], color=BOUNDARY_COLOR, linewidth=1.4, label="regime boundary"))
     if contour:
         values = np.where(codes >= 0, np.asarray(view.ds[contour].values, float), np.nan)
+        sx, sy = (max(1, -(-n // _MAX_CONTOUR)) for n in values.shape)  # thin very fine grids
+        values, cxv, cyv = values[::sx, ::sy], xv[::sx], yv[::sy]
         if np.isfinite(values).sum() >= 4 and np.nanmax(values) > np.nanmin(values):
-            cs = ax.contour(xv, yv, values.T, levels=7, colors=CONTOUR_COLOR, linewidths=0.8,
+            cs = ax.contour(cxv, cyv, values.T, levels=7, colors=CONTOUR_COLOR, linewidths=0.8,
                             linestyles="--")
             ax.clabel(cs, fontsize=7, fmt="%.3g", inline_spacing=3)
             handles.append(Line2D([], [], color=CONTOUR_COLOR, linewidth=0.8, linestyle="--",
