@@ -316,8 +316,9 @@ class SweepModel:
     def describe(self) -> dict[str, Any]:
         """Return a JSON-ready description (used by ``sweepshell models --json``)."""
         def param(p: ParameterSpec) -> dict[str, Any]:
+            default = _json_num(p.default) if isinstance(p.default, float) else p.default
             d: dict[str, Any] = {"name": p.name, "units": p.units, "doc": p.doc,
-                                 "default": p.default, "allowed": p.describe_allowed()}
+                                 "default": default, "allowed": p.describe_allowed()}
             if p.choices is not None:
                 d["choices"] = list(p.choices)
             else:
@@ -337,5 +338,8 @@ class SweepModel:
         }
 
 
-def _json_num(x: float) -> float | str:
+def _json_num(x: float) -> float | str | None:
+    """Return ``x`` as strict JSON: NaN (not given) becomes null, infinities become strings."""
+    if math.isnan(x):
+        return None
     return x if math.isfinite(x) else ("inf" if x > 0 else "-inf")

@@ -16,6 +16,14 @@ def _snapshot(root: Path) -> dict[str, str]:
             for p in sorted(root.rglob("*"))}
 
 
+CAP_SWEEP = """\
+name: dome
+model: shallow_cap
+fixed: {poisson_ratio: 0.3, edge: clamped, load: pressure}
+axes:
+  shell_parameter: {linspace: [3, 8, 6]}
+"""
+
 # (id, sweep file text or None for the standard one, extra command-line arguments, expected message part)
 CASES = [
     ("unknown-model", COLUMN_SWEEP.replace("model: winkler_column", "model: nosuch"), [],
@@ -57,6 +65,11 @@ CASES = [
     ("yaml-syntax", "name: x\naxes: [1, 2\n", [], "is not valid YAML at line"),
     ("logspace-overflow", None, ["axes.load_ratio={logspace:[0,400,3]}"], "logspace exponents [0, 400] overflow"),
     ("bad-name", COLUMN_SWEEP.replace("name: column", "name: ../escape"), [], "name='../escape' is not a valid"),
+    ("poisson-ratio-half", CAP_SWEEP, ["fixed.poisson_ratio=0.5"],
+     "fixed.poisson_ratio=0.5 is outside [-0.9, 0.5); use a value below 0.5"),
+    ("zero-thickness", CAP_SWEEP, ["+fixed.thickness=0"], "fixed.thickness=0 is outside (0, inf); use a value above 0"),
+    ("negative-thickness-axis", CAP_SWEEP, ["+axes.thickness=[0.001,-0.002]"],
+     "axes.thickness=-0.002 is outside (0, inf); use a value above 0"),
 ]
 
 
