@@ -39,6 +39,22 @@ heights, one run per seed, keeping the lowest energy (see
 :mod:`sweepshell.numerics.sheet_energy`); the regime comes from the equilibrium spectrum
 (see :mod:`sweepshell.numerics.sheet_patterns`).
 
+Resolution as a parameter
+-------------------------
+``modes`` (grid points per cell side) and ``cell_wavelengths`` are parameters, not
+settings: they change the answer (the cell quantises the admissible wavevectors, the grid
+resolves |k| ≤ modes/3 cycles per cell), so a sweep can vary them and the store records
+them per point. Every combination must satisfy ``modes ≥ 4·cell_wavelengths``
+(checked at plan time). Default 64 × 64 on an 8-wavelength cell resolves up to 2.6 k₀.
+
+Statuses
+--------
+``no_instability`` (regime ``flat``) when no resolved mode of the cell is unstable: the
+flat film is then the global minimum, because every quartic term of Π is non-negative;
+``ok`` when the lowest-energy converged seed is kept; ``not_converged`` when no seed met
+the gradient tolerance within ``max_iterations``; ``failed`` on floating-point trouble;
+``outside_validity`` as below. Outputs are NaN wherever the status is not trusted.
+
 Range of validity
 -----------------
 Large modulus contrast (Ē_f/Ē_s ≳ 10; points below ``min_contrast`` are

@@ -466,18 +466,21 @@ def _search_line(problem: SheetProblem, x: np.ndarray, f: float, d: np.ndarray,
     """
     c1 = 1e-4
     t = 1.0
-    for _ in range(60):
-        f_t, g_t = evaluate_sheet_energy(problem, x + t * d)
-        if np.isfinite(f_t) and f_t <= f + c1 * t * slope:
-            break
-        t *= 0.5
-    else:
-        return None
-    for _ in range(20):
-        if float(g_t @ d) >= 0.5 * slope:
-            break
-        f_2, g_2 = evaluate_sheet_energy(problem, x + 2.0 * t * d)
-        if not (np.isfinite(f_2) and f_2 <= f + c1 * 2.0 * t * slope and f_2 < f_t):
-            break
-        t, f_t, g_t = 2.0 * t, f_2, g_2
+    # an overflowing trial step is simply too long: backtrack instead of failing the point
+    with np.errstate(over="ignore", invalid="ignore"):
+        for _ in range(60):
+            f_t, g_t = evaluate_sheet_energy(problem, x + t * d)
+            if np.isfinite(f_t) and np.all(np.isfinite(g_t)) and f_t <= f + c1 * t * slope:
+                break
+            t *= 0.5
+        else:
+            return None
+        for _ in range(20):
+            if float(g_t @ d) >= 0.5 * slope:
+                break
+            f_2, g_2 = evaluate_sheet_energy(problem, x + 2.0 * t * d)
+            if not (np.isfinite(f_2) and np.all(np.isfinite(g_2))
+                    and f_2 <= f + c1 * 2.0 * t * slope and f_2 < f_t):
+                break
+            t, f_t, g_t = 2.0 * t, f_2, g_2
     return t, float(f_t), g_t

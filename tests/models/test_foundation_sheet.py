@@ -216,3 +216,25 @@ def test_airy_reduction_agrees_with_displacement_form(substrate: str) -> None:
     np.testing.assert_allclose(fast.height, reference.height, atol=1e-4 * np.abs(fast.height).max())
     harmonic = np.abs(np.fft.fft2(fast.height))[1, 2] / np.abs(np.fft.fft2(fast.height))[0, 1]
     assert harmonic > 0.01  # a genuinely nonlinear state, not a single mode
+
+
+def test_numerical_trouble_is_status_failed_not_an_exception(monkeypatch: pytest.MonkeyPatch) -> None:
+    import sweepshell.models.foundation_sheet as module
+
+    def explode(*args: Any, **kwargs: Any) -> None:
+        raise FloatingPointError("overflow encountered")
+
+    monkeypatch.setattr(module, "minimize_sheet_energy", explode)
+    model = FoundationSheetModel(seeds=(1,), height_samples=4)
+    res = model.solve_batch(make_inputs(model, strain_x=[2.0 * EPS_C, 0.5 * EPS_C]))
+    assert list(res.status) == [Status.failed, Status.no_instability]
+    assert res.regime[0] == -1 and res.regime[1] == 0
+    assert all(np.all(np.isnan(v[0])) for v in res.outputs.values())
+
+
+def test_huge_start_backtracks_instead_of_failing() -> None:
+    problem = make_sheet_problem(16, 2, "half_space", 0.3, (1.5, 0.0))
+    z0 = 1e3 * np.random.default_rng(2).standard_normal(problem.size)
+    with np.errstate(all="raise", under="ignore"):
+        found = minimize_sheet_energy(problem, z0, gradient_tolerance=1e-6)
+    assert found.converged and found.energy == pytest.approx(-0.125, rel=1e-6)
