@@ -32,6 +32,7 @@ __all__ = [
     "build_mode_matrices",
     "compute_mode_coefficients",
     "compute_mode_determinants",
+    "count_unstable_modes",
     "make_mode_operators",
 ]
 
@@ -92,6 +93,10 @@ def _stress_edge_rows(ops: ModeOperators, nu: float, immovable: bool) -> tuple[n
     so = ops.stress
     f0, f1, f2, f3 = so.w0[0], so.w1[0], so.w2[0], so.w3_edge
     if not immovable:
+        if ops.n == 1:
+            # N_r and N_rθ of cos θ both reduce to F' − F: one condition; the other row keeps the
+            # interior equation at the second node (see _sliding_n1)
+            return f1 - f0, so.bilaplacian[1]
         return f0, f1
     n2 = ops.n * ops.n
     # immovable: ε_θ = 0 and ∂_r(r ε_θ) − ε_r − ∂_θ γ + ζ' w' = 0 (u_r = u_θ = 0 along the edge);
@@ -166,7 +171,10 @@ def _deflection_blocks(ops: ModeOperators, x: np.ndarray, co: ModeCoefficients) 
     a[:, 1] = np.where(co.clamped[:, None], wo.w1[0][None, :], wo.w2[0][None, :] + co.nu[:, None] * wo.w1[0][None, :])
     c = co.zeta2[:, :, None] * wo.bracket + (x * co.zeta1)[:, :, None] * wo.w2
     c[:, 0] = 0.0
-    c[:, 1] = np.where(co.immovable[:, None], co.zeta1[:, :1] * wo.w1[0][None, :], 0.0)
+    # sliding n = 1 has a single in-plane edge condition: row 1 stays the interior equation
+    keep = ~co.immovable if ops.n == 1 else np.zeros_like(co.immovable)
+    c[:, 1] = np.where(co.immovable[:, None], co.zeta1[:, :1] * wo.w1[0][None, :],
+                       np.where(keep[:, None], c[:, 1], 0.0))
     return a, c
 
 
@@ -182,6 +190,28 @@ def build_mode_matrices(ops: ModeOperators, x: np.ndarray, co: ModeCoefficients)
     for i in range(k):
         out[i, m, m:], out[i, m + 1, m:] = _stress_edge_rows(ops, float(co.nu[i]), bool(co.immovable[i]))
     return out
+
+
+def _reduced_matrices(problem: CapPathProblem, co: ModeCoefficients, modes: np.ndarray):  # type: ignore[no-untyped-def]
+    """Yield ``(j, n, A − B S⁻¹ C)`` ``(k, M, M)`` for each wave number of ``modes``."""
+    x = problem.grid.x
+    m = co.f.shape[1]
+    # rows 0, 1 of B are edge rows (zero): the multipliers vanish there
+    z2 = co.zeta2.copy()
+    xz1 = x * co.zeta1
+    z2[:, :2] = 0.0
+    xz1[:, :2] = 0.0
+    groups: dict[tuple[float, bool], list[int]] = {}
+    for i, key in enumerate(zip(co.nu.tolist(), co.immovable.tolist(), strict=True)):
+        groups.setdefault(key, []).append(i)
+    for j, n in enumerate(modes):
+        ops = make_mode_operators(m, int(n))
+        a, c = _deflection_blocks(ops, x, co)
+        for (nu, im), rows in groups.items():
+            sel = np.asarray(rows) if len(groups) > 1 else slice(None)
+            kc = _make_stress_reduction(m, int(n), nu, im) @ c[sel]
+            a[sel] += z2[sel, :, None] * kc[:, :m] + xz1[sel, :, None] * kc[:, m:]
+        yield j, int(n), a
 
 
 def compute_mode_determinants(problem: CapPathProblem, z: np.ndarray, idx: np.ndarray, modes: np.ndarray,
@@ -203,24 +233,28 @@ def compute_mode_determinants(problem: CapPathProblem, z: np.ndarray, idx: np.nd
         Precomputed :func:`compute_mode_coefficients` of the same states, if at hand.
     """
     co = compute_mode_coefficients(problem, z, idx) if coefficients is None else coefficients
-    x = problem.grid.x
-    k, m = co.f.shape
-    sign = np.empty((k, len(modes)))
+    sign = np.empty((co.f.shape[0], len(modes)))
     logdet = np.empty_like(sign)
-    # rows 0, 1 of B are edge rows (zero): the multipliers vanish there
-    z2 = co.zeta2.copy()
-    xz1 = x * co.zeta1
-    z2[:, :2] = 0.0
-    xz1[:, :2] = 0.0
-    groups: dict[tuple[float, bool], list[int]] = {}
-    for i, key in enumerate(zip(co.nu.tolist(), co.immovable.tolist(), strict=True)):
-        groups.setdefault(key, []).append(i)
-    for j, n in enumerate(modes):
-        ops = make_mode_operators(m, int(n))
-        a, c = _deflection_blocks(ops, x, co)
-        for (nu, im), rows in groups.items():
-            sel = np.asarray(rows) if len(groups) > 1 else slice(None)
-            kc = _make_stress_reduction(m, int(n), nu, im) @ c[sel]
-            a[sel] += z2[sel, :, None] * kc[:, :m] + xz1[sel, :, None] * kc[:, m:]
+    for j, _, a in _reduced_matrices(problem, co, modes):
         sign[:, j], logdet[:, j] = np.linalg.slogdet(a)
     return sign, logdet
+
+
+def count_unstable_modes(problem: CapPathProblem, z: np.ndarray, idx: np.ndarray, modes: np.ndarray) -> np.ndarray:
+    """Return how many eigenvalues of each ``cos nθ`` stability operator are negative, ``(k, len(modes))``.
+
+    The eigenproblem is ``x²(L_n w) = σ x² w`` with ``L_n`` the linearised operator (stress
+    function eliminated); its two edge rows are eliminated exactly, which leaves a standard
+    eigenproblem on the interior nodes. A count, unlike a determinant's sign, also sees two
+    eigenvalues of one wave number that became negative together.
+    """
+    co = compute_mode_coefficients(problem, z, idx)
+    x = problem.grid.x
+    out = np.zeros((co.f.shape[0], len(modes)), dtype=int)
+    for j, n, a in _reduced_matrices(problem, co, modes):
+        edge, edge_in = a[:, :2, :2], a[:, :2, 2:]
+        inner = a[:, 2:, 2:] - a[:, 2:, :2] @ np.linalg.solve(edge, edge_in)
+        mass = x[2:] ** ((1 if n == 1 else 2) + 2)
+        sigma = np.linalg.eigvals(inner / mass[None, :, None])
+        out[:, j] = np.count_nonzero(sigma.real < 0.0, axis=1)
+    return out

@@ -20,7 +20,7 @@ import numpy as np
 
 from sweepshell.models.base import Status
 from sweepshell.models.shallow_cap_kernels import CapPathProblem
-from sweepshell.models.shallow_cap_modes import compute_mode_determinants
+from sweepshell.models.shallow_cap_modes import compute_mode_determinants, count_unstable_modes
 from sweepshell.numerics.arclength import (
     TRACE_DONE,
     compute_tangent,
@@ -34,6 +34,7 @@ __all__ = ["CapSolution", "solve_caps"]
 _REGIME_STABLE, _REGIME_LIMIT, _REGIME_BIFURCATION = 0, 1, 2
 _DET_CHUNK = 1024
 _FIRST_STEP, _MAX_STEP = 0.1, 0.25
+_MAX_SUCTION = 2.0  # a path needing more outward load than this (in its load unit) is not followed
 
 
 @dataclass
@@ -197,25 +198,27 @@ def solve_caps(lam: np.ndarray, nu: np.ndarray, clamped: np.ndarray, immovable: 
     check_bi = bool(settings["check_bistability"])
     fold_seen = np.zeros(n, dtype=bool)
     went_negative = np.zeros(n, dtype=bool)
-    first_max = np.full(n, np.inf)
+    step_cap = np.full(n, _MAX_STEP)
+    turn_cap = np.full(n, float(settings["max_turn_deg"]))
 
     def is_finished(zp: np.ndarray, zn: np.ndarray, tn: np.ndarray, rows: np.ndarray) -> np.ndarray:
         mu_p, mu_n = zp[:, -1], zn[:, -1]
-        new_fold = (mu_n < mu_p) & ~fold_seen[rows]
-        first_max[rows[new_fold]] = mu_p[new_fold]
         fold_seen[rows] |= mu_n < mu_p
         done = (mu_n > mu_max[rows]) | (pb.apex_deflection(zn, rows) > defl_max[rows])
         if not check_bi:
             return done | fold_seen[rows]
+        # past the critical part the path is only searched for a return to zero load: longer
+        # steps; a skipped pair of folds keeps the parity that the stability test relies on
+        past = rows[fold_seen[rows]]
+        step_cap[past] = 2.0 * _MAX_STEP
+        turn_cap[past] = 2.0 * float(settings["max_turn_deg"])
         went_negative[rows] |= fold_seen[rows] & (mu_n < 0)
         done |= went_negative[rows] & (mu_n >= 0)
-        done |= mu_n < -mu_max[rows]
-        # back above the first limit load without reaching zero load: no inverted state on this path
-        done |= fold_seen[rows] & ~went_negative[rows] & (mu_n > first_max[rows])
+        done |= mu_n < -np.minimum(mu_max[rows], _MAX_SUCTION)
         return done
 
-    hist = trace_paths(pb, z0, t0, idx, w, first_step=_FIRST_STEP, max_step=_MAX_STEP, min_step=1e-7,
-                       max_points=int(settings["max_points"]), max_angle_deg=float(settings["max_turn_deg"]),
+    hist = trace_paths(pb, z0, t0, idx, w, first_step=_FIRST_STEP, max_step=step_cap, min_step=1e-7,
+                       max_points=int(settings["max_points"]), max_angle_deg=turn_cap,
                        tol=float(settings["tolerance"]), max_iter=8, is_finished=is_finished)
     tol = float(settings["tolerance"])
     count = hist.count
@@ -296,7 +299,7 @@ def solve_caps(lam: np.ndarray, nu: np.ndarray, clamped: np.ndarray, immovable: 
     wavenumber = np.where(in_range, np.where(use_bif, bif_mode, 0).astype(float), np.nan)
     deflection = np.where(in_range, pb.apex_deflection(np.nan_to_num(crit_z), idx), np.nan)
     volume = np.where(in_range, pb.volume_change(np.nan_to_num(crit_z), idx), np.nan)
-    bistable = _check_bistability(pb, hist, w, has_fold, jf, modes, ref_sign_all=None, tol=tol) \
+    bistable = _check_bistability(pb, hist, w, has_fold, jf, modes, tol=tol) \
         if check_bi else np.full(n, np.nan)
     path = _sample_paths(pb, hist, load_unit, int(settings["path_samples"]))
     return CapSolution(status=status, regime=np.where(status <= Status.no_instability, regime, -1).astype(np.int8),
@@ -305,34 +308,37 @@ def solve_caps(lam: np.ndarray, nu: np.ndarray, clamped: np.ndarray, immovable: 
 
 
 def _check_bistability(pb: CapPathProblem, hist: Any, w: np.ndarray, has_fold: np.ndarray, jf: np.ndarray,
-                       modes: np.ndarray, ref_sign_all: Any, tol: float) -> np.ndarray:
-    """Return 1/0 per cap: a stable state at zero load beyond the first limit point; NaN if unknown."""
+                       modes: np.ndarray, tol: float) -> np.ndarray:
+    """Return 1/0 per cap: a stable zero-load state on the path past the first limit point.
+
+    The candidate is the first state after the first limit point where the load returns to
+    zero while increasing along the path (dμ/ds > 0). Axisymmetric stability: the path starts
+    stable with dμ/ds > 0 and the stability index changes by one at each fold, so dμ/ds > 0
+    means an even index (a parity test, sound while at most one axisymmetric eigenvalue is
+    negative). Asymmetric stability: no negative eigenvalue of the ``cos nθ`` operators for
+    n = 1…N (a count, not a parity). Caps without a limit point are not bistable (0); NaN when
+    the path ended (step limit, stall) before a decision.
+    """
     n = hist.count.shape[0]
     out = np.zeros(n)
     mu = hist.z[:, :, -1]
-    tmu = hist.t[:, :, -1]
     steps = np.arange(mu.shape[1])
     valid = steps[None, :] < hist.count[:, None]
-    after = steps[None, 1:] > jf[:, None] + 1
+    after = steps[None, :-1] > jf[:, None]
     up = valid[:, 1:] & after & (mu[:, :-1] < 0) & (mu[:, 1:] >= 0) & has_fold[:, None]
-    rows = np.nonzero(up.any(axis=1))[0]
-    unknown = has_fold & (hist.state != TRACE_DONE)
-    out[unknown] = np.nan
+    found = up.any(axis=1)
+    out[has_fold & ~found & (hist.state != TRACE_DONE)] = np.nan
+    rows = np.nonzero(found)[0]
     if rows.size == 0:
         return out
     j = np.argmax(up[rows], axis=1)
-    zr, _, _, ok = refine_on_arc(pb, hist.z[rows, j], hist.t[rows, j], hist.step[rows, j + 1],
-                                 mu[rows, j], mu[rows, j + 1], rows, w, lambda z, t, ii: z[:, -1],
-                                 tol=tol, max_iter=8, iterations=30, s_tol=1e-6)
-    # axisymmetric stability by fold parity: an even number of sign changes of dμ/ds so far
-    changes = np.array([np.count_nonzero(np.diff(np.sign(tmu[r, : jj + 1])) != 0)
-                        for r, jj in zip(rows, j, strict=True)])
-    stable = ok & (changes % 2 == 0) & (tmu[rows, j] > 0)
-    if modes.size and ok.any() and not pb.apex[rows].any():
-        z_ref = np.zeros((rows.size, hist.z.shape[2]))
-        s0, _ = compute_mode_determinants(pb, z_ref, rows, modes)
-        s1, _ = compute_mode_determinants(pb, np.nan_to_num(zr), rows, modes)
-        stable &= (s0 == s1).all(axis=1)
+    zr, tr, _, ok = refine_on_arc(pb, hist.z[rows, j], hist.t[rows, j], hist.step[rows, j + 1],
+                                  mu[rows, j], mu[rows, j + 1], rows, w, lambda z, t, ii: z[:, -1],
+                                  tol=tol, max_iter=8, iterations=30, s_tol=1e-6)
+    stable = ok & (np.nan_to_num(tr[:, -1]) > 0)
+    if modes.size and ok.any():
+        unstable = count_unstable_modes(pb, np.nan_to_num(zr[ok]), rows[ok], modes)
+        stable[ok] &= unstable.sum(axis=1) == 0
     out[rows] = np.where(ok, stable.astype(float), np.nan)
     return out
 

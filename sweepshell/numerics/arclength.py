@@ -161,8 +161,9 @@ def correct_on_arc(problem: ContinuationProblem, anchor: np.ndarray, tangent: np
 
 
 def trace_paths(problem: ContinuationProblem, z0: np.ndarray, t0: np.ndarray, idx: np.ndarray,
-                w: np.ndarray, *, first_step: float, max_step: float, min_step: float,
-                max_points: int, max_angle_deg: float, tol: float, max_iter: int,
+                w: np.ndarray, *, first_step: float, max_step: float | np.ndarray, min_step: float,
+                max_points: int, max_angle_deg: float | np.ndarray, tol: float, max_iter: int,
+                max_drift: float = 0.2,
                 is_finished: Callable[[np.ndarray, np.ndarray, np.ndarray, np.ndarray], np.ndarray],
                 ) -> PathHistory:
     """Continue every path from ``z0`` along ``t0`` until ``is_finished`` says so.
@@ -176,12 +177,17 @@ def trace_paths(problem: ContinuationProblem, z0: np.ndarray, t0: np.ndarray, id
     w
         ``(m+1,)`` norm weights.
     first_step, max_step, min_step
-        Arclength steps in the weighted norm.
+        Arclength steps in the weighted norm. ``max_step`` (and ``max_angle_deg``) may be
+        ``(n,)`` arrays that ``is_finished`` changes as paths progress (read every step).
     max_points
         Capacity of the history; a path that fills it ends with ``TRACE_STEP_LIMIT``.
     max_angle_deg
         Largest accepted turn of the tangent per step; larger turns halve the step, so a
         sharp double fold is never stepped over.
+    max_drift
+        Largest accepted distance between the corrected point and the predictor, over the
+        step: a corrector that converges far off the predicted point may have jumped across a
+        fold pair whose end tangents look parallel.
     is_finished
         ``f(z_prev, z_new, t_new, rows) -> bool mask``: whether each path just accepted its
         last point (``rows`` are the path numbers 0…n-1).
@@ -197,7 +203,6 @@ def trace_paths(problem: ContinuationProblem, z0: np.ndarray, t0: np.ndarray, id
     count = np.ones(n, dtype=int)
     state = np.full(n, TRACE_RUNNING, dtype=np.int8)
     h = np.full(n, float(first_step))
-    cos_max = np.cos(np.radians(max_angle_deg))
     rows_all = np.arange(n)
     while True:
         act = np.nonzero(state == TRACE_RUNNING)[0]
@@ -211,6 +216,8 @@ def trace_paths(problem: ContinuationProblem, z0: np.ndarray, t0: np.ndarray, id
             cap = grow_to
         zc = zh[act, count[act] - 1]
         tc = th[act, count[act] - 1]
+        cos_max = np.cos(np.radians(np.broadcast_to(max_angle_deg, (n,))[act]))
+        step_max = np.broadcast_to(max_step, (n,))[act]
         z, conv, its, tn = correct_on_arc(problem, zc, tc, h[act], idx[act], w, tol=tol, max_iter=max_iter)
         ok = conv.copy()
         tn[~ok] = 0.0
@@ -219,7 +226,11 @@ def trace_paths(problem: ContinuationProblem, z0: np.ndarray, t0: np.ndarray, id
         dmu = z[:, -1] - zc[:, -1]
         # both ends rising (or falling) but the load moved the other way: a fold pair was skipped
         skipped = ((tc[:, -1] > 0) & (tn[:, -1] > 0) & (dmu < 0)) | ((tc[:, -1] < 0) & (tn[:, -1] < 0) & (dmu > 0))
-        ok &= (cosang > cos_max) & ~skipped
+        # the corrector landing far from the predictor means the path curves within the step
+        # more than the end tangents show (e.g. a fold pair inside it): shorten the step
+        with np.errstate(invalid="ignore"):
+            drift = np.sqrt(_wdot(z - zc - h[act][:, None] * tc, z - zc - h[act][:, None] * tc, w)) / h[act]
+        ok &= (cosang > cos_max) & ~skipped & (drift < max_drift)
         rej = act[~ok]
         h[rej] *= 0.5
         state[rej[h[rej] < min_step]] = TRACE_STALLED
@@ -232,8 +243,8 @@ def trace_paths(problem: ContinuationProblem, z0: np.ndarray, t0: np.ndarray, id
             count[acc] += 1
             grow = np.where(its[ok] <= 2, 1.6, np.where(its[ok] <= 3, 1.25, np.where(its[ok] <= 5, 1.0, 0.7)))
             # a strongly turning path gets shorter steps before the angle test rejects them
-            grow = np.where(cosang[ok] < 0.5 * (1.0 + cos_max), np.minimum(grow, 0.8), grow)
-            h[acc] = np.minimum(h[acc] * grow, max_step)
+            grow = np.where(cosang[ok] < 0.5 * (1.0 + cos_max[ok]), np.minimum(grow, 0.8), grow)
+            h[acc] = np.minimum(h[acc] * grow, step_max[ok])
             fin = is_finished(zc[ok], z[ok], tn[ok], rows_all[acc])
             state[acc[fin]] = TRACE_DONE
             full = (count[acc] >= max_points) & ~fin

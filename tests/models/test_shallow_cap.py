@@ -112,7 +112,7 @@ def test_limit_pressure_converges_spectrally_with_resolution():
     assert err[-1] < 1e-5
 
 
-@pytest.mark.parametrize("lam", [5.75, 8.75, 11.75, 15.25])
+@pytest.mark.parametrize("lam", [5.75, 8.75, 11.75, 15.03, 15.25])
 def test_first_limit_point_is_not_stepped_over_near_fold_jumps(lam):
     # near these λ the first pressure maximum moves to another fold (steep drops of the limit-pressure
     # curve); a continuation with 4x finer turning control must find the same first maximum
@@ -131,3 +131,60 @@ def test_apex_force_initial_stiffness_is_reissner_like_and_path_is_traced():
     path = res.outputs["load_path"][0]
     assert path.shape == (32, 2)
     assert path[0, 0] == 0.0 and np.nanmax(path[:, 0]) >= res.outputs["critical_load"][0] * (1 - 1e-9)
+
+
+@pytest.mark.parametrize("lam", [9.0, 19.5])
+def test_first_bifurcation_does_not_depend_on_the_path_steps(lam):
+    # several wave numbers cross zero within one long step here (n = 3…7 at λ = 9); all are refined and
+    # the earliest kept, so a path with 4x finer turning control gives the same critical state
+    bold = make_model("shallow_cap", {"check_bistability": False})
+    careful = make_model("shallow_cap", {"check_bistability": False, "max_turn_deg": 3.0})
+    a = bold.solve_batch(make_inputs([lam]))
+    b = careful.solve_batch(make_inputs([lam]))
+    assert a.outputs["critical_wavenumber"][0] == b.outputs["critical_wavenumber"][0]
+    assert a.outputs["critical_load"][0] == pytest.approx(b.outputs["critical_load"][0], rel=1e-6)
+
+
+def test_unstable_mode_count_has_the_parity_of_the_determinant_sign(rng):
+    # the determinant is the product of the eigenvalues (edge rows eliminated exactly), so an odd count of
+    # negative eigenvalues must flip its sign relative to the unloaded cap; common practice, no source
+    from sweepshell.models.shallow_cap_modes import compute_mode_determinants, count_unstable_modes
+
+    k = 6
+    pb = make_problem(np.full(k, 12.0), np.full(k, NU), np.array([True, False] * 3), np.array([True, True, False] * 2),
+                      np.zeros(k, dtype=bool), np.zeros(k), np.full(k, 2.0), 24)
+    idx = np.arange(k)
+    modes = np.arange(1, 13)
+    z = np.zeros((k, 2 * 24 + 1))
+    z[:, :24] = rng.uniform(0.0, 0.6, (k, 1)) * pb.grid.x[None, :] ** 2
+    z[:, 24:48] = rng.uniform(0.5, 1.2, (k, 1)) * pb.grid.x[None, :]
+    s0, _ = compute_mode_determinants(pb, np.zeros_like(z), idx, modes)
+    s1, _ = compute_mode_determinants(pb, z, idx, modes)
+    count = count_unstable_modes(pb, z, idx, modes)
+    assert count.sum() > 0  # the test states do have unstable modes
+    np.testing.assert_array_equal(count % 2 == 1, s0 != s1)
+    assert count_unstable_modes(pb, np.zeros_like(z), idx, modes).sum() == 0
+
+
+def test_shallow_caps_are_never_bistable():
+    # common practice, no source: a cap that does not snap, or snaps from a shallow shape, has no second
+    # stable state at zero load; all four edge conditions
+    model = make_model("shallow_cap", {"asymmetric_modes": 8, "path_samples": 8})
+    lam = np.array([2.0, 4.0, 5.0] * 4)
+    edge = np.repeat(["clamped", "pinned"], 6)
+    inplane = np.tile(np.repeat(["immovable", "sliding"], 3), 2)
+    res = model.solve_batch(make_inputs(lam, edge=edge, edge_inplane=inplane))
+    np.testing.assert_array_equal(res.outputs["bistable"], np.zeros(lam.size))
+
+
+def test_pinned_deep_cap_is_bistable_with_a_near_mirror_inverted_state():
+    # Pogorelov 1988 (mirror buckling): a deep cap inverts into nearly its mirror image, apex deflection 2H.
+    # The stable zero-load state of a pinned, immovable cap at λ = 10 is that state within 2 % (the
+    # edge boundary layer makes up the rest); this model's result, checked against the geometry only
+    model = make_model("shallow_cap", {"asymmetric_modes": 30, "path_samples": 256})
+    res = model.solve_batch(make_inputs([10.0], edge="pinned"))
+    assert res.outputs["bistable"][0] == 1.0
+    load, deflection = res.outputs["load_path"][0].T
+    j = np.nonzero((load[:-1] < 0) & (load[1:] >= 0))[0][-1]  # the path ends just past the zero-load state
+    at_zero = deflection[j] - load[j] * (deflection[j + 1] - deflection[j]) / (load[j + 1] - load[j])
+    assert at_zero == pytest.approx(10.0**2 / (2 * C), rel=0.02)
