@@ -86,19 +86,32 @@ def _cmd_query(args: argparse.Namespace) -> int:
     if args.format == "json":
         from sweepshell.query.table import to_records
 
-        json.dump(to_records(table), sys.stdout, indent=1, allow_nan=False)
-        sys.stdout.write("\n")
+        _emit(json.dumps(to_records(table), indent=1, allow_nan=False) + "\n")
     elif args.format == "csv":
-        _write_csv(table, sys.stdout)
+        buffer = io.StringIO()
+        _write_csv(table, buffer)
+        _emit(buffer.getvalue())
     else:
         shown = table if args.limit is not None else table.iloc[:_TABLE_LIMIT]
-        sys.stdout.write(_format_table(shown))
+        _emit(_format_table(shown))
         if len(shown) < len(table):
             print(f"({len(table) - len(shown)} more rows; use --limit N or --format csv)", file=sys.stderr)
         print(f"{len(table)} point{'s' if len(table) != 1 else ''}", file=sys.stderr)
     if shows_outputs and len(table):
         print(CAUTION, file=sys.stderr)
     return 0
+
+
+def _emit(text: str) -> None:
+    """Write to stdout; a reader that stops early (``| head``) is not an error."""
+    import os
+
+    try:
+        sys.stdout.write(text)
+        sys.stdout.flush()
+    except BrokenPipeError:
+        # stop Python from complaining again when it flushes stdout at exit
+        os.dup2(os.open(os.devnull, os.O_WRONLY), sys.stdout.fileno())
 
 
 def _cell(value: Any, *, precise: bool) -> str:
@@ -249,24 +262,24 @@ def _cmd_boundary(args: argparse.Namespace) -> int:
         print(f"fixed {cut.describe()}", file=sys.stderr)
     print(f"{len(boundary.lines)} polyline(s), {boundary.n_vertices} vertices, {boundary.evaluations} model "
           f"evaluations", file=sys.stderr)
-    out = open(args.out, "w", newline="") if args.out else sys.stdout  # noqa: SIM115
-    try:
-        if args.format == "json":
-            record = boundary_to_records(boundary, {"model": ds.attrs.get("model"),
-                                                    "model_version": ds.attrs.get("model_version"),
-                                                    "fixed": view.fixed_values})
-            json.dump(record, out, indent=1)
-            out.write("\n")
-        else:
-            writer = csv.writer(out, lineterminator="\n")
-            writer.writerow(["line", x, y, "bracket_axis", "bracket_low", "bracket_high"])
-            for i, line in enumerate(boundary.lines):
-                for k in range(len(line.x)):
-                    writer.writerow([i, repr(float(line.x[k])), repr(float(line.y[k])), (x, y)[int(line.along[k])],
-                                     repr(float(line.low[k])), repr(float(line.high[k]))])
-    finally:
-        if args.out:
-            out.close()
+    buffer = io.StringIO()
+    if args.format == "json":
+        record = boundary_to_records(boundary, {"model": ds.attrs.get("model"),
+                                                "model_version": ds.attrs.get("model_version"),
+                                                "fixed": view.fixed_values})
+        buffer.write(json.dumps(record, indent=1) + "\n")
+    else:
+        writer = csv.writer(buffer, lineterminator="\n")
+        writer.writerow(["line", x, y, "bracket_axis", "bracket_low", "bracket_high"])
+        for i, line in enumerate(boundary.lines):
+            for k in range(len(line.x)):
+                writer.writerow([i, repr(float(line.x[k])), repr(float(line.y[k])), (x, y)[int(line.along[k])],
+                                 repr(float(line.low[k])), repr(float(line.high[k]))])
+    if args.out:
+        Path(args.out).write_text(buffer.getvalue())
+        print(args.out)
+    else:
+        _emit(buffer.getvalue())
     return 0
 
 

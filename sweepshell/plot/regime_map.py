@@ -10,6 +10,7 @@ vertices narrowed by the stored off-grid points (no new model evaluations are ma
 
 from __future__ import annotations
 
+import logging
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
 from typing import TYPE_CHECKING, Any
@@ -46,6 +47,8 @@ if TYPE_CHECKING:
     from matplotlib.figure import Figure
 
 __all__ = ["MapResult", "draw_output_lines", "draw_regime_map"]
+
+log = logging.getLogger(__name__)
 
 _MAX_CELLS = 250_000      # above this many grid cells (or with off-grid points) the fill is rasterised
 _RASTER = 420             # raster size per axis (about the axes' size in pixels at 150 dpi / 1.5)
@@ -210,7 +213,7 @@ def draw_regime_map(ds: xr.Dataset, x: str, y: str, *, color: str | None = None,
     ax.set_ylabel(axis_label(y, dict(view.ds[y].attrs)))
     ax.tick_params(direction="out", labelsize=9)
     title = "Regime map" if not continuous else f"{str(color).replace('_', ' ')} with regime boundaries"
-    ax.set_title(title_lines(dict(ds.attrs), title, _subtitle(ds, view)), fontsize=10, loc="left")
+    ax.set_title(title_lines(dict(ds.attrs), title, _subtitle(ds, view)), fontsize=9.5, loc="left")
     if handles and continuous:  # right of the colour bar
         fig.legend(handles=handles, loc="upper left", bbox_to_anchor=(0.79, 0.88), fontsize=8.5, frameon=False,
                    borderaxespad=0.0)
@@ -244,7 +247,16 @@ def _subtitle(ds: xr.Dataset, view: SweepSlice) -> str:
         fixed = json.loads(ds.attrs.get(ATTR.fixed, "{}"))
     except ValueError:
         fixed = {}
-    parts += [f"{k} = {v:g}" if isinstance(v, float) else f"{k} = {v}" for k, v in fixed.items() if v is not None]
+    defaults: dict[str, Any] = {}
+    try:
+        from sweepshell.models import get_model
+
+        defaults = {p.name: p.default for p in get_model(str(ds.attrs.get(ATTR.model))).parameters}
+    except Exception:  # an unknown model: list every fixed parameter
+        log.debug("model of the store not registered; listing every fixed parameter")
+    # parameters left at the model's default are omitted: the report lists them all
+    parts += [f"{k} = {v:g}" if isinstance(v, float) else f"{k} = {v}" for k, v in fixed.items()
+              if v is not None and not (k in defaults and defaults[k] == v)]
     return ", ".join(parts)
 
 

@@ -89,7 +89,13 @@ def add_caution_footer(fig: Figure, width_chars: int = 125) -> None:
 def title_lines(attrs: dict[str, Any], what: str, cut: str = "") -> str:
     """Return the two-line title: ``what — model version`` and the fixed values."""
     head = f"{what} — {attrs.get('model', '?')} {attrs.get('model_version', '')}".rstrip()
-    return head + (f"\n{cut}" if cut else "")
+    if not cut:
+        return head
+    # many fixed parameters: at most two wrapped lines, the rest elided (the report lists them all)
+    lines = textwrap.wrap(cut, 84, break_on_hyphens=False)
+    if len(lines) > 2:
+        lines = [lines[0], textwrap.shorten(" ".join(lines[1:]), 82, placeholder=" …")]
+    return head + "\n" + "\n".join(lines)
 
 
 def save_figure(fig: Figure, path: str) -> None:
