@@ -291,8 +291,11 @@ def _register_path(subparsers: Any) -> None:
                     "reported); axes not named take their first value.")
     p.add_argument("store", metavar="STORE")
     p.add_argument("--at", action="append", metavar="NAME=VALUE[,NAME=VALUE...]", help="one point (repeatable)")
-    p.add_argument("--y", metavar="OUTPUT", help="path output to draw (default: the first)")
-    p.add_argument("--x", metavar="OUTPUT", help="path output along the horizontal (default: the sample index)")
+    p.add_argument("--y", metavar="OUTPUT[:COMPONENT]", help="path output to draw, with the component for outputs "
+                   "stored in parts, e.g. load_path:load (default: the first path output, its load against its "
+                   "other component)")
+    p.add_argument("--x", metavar="OUTPUT[:COMPONENT]", help="path output along the horizontal (default: the "
+                   "other component, or the sample index)")
     p.add_argument("--out", metavar="FILE", help="FILE.png or FILE.svg (default: <store>-path.png)")
     p.set_defaults(func=_cmd_path)
 

@@ -78,6 +78,23 @@ def _map_views(ds: xr.Dataset, info: Any) -> list[tuple[str, str, dict[str, str]
                                                                                        _MAX_MAPS)]
 
 
+def _line_plots(ds: xr.Dataset, info: Any) -> str:
+    """Line plots of the first outputs for stores with a single numeric axis."""
+    from sweepshell.plot.regime_map import draw_output_lines
+
+    numeric = [a for a in info.axes if ds[a].dtype.kind in "fiu" and ds.sizes[a] > 1]
+    if not numeric or not info.scalar_outputs:
+        return "<p>The store has no numeric axis with several values; no figure.</p>"
+    preferred = [o for o in ("critical_load", "knockdown") if o in info.scalar_outputs]
+    outputs = (preferred or list(info.scalar_outputs))[:2]
+    html_parts = ["<p class='muted'>One numeric axis: outputs drawn against it instead of a regime map.</p>"]
+    for output in outputs:
+        result = draw_output_lines(ds, numeric[0], output)
+        html_parts.append(f"<figure><img alt='{html.escape(output)} against {html.escape(numeric[0])}' "
+                          f"src='data:image/png;base64,{_png(result.figure)}'></figure>")
+    return "\n".join(html_parts)
+
+
 def write_report(ds: xr.Dataset, store_path: str) -> str:
     """Return the HTML report of a store as one self-contained string."""
     from sweepshell.plot.regime_map import draw_regime_map
@@ -118,7 +135,7 @@ def write_report(ds: xr.Dataset, store_path: str) -> str:
     parts.append("<h2>Regime maps</h2>")
     views = _map_views(ds, info)
     if not views:
-        parts.append("<p>The store has fewer than two numeric axes with several values; no map.</p>")
+        parts.append(_line_plots(ds, info))
     boundary_sections = []
     for x, y, at in views:
         result = draw_regime_map(ds, x, y, at=at, contour=None)

@@ -104,3 +104,48 @@ def test_path_errors_are_one_line(store, capsys):
         assert main(["path", str(store), *argv]) == 2, argv
         out, err = capsys.readouterr()
         assert out == "" and err.count("\n") == 1
+
+
+ONE_AXIS = """\
+name: column1
+model: winkler_column
+fixed: {end: pinned, load_ratio: 5.0}
+axes:
+  stiffness_ratio: {logspace: [-1, 3, 9]}
+"""
+
+
+def test_report_of_a_one_axis_store_draws_outputs_against_the_axis(tmp_path, capsys):
+    store = make_column_store(tmp_path, "column1", sweep_text=ONE_AXIS)
+    out = tmp_path / "one.html"
+    assert main(["report", str(store), "--out", str(out)]) == 0
+    parser = Collector()
+    parser.feed(out.read_text(encoding="utf-8"))
+    assert [img["alt"] for img in parser.images] == ["critical_load against stiffness_ratio"]
+
+
+def test_path_components_default_to_load_against_the_other_component():
+    import xarray as xr
+
+    from sweepshell.plot.paths import draw_load_paths
+
+    lam = np.array([4.0, 8.0])
+    sample = np.linspace(0.0, 1.0, 5)
+    path = np.stack([np.stack([2 * sample * k, sample * k], axis=1) for k in (1.0, 2.0)])  # load = 2 deflection
+    ds = xr.Dataset(
+        {"load_path": (("shell_parameter", "path_sample", "path_component"), path, {"units": "1"}),
+         "status": (("shell_parameter",), np.array([1, 1], dtype=np.uint8)),
+         "regime": (("shell_parameter",), np.array([0, 1], dtype=np.int8))},
+        coords={"shell_parameter": ("shell_parameter", lam, {"symbol": "λ"}),
+                "path_component": ("path_component", np.array(["load", "deflection"], dtype=object))},
+        attrs={"model": "made_up", "model_version": "0", "regimes": ["stable", "limit_point"]})
+    result = draw_load_paths(ds, [{"shell_parameter": "4"}, {"shell_parameter": "8"}])
+    ax = result.figure.axes[0]
+    first, second = ax.get_lines()[:2]
+    np.testing.assert_allclose(first.get_ydata(), 2 * first.get_xdata())
+    assert second.get_xdata()[-1] == pytest.approx(2.0)
+    assert ax.get_xlabel().startswith("deflection") and ax.get_ylabel().startswith("load")
+    assert first.get_label() == "λ = 4  (stable)" and second.get_label() == "λ = 8  (limit point)"
+    swapped = draw_load_paths(ds, [{"shell_parameter": "8"}], y="load_path:deflection", x="load_path:load")
+    line = swapped.figure.axes[0].get_lines()[0]
+    np.testing.assert_allclose(line.get_xdata(), 2 * line.get_ydata())
