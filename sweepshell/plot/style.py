@@ -49,9 +49,9 @@ def regime_colors(n: int, *, fill: bool = True) -> list[Any]:
 
 
 def _mathtext(symbol: str) -> str:
-    if not symbol.isascii() or not any(ch in symbol for ch in "_^"):
+    if not any(ch in symbol for ch in "_^") or any(ch in symbol for ch in "$\\{}"):
         return symbol
-    return "$" + re.sub(r"_([A-Za-z0-9]+)", r"_{\1}", symbol) + "$"
+    return "$" + re.sub(r"_(\w+)", r"_{\1}", symbol) + "$"
 
 
 def axis_label(name: str, attrs: dict[str, Any]) -> str:
