@@ -106,3 +106,45 @@ def test_bad_requests_and_other_model_versions_are_refused(store, capsys, monkey
     assert main(["boundary", str(store), "--between", "stable", "buckled"]) == 2
     assert "winkler_column 1.0" in capsys.readouterr().err
     assert read_points(store) is None
+
+
+THREE_AXES = """\
+name: column3
+model: winkler_column
+axes:
+  stiffness_ratio: {logspace: [-1, 3, 13]}
+  load_ratio: {linspace: [0.5, 40, 11]}
+  end: [pinned, weak]
+"""
+
+
+def test_boundary_on_a_view_with_a_named_axis_fixed(tmp_path):
+    store = make_column_store(tmp_path, "column3", sweep_text=THREE_AXES)
+    ds = open_sweep(store)
+    boundary, view = find_boundary(ds, "stiffness_ratio", "load_ratio", ("stable", "buckled"),
+                                   at={"end": "weak"}, bisections=8)
+    assert view.fixed_values == {"end": "weak"}
+    line = boundary.lines[0]
+    along_load = line.along == 1
+    # the made-up 'weak' end halves the critical load of the pinned column
+    err = np.abs(line.y[along_load] - 0.5 * exact(line.x[along_load]))
+    assert along_load.sum() > 3 and np.all(err <= 3.95 / 2 ** 9 * (1 + 1e-9))
+    points = read_points(store)
+    assert set(points["end"].tolist()) == {"weak"}
+    table = open_sweep(store).sweep.query('source == "points" and end == "weak"', fields=["critical_load"])
+    assert len(table) == boundary.evaluations
+    np.testing.assert_allclose(table.critical_load, 0.5 * exact(table.stiffness_ratio))
+
+
+def test_pending_points_are_left_out_and_drawn_as_not_computed(store, capsys):
+    import zarr
+
+    group = zarr.open_group(str(store), mode="r+")
+    group["status"][:2, :] = 0  # two rows never computed (a run stopped early)
+    ds = open_sweep(store)
+    assert len(ds.sweep.query(all_points=True)) == 300 - 30
+    from sweepshell.plot.regime_map import draw_regime_map
+
+    fig = draw_regime_map(ds, "stiffness_ratio", "load_ratio").figure
+    labels = [t.get_text() for t in fig.axes[0].get_legend().get_texts()]
+    assert "not computed yet" in labels
