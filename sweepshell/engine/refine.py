@@ -144,12 +144,15 @@ def _refine_view(view: Any, x_axis: str, y_axis: str, levels: int, evaluator: An
     step = 2 ** levels
     nx, ny = codes.shape
     gi, gj = np.meshgrid(np.arange(nx) * step, np.arange(ny) * step, indexing="ij")
-    state.nodes.update(zip(zip(gi.ravel().tolist(), gj.ravel().tolist(), strict=True),
-                           codes.ravel().tolist(), strict=True))
     corners = np.stack([codes[:-1, :-1].ravel(), codes[1:, :-1].ravel(), codes[:-1, 1:].ravel(),
                         codes[1:, 1:].ravel()], axis=1)
     mixed = _mixed(corners)
     cells = np.stack([gi[:-1, :-1].ravel()[mixed], gj[:-1, :-1].ravel()[mixed]], axis=1)
+    # only the corners of mixed cells are ever looked up: a large grid stays cheap to refine
+    ci, cj = np.nonzero(mixed.reshape(nx - 1, ny - 1))
+    for di, dj in ((0, 0), (1, 0), (0, 1), (1, 1)):
+        state.nodes.update(zip(zip(((ci + di) * step).tolist(), ((cj + dj) * step).tolist(), strict=True),
+                               codes[ci + di, cj + dj].tolist(), strict=True))
     size = step
     for level in range(1, levels + 1):
         if cells.size == 0:
