@@ -65,9 +65,13 @@ def register(subparsers: Any) -> None:
 
 
 def _open(store: str) -> Any:
-    from sweepshell.store.reader import open_sweep
+    """Open a store for reading without dask (lazy numpy indexing): importing dask.array costs seconds."""
+    import xarray as xr
 
-    return open_sweep(store)
+    from sweepshell.store.reader import check_readable_store
+
+    check_readable_store(store)
+    return xr.open_zarr(store, chunks=None, consolidated=True, zarr_format=3)
 
 
 def _cmd_query(args: argparse.Namespace) -> int:
