@@ -1,5 +1,5 @@
 """``python -m sweepshell`` is the same as the ``sweepshell`` command."""
 
-from sweepshell.cli.main import main
+from sweepshell.cli.main import entry
 
-raise SystemExit(main())
+entry()

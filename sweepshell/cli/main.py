@@ -12,6 +12,7 @@ import importlib
 import importlib.util
 import json
 import logging
+import os
 import sys
 from collections.abc import Sequence
 from typing import NoReturn
@@ -169,5 +170,20 @@ def main(argv: Sequence[str] | None = None) -> int:
     return code
 
 
+def entry() -> None:
+    """Console-script entry: run :func:`main` and exit with its code.
+
+    After an interrupt the store is already consistent (a block's status is written last), so the process leaves
+    at once with 130 instead of letting library shutdown hooks (dask, zarr's event-loop thread) see a second
+    interrupt and turn the exit code into a signal death.
+    """
+    code = main()
+    if code == EXIT_INTERRUPTED:
+        sys.stdout.flush()
+        sys.stderr.flush()
+        os._exit(EXIT_INTERRUPTED)
+    raise SystemExit(code)
+
+
 if __name__ == "__main__":  # pragma: no cover
-    raise SystemExit(main())
+    entry()

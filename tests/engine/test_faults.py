@@ -89,8 +89,10 @@ def test_sigkill_at_random_instants_then_resume_is_identical(workdir, rng):
 
 def test_interrupt_exits_130_and_the_next_run_continues(workdir):
     sweep = write_sweep(workdir, SLOW_SWEEP)
+    store = workdir / "results" / "slow_column.zarr"
     proc = _start(sweep, workdir, "executor.workers=1")
-    time.sleep(2.5)
+    # interrupt mid-run: once the first blocks are final
+    assert _wait_for(lambda: store.exists() and bool(np.any(open_sweep(store).status.values)), proc, timeout=120)
     proc.send_signal(signal.SIGINT)
     _, err = proc.communicate(timeout=120)
     assert proc.returncode == 130, err.decode()
