@@ -24,6 +24,7 @@ CAUTION = (
 
 def __getattr__(name: str) -> Any:
     if name == "open_sweep":
+        import sweepshell.query.accessor  # noqa: F401  (registers the ``ds.sweep`` accessor)
         from sweepshell.store.reader import open_sweep
         return open_sweep
     if name == "run_sweep":

@@ -96,7 +96,7 @@ def _cmd_run(args: argparse.Namespace) -> int:
         print(plan.resolved_yaml, end="")
         return EXIT_OK
     from sweepshell.engine.observers import make_observer
-    from sweepshell.engine.runner import SweepInterrupted, run_plan
+    from sweepshell.engine.runner import SweepInterrupted, refine_plan_store, run_plan
 
     kind = {"lines": "lines", "bar": "bar", "none": "none"}.get(args.progress, "auto")
     observer = make_observer(kind)
@@ -107,6 +107,8 @@ def _cmd_run(args: argparse.Namespace) -> int:
               file=sys.stderr)
         return EXIT_INTERRUPTED
     print(summary.to_line())
+    if plan.refine and summary.complete:
+        print(refine_plan_store(plan).to_line())
     return EXIT_OK
 
 

@@ -32,7 +32,7 @@ from sweepshell.models.base import SweepModel
 __all__ = ["find_config_dir", "load_plan", "parse_overrides", "resolve_sweep_file"]
 
 SWEEP_KEYS = ("name", "model", "settings", "fixed", "axes", "store", "executor", "block", "limits",
-              "description", "reuse")
+              "description", "reuse", "refine")
 EXECUTOR_KINDS = ("local", "threads", "distributed")
 _NAME_RE = re.compile(r"^[A-Za-z0-9][A-Za-z0-9_.-]*$")
 
@@ -295,6 +295,7 @@ def build_plan(cfg: Mapping[str, Any], *, source: str = "<dict>") -> SweepPlan:
     reuse = cfg.get("reuse", True)
     if not isinstance(reuse, bool):
         raise ConfigError(f"reuse={reuse!r} must be true or false", field="reuse", value=reuse)
+    refine = _make_refine(cfg.get("refine"), [a.name for a in axes])
     store = cfg.get("store") or {}
     store_path = store.get("path") or os.path.join("results", f"{name}.zarr")
     resolved = {
@@ -307,11 +308,13 @@ def build_plan(cfg: Mapping[str, Any], *, source: str = "<dict>") -> SweepPlan:
         "executor": {"kind": executor.kind, "workers": executor.workers, "address": executor.address},
         "block": {"points": block_points},
         "limits": {"max_points": max_points},
+        "reuse": reuse,
+        "refine": refine,
     }
     return SweepPlan(
         name=name, model=model_name, model_version=model_cls.version, settings=settings, fixed=fixed,
         axes=tuple(axes), store_path=str(store_path), executor=executor, block_points=block_points,
-        resolved_yaml=yaml.safe_dump(resolved, sort_keys=False), reuse=reuse,
+        resolved_yaml=yaml.safe_dump(resolved, sort_keys=False), reuse=reuse, refine=refine,
     )
 
 
@@ -412,6 +415,23 @@ def _expand_form(where: str, form: str, args: Any) -> list[float]:
         raise ConfigError(f"{where}: logspace exponents [{a:g}, {b:g}] overflow; use base-10 exponents within "
                           "±300", field=where, value=args)
     return [float(v) for v in np.logspace(a, b, int(c))]
+
+
+def _make_refine(spec: Any, axis_names: list[str]) -> dict[str, Any] | None:
+    if spec is None or spec is False:
+        return None
+    if not isinstance(spec, dict) or set(spec) - {"levels", "x", "y"}:
+        raise ConfigError(f"refine={spec!r} is not a refinement; use refine: {{levels: 3, x: AXIS, y: AXIS}} "
+                          "(x and y optional)", field="refine", value=spec)
+    levels = spec.get("levels", 3)
+    if isinstance(levels, bool) or not isinstance(levels, int) or not 1 <= levels <= 12:
+        raise ConfigError(f"refine.levels={levels!r} must be a whole number from 1 to 12", field="refine.levels",
+                          value=levels)
+    for key in ("x", "y"):
+        if spec.get(key) is not None and spec[key] not in axis_names:
+            raise ConfigError(f"refine.{key}={spec[key]!r} is not an axis of this sweep; use one of "
+                              f"{', '.join(axis_names)}", field=f"refine.{key}", value=spec[key])
+    return {"levels": levels, "x": spec.get("x"), "y": spec.get("y")}
 
 
 def _make_executor(spec: Mapping[str, Any]) -> ExecutorSpec:

@@ -89,6 +89,9 @@ class SweepPlan:
         The fully resolved sweep as YAML (recorded in the store).
     reuse
         Whether points already computed in compatible stores beside this one are copied.
+    refine
+        ``None``, or ``{"levels": L, "x": AXIS|None, "y": AXIS|None}``: after the grid is complete, evaluate
+        new points along regime boundaries, level by level (see :mod:`sweepshell.engine.refine`).
     """
 
     name: str
@@ -102,6 +105,7 @@ class SweepPlan:
     block_points: int = 1024
     resolved_yaml: str = ""
     reuse: bool = True
+    refine: dict[str, Any] | None = None
 
     @property
     def shape(self) -> tuple[int, ...]:

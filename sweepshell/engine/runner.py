@@ -34,7 +34,8 @@ from sweepshell.store.writer import (
     store_block_shape,
 )
 
-__all__ = ["RunSummary", "SweepInterrupted", "open_client", "prepare_store", "run_plan", "run_sweep"]
+__all__ = ["RunSummary", "SweepInterrupted", "open_client", "prepare_store", "refine_plan_store", "run_plan",
+           "run_sweep"]
 
 log = logging.getLogger(__name__)
 
@@ -274,4 +275,15 @@ def run_sweep(sweep: str | SweepPlan, overrides: Sequence[str] = (), *, observer
         from sweepshell.config.loader import load_plan
 
         plan = load_plan(sweep, overrides, config_dir=config_dir)
-    return run_plan(plan, observer=observer)
+    summary = run_plan(plan, observer=observer)
+    if plan.refine and summary.complete:
+        refine_plan_store(plan)
+    return summary
+
+
+def refine_plan_store(plan: SweepPlan) -> Any:
+    """Run the refinement a plan asks for on its (complete) store; return the refinement summary."""
+    from sweepshell.engine.refine import refine_store
+
+    assert plan.refine is not None
+    return refine_store(plan.store_path, x=plan.refine["x"], y=plan.refine["y"], levels=plan.refine["levels"])

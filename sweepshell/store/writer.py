@@ -204,7 +204,10 @@ def create_store(plan: SweepPlan, model: SweepModel, block_shape: Sequence[int])
             attrs["symbol"] = param.symbol
         coords[axis.name] = xr.Variable((axis.name,), axis.to_array(), attrs)
     for dim, coord in model.extra_coords().items():
-        coords[dim] = xr.Variable((dim,), np.asarray(coord))
+        values = np.asarray(coord)
+        if values.dtype.kind == "U":  # fixed-width strings are an unstable zarr 3 extension; object strings are not
+            values = values.astype(object)
+        coords[dim] = xr.Variable((dim,), values)
     data_vars: dict[str, xr.Variable] = {}
     encoding: dict[str, dict[str, Any]] = {}
     compressors = (ZstdCodec(level=3, checksum=True),)

@@ -148,3 +148,20 @@ def test_finished_store_lists_cleanly_without_consolidated_metadata(workdir):
         assert "status" in set(group.array_keys())
         ds = xr.open_zarr(workdir / "results" / "column.zarr", consolidated=False)
     assert ds.status.dtype == np.uint8
+
+
+def test_sweep_option_refine_adds_points_along_the_boundary(workdir, capsys):
+    sweep = write_sweep(workdir, COLUMN_SWEEP + "refine: {levels: 2}\n")
+    assert main(["run", str(sweep), "--progress", "none"]) == 0
+    out = capsys.readouterr().out.splitlines()
+    assert out[0].startswith("computed 300 points") and out[1].startswith("refined 1 view(s) of stiffness_ratio x")
+    from sweepshell.query.table import read_store_points
+
+    points = read_store_points(open_sweep(workdir / "results" / "column.zarr"))
+    assert points is not None and len(next(iter(points.values()))) > 0
+
+
+def test_refine_option_is_validated(workdir, capsys):
+    sweep = write_sweep(workdir, COLUMN_SWEEP + "refine: {levels: 2, x: thickness}\n")
+    assert main(["run", str(sweep)]) == 2
+    assert "refine.x='thickness' is not an axis of this sweep" in capsys.readouterr().err
