@@ -26,7 +26,9 @@ def make_inputs(lam: np.ndarray) -> dict[str, np.ndarray]:
     n = lam.size
     out = {"shell_parameter": lam, "poisson_ratio": np.full(n, NU), "edge": np.array(["clamped"] * n),
            "edge_inplane": np.array(["immovable"] * n), "load": np.array(["pressure"] * n),
-           "dimple_amplitude": np.zeros(n), "dimple_width": np.full(n, 2.0)}
+           "dimple_amplitude": np.zeros(n), "dimple_width": np.full(n, 2.0),
+           "mismatch_strain": np.full(n, -8.0), "mismatch_radius": np.full(n, 0.5),
+           "mismatch_region": np.array(["disc"] * n)}
     for k in ("thickness", "sphere_radius", "base_radius", "youngs_modulus"):
         out[k] = np.full(n, np.nan)
     return out

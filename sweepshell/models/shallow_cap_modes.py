@@ -149,7 +149,11 @@ def compute_mode_coefficients(problem: CapPathProblem, z: np.ndarray, idx: np.nd
     g = problem.grid
     x = g.x
     lam2 = problem.lam[idx] ** 2
-    y, fs, _, p = problem.split(z, idx)
+    y, _, _, p = problem.split(z, idx)
+    # the mismatch strain's stress F_p is kinked at the region's edge: its slope is exact, not
+    # a derivative of the interpolant
+    fs, dfs_eigen = problem.total_stress(z, idx)
+    dfs = (z[:, g.size:2 * g.size] @ g.d1[-1].T) + dfs_eigen
     kap = problem.kappa[idx]
     ybar = y + (kap * p)[:, None] * problem.sigma[None, :]
     d1t = g.d1[-1].T
@@ -157,7 +161,7 @@ def compute_mode_coefficients(problem: CapPathProblem, z: np.ndarray, idx: np.nd
     imp = problem.imperfection[idx]
     dimp = imp @ d1t
     return ModeCoefficients(
-        f=lam2[:, None] * fs, df=lam2[:, None] * (fs @ d1t),
+        f=lam2[:, None] * fs, df=lam2[:, None] * dfs,
         zeta1=lam2[:, None] * (-(x[None, :] - imp) + ybar),
         zeta2=lam2[:, None] * (-(1.0 - dimp) + dybar),
         nu=problem.nu[idx], clamped=problem.clamped[idx], immovable=problem.immovable[idx])

@@ -19,7 +19,7 @@ from typing import Any
 import numpy as np
 
 from sweepshell.models.base import Status
-from sweepshell.models.shallow_cap_kernels import CapPathProblem
+from sweepshell.models.shallow_cap_kernels import CapPathProblem, eigenstrain_stress
 from sweepshell.models.shallow_cap_modes import compute_mode_determinants, count_unstable_modes
 from sweepshell.numerics.arclength import (
     TRACE_DONE,
@@ -53,16 +53,39 @@ class CapSolution:
 
 
 def make_problem(lam: np.ndarray, nu: np.ndarray, clamped: np.ndarray, immovable: np.ndarray,
-                 apex: np.ndarray, amplitude: np.ndarray, width: np.ndarray, nodes: int) -> CapPathProblem:
-    """Return the batched axisymmetric problem of the given caps."""
+                 apex: np.ndarray, amplitude: np.ndarray, width: np.ndarray, nodes: int, *,
+                 mismatch: np.ndarray | None = None, mismatch_strain: np.ndarray | None = None,
+                 mismatch_radius: np.ndarray | None = None, annulus: np.ndarray | None = None,
+                 step_width: float = 0.1) -> CapPathProblem:
+    """Return the batched axisymmetric problem of the given caps.
+
+    The mismatch arrays (all or none) select the mismatch load per cap: its direction is the
+    sign of ``mismatch_strain`` (over ε_cl; negative = shrinkage), its region the disc
+    ``x < mismatch_radius`` or, where ``annulus``, the ring outside it, its edge smoothed over
+    ``step_width`` (over a).
+    """
     grid = make_radial_grid(nodes)
     x = grid.x
+    n = lam.shape[0]
     c = np.sqrt(3.0 * (1.0 - nu**2))
     lw = (lam / width)[:, None]
     imperfection = 4.0 * (c * amplitude / width**2)[:, None] * x[None, :] * np.exp(-(lw * x[None, :]) ** 2)
     force_scale = np.where(apex, 1.0 + lam**2 / (4.0 * c), 1.0)
+    if mismatch is None or mismatch_strain is None or mismatch_radius is None or annulus is None:
+        mismatch = np.zeros(n, dtype=bool)
+        mismatch_strain, mismatch_radius, annulus = np.zeros(n), np.ones(n), np.zeros(n, dtype=bool)
+    # the critical mismatch of a nearly flat cap grows like 1/λ² (plate buckling): this unit
+    # keeps the continuation parameter of order one
+    direction = np.where(mismatch_strain < 0, -1.0, 1.0)
+    force_scale = np.where(mismatch, direction * (1.0 + 4.0 / lam**2), force_scale)
+    f_p, df_p, edge = eigenstrain_stress(x, mismatch_radius.astype(float), annulus, nu.astype(float), immovable,
+                                         step_width)
+    f_p[~mismatch] = 0.0
+    df_p[~mismatch] = 0.0
+    edge[~mismatch] = 0.0
     return CapPathProblem(grid=grid, lam=lam.astype(float), nu=nu.astype(float), clamped=clamped,
-                          immovable=immovable, apex=apex, imperfection=imperfection, force_scale=force_scale)
+                          immovable=immovable, apex=apex, imperfection=imperfection, force_scale=force_scale,
+                          mismatch=mismatch, eigen_stress=f_p, eigen_stress_slope=df_p, eigen_edge=edge)
 
 
 def _modes_determinants(pb: CapPathProblem, z: np.ndarray, idx: np.ndarray,
@@ -159,7 +182,9 @@ def _scan_modes(pb: CapPathProblem, zh: np.ndarray, scanned: np.ndarray, scan_en
 
 def solve_caps(lam: np.ndarray, nu: np.ndarray, clamped: np.ndarray, immovable: np.ndarray,
                apex: np.ndarray, amplitude: np.ndarray, width: np.ndarray, *,
-               settings: Mapping[str, Any]) -> CapSolution:
+               settings: Mapping[str, Any], mismatch: np.ndarray | None = None,
+               mismatch_strain: np.ndarray | None = None, mismatch_radius: np.ndarray | None = None,
+               annulus: np.ndarray | None = None) -> CapSolution:
     """Solve n caps; every array argument has shape ``(n,)``.
 
     Parameters
@@ -172,10 +197,16 @@ def solve_caps(lam: np.ndarray, nu: np.ndarray, clamped: np.ndarray, immovable: 
         Dimple amplitude (over h) and width (over ℓ = a/λ).
     settings
         The model settings.
+    mismatch, mismatch_strain, mismatch_radius, annulus
+        Mismatch load flags and its range end (signed, over ε_cl = 2h/(R c)), region radius over
+        a and region kind (see :func:`make_problem`); all or none.
     """
     n = lam.shape[0]
     nodes = int(settings["nodes"])
-    pb = make_problem(lam, nu, clamped, immovable, apex, amplitude, width, nodes)
+    pb = make_problem(lam, nu, clamped, immovable, apex, amplitude, width, nodes, mismatch=mismatch,
+                      mismatch_strain=mismatch_strain, mismatch_radius=mismatch_radius, annulus=annulus,
+                      step_width=float(settings.get("mismatch_step_width", 0.1)))
+    eigen = pb.mismatch
     m = pb.unknowns
     w = np.full(m + 1, 1.0 / m)
     w[-1] = 1.0
@@ -191,8 +222,13 @@ def solve_caps(lam: np.ndarray, nu: np.ndarray, clamped: np.ndarray, immovable: 
     with np.errstate(divide="ignore", invalid="ignore"):
         slope = t0[:, -1] * load_unit / d_defl
     stiffness = np.where(apex, slope * c / 4.0, slope)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        # mismatch: the initial apex deflection rate (finite also where the apex does not move)
+        stiffness = np.where(eigen, d_defl / (t0[:, -1] * load_unit), stiffness)
 
     mu_max = np.where(apex, np.inf, float(settings["max_pressure"]))
+    if mismatch_strain is not None:
+        mu_max = np.where(eigen, np.abs(mismatch_strain) / np.abs(load_unit), mu_max)
     inversion = lam**2 / (2.0 * c)  # 2H/h
     defl_max = np.where(apex, float(settings["max_indentation"]) * inversion, 1.5 * inversion + 2.0)
     check_bi = bool(settings["check_bistability"])
@@ -204,7 +240,10 @@ def solve_caps(lam: np.ndarray, nu: np.ndarray, clamped: np.ndarray, immovable: 
     def is_finished(zp: np.ndarray, zn: np.ndarray, tn: np.ndarray, rows: np.ndarray) -> np.ndarray:
         mu_p, mu_n = zp[:, -1], zn[:, -1]
         fold_seen[rows] |= mu_n < mu_p
-        done = (mu_n > mu_max[rows]) | (pb.apex_deflection(zn, rows) > defl_max[rows])
+        defl = pb.apex_deflection(zn, rows)
+        # a mismatch strain may also lift the apex without bound (a swelling cap bulges out)
+        defl = np.where(eigen[rows], np.abs(defl), defl)
+        done = (mu_n > mu_max[rows]) | (defl > defl_max[rows])
         if not check_bi:
             return done | fold_seen[rows]
         # past the critical part the path is only searched for a return to zero load: longer

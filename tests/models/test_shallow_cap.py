@@ -20,7 +20,9 @@ def make_inputs(lam, **over):
     n = lam.size
     base = {"shell_parameter": lam, "poisson_ratio": np.full(n, NU), "edge": np.array(["clamped"] * n),
             "edge_inplane": np.array(["immovable"] * n), "load": np.array(["pressure"] * n),
-            "dimple_amplitude": np.zeros(n), "dimple_width": np.full(n, 2.0)}
+            "dimple_amplitude": np.zeros(n), "dimple_width": np.full(n, 2.0),
+            "mismatch_strain": np.full(n, -8.0), "mismatch_radius": np.full(n, 0.5),
+            "mismatch_region": np.array(["disc"] * n)}
     for k in ("thickness", "sphere_radius", "base_radius", "youngs_modulus"):
         base[k] = np.full(n, np.nan)
     for k, v in over.items():
