@@ -30,10 +30,10 @@ import numpy as np
 from sweepshell.models import make_model
 from sweepshell.models.foundation_sheet import compute_sheet_scales
 from sweepshell.numerics.sheet_energy import (
+    compute_height_field,
     make_sheet_problem,
     minimize_sheet_energy,
-    to_height_field,
-    to_mode_variable,
+    project_field_to_modes,
 )
 from sweepshell.numerics.sheet_reference import minimize_reference_energy
 
@@ -75,13 +75,13 @@ def bench_against_reference() -> None:
     ratios = []
     for label, s in cases.items():
         problem = make_sheet_problem(n, cells, "half_space", nu, s)
-        z0 = to_mode_variable(problem, np.random.default_rng(1).standard_normal((n, n)))
-        z0 *= 0.02 / np.sqrt(np.mean(to_height_field(problem, z0) ** 2))
+        z0 = project_field_to_modes(problem, np.random.default_rng(1).standard_normal((n, n)))
+        z0 *= 0.02 / np.sqrt(np.mean(compute_height_field(problem, z0) ** 2))
         t = time.perf_counter()
         fast = minimize_sheet_energy(problem, z0, gradient_tolerance=1e-4)
         t_fast = time.perf_counter() - t
         t = time.perf_counter()
-        ref = minimize_reference_energy(n, cells, "half_space", nu, s, to_height_field(problem, z0))
+        ref = minimize_reference_energy(n, cells, "half_space", nu, s, compute_height_field(problem, z0))
         t_ref = time.perf_counter() - t
         rel = abs(fast.energy - ref.energy) / abs(ref.energy)
         ratios.append(t_ref / t_fast)

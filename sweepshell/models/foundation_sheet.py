@@ -83,10 +83,10 @@ from sweepshell.errors import ParameterError
 from sweepshell.models.base import BatchResult, OutputSpec, ParameterSpec, Status, SweepModel
 from sweepshell.numerics.sheet_energy import (
     SheetMinimum,
+    compute_height_field,
     make_sheet_problem,
     minimize_sheet_energy,
-    to_height_field,
-    to_mode_variable,
+    project_field_to_modes,
 )
 from sweepshell.numerics.sheet_patterns import (
     PATTERN_NAMES,
@@ -351,8 +351,8 @@ class FoundationSheetModel(SweepModel):
             # white noise on the grid, projected onto the resolved modes: depends only on
             # the seed and the grid, never on the point or its place in the batch
             grid_noise = np.random.default_rng(seed).standard_normal((problem.n, problem.n))
-            z0 = to_mode_variable(problem, grid_noise)
-            start_rms = float(np.sqrt(np.mean(to_height_field(problem, z0) ** 2)))
+            z0 = project_field_to_modes(problem, grid_noise)
+            start_rms = float(np.sqrt(np.mean(compute_height_field(problem, z0) ** 2)))
             # initial rms height = perturbation × h, i.e. perturbation × h/b in scaled units
             z0 *= s["perturbation"] / height_ratio / start_rms
             found = minimize_sheet_energy(problem, z0, gradient_tolerance=s["gradient_tolerance"],

@@ -59,13 +59,13 @@ __all__ = [
     "SUBSTRATE_KINDS",
     "SheetMinimum",
     "SheetProblem",
+    "compute_height_field",
     "compute_substrate_stiffness",
+    "compute_variable_of_height",
     "evaluate_sheet_energy",
     "make_sheet_problem",
     "minimize_sheet_energy",
-    "to_height_field",
-    "to_mode_variable",
-    "to_preconditioned_variable",
+    "project_field_to_modes",
 ]
 
 SUBSTRATE_KINDS = ("half_space", "winkler")
@@ -307,14 +307,14 @@ def _scatter_modes(p: SheetProblem, values: np.ndarray) -> np.ndarray:
     return full
 
 
-def to_height_field(problem: SheetProblem, v: np.ndarray) -> np.ndarray:
+def compute_height_field(problem: SheetProblem, v: np.ndarray) -> np.ndarray:
     """Return the scaled height W (n × n grid) of a preconditioned mode variable v."""
     p = problem
     Wu = p.unique_precondition * (v[: p.modes] + 1j * v[p.modes:])
     return _irfft2(_scatter_modes(p, Wu), p.n)
 
 
-def to_mode_variable(problem: SheetProblem, field: np.ndarray) -> np.ndarray:
+def project_field_to_modes(problem: SheetProblem, field: np.ndarray) -> np.ndarray:
     """Return the mode variable whose preconditioned field is the band part of ``field``.
 
     This is the projection of a grid field z onto the variable space: a white-noise grid
@@ -325,7 +325,7 @@ def to_mode_variable(problem: SheetProblem, field: np.ndarray) -> np.ndarray:
     return np.concatenate([Zu.real, Zu.imag])
 
 
-def to_preconditioned_variable(problem: SheetProblem, height: np.ndarray) -> np.ndarray:
+def compute_variable_of_height(problem: SheetProblem, height: np.ndarray) -> np.ndarray:
     """Return the mode variable v whose height is the band-limited part of ``height`` (scaled)."""
     p = problem
     Hu = _rfft2(np.asarray(height, dtype=float)).ravel()[p.unique_index]
@@ -434,7 +434,7 @@ def minimize_sheet_energy(problem: SheetProblem, z0: np.ndarray, *, gradient_tol
     finite = bool(np.isfinite(f) and np.all(np.isfinite(x)))
     # a line search that stalls at round-off with a small gradient is converged in practice
     converged = finite and (converged or gnorm <= 100.0 * gradient_tolerance)
-    return SheetMinimum(height=to_height_field(problem, x), energy=f / n2, converged=converged,
+    return SheetMinimum(height=compute_height_field(problem, x), energy=f / n2, converged=converged,
                         finite=finite, iterations=iterations, gradient_norm=gnorm,
                         history=tuple(history))
 

@@ -16,9 +16,9 @@ import pytest
 from sweepshell.models import Status
 from sweepshell.models.foundation_sheet import FoundationSheetModel
 from sweepshell.numerics.sheet_energy import (
+    compute_variable_of_height,
     make_sheet_problem,
     minimize_sheet_energy,
-    to_preconditioned_variable,
 )
 from tests.models.test_foundation_sheet import make_inputs
 
@@ -95,7 +95,7 @@ def test_checkerboard_energy_converges_spectrally() -> None:
         problem = make_sheet_problem(n, 1, "half_space", 0.3, (s, s))
         x = np.arange(n) / n * 2 * np.pi
         X, Y = np.meshgrid(x, x)
-        z0 = to_preconditioned_variable(problem, 0.5 * (np.cos(X) + np.cos(Y)))
+        z0 = compute_variable_of_height(problem, 0.5 * (np.cos(X) + np.cos(Y)))
         found = minimize_sheet_energy(problem, z0, gradient_tolerance=1e-8, max_iterations=5000)
         assert found.converged
         return found.energy
