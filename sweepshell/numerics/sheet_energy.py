@@ -398,8 +398,7 @@ def minimize_sheet_energy(problem: SheetProblem, z0: np.ndarray, *, gradient_tol
     n2 = float(problem.n**2)
     x = np.array(z0, dtype=float)
     f, g = evaluate_sheet_energy(problem, x)
-    steps: list[np.ndarray] = []
-    changes: list[np.ndarray] = []
+    pairs: list[tuple[np.ndarray, np.ndarray, float]] = []  # (step, gradient change, their dot)
     history: list[float] = []
     converged = False
     iterations = 0
@@ -408,23 +407,21 @@ def minimize_sheet_energy(problem: SheetProblem, z0: np.ndarray, *, gradient_tol
             converged = True
             break
         iterations += 1
-        d = _compute_lbfgs_direction(g, steps, changes)
+        d = _compute_lbfgs_direction(g, pairs)
         slope = float(g @ d)
         if not slope < 0.0:
-            steps.clear()
-            changes.clear()
+            pairs.clear()
             d, slope = -g, -float(g @ g)
         accepted = _search_line(problem, x, f, d, slope)
         if accepted is None:
             break
         t, f_new, g_new = accepted
         s_vec, y_vec = t * d, g_new - g
-        if float(s_vec @ y_vec) > 1e-12 * float(np.sqrt((s_vec @ s_vec) * (y_vec @ y_vec))):
-            steps.append(s_vec)
-            changes.append(y_vec)
-            if len(steps) > memory:
-                steps.pop(0)
-                changes.pop(0)
+        sy = float(s_vec @ y_vec)
+        if sy > 1e-12 * float(np.sqrt((s_vec @ s_vec) * (y_vec @ y_vec))):
+            pairs.append((s_vec, y_vec, sy))
+            if len(pairs) > memory:
+                pairs.pop(0)
         x, f, g = x + s_vec, f_new, g_new
         if record:
             history.append(f / n2)
@@ -439,20 +436,19 @@ def minimize_sheet_energy(problem: SheetProblem, z0: np.ndarray, *, gradient_tol
                         history=tuple(history))
 
 
-def _compute_lbfgs_direction(g: np.ndarray, steps: list[np.ndarray],
-                             changes: list[np.ndarray]) -> np.ndarray:
+def _compute_lbfgs_direction(g: np.ndarray, pairs: list[tuple[np.ndarray, np.ndarray, float]]) -> np.ndarray:
     """Return the L-BFGS descent direction by the two-loop recursion."""
-    q = -g.copy()
+    q = -g
     alphas = []
-    for s_vec, y_vec in zip(reversed(steps), reversed(changes), strict=True):
-        a = float(s_vec @ q) / float(s_vec @ y_vec)
+    for s_vec, y_vec, sy in reversed(pairs):
+        a = float(s_vec @ q) / sy
         alphas.append(a)
-        q -= a * y_vec
-    if steps:
-        q *= float(steps[-1] @ changes[-1]) / float(changes[-1] @ changes[-1])
-    for (s_vec, y_vec), a in zip(zip(steps, changes, strict=True), reversed(alphas), strict=True):
-        b = float(y_vec @ q) / float(s_vec @ y_vec)
-        q += (a - b) * s_vec
+        q = q - a * y_vec
+    if pairs:
+        y_last = pairs[-1][1]
+        q = q * (pairs[-1][2] / float(y_last @ y_last))
+    for (s_vec, y_vec, sy), a in zip(pairs, reversed(alphas), strict=True):
+        q = q + (a - float(y_vec @ q) / sy) * s_vec
     return q
 
 
