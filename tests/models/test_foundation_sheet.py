@@ -103,9 +103,10 @@ def test_batch_shapes_dtypes_statuses_and_nan(model: FoundationSheetModel) -> No
     assert res.outputs["amplitude_rms"][0] == 0.0 and res.outputs["energy"][1] < 0.0
 
 
-def test_low_contrast_is_outside_validity(model: FoundationSheetModel) -> None:
-    res = model.solve_batch(make_inputs(model, film_modulus=[2e6], strain_x=[0.3]))
-    assert res.status[0] == Status.outside_validity and res.regime[0] == -1
+def test_low_contrast_and_unresolved_cells_are_outside_validity(model: FoundationSheetModel) -> None:
+    res = model.solve_batch(make_inputs(model, film_modulus=[2e6, 1e9], strain_x=[0.03, 2 * EPS_C],
+                                        modes=[16, 16], cell_wavelengths=[2, 8]))
+    assert list(res.status) == [Status.outside_validity] * 2 and list(res.regime) == [-1, -1]
 
 
 def test_deterministic_and_batch_invariant(model: FoundationSheetModel) -> None:
