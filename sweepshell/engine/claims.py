@@ -92,9 +92,15 @@ class ClaimBook:
         return False
 
     def _create(self, path: Path) -> bool:
-        try:
-            fd = os.open(path, os.O_CREAT | os.O_EXCL | os.O_WRONLY, 0o644)
-        except FileExistsError:
+        for _ in range(5):
+            try:
+                fd = os.open(path, os.O_CREAT | os.O_EXCL | os.O_WRONLY, 0o644)
+                break
+            except FileExistsError:
+                return False
+            except FileNotFoundError:  # another runner just finished and removed the (empty) folder
+                self.folder.mkdir(exist_ok=True)
+        else:
             return False
         with os.fdopen(fd, "w") as fh:
             json.dump({"runner": self.runner, "claimed": time.time()}, fh)

@@ -245,17 +245,27 @@ def create_store(plan: SweepPlan, model: SweepModel, block_shape: Sequence[int])
 
 def write_block(path: str | os.PathLike[str], block: Block, result: BatchResult,
                 output_names: Sequence[str]) -> None:
-    """Write one block's results: outputs first, then regime, then the status ledger last."""
-    import zarr
+    """Write one block's results: outputs and regime first (concurrently), the status ledger last."""
+    from zarr.core.sync import sync
 
-    group = zarr.open_group(str(path), mode="r+", zarr_format=3)
+    sync(_write_block(str(path), block, result, list(output_names)))
+
+
+async def _write_block(path: str, block: Block, result: BatchResult, output_names: list[str]) -> None:
+    import asyncio
+
+    from zarr.api.asynchronous import open_group
+
+    group = await open_group(path, mode="r+", zarr_format=3)
+    arrays: list[Any] = await asyncio.gather(
+        *(group.getitem(n) for n in [*output_names, layout.REGIME_VAR, layout.STATUS_VAR]))
     shape = block.shape
-    for name in output_names:
+    writes = []
+    for name, arr in zip(output_names, arrays, strict=False):
         values = result.outputs[name]
-        arr: Any = group[name]
         values = values.reshape(shape + values.shape[1:])
-        arr[block.slices + (slice(None),) * (values.ndim - len(shape))] = values
-    regime: Any = group[layout.REGIME_VAR]
-    status: Any = group[layout.STATUS_VAR]
-    regime[block.slices] = result.regime.reshape(shape)
-    status[block.slices] = result.status.reshape(shape)
+        writes.append(arr.setitem(block.slices + (slice(None),) * (values.ndim - len(shape)), values))
+    writes.append(arrays[-2].setitem(block.slices, result.regime.reshape(shape)))
+    await asyncio.gather(*writes)
+    # only once every other chunk of the block is on disk does the ledger say the block is final
+    await arrays[-1].setitem(block.slices, result.status.reshape(shape))
