@@ -9,6 +9,7 @@ This module imports numpy only: models never touch xarray, zarr, dask or hydra.
 
 from __future__ import annotations
 
+import abc
 import enum
 import math
 from collections.abc import Mapping
@@ -205,7 +206,7 @@ class BatchResult:
     diagnostics: dict[str, Any] = field(default_factory=dict)
 
 
-class SweepModel:
+class SweepModel(abc.ABC):
     """Base class of every model; subclasses declare and implement :meth:`solve_batch`.
 
     Subclasses set the class attributes below and accept their numerical settings as
@@ -231,9 +232,9 @@ class SweepModel:
 
     # -- declarations -----------------------------------------------------------------
     @property
+    @abc.abstractmethod
     def outputs(self) -> tuple[OutputSpec, ...]:
         """The outputs of this model (may depend on settings, e.g. a path length)."""
-        raise NotImplementedError  # pragma: no cover - abstract
 
     @property
     def extra_dims(self) -> dict[str, int]:
@@ -288,6 +289,7 @@ class SweepModel:
         return out
 
     # -- work ---------------------------------------------------------------------------
+    @abc.abstractmethod
     def solve_batch(self, inputs: Mapping[str, np.ndarray]) -> BatchResult:
         """Solve n points at once.
 
@@ -302,7 +304,6 @@ class SweepModel:
         BatchResult
             Outputs, status and regime per point. Deterministic and batch-invariant.
         """
-        raise NotImplementedError  # pragma: no cover - abstract
 
     # -- helpers for subclasses ---------------------------------------------------------
     def empty_result(self, n: int) -> BatchResult:
