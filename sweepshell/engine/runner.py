@@ -11,7 +11,7 @@ import contextlib
 import logging
 import os
 import time
-from collections.abc import Iterator, Sequence
+from collections.abc import Callable, Iterator, Sequence
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
@@ -34,8 +34,16 @@ from sweepshell.store.writer import (
     store_block_shape,
 )
 
-__all__ = ["RunSummary", "SweepInterrupted", "open_client", "prepare_store", "refine_plan_store", "run_plan",
-           "run_sweep"]
+__all__ = [
+    "RunSummary",
+    "SweepInterrupted",
+    "open_client",
+    "prepare_store",
+    "refine_plan_store",
+    "run_plan",
+    "run_sweep",
+    "start_client",
+]
 
 log = logging.getLogger(__name__)
 
@@ -115,16 +123,22 @@ def prepare_store(plan: SweepPlan) -> tuple[tuple[int, ...], bool]:
 @contextlib.contextmanager
 def open_client(spec: ExecutorSpec) -> Iterator[Any]:
     """Yield a dask.distributed client for the executor spec and close what we started."""
+    client, cluster = start_client(spec)
+    try:
+        yield client
+    finally:
+        client.close()
+        if cluster is not None:
+            cluster.close()
+
+
+def start_client(spec: ExecutorSpec) -> tuple[Any, Any]:
+    """Return ``(client, cluster)``: the cluster is ours to close, ``None`` for an existing one."""
     import dask
     from distributed import Client, LocalCluster
 
     if spec.kind == "distributed":
-        client = Client(spec.address, timeout="20s")
-        try:
-            yield client
-        finally:
-            client.close()
-        return
+        return Client(spec.address, timeout="20s"), None
     if not log.isEnabledFor(logging.INFO):
         logging.getLogger("distributed").setLevel(logging.ERROR)
     with dask.config.set({"logging.distributed": "error"}):
@@ -134,12 +148,38 @@ def open_client(spec: ExecutorSpec) -> Iterator[Any]:
         else:
             cluster = LocalCluster(n_workers=spec.workers or (os.cpu_count() or 1), threads_per_worker=1,
                                    processes=True, dashboard_address=":0", silence_logs=logging.ERROR)
-    client = Client(cluster)
+    return Client(cluster), cluster
+
+
+@contextlib.contextmanager
+def _client_started_early(plan: SweepPlan) -> Iterator[Callable[[], Any]]:
+    """Start the workers in the background while a new store's template is written.
+
+    Yields a function returning the client (waiting for it); whatever was started is closed on exit. For an
+    existing store nothing starts early: it may well be complete, and then no workers are needed.
+    """
+    from concurrent.futures import ThreadPoolExecutor
+
+    pool = ThreadPoolExecutor(1, thread_name_prefix="sweepshell-start")
+    early = None if Path(plan.store_path).exists() else pool.submit(start_client, plan.executor)
+    started: list[tuple[Any, Any]] = []
+
+    def get() -> Any:
+        if not started:
+            started.append(early.result() if early is not None else start_client(plan.executor))
+        return started[0][0]
+
     try:
-        yield client
+        yield get
     finally:
-        client.close()
-        cluster.close()
+        if early is not None and not started:
+            with contextlib.suppress(Exception):
+                started.append(early.result())
+        for client, cluster in started:
+            client.close()
+            if cluster is not None:
+                cluster.close()
+        pool.shutdown(wait=False)
 
 
 def _counts(ledger: np.ndarray) -> dict[str, int]:
@@ -161,26 +201,36 @@ def run_plan(plan: SweepPlan, *, observer: RunObserver | None = None, claim_ttl:
     """
     observer = observer or SilentObserver()
     t0 = time.perf_counter()
-    block_shape, _ = prepare_store(plan)
     path = plan.store_path
-    ledger = read_ledger(path, block_shape)
-    pending = [b for b in iter_blocks(plan.shape, block_shape) if np.any(ledger[b.slices] == Status.pending)]
-    if not pending:
-        return RunSummary(store_path=path, total=plan.n_points, counts=_counts(ledger), computed=0, blocks=0,
-                          wall_seconds=time.perf_counter() - t0)
-    to_compute = sum(b.n_points for b in pending)
+    if Path(path).exists():  # refuse a store of another sweep before starting anything
+        check_store_matches(path, plan, make_model(plan.model, plan.settings))
     tally = {"model_seconds": 0.0, "computed": 0, "blocks": 0, "by_others": 0, "reused": 0}
-    observer.start(plan.n_points, plan.n_points - to_compute, to_compute)
-    claims = ClaimBook(path, ttl=claim_ttl)
-    donors = find_donors(plan, make_model(plan.model, plan.settings)) if plan.reuse else []
+    claims: ClaimBook | None = None
+    block_shape: tuple[int, ...] = ()
     try:
-        with open_client(plan.executor) as client:
+        with _client_started_early(plan) as get_client:
+            block_shape, _ = prepare_store(plan)
+            ledger = read_ledger(path, block_shape)
+            pending = [b for b in iter_blocks(plan.shape, block_shape)
+                       if np.any(ledger[b.slices] == Status.pending)]
+            if not pending:
+                return RunSummary(store_path=path, total=plan.n_points, counts=_counts(ledger), computed=0,
+                                  blocks=0, wall_seconds=time.perf_counter() - t0)
+            to_compute = sum(b.n_points for b in pending)
+            claims = ClaimBook(path, ttl=claim_ttl)
+            donors = find_donors(plan, make_model(plan.model, plan.settings)) if plan.reuse else []
+            client = get_client()
+            observer.start(plan.n_points, plan.n_points - to_compute, to_compute)
             _drive(client, plan, pending, claims, observer, tally, donors)
     except KeyboardInterrupt:
+        if claims is None or not block_shape:
+            raise
+
         claims.release_all()
         observer.close()
         summary = _final_summary(plan, block_shape, tally, t0)
         raise SweepInterrupted(summary) from None
+    assert claims is not None
     claims.release_all()
     observer.close()
     return _final_summary(plan, block_shape, tally, t0)
