@@ -44,7 +44,7 @@ def register(subparsers: Any) -> None:
                     "regime. " + _WHERE_HELP.replace("keep points", "--where EXPR keeps points", 1).replace("%%", "%"),
         epilog="JSON is a list of objects, one per point, with the axis values and the requested fields "
                "(regime and status as names, missing values as null). The caution about critical loads goes "
-               "to stderr, so stdout stays clean CSV/JSON.")
+               "to stderr, so stdout stays clean CSV/JSON. " + CAUTION)
     q.add_argument("store", metavar="STORE")
     q.add_argument("--where", metavar="EXPR", help=_WHERE_HELP)
     q.add_argument("--fields", metavar="A,B", help="comma-separated fields besides the axes "
