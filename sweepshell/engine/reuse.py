@@ -53,10 +53,10 @@ def _canonical(value: Any) -> Any:
 def find_donors(plan: SweepPlan, model: SweepModel) -> list[Donor]:
     """Return the compatible stores beside the plan's store (never the store itself)."""
     from sweepshell.store.catalog import find_compatible_stores
-    from sweepshell.store.writer import _canonical_json
+    from sweepshell.store.writer import canonical_json
 
     target = Path(plan.store_path).resolve()
-    stores = find_compatible_stores(target.parent, plan.model, plan.model_version, _canonical_json(model.settings))
+    stores = find_compatible_stores(target.parent, plan.model, plan.model_version, canonical_json(model.settings))
     donors = []
     for store in stores:
         if store.resolve() == target:

@@ -70,9 +70,9 @@ def plan_attrs(plan: SweepPlan, model: SweepModel, block_shape: Sequence[int]) -
         ATTR.schema: layout.SCHEMA_VERSION,
         ATTR.model: plan.model,
         ATTR.model_version: plan.model_version,
-        ATTR.settings: _canonical_json(model.settings),
-        ATTR.fixed: _canonical_json(plan.fixed),
-        ATTR.axes: _canonical_json({a.name: list(a.values) for a in plan.axes}),
+        ATTR.settings: canonical_json(model.settings),
+        ATTR.fixed: canonical_json(plan.fixed),
+        ATTR.axes: canonical_json({a.name: list(a.values) for a in plan.axes}),
         ATTR.sweep_name: plan.name,
         ATTR.sweep_yaml: plan.resolved_yaml,
         ATTR.created: _dt.datetime.now(_dt.UTC).isoformat(timespec="seconds"),
@@ -83,7 +83,8 @@ def plan_attrs(plan: SweepPlan, model: SweepModel, block_shape: Sequence[int]) -
     }
 
 
-def _canonical_json(obj: Any) -> str:
+def canonical_json(obj: Any) -> str:
+    """Return the JSON record of settings, fixed parameters or axes as stored (sorted keys, NaN as null)."""
     def fix(v: Any) -> Any:
         if isinstance(v, float) and math.isnan(v):
             return None
@@ -124,9 +125,9 @@ def check_store_matches(path: str | os.PathLike[str], plan: SweepPlan, model: Sw
     checks = [
         ("model", attrs.get(ATTR.model), plan.model),
         ("model version", attrs.get(ATTR.model_version), plan.model_version),
-        ("settings", attrs.get(ATTR.settings), _canonical_json(model.settings)),
-        ("fixed parameters", attrs.get(ATTR.fixed), _canonical_json(plan.fixed)),
-        ("axes", attrs.get(ATTR.axes), _canonical_json({a.name: list(a.values) for a in plan.axes})),
+        ("settings", attrs.get(ATTR.settings), canonical_json(model.settings)),
+        ("fixed parameters", attrs.get(ATTR.fixed), canonical_json(plan.fixed)),
+        ("axes", attrs.get(ATTR.axes), canonical_json({a.name: list(a.values) for a in plan.axes})),
     ]
     for what, stored, wanted in checks:
         if stored != wanted:
