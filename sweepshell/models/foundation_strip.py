@@ -42,10 +42,18 @@ positive), ``max_deflection`` (down positive). Regime ``flat`` (unbuckled); |N| 
 
 Outputs that do not belong to a point's problem are NaN (all outputs are nullable).
 
-Choices worth knowing: ``imperfection`` must be positive — a perfect strip would follow
-the periodic branch past the secondary bifurcation where it loses stability, whereas a
-small localised imperfection makes the path localise as experiments do (use 1e-4 to
-approach the perfect strip). Accuracy at the default 16 segments per wavelength: the
+Choices worth knowing: a perfect strip (``imperfection`` = 0) switches branches (see
+:mod:`sweepshell.numerics.strip_continuation`): at the first bifurcation of the flat state
+(the discrete P_c) onto the periodic wrinkle, and at the first bifurcation on that wrinkle
+that keeps its mirror symmetry about mid-length onto the branch that localises there.
+Bifurcations that shift the envelope to one end (the periodic wrinkle of a pinned strip
+first loses stability to a fold at an end, at c ≈ 0.004 for the default length) are
+passed, as they are by a strip with the centred imperfection; their confinements are not
+reported. The perfect strip's fold is the limit of imperfect ones when the critical mode
+has the imperfection's parity (half-integer ``length``, e.g. 7.5); at integer lengths the
+critical mode is odd about mid-length, the perfect strip folds antisymmetrically and
+imperfect strips symmetrically (fold confinement 0.0235 against 0.0209 at length 8).
+Accuracy at the default 16 segments per wavelength: the
 discrete onset is low by h²/4 (2 % of P_c; 0.3 % at 40), the fold-branch load within
 1.5 % of the exact law and second order in h; the reported ``critical_load`` and
 ``wavelength`` are the exact closed form. Points sharing (c₃, s, a) share one path, so a
@@ -104,7 +112,7 @@ class FoundationStripModel(SweepModel):
     """
 
     name: ClassVar[str] = "foundation_strip"
-    version: ClassVar[str] = "1.0"
+    version: ClassVar[str] = "1.1"
     summary: ClassVar[str] = ("strip on an elastic foundation: wrinkle onset, wrinkle-to-fold "
                               "continuation path, plate flexure in physical units")
     parameters: ClassVar[tuple[ParameterSpec, ...]] = (
@@ -123,8 +131,8 @@ class FoundationStripModel(SweepModel):
         ParameterSpec("confinement", "1", "imposed end-shortening per unit length",
                       default=0.02, bounds=(0.0, 0.5), symbol="c"),
         ParameterSpec("imperfection", "1",
-                      "amplitude of the stress-free localised imperfection over 2 pi (B/K)^(1/4)",
-                      default=1e-3, bounds=(0.0, 0.1), closed=(False, True), symbol="a"),
+                      "amplitude of the stress-free localised imperfection over 2 pi (B/K)^(1/4) (0: perfect)",
+                      default=1e-3, bounds=(0.0, 0.1), symbol="a"),
         ParameterSpec("elastic_thickness", "m", "elastic thickness T_e of the plate",
                       default=20e3, bounds=(0.0, _INF), closed=(False, False), symbol="T_e"),
         ParameterSpec("youngs_modulus", "Pa", "Young's modulus E", default=70e9,

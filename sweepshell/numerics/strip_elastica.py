@@ -34,11 +34,13 @@ __all__ = [
     "StripGrid",
     "StripProblem",
     "compute_crest_contrast",
+    "compute_critical_mode",
     "compute_discrete_onset",
     "compute_energy",
     "compute_gradient",
     "compute_hessian",
     "compute_node_heights",
+    "count_half_waves",
     "make_strip_grid",
     "make_strip_problem",
 ]
@@ -200,21 +202,43 @@ def compute_crest_contrast(y: np.ndarray) -> tuple[float, float]:
     return amp / med, amp
 
 
+def compute_critical_mode(problem: StripProblem) -> tuple[float, float, np.ndarray]:
+    """Return ``(P_c, P_next, mode)`` of the flat state φ = 0 of a perfect ``problem``.
+
+    The two smallest P with (∇²E)v = P h v on the subspace Σ vᵢ = 0 (pinned ends, the
+    linearised y_N = 0) and the segment angles v of the smallest, unit length, signed so
+    that the first node height larger than half the largest is positive. Units: P in
+    √(BK). ``P_next`` tells how isolated the first bifurcation is.
+    """
+    g = problem.grid
+    H = compute_hessian(problem, np.zeros(g.n))
+    # an orthonormal basis of {Σ v = 0}: a Householder reflection maps e₁ onto −1/√n
+    u = np.ones(g.n)
+    u[0] += np.sqrt(g.n)
+    basis = (np.eye(g.n) - np.outer(u, u) * (2.0 / float(u @ u)))[:, 1:]
+    vals, vecs = np.linalg.eigh(basis.T @ H @ basis)
+    mode = basis @ vecs[:, 0]
+    y = compute_node_heights(mode, g.h)
+    first = int(np.nonzero(np.abs(y) > 0.5 * np.max(np.abs(y)))[0][0])
+    if y[first] < 0.0:
+        mode = -mode
+    return float(vals[0] / g.h), float(vals[1] / g.h), mode / float(np.linalg.norm(mode))
+
+
 def compute_discrete_onset(grid: StripGrid) -> tuple[float, float]:
     """Return the buckling load and wavelength of the flat, perfect discrete strip.
 
-    The smallest P with (∇²E)v = P h v on the subspace Σ vᵢ = 0 (pinned ends); the
-    wavelength is 2L over the number of sign changes of the mode's heights plus one.
-    Units: P in √(BK), wavelength in ℓ.
+    The smallest P with (∇²E)v = P h v on the subspace Σ vᵢ = 0 (pinned ends, see
+    :func:`compute_critical_mode`); the wavelength is 2L over the number of sign changes
+    of the mode's heights plus one. Units: P in √(BK), wavelength in ℓ.
     """
     problem = make_strip_problem(grid, imperfection=0.0, width=1.0, cubic=0.0)
-    H = compute_hessian(problem, np.zeros(grid.n))
-    # an orthonormal basis of {Σ v = 0}
-    q, _ = np.linalg.qr(np.column_stack([np.ones(grid.n), np.eye(grid.n)[:, : grid.n - 1]]))
-    basis = q[:, 1:]
-    vals, vecs = np.linalg.eigh(basis.T @ H @ basis)
-    mode = basis @ vecs[:, 0]
-    y = compute_node_heights(mode, grid.h)
+    p, _, mode = compute_critical_mode(problem)
+    return p, 2.0 * grid.length / count_half_waves(compute_node_heights(mode, grid.h))
+
+
+def count_half_waves(y: np.ndarray) -> int:
+    """Return the number of half-waves of node heights ``y`` (interior sign changes + 1)."""
     core = y[1:-1]
-    half_waves = 1 + int(np.count_nonzero(np.diff(np.sign(core[np.abs(core) > 1e-9 * np.max(np.abs(core))]))))
-    return float(vals[0] / grid.h), 2.0 * grid.length / half_waves
+    core = core[np.abs(core) > 1e-9 * np.max(np.abs(core))]
+    return 1 + int(np.count_nonzero(np.diff(np.sign(core))))
