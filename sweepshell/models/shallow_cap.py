@@ -92,8 +92,11 @@ Conventions
 Numerics
 --------
 Chebyshev collocation on the odd half grid (``nodes`` points in 0 < x ≤ 1), Newton with the
-analytic Jacobian and the stretching block eliminated (Schur complement), batched lock-step
-pseudo-arclength continuation with step control on Newton work and tangent turning, and
+analytic Jacobian and the stretching block eliminated (Schur complement), pseudo-arclength
+continuation with step control on Newton work and tangent turning (each cap's whole path and
+every Newton corrector run in compiled per-cap kernels, :mod:`.shallow_cap_compiled`; the
+batched numpy versions in :mod:`.shallow_cap_kernels` and :mod:`sweepshell.numerics.arclength`
+are the specification they are tested against), and
 secant/regula-falsi refinement of limit points (zero of dq/ds) and of determinant sign
 changes. Each Newton solve carries the tangent as a second right-hand side; steps are also
 rejected when the corrector lands far from the predictor (a fold pair inside the step). The
@@ -148,7 +151,7 @@ class ShallowCapModel(SweepModel):
     """Shallow spherical cap under pressure or an apex force: limit points and bifurcations."""
 
     name: ClassVar[str] = "shallow_cap"
-    version: ClassVar[str] = "1.3"
+    version: ClassVar[str] = "1.4"
     summary: ClassVar[str] = ("shallow spherical cap (Föppl–von Kármán): snap-through, asymmetric "
                               "bifurcation, apex indentation, mismatch strain, dimple imperfections")
     parameters: ClassVar[tuple[ParameterSpec, ...]] = (
@@ -183,8 +186,9 @@ class ShallowCapModel(SweepModel):
                       bounds=(0.0, math.inf), closed=(False, False), symbol="E"),
     )
     regimes: ClassVar[tuple[str, ...]] = ("stable", "limit_point", "bifurcation")
-    # measured (one core, wall): ~5 ms axisymmetric, 20-50 ms with the scan, 50-75 ms with bistability
-    cost_hint: ClassVar[float] = 0.05
+    # measured (one core, wall, benchmarks/bench_shallow_cap.py): ~2.8 ms axisymmetric, ~24 ms with the
+    # scan, ~33 ms with bistability
+    cost_hint: ClassVar[float] = 0.035
 
     def __init__(self, *, nodes: int = 34, asymmetric_modes: int = 30, max_pressure: float = 2.0,
                  max_indentation: float = 1.0, path_samples: int = 64, check_bistability: bool = True,

@@ -19,13 +19,14 @@ from typing import Any
 import numpy as np
 
 from sweepshell.models.base import Status
+from sweepshell.models.shallow_cap_compiled import correct_caps_on_arc, trace_cap_paths
 from sweepshell.models.shallow_cap_kernels import CapPathProblem, eigenstrain_stress
 from sweepshell.models.shallow_cap_modes import compute_mode_determinants, count_unstable_modes
 from sweepshell.numerics.arclength import (
     TRACE_DONE,
+    PathHistory,
     compute_tangent,
     refine_on_arc,
-    trace_paths,
 )
 from sweepshell.numerics.radial_chebyshev import make_radial_grid
 
@@ -232,33 +233,14 @@ def solve_caps(lam: np.ndarray, nu: np.ndarray, clamped: np.ndarray, immovable: 
     inversion = lam**2 / (2.0 * c)  # 2H/h
     defl_max = np.where(apex, float(settings["max_indentation"]) * inversion, 1.5 * inversion + 2.0)
     check_bi = bool(settings["check_bistability"])
-    fold_seen = np.zeros(n, dtype=bool)
-    went_negative = np.zeros(n, dtype=bool)
-    step_cap = np.full(n, _MAX_STEP)
-    turn_cap = np.full(n, float(settings["max_turn_deg"]))
-
-    def is_finished(zp: np.ndarray, zn: np.ndarray, tn: np.ndarray, rows: np.ndarray) -> np.ndarray:
-        mu_p, mu_n = zp[:, -1], zn[:, -1]
-        fold_seen[rows] |= mu_n < mu_p
-        defl = pb.apex_deflection(zn, rows)
-        # a mismatch strain may also lift the apex without bound (a swelling cap bulges out)
-        defl = np.where(eigen[rows], np.abs(defl), defl)
-        done = (mu_n > mu_max[rows]) | (defl > defl_max[rows])
-        if not check_bi:
-            return done | fold_seen[rows]
-        # past the critical part the path is only searched for a return to zero load: longer
-        # steps; a skipped pair of folds keeps the parity that the stability test relies on
-        past = rows[fold_seen[rows]]
-        step_cap[past] = 2.0 * _MAX_STEP
-        turn_cap[past] = 2.0 * float(settings["max_turn_deg"])
-        went_negative[rows] |= fold_seen[rows] & (mu_n < 0)
-        done |= went_negative[rows] & (mu_n >= 0)
-        done |= mu_n < -np.minimum(mu_max[rows], _MAX_SUCTION)
-        return done
-
-    hist = trace_paths(pb, z0, t0, idx, w, first_step=_FIRST_STEP, max_step=step_cap, min_step=1e-7,
-                       max_points=int(settings["max_points"]), max_angle_deg=turn_cap,
-                       tol=float(settings["tolerance"]), max_iter=8, is_finished=is_finished)
+    # the whole axisymmetric path of each cap runs in compiled code (same rules as trace_paths
+    # with the stopping rule below: see shallow_cap_compiled)
+    zh, th, sh, count, state = trace_cap_paths(
+        pb, z0, t0, w, first_step=_FIRST_STEP, max_step=_MAX_STEP, min_step=1e-7,
+        max_points=int(settings["max_points"]), max_turn_deg=float(settings["max_turn_deg"]),
+        tol=float(settings["tolerance"]), max_iter=8, mu_max=mu_max, defl_max=defl_max,
+        check_bistability=check_bi, max_suction=_MAX_SUCTION)
+    hist = PathHistory(z=zh, t=th, step=sh, count=count, state=state)
     tol = float(settings["tolerance"])
     count = hist.count
     tmu = hist.t[:, :, -1]
@@ -290,7 +272,7 @@ def solve_caps(lam: np.ndarray, nu: np.ndarray, clamped: np.ndarray, immovable: 
         jr = jf[rf]
         zf, _, sf, okf = refine_on_arc(
             pb, hist.z[rf, jr], hist.t[rf, jr], hist.step[rf, jr + 1], tmu[rf, jr], tmu[rf, jr + 1], rf, w,
-            lambda z, t, ii: t[:, -1], tol=tol, max_iter=8, iterations=40, s_tol=1e-7)
+            lambda z, t, ii: t[:, -1], tol=tol, max_iter=8, iterations=40, s_tol=1e-7, corrector=correct_caps_on_arc)
         z_fold[rf], crit_s_fold[rf] = zf, sf
         refine_ok[rf] &= okf
     if crossings.point.size:
@@ -311,7 +293,7 @@ def solve_caps(lam: np.ndarray, nu: np.ndarray, clamped: np.ndarray, immovable: 
 
         zb, _, sb, okb = refine_on_arc(
             pb, hist.z[cp, jr - 1], hist.t[cp, jr - 1], hist.step[cp, jr], np.ones(cp.size), crossings.ratio, cp, w,
-            measure, tol=tol, max_iter=8, iterations=40, s_tol=1e-9)
+            measure, tol=tol, max_iter=8, iterations=40, s_tol=1e-9, corrector=correct_caps_on_arc)
         sb = np.where(okb, sb, np.inf)
         order = np.lexsort((sb, cp))
         first = order[np.r_[True, cp[order][1:] != cp[order][:-1]]]
@@ -373,7 +355,8 @@ def _check_bistability(pb: CapPathProblem, hist: Any, w: np.ndarray, has_fold: n
     j = np.argmax(up[rows], axis=1)
     zr, tr, _, ok = refine_on_arc(pb, hist.z[rows, j], hist.t[rows, j], hist.step[rows, j + 1],
                                   mu[rows, j], mu[rows, j + 1], rows, w, lambda z, t, ii: z[:, -1],
-                                  tol=tol, max_iter=8, iterations=30, s_tol=1e-6)
+                                  tol=tol, max_iter=8, iterations=30, s_tol=1e-6,
+                                  corrector=correct_caps_on_arc)
     stable = ok & (np.nan_to_num(tr[:, -1]) > 0)
     if modes.size and ok.any():
         unstable = count_unstable_modes(pb, np.nan_to_num(zr[ok]), rows[ok], modes)

@@ -256,6 +256,7 @@ def refine_on_arc(problem: ContinuationProblem, anchor: np.ndarray, tangent: np.
                   s_hi: np.ndarray, g_lo: np.ndarray, g_hi: np.ndarray, idx: np.ndarray,
                   w: np.ndarray, measure: Callable[[np.ndarray, np.ndarray, np.ndarray], np.ndarray],
                   *, tol: float, max_iter: int, iterations: int, s_tol: float,
+                  corrector: Callable[..., tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]] | None = None,
                   ) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
     """Find the arclength ``s ∈ (0, s_hi)`` from ``anchor`` where ``measure`` changes sign.
 
@@ -272,6 +273,9 @@ def refine_on_arc(problem: ContinuationProblem, anchor: np.ndarray, tangent: np.
         component for a fold, or a stability determinant for a bifurcation); ``rows`` are the
         positions of the states among the ``k`` refined here (not problem indices), so one
         problem may be refined for several measures at once.
+    corrector
+        Replacement for :func:`correct_on_arc` with the same signature and results (e.g. a
+        compiled one for a particular problem); default :func:`correct_on_arc`.
 
     Returns
     -------
@@ -292,6 +296,7 @@ def refine_on_arc(problem: ContinuationProblem, anchor: np.ndarray, tangent: np.
     t_best = np.full_like(anchor, np.nan)
     ok = np.ones(k, dtype=bool)
     done = np.zeros(k, dtype=bool)
+    correct = correct_on_arc if corrector is None else corrector
     for _ in range(iterations):
         act = np.nonzero(~done & ok)[0]
         if act.size == 0:
@@ -303,8 +308,8 @@ def refine_on_arc(problem: ContinuationProblem, anchor: np.ndarray, tangent: np.
             sec = s_b[act] - g_b[act] * (s_b[act] - s_a[act]) / (g_b[act] - g_a[act])
         inside = np.isfinite(sec) & (sec > lo[act] + 1e-3 * width) & (sec < hi[act] - 1e-3 * width)
         s = np.where(inside, sec, np.clip(np.nan_to_num(s), lo[act] + 0.01 * width, hi[act] - 0.01 * width))
-        z, conv, _, t_all = correct_on_arc(problem, anchor[act], tangent[act], s, idx[act], w,
-                                           tol=tol, max_iter=max_iter)
+        z, conv, _, t_all = correct(problem, anchor[act], tangent[act], s, idx[act], w,
+                                    tol=tol, max_iter=max_iter)
         ok[act[~conv]] = False
         c = np.nonzero(conv)[0]
         if c.size == 0:

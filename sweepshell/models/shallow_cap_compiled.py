@@ -1,0 +1,403 @@
+"""Compiled per-cap kernels of the shallow-cap model: Newton corrector and path tracing (numba).
+
+Same equations, Jacobian and algorithm as :class:`~sweepshell.models.shallow_cap_kernels.CapPathProblem`
+(residual and Schur-complement bordered solve), :func:`sweepshell.numerics.arclength.correct_on_arc`
+(Newton on the pseudo-arclength bordered system, tangent as a second right-hand side) and
+:func:`sweepshell.numerics.arclength.trace_paths` with the stopping rule of
+:func:`sweepshell.models.shallow_cap_solver.solve_caps`, written for one cap at a time so that
+a cap's whole axisymmetric path runs in compiled code. The numpy versions stay the
+specification (and serve the tests that compare both); results agree to rounding.
+
+Per-cap scalars are packed in one array ``prm`` (indices ``_P_*`` below); per-cap vectors are
+the dimple slope ``imp`` and the mismatch stress ``eig`` over λ² at the nodes and the inverse
+stretching block ``b``; shared by all caps of a grid: nodes ``x``, ``xl = x L`` (collocated
+``x(u'' + u'/x − u/x²)``), the edge row of ``d/dx`` ``d1e``, the apex singularity ``σ`` and the
+integration weights ``integ`` of ``∫₀¹ u dx``.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+from numba import njit
+
+from sweepshell.models.shallow_cap_kernels import CapPathProblem
+
+__all__ = ["correct_caps_on_arc", "pack_cap_parameters", "trace_cap_paths"]
+
+_P_EPS, _P_NU, _P_KAP, _P_FS, _P_CLAMPED, _P_IMMOVABLE, _P_APEX, _P_MISMATCH, _P_EDGE, _P_DEFL = range(10)
+_TRACE_RUNNING, _TRACE_DONE, _TRACE_STALLED, _TRACE_STEP_LIMIT = 0, 1, 2, 3
+
+
+def pack_cap_parameters(pb: CapPathProblem) -> np.ndarray:
+    """Return the ``(n, 10)`` per-cap scalars of ``pb`` in the kernels' layout."""
+    n = pb.lam.shape[0]
+    c = np.sqrt(3.0 * (1.0 - pb.nu**2))
+    prm = np.empty((n, 10))
+    prm[:, _P_EPS] = 1.0 / pb.lam**2
+    prm[:, _P_NU] = pb.nu
+    prm[:, _P_KAP] = pb.kappa
+    prm[:, _P_FS] = pb.force_scale
+    prm[:, _P_CLAMPED] = pb.clamped
+    prm[:, _P_IMMOVABLE] = pb.immovable
+    prm[:, _P_APEX] = pb.apex
+    prm[:, _P_MISMATCH] = pb.mismatch
+    prm[:, _P_EDGE] = pb.eigen_edge
+    prm[:, _P_DEFL] = pb.lam**2 / (2.0 * c)
+    return prm
+
+
+@njit(cache=True)
+def _wdot(a: np.ndarray, b: np.ndarray, w: np.ndarray) -> float:
+    acc = 0.0
+    for i in range(a.shape[0]):
+        acc += a[i] * b[i] * w[i]
+    return acc
+
+
+@njit(cache=True)
+def _lu_solve(a: np.ndarray, rhs: np.ndarray) -> None:
+    """Solve ``a X = rhs`` in place (``rhs`` becomes X) by LU with partial pivoting; ``a`` is destroyed.
+
+    An exactly singular pivot gives inf/NaN, like LAPACK's result would be used: callers test
+    the solution for finiteness.
+    """
+    n = a.shape[0]
+    p = rhs.shape[1]
+    for k in range(n):
+        piv = k
+        big = abs(a[k, k])
+        for i in range(k + 1, n):
+            v = abs(a[i, k])
+            if v > big:
+                big = v
+                piv = i
+        if piv != k:
+            for j in range(n):
+                tmp = a[k, j]
+                a[k, j] = a[piv, j]
+                a[piv, j] = tmp
+            for j in range(p):
+                tmp = rhs[k, j]
+                rhs[k, j] = rhs[piv, j]
+                rhs[piv, j] = tmp
+        inv = 1.0 / a[k, k]
+        for i in range(k + 1, n):
+            lik = a[i, k] * inv
+            if lik != 0.0:
+                for j in range(k + 1, n):
+                    a[i, j] -= lik * a[k, j]
+                for j in range(p):
+                    rhs[i, j] -= lik * rhs[k, j]
+    for k in range(n - 1, -1, -1):
+        for j in range(p):
+            acc = rhs[k, j]
+            for i in range(k + 1, n):
+                acc -= a[k, i] * rhs[i, j]
+            rhs[k, j] = acc / a[k, k]
+
+
+@njit(cache=True)
+def _newton_solve(z: np.ndarray, row: np.ndarray, c0: float, prm: np.ndarray, imp: np.ndarray,
+                  eig: np.ndarray, b: np.ndarray, x: np.ndarray, xl: np.ndarray, d1e: np.ndarray,
+                  sigma: np.ndarray, out: np.ndarray) -> None:
+    """Linearise at ``z`` and solve ``[∂R/∂z; row] d = [−R, 0; c0, 1]`` into ``out`` ``(2M+1, 2)``.
+
+    Column 0 is the Newton correction, column 1 the (unnormalised) tangent.
+    """
+    m = x.shape[0]
+    eps, nu, kap, fs = prm[_P_EPS], prm[_P_NU], prm[_P_KAP], prm[_P_FS]
+    clamped, immovable = prm[_P_CLAMPED] != 0.0, prm[_P_IMMOVABLE] != 0.0
+    apex, eigen = prm[_P_APEX] != 0.0, prm[_P_MISMATCH] != 0.0
+    mu = z[2 * m]
+    q = 0.0 if (apex or eigen) else mu
+    p = mu * fs if apex else 0.0
+    e = mu * fs if eigen else 0.0
+    dp = kap * fs if apex else 0.0
+    de = fs if eigen else 0.0
+    arm = np.empty(m)
+    ftot = np.empty(m)
+    r1 = np.empty(m)
+    r2 = np.empty(m)
+    j1mu = np.empty(m)
+    j2mu = np.empty(m)
+    for i in range(m):
+        yb = z[i] + kap * p * sigma[i]
+        sh = x[i] - imp[i]
+        arm[i] = sh - yb
+        ftot[i] = z[m + i] + e * eig[i]
+        ly = 0.0
+        lf = 0.0
+        for j in range(m):
+            ly += xl[i, j] * z[j]
+            lf += xl[i, j] * z[m + j]
+        r1[i] = -eps * ly + ftot[i] * arm[i] - 2.0 * q * x[i] ** 2
+        r2[i] = eps * lf + sh * yb - 0.5 * yb * yb
+        if apex:
+            j1mu[i] = -z[m + i] * sigma[i] * dp
+        elif eigen:
+            j1mu[i] = de * eig[i] * arm[i]
+        else:
+            j1mu[i] = -2.0 * x[i] ** 2
+        j2mu[i] = arm[i] * sigma[i] * dp
+    dy = 0.0
+    df = 0.0
+    for j in range(m):
+        dy += d1e[j] * z[j]
+        df += d1e[j] * z[m + j]
+    r1[0] = z[0] if clamped else dy + nu * z[0] - 0.5 * kap * p
+    r2[0] = (df - nu * z[m] if immovable else z[m]) - e * prm[_P_EDGE]
+    arm[0] = 0.0
+    j1mu[0] = 0.0 if clamped else -0.5 * dp
+    j2mu[0] = -de * prm[_P_EDGE]
+    # Schur complement of the stretching block: an (M+1)-square bordered system
+    br2 = np.empty(m)
+    bj = np.empty(m)
+    btrf = np.zeros(m)
+    for i in range(m):
+        s1 = 0.0
+        s2 = 0.0
+        for j in range(m):
+            s1 += b[i, j] * (-r2[j])
+            s2 += b[i, j] * j2mu[j]
+        br2[i] = s1
+        bj[i] = s2
+    for j in range(m):
+        rj = row[m + j]
+        for i in range(m):
+            btrf[i] += b[j, i] * rj
+    a = np.empty((m + 1, m + 1))
+    rhs = np.empty((m + 1, 2))
+    for i in range(m):
+        ai = arm[i]
+        for j in range(m):
+            a[i, j] = -eps * xl[i, j] - ai * b[i, j] * arm[j]
+        a[i, m] = j1mu[i] - ai * bj[i]
+        a[m, i] = row[i] - ai * btrf[i]
+        rhs[i, 0] = -r1[i] - ai * br2[i]
+        rhs[i, 1] = 0.0
+    a[0, :m] = 0.0
+    if clamped:
+        a[0, 0] = 1.0
+    else:
+        for j in range(m):
+            a[0, j] = d1e[j]
+        a[0, 0] += nu
+    for i in range(1, m):
+        a[i, i] -= ftot[i]
+    rf_bj = 0.0
+    rf_br2 = 0.0
+    for i in range(m):
+        rf_bj += row[m + i] * bj[i]
+        rf_br2 += row[m + i] * br2[i]
+    a[m, m] = row[2 * m] - rf_bj
+    rhs[m, 0] = c0 - rf_br2
+    rhs[m, 1] = 1.0
+    _lu_solve(a, rhs)
+    for col in range(2):
+        dmu = rhs[m, col]
+        for i in range(m):
+            out[i, col] = rhs[i, col]
+        for i in range(m):
+            acc = 0.0
+            for j in range(m):
+                acc += b[i, j] * (arm[j] * rhs[j, col])
+            base = br2[i] if col == 0 else 0.0
+            out[m + i, col] = base - acc - bj[i] * dmu
+        out[2 * m, col] = dmu
+
+
+@njit(cache=True)
+def _correct(anchor: np.ndarray, tangent: np.ndarray, s: float, w: np.ndarray, tol: float, max_iter: int,
+             prm: np.ndarray, imp: np.ndarray, eig: np.ndarray, b: np.ndarray, x: np.ndarray, xl: np.ndarray,
+             d1e: np.ndarray, sigma: np.ndarray, z: np.ndarray, t_out: np.ndarray) -> tuple[bool, int]:
+    """Newton-correct ``anchor + s·tangent`` onto the path at arclength ``s`` (one cap).
+
+    Writes the state into ``z`` and the unit tangent into ``t_out``; returns (converged,
+    iterations). Same acceptance and stopping rules as ``correct_on_arc``.
+    """
+    m1 = anchor.shape[0]
+    for i in range(m1):
+        z[i] = anchor[i] + s * tangent[i]
+    row = tangent * w
+    out = np.empty((m1, 2))
+    dz = np.empty(m1)
+    tn = np.empty(m1)
+    last = np.inf
+    its = 0
+    for _ in range(max_iter):
+        c0 = s
+        for i in range(m1):
+            c0 -= tangent[i] * (z[i] - anchor[i]) * w[i]
+        _newton_solve(z, row, c0, prm, imp, eig, b, x, xl, d1e, sigma, out)
+        for i in range(m1):
+            dz[i] = out[i, 0]
+            tn[i] = out[i, 1]
+        size = np.sqrt(_wdot(dz, dz, w))
+        norm_t = np.sqrt(_wdot(tn, tn, w))
+        prev = last
+        # a corrector that stops contracting quadratically will not recover: fail fast
+        if not np.isfinite(size) or (size > 0.5 * prev + 1e-14 and its > 1):
+            return False, its
+        for i in range(m1):
+            z[i] += dz[i]
+            t_out[i] = tn[i] / norm_t
+        its += 1
+        last = size
+        if size < tol or (np.isfinite(prev) and size**3 < tol * prev**2 and size < 1e-4):
+            return True, its
+    return False, its
+
+
+@njit(cache=True)
+def _trace(z0: np.ndarray, t0: np.ndarray, w: np.ndarray, first_step: float, max_step: float, min_step: float,
+           max_points: int, max_turn_deg: float, tol: float, max_iter: int, max_drift: float, mu_max: float,
+           defl_max: float, check_bi: bool, max_suction: float, prm: np.ndarray, imp: np.ndarray,
+           eig: np.ndarray, b: np.ndarray, x: np.ndarray, xl: np.ndarray, d1e: np.ndarray, sigma: np.ndarray,
+           integ: np.ndarray, zh: np.ndarray, th: np.ndarray, sh: np.ndarray) -> tuple[int, int]:
+    """Trace one cap's path into ``zh``, ``th``, ``sh``; return (accepted points, trace state)."""
+    m1 = z0.shape[0]
+    m = x.shape[0]
+    zh[0] = z0
+    th[0] = t0
+    sh[0] = 0.0
+    count = 1
+    h = first_step
+    step_cap = max_step
+    turn_cap = max_turn_deg
+    fold_seen = False
+    went_negative = False
+    apex = prm[_P_APEX] != 0.0
+    eigen = prm[_P_MISMATCH] != 0.0
+    z = np.empty(m1)
+    tn = np.empty(m1)
+    while True:
+        zc = zh[count - 1]
+        tc = th[count - 1]
+        cos_max = np.cos(np.radians(turn_cap))
+        step_max = step_cap
+        conv, its = _correct(zc, tc, h, w, tol, max_iter, prm, imp, eig, b, x, xl, d1e, sigma, z, tn)
+        ok = conv
+        cosang = 0.0
+        if ok:
+            cosang = _wdot(tn, tc, w)
+            dmu = z[m1 - 1] - zc[m1 - 1]
+            skipped = ((tc[m1 - 1] > 0 and tn[m1 - 1] > 0 and dmu < 0)
+                       or (tc[m1 - 1] < 0 and tn[m1 - 1] < 0 and dmu > 0))
+            dd = 0.0
+            for i in range(m1):
+                di = z[i] - zc[i] - h * tc[i]
+                dd += di * di * w[i]
+            drift = np.sqrt(dd) / h
+            ok = cosang > cos_max and not skipped and drift < max_drift
+        if not ok:
+            h *= 0.5
+            if h < min_step:
+                return count, _TRACE_STALLED
+            continue
+        zh[count] = z
+        th[count] = tn
+        sh[count] = h
+        count += 1
+        grow = 1.6 if its <= 2 else (1.25 if its <= 3 else (1.0 if its <= 5 else 0.7))
+        # a strongly turning path gets shorter steps before the angle test rejects them
+        if cosang < 0.5 * (1.0 + cos_max):
+            grow = min(grow, 0.8)
+        h = min(h * grow, step_max)
+        # stopping rule of solve_caps (is_finished)
+        mu_p = zc[m1 - 1]
+        mu_n = z[m1 - 1]
+        if mu_n < mu_p:
+            fold_seen = True
+        p = mu_n * prm[_P_FS] if apex else 0.0
+        integral = 0.0
+        for i in range(m):
+            integral += integ[i] * z[i]
+        defl = prm[_P_DEFL] * (integral + prm[_P_KAP] * p / 8.0)
+        if eigen:
+            defl = abs(defl)
+        done = mu_n > mu_max or defl > defl_max
+        if not check_bi:
+            done = done or fold_seen
+        else:
+            # past the critical part the path is only searched for a return to zero load
+            if fold_seen:
+                step_cap = 2.0 * max_step
+                turn_cap = 2.0 * max_turn_deg
+            if fold_seen and mu_n < 0:
+                went_negative = True
+            done = done or (went_negative and mu_n >= 0) or mu_n < -min(mu_max, max_suction)
+        if done:
+            return count, _TRACE_DONE
+        if count >= max_points:
+            return count, _TRACE_STEP_LIMIT
+
+
+def _shared(pb: CapPathProblem) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+    g = pb.grid
+    return (np.ascontiguousarray(g.x), np.ascontiguousarray(pb.xl), np.ascontiguousarray(g.d1[-1][0]),
+            np.ascontiguousarray(pb.sigma), np.ascontiguousarray(g.integral[-1]))
+
+
+def trace_cap_paths(pb: CapPathProblem, z0: np.ndarray, t0: np.ndarray, w: np.ndarray, *, first_step: float,
+                    max_step: float, min_step: float, max_points: int, max_turn_deg: float, tol: float,
+                    max_iter: int, mu_max: np.ndarray, defl_max: np.ndarray, check_bistability: bool,
+                    max_suction: float, max_drift: float = 0.2,
+                    ) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+    """Trace every cap's axisymmetric path, one cap at a time in compiled code.
+
+    Returns ``(z, t, step, count, state)`` laid out as
+    :class:`sweepshell.numerics.arclength.PathHistory` (rows past ``count`` NaN, steps 0); the
+    history length is the longest path (at least ``min(max_points, 48)``).
+    """
+    n, m1 = z0.shape
+    x, xl, d1e, sigma, integ = _shared(pb)
+    prm = pack_cap_parameters(pb)
+    count = np.empty(n, dtype=int)
+    state = np.empty(n, dtype=np.int8)
+    paths = []
+    zbuf = np.empty((max_points, m1))
+    tbuf = np.empty((max_points, m1))
+    sbuf = np.empty(max_points)
+    for i in range(n):
+        c, st = _trace(np.ascontiguousarray(z0[i]), np.ascontiguousarray(t0[i]), w, first_step, max_step,
+                       min_step, max_points, max_turn_deg, tol, max_iter, max_drift, float(mu_max[i]),
+                       float(defl_max[i]), check_bistability, max_suction, prm[i],
+                       np.ascontiguousarray(pb.imperfection[i]), np.ascontiguousarray(pb.eigen_stress[i]),
+                       np.ascontiguousarray(pb.stretch_inverse[i]), x, xl, d1e, sigma, integ, zbuf, tbuf, sbuf)
+        count[i], state[i] = c, st
+        paths.append((zbuf[:c].copy(), tbuf[:c].copy(), sbuf[:c].copy()))
+    cap = max(min(max_points, 48), int(count.max()) if n else 0)
+    zh = np.full((n, cap, m1), np.nan)
+    th = np.full((n, cap, m1), np.nan)
+    sh = np.zeros((n, cap))
+    for i, (zp, tp, sp) in enumerate(paths):
+        c = zp.shape[0]
+        zh[i, :c], th[i, :c], sh[i, :c] = zp, tp, sp
+    return zh, th, sh, count, state
+
+
+def correct_caps_on_arc(pb: CapPathProblem, anchor: np.ndarray, tangent: np.ndarray, s: np.ndarray,
+                        idx: np.ndarray, w: np.ndarray, *, tol: float,
+                        max_iter: int) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+    """Compiled drop-in for :func:`sweepshell.numerics.arclength.correct_on_arc` on cap problems.
+
+    Returns ``(z, converged, iterations, t)`` with ``t`` NaN where not converged.
+    """
+    k, m1 = anchor.shape
+    x, xl, d1e, sigma, _ = _shared(pb)
+    prm = pack_cap_parameters(pb)
+    z = np.empty((k, m1))
+    t = np.full((k, m1), np.nan)
+    conv = np.zeros(k, dtype=bool)
+    its = np.zeros(k, dtype=int)
+    tn = np.empty(m1)
+    for r in range(k):
+        i = int(idx[r])
+        ok, it = _correct(np.ascontiguousarray(anchor[r]), np.ascontiguousarray(tangent[r]), float(s[r]), w, tol,
+                          max_iter, prm[i], np.ascontiguousarray(pb.imperfection[i]),
+                          np.ascontiguousarray(pb.eigen_stress[i]), np.ascontiguousarray(pb.stretch_inverse[i]),
+                          x, xl, d1e, sigma, z[r], tn)
+        conv[r], its[r] = ok, it
+        if ok:
+            t[r] = tn
+    return z, conv, its, t
