@@ -100,7 +100,8 @@ are the specification they are tested against), and
 secant/regula-falsi refinement of limit points (zero of dq/ds) and of determinant sign
 changes. Each Newton solve carries the tangent as a second right-hand side; steps are also
 rejected when the corrector lands far from the predictor (a fold pair inside the step). The
-stability determinants are those of ``A − B S⁻¹ C`` (the fixed stress block ``S`` eliminated);
+stability determinants are those of ``A − B S⁻¹ C`` (the fixed stress block ``S`` eliminated;
+assembled per state in a compiled kernel);
 all n = 1…N are evaluated at every ``scan_stride``-th path point (default 3; the steps are short
 where the state changes fast), only the flipped wave numbers in between, and every wave number
 that flipped in the first flipped step is refined (several often cross within one step).
@@ -151,7 +152,7 @@ class ShallowCapModel(SweepModel):
     """Shallow spherical cap under pressure or an apex force: limit points and bifurcations."""
 
     name: ClassVar[str] = "shallow_cap"
-    version: ClassVar[str] = "1.4"
+    version: ClassVar[str] = "1.5"
     summary: ClassVar[str] = ("shallow spherical cap (Föppl–von Kármán): snap-through, asymmetric "
                               "bifurcation, apex indentation, mismatch strain, dimple imperfections")
     parameters: ClassVar[tuple[ParameterSpec, ...]] = (
@@ -186,9 +187,9 @@ class ShallowCapModel(SweepModel):
                       bounds=(0.0, math.inf), closed=(False, False), symbol="E"),
     )
     regimes: ClassVar[tuple[str, ...]] = ("stable", "limit_point", "bifurcation")
-    # measured (one core, wall, benchmarks/bench_shallow_cap.py): ~2.8 ms axisymmetric, ~24 ms with the
-    # scan, ~33 ms with bistability
-    cost_hint: ClassVar[float] = 0.035
+    # measured (one core, wall, benchmarks/bench_shallow_cap.py): ~2.9 ms axisymmetric, ~18 ms with the
+    # scan, ~27 ms with bistability
+    cost_hint: ClassVar[float] = 0.03
 
     def __init__(self, *, nodes: int = 34, asymmetric_modes: int = 30, max_pressure: float = 2.0,
                  max_indentation: float = 1.0, path_samples: int = 64, check_bistability: bool = True,

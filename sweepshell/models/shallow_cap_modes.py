@@ -24,6 +24,7 @@ from functools import lru_cache
 
 import numpy as np
 
+from sweepshell.models.shallow_cap_compiled import assemble_reduced_stability
 from sweepshell.models.shallow_cap_kernels import CapPathProblem
 from sweepshell.numerics.radial_chebyshev import make_radial_grid
 
@@ -200,21 +201,19 @@ def _reduced_matrices(problem: CapPathProblem, co: ModeCoefficients, modes: np.n
     """Yield ``(j, n, A − B S⁻¹ C)`` ``(k, M, M)`` for each wave number of ``modes``."""
     x = problem.grid.x
     m = co.f.shape[1]
-    # rows 0, 1 of B are edge rows (zero): the multipliers vanish there
-    z2 = co.zeta2.copy()
-    xz1 = x * co.zeta1
-    z2[:, :2] = 0.0
-    xz1[:, :2] = 0.0
-    groups: dict[tuple[float, bool], list[int]] = {}
-    for i, key in enumerate(zip(co.nu.tolist(), co.immovable.tolist(), strict=True)):
-        groups.setdefault(key, []).append(i)
+    keys = list(zip(co.nu.tolist(), co.immovable.tolist(), strict=True))
+    unique = sorted(set(keys))
+    group = np.array([unique.index(key) for key in keys], dtype=np.int64) if len(unique) > 1 \
+        else np.zeros(len(keys), dtype=np.int64)
+    f, df, zeta1, zeta2 = (np.ascontiguousarray(v) for v in (co.f, co.df, co.zeta1, co.zeta2))
     for j, n in enumerate(modes):
         ops = make_mode_operators(m, int(n))
-        a, c = _deflection_blocks(ops, x, co)
-        for (nu, im), rows in groups.items():
-            sel = np.asarray(rows) if len(groups) > 1 else slice(None)
-            kc = _make_stress_reduction(m, int(n), nu, im) @ c[sel]
-            a[sel] += z2[sel, :, None] * kc[:, :m] + xz1[sel, :, None] * kc[:, m:]
+        wo = ops.deflection
+        reduction = np.stack([_make_stress_reduction(m, int(n), nu, im) for nu, im in unique])
+        a = assemble_reduced_stability(wo.bilaplacian, wo.bracket, wo.w2, wo.w0[0].copy(), wo.w1[0].copy(),
+                                       wo.w2[0].copy(), x, reduction, group, f, df, zeta1, zeta2,
+                                       co.nu.astype(float), co.clamped.astype(bool), co.immovable.astype(bool),
+                                       int(n) == 1)
         yield j, int(n), a
 
 

@@ -92,3 +92,31 @@ def test_compiled_tracing_is_batch_invariant():
     c0 = one[3][0]
     assert full[3][0] == c0
     np.testing.assert_array_equal(full[0][0, :c0], one[0][0, :c0])
+
+
+def test_compiled_reduced_stability_matrix_is_the_schur_complement_of_the_full_matrix(rng):
+    # A − B S⁻¹ C from the full (deflection, stress) matrix of build_mode_matrices, by a dense solve
+    from sweepshell.models.shallow_cap_modes import (
+        _reduced_matrices,
+        build_mode_matrices,
+        compute_mode_coefficients,
+        make_mode_operators,
+    )
+
+    k, m = 6, 24
+    pb = make_problem(np.full(k, 9.0), np.array([NU, NU, 0.25, NU, 0.25, NU]), np.array([True, False] * 3),
+                      np.array([True, True, False] * 2), np.zeros(k, dtype=bool), np.full(k, 0.2),
+                      np.full(k, 2.0), m)
+    idx = np.arange(k)
+    z = np.zeros((k, 2 * m + 1))
+    z[:, :m] = rng.uniform(0.0, 0.6, (k, 1)) * pb.grid.x[None, :] ** 2
+    z[:, m:2 * m] = rng.uniform(0.5, 1.2, (k, 1)) * pb.grid.x[None, :]
+    co = compute_mode_coefficients(pb, z, idx)
+    modes = np.array([1, 2, 5])
+    for j, n, got in _reduced_matrices(pb, co, modes):
+        full = build_mode_matrices(make_mode_operators(m, n), pb.grid.x, co)
+        a, b, c, s = full[:, :m, :m], full[:, :m, m:], full[:, m:, :m], full[:, m:, m:]
+        want = a - b @ np.linalg.solve(s, c)
+        scale = np.abs(want).max(axis=(1, 2), keepdims=True)
+        np.testing.assert_allclose(got / scale, want / scale, rtol=0, atol=1e-9, err_msg=f"n={n}")
+        assert j == list(modes).index(n)
