@@ -152,7 +152,7 @@ class ShallowCapModel(SweepModel):
     """Shallow spherical cap under pressure or an apex force: limit points and bifurcations."""
 
     name: ClassVar[str] = "shallow_cap"
-    version: ClassVar[str] = "1.5"
+    version: ClassVar[str] = "1.6"
     summary: ClassVar[str] = ("shallow spherical cap (Föppl–von Kármán): snap-through, asymmetric "
                               "bifurcation, apex indentation, mismatch strain, dimple imperfections")
     parameters: ClassVar[tuple[ParameterSpec, ...]] = (
@@ -187,9 +187,9 @@ class ShallowCapModel(SweepModel):
                       bounds=(0.0, math.inf), closed=(False, False), symbol="E"),
     )
     regimes: ClassVar[tuple[str, ...]] = ("stable", "limit_point", "bifurcation")
-    # measured (one core, wall, benchmarks/bench_shallow_cap.py): ~2.9 ms axisymmetric, ~18 ms with the
-    # scan, ~27 ms with bistability
-    cost_hint: ClassVar[float] = 0.03
+    # measured (one core, wall, benchmarks/bench_shallow_cap.py): ~2 ms axisymmetric, ~16 ms with the
+    # scan, ~21 ms with bistability
+    cost_hint: ClassVar[float] = 0.025
 
     def __init__(self, *, nodes: int = 34, asymmetric_modes: int = 30, max_pressure: float = 2.0,
                  max_indentation: float = 1.0, path_samples: int = 64, check_bistability: bool = True,

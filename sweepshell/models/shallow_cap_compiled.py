@@ -55,56 +55,68 @@ def _wdot(a: np.ndarray, b: np.ndarray, w: np.ndarray) -> float:
 
 
 @njit(cache=True)
-def _lu_solve(a: np.ndarray, rhs: np.ndarray) -> None:
-    """Solve ``a X = rhs`` in place (``rhs`` becomes X) by LU with partial pivoting; ``a`` is destroyed.
+def _lu_solve(g: np.ndarray, n: int, u: np.ndarray) -> None:
+    """Solve ``a X = r`` for the augmented ``g = [a | r]`` ``(n, n+p)`` in place (X replaces r).
 
-    An exactly singular pivot gives inf/NaN, like LAPACK's result would be used: callers test
-    the solution for finiteness.
+    LU with partial pivoting. The row updates index with unsigned integers: without
+    negative-index wraparound checks the compiler vectorises them (several times faster). An
+    exactly singular pivot gives inf/NaN, which callers test for.
     """
-    n = a.shape[0]
-    p = rhs.shape[1]
+    w = g.shape[1]
     for k in range(n):
         piv = k
-        big = abs(a[k, k])
+        big = abs(g[k, k])
         for i in range(k + 1, n):
-            v = abs(a[i, k])
+            v = abs(g[i, k])
             if v > big:
                 big = v
                 piv = i
+        lo = np.uint64(k)
+        hi = np.uint64(w)
+        gk = g[k]
         if piv != k:
-            for j in range(n):
-                tmp = a[k, j]
-                a[k, j] = a[piv, j]
-                a[piv, j] = tmp
-            for j in range(p):
-                tmp = rhs[k, j]
-                rhs[k, j] = rhs[piv, j]
-                rhs[piv, j] = tmp
-        inv = 1.0 / a[k, k]
+            gp = g[piv]
+            for j in range(lo, hi):
+                tmp = gk[j]
+                gk[j] = gp[j]
+                gp[j] = tmp
+        # the pivot row in its own buffer: the updated rows then cannot alias it
+        for j in range(lo, hi):
+            u[j] = gk[j]
+        inv = 1.0 / u[k]
+        lo1 = np.uint64(k + 1)
         for i in range(k + 1, n):
-            lik = a[i, k] * inv
-            if lik != 0.0:
-                for j in range(k + 1, n):
-                    a[i, j] -= lik * a[k, j]
-                for j in range(p):
-                    rhs[i, j] -= lik * rhs[k, j]
-    for k in range(n - 1, -1, -1):
-        for j in range(p):
-            acc = rhs[k, j]
+            gi = g[i]
+            lik = gi[k] * inv
+            for j in range(lo1, hi):
+                gi[j] -= lik * u[j]
+    for col in range(n, w):
+        for k in range(n - 1, -1, -1):
+            acc = g[k, col]
             for i in range(k + 1, n):
-                acc -= a[k, i] * rhs[i, j]
-            rhs[k, j] = acc / a[k, k]
+                acc -= g[k, i] * g[i, col]
+            g[k, col] = acc / g[k, k]
+
+
+@njit(cache=True)
+def _axpy(y: np.ndarray, alpha: float, v: np.ndarray) -> None:
+    """``y += alpha·v`` (unsigned indices, vectorised)."""
+    for j in range(np.uint64(y.shape[0])):
+        y[j] += alpha * v[j]
 
 
 @njit(cache=True)
 def _newton_solve(z: np.ndarray, row: np.ndarray, c0: float, prm: np.ndarray, imp: np.ndarray,
-                  eig: np.ndarray, b: np.ndarray, x: np.ndarray, xl: np.ndarray, d1e: np.ndarray,
-                  sigma: np.ndarray, out: np.ndarray) -> None:
+                  eig: np.ndarray, b: np.ndarray, bt: np.ndarray, x: np.ndarray, xl: np.ndarray,
+                  xlt: np.ndarray, d1e: np.ndarray, sigma: np.ndarray, out: np.ndarray) -> None:
     """Linearise at ``z`` and solve ``[∂R/∂z; row] d = [−R, 0; c0, 1]`` into ``out`` ``(2M+1, 2)``.
 
-    Column 0 is the Newton correction, column 1 the (unnormalised) tangent.
+    Column 0 is the Newton correction, column 1 the (unnormalised) tangent. ``bt``, ``xlt``
+    are the transposes of ``b``, ``xl`` (contiguous), so that every matrix-vector product is a
+    sum of vectorised row updates.
     """
     m = x.shape[0]
+    um = np.uint64(m)
     eps, nu, kap, fs = prm[_P_EPS], prm[_P_NU], prm[_P_KAP], prm[_P_FS]
     clamped, immovable = prm[_P_CLAMPED] != 0.0, prm[_P_IMMOVABLE] != 0.0
     apex, eigen = prm[_P_APEX] != 0.0, prm[_P_MISMATCH] != 0.0
@@ -114,6 +126,11 @@ def _newton_solve(z: np.ndarray, row: np.ndarray, c0: float, prm: np.ndarray, im
     e = mu * fs if eigen else 0.0
     dp = kap * fs if apex else 0.0
     de = fs if eigen else 0.0
+    ly = np.zeros(m)
+    lf = np.zeros(m)
+    for j in range(m):
+        _axpy(ly, z[j], xlt[j])
+        _axpy(lf, z[m + j], xlt[j])
     arm = np.empty(m)
     ftot = np.empty(m)
     r1 = np.empty(m)
@@ -125,13 +142,8 @@ def _newton_solve(z: np.ndarray, row: np.ndarray, c0: float, prm: np.ndarray, im
         sh = x[i] - imp[i]
         arm[i] = sh - yb
         ftot[i] = z[m + i] + e * eig[i]
-        ly = 0.0
-        lf = 0.0
-        for j in range(m):
-            ly += xl[i, j] * z[j]
-            lf += xl[i, j] * z[m + j]
-        r1[i] = -eps * ly + ftot[i] * arm[i] - 2.0 * q * x[i] ** 2
-        r2[i] = eps * lf + sh * yb - 0.5 * yb * yb
+        r1[i] = -eps * ly[i] + ftot[i] * arm[i] - 2.0 * q * x[i] ** 2
+        r2[i] = eps * lf[i] + sh * yb - 0.5 * yb * yb
         if apex:
             j1mu[i] = -z[m + i] * sigma[i] * dp
         elif eigen:
@@ -150,66 +162,63 @@ def _newton_solve(z: np.ndarray, row: np.ndarray, c0: float, prm: np.ndarray, im
     j1mu[0] = 0.0 if clamped else -0.5 * dp
     j2mu[0] = -de * prm[_P_EDGE]
     # Schur complement of the stretching block: an (M+1)-square bordered system
-    br2 = np.empty(m)
-    bj = np.empty(m)
+    br2 = np.zeros(m)
+    bj = np.zeros(m)
     btrf = np.zeros(m)
-    for i in range(m):
-        s1 = 0.0
-        s2 = 0.0
-        for j in range(m):
-            s1 += b[i, j] * (-r2[j])
-            s2 += b[i, j] * j2mu[j]
-        br2[i] = s1
-        bj[i] = s2
     for j in range(m):
-        rj = row[m + j]
-        for i in range(m):
-            btrf[i] += b[j, i] * rj
-    a = np.empty((m + 1, m + 1))
-    rhs = np.empty((m + 1, 2))
+        _axpy(br2, -r2[j], bt[j])
+        _axpy(bj, j2mu[j], bt[j])
+        _axpy(btrf, row[m + j], b[j])
+    # augmented [A | rhs] with two right-hand sides
+    g = np.empty((m + 1, m + 3))
     for i in range(m):
+        gi = g[i]
         ai = arm[i]
-        for j in range(m):
-            a[i, j] = -eps * xl[i, j] - ai * b[i, j] * arm[j]
-        a[i, m] = j1mu[i] - ai * bj[i]
-        a[m, i] = row[i] - ai * btrf[i]
-        rhs[i, 0] = -r1[i] - ai * br2[i]
-        rhs[i, 1] = 0.0
-    a[0, :m] = 0.0
+        xli = xl[i]
+        bi = b[i]
+        for j in range(um):
+            gi[j] = -eps * xli[j] - ai * bi[j] * arm[j]
+        gi[m] = j1mu[i] - ai * bj[i]
+        g[m, i] = row[i] - ai * btrf[i]
+        gi[m + 1] = -r1[i] - ai * br2[i]
+        gi[m + 2] = 0.0
+    g[0, :m] = 0.0
     if clamped:
-        a[0, 0] = 1.0
+        g[0, 0] = 1.0
     else:
         for j in range(m):
-            a[0, j] = d1e[j]
-        a[0, 0] += nu
+            g[0, j] = d1e[j]
+        g[0, 0] += nu
     for i in range(1, m):
-        a[i, i] -= ftot[i]
+        g[i, i] -= ftot[i]
     rf_bj = 0.0
     rf_br2 = 0.0
     for i in range(m):
         rf_bj += row[m + i] * bj[i]
         rf_br2 += row[m + i] * br2[i]
-    a[m, m] = row[2 * m] - rf_bj
-    rhs[m, 0] = c0 - rf_br2
-    rhs[m, 1] = 1.0
-    _lu_solve(a, rhs)
+    g[m, m] = row[2 * m] - rf_bj
+    g[m, m + 1] = c0 - rf_br2
+    g[m, m + 2] = 1.0
+    _lu_solve(g, m + 1, np.empty(m + 3))
+    back = np.empty(m)
     for col in range(2):
-        dmu = rhs[m, col]
+        dmu = g[m, m + 1 + col]
+        back[:] = 0.0
+        for j in range(m):
+            dyj = g[j, m + 1 + col]
+            out[j, col] = dyj
+            _axpy(back, arm[j] * dyj, bt[j])
         for i in range(m):
-            out[i, col] = rhs[i, col]
-        for i in range(m):
-            acc = 0.0
-            for j in range(m):
-                acc += b[i, j] * (arm[j] * rhs[j, col])
             base = br2[i] if col == 0 else 0.0
-            out[m + i, col] = base - acc - bj[i] * dmu
+            out[m + i, col] = base - back[i] - bj[i] * dmu
         out[2 * m, col] = dmu
 
 
 @njit(cache=True)
 def _correct(anchor: np.ndarray, tangent: np.ndarray, s: float, w: np.ndarray, tol: float, max_iter: int,
-             prm: np.ndarray, imp: np.ndarray, eig: np.ndarray, b: np.ndarray, x: np.ndarray, xl: np.ndarray,
-             d1e: np.ndarray, sigma: np.ndarray, z: np.ndarray, t_out: np.ndarray) -> tuple[bool, int]:
+             prm: np.ndarray, imp: np.ndarray, eig: np.ndarray, b: np.ndarray, bt: np.ndarray, x: np.ndarray,
+             xl: np.ndarray, xlt: np.ndarray, d1e: np.ndarray, sigma: np.ndarray, z: np.ndarray,
+             t_out: np.ndarray) -> tuple[bool, int]:
     """Newton-correct ``anchor + s·tangent`` onto the path at arclength ``s`` (one cap).
 
     Writes the state into ``z`` and the unit tangent into ``t_out``; returns (converged,
@@ -228,7 +237,7 @@ def _correct(anchor: np.ndarray, tangent: np.ndarray, s: float, w: np.ndarray, t
         c0 = s
         for i in range(m1):
             c0 -= tangent[i] * (z[i] - anchor[i]) * w[i]
-        _newton_solve(z, row, c0, prm, imp, eig, b, x, xl, d1e, sigma, out)
+        _newton_solve(z, row, c0, prm, imp, eig, b, bt, x, xl, xlt, d1e, sigma, out)
         for i in range(m1):
             dz[i] = out[i, 0]
             tn[i] = out[i, 1]
@@ -270,12 +279,14 @@ def _trace(z0: np.ndarray, t0: np.ndarray, w: np.ndarray, first_step: float, max
     eigen = prm[_P_MISMATCH] != 0.0
     z = np.empty(m1)
     tn = np.empty(m1)
+    bt = np.ascontiguousarray(b.T)
+    xlt = np.ascontiguousarray(xl.T)
     while True:
         zc = zh[count - 1]
         tc = th[count - 1]
         cos_max = np.cos(np.radians(turn_cap))
         step_max = step_cap
-        conv, its = _correct(zc, tc, h, w, tol, max_iter, prm, imp, eig, b, x, xl, d1e, sigma, z, tn)
+        conv, its = _correct(zc, tc, h, w, tol, max_iter, prm, imp, eig, b, bt, x, xl, xlt, d1e, sigma, z, tn)
         ok = conv
         cosang = 0.0
         if ok:
@@ -391,12 +402,14 @@ def correct_caps_on_arc(pb: CapPathProblem, anchor: np.ndarray, tangent: np.ndar
     conv = np.zeros(k, dtype=bool)
     its = np.zeros(k, dtype=int)
     tn = np.empty(m1)
+    xlt = np.ascontiguousarray(xl.T)
     for r in range(k):
         i = int(idx[r])
+        b = pb.stretch_inverse[i]
         ok, it = _correct(np.ascontiguousarray(anchor[r]), np.ascontiguousarray(tangent[r]), float(s[r]), w, tol,
                           max_iter, prm[i], np.ascontiguousarray(pb.imperfection[i]),
-                          np.ascontiguousarray(pb.eigen_stress[i]), np.ascontiguousarray(pb.stretch_inverse[i]),
-                          x, xl, d1e, sigma, z[r], tn)
+                          np.ascontiguousarray(pb.eigen_stress[i]), np.ascontiguousarray(b),
+                          np.ascontiguousarray(b.T), x, xl, xlt, d1e, sigma, z[r], tn)
         conv[r], its[r] = ok, it
         if ok:
             t[r] = tn
