@@ -152,7 +152,7 @@ class ShallowCapModel(SweepModel):
     """Shallow spherical cap under pressure or an apex force: limit points and bifurcations."""
 
     name: ClassVar[str] = "shallow_cap"
-    version: ClassVar[str] = "1.6"
+    version: ClassVar[str] = "1.7"
     summary: ClassVar[str] = ("shallow spherical cap (Föppl–von Kármán): snap-through, asymmetric "
                               "bifurcation, apex indentation, mismatch strain, dimple imperfections")
     parameters: ClassVar[tuple[ParameterSpec, ...]] = (
@@ -187,7 +187,7 @@ class ShallowCapModel(SweepModel):
                       bounds=(0.0, math.inf), closed=(False, False), symbol="E"),
     )
     regimes: ClassVar[tuple[str, ...]] = ("stable", "limit_point", "bifurcation")
-    # measured (one core, wall, benchmarks/bench_shallow_cap.py): ~2 ms axisymmetric, ~16 ms with the
+    # measured (one core, wall, benchmarks/bench_shallow_cap.py): ~1.8 ms axisymmetric, ~16 ms with the
     # scan, ~21 ms with bistability
     cost_hint: ClassVar[float] = 0.025
 

@@ -22,7 +22,8 @@ from numba import njit
 
 from sweepshell.models.shallow_cap_kernels import CapPathProblem
 
-__all__ = ["assemble_reduced_stability", "correct_caps_on_arc", "pack_cap_parameters", "trace_cap_paths"]
+__all__ = ["assemble_reduced_stability", "correct_caps_on_arc", "pack_cap_parameters", "refine_caps_on_arc",
+           "trace_cap_paths"]
 
 _P_EPS, _P_NU, _P_KAP, _P_FS, _P_CLAMPED, _P_IMMOVABLE, _P_APEX, _P_MISMATCH, _P_EDGE, _P_DEFL = range(10)
 _TRACE_RUNNING, _TRACE_DONE, _TRACE_STALLED, _TRACE_STEP_LIMIT = 0, 1, 2, 3
@@ -90,12 +91,25 @@ def _lu_solve(g: np.ndarray, n: int, u: np.ndarray) -> None:
             lik = gi[k] * inv
             for j in range(lo1, hi):
                 gi[j] -= lik * u[j]
-    for col in range(n, w):
+    # back substitution, right-hand sides in pairs: two independent sums hide the add latency
+    sol = np.empty((w - n, n))
+    for col in range(n, w, 2):
+        pair = col + 1 < w
+        x0 = sol[col - n]
+        x1 = sol[col + 1 - n] if pair else x0
         for k in range(n - 1, -1, -1):
-            acc = g[k, col]
+            gk = g[k]
+            acc0 = gk[col]
+            acc1 = gk[col + 1] if pair else 0.0
             for i in range(k + 1, n):
-                acc -= g[k, i] * g[i, col]
-            g[k, col] = acc / g[k, k]
+                acc0 -= gk[i] * x0[i]
+                acc1 -= gk[i] * x1[i]
+            x0[k] = acc0 / gk[k]
+            if pair:
+                x1[k] = acc1 / gk[k]
+    for col in range(n, w):
+        for k in range(n):
+            g[k, col] = sol[col - n, k]
 
 
 @njit(cache=True)
@@ -464,3 +478,89 @@ def assemble_reduced_stability(bilap: np.ndarray, bracket: np.ndarray, w2: np.nd
                 g[i, j] = z2i * red[i, j] + xz1i * red[m + i, j]
         a += np.dot(g, c)
     return out
+
+
+@njit(cache=True)
+def _refine(anchor: np.ndarray, tangent: np.ndarray, s_hi: float, g_lo: float, g_hi: float, use_load: bool,
+            w: np.ndarray, tol: float, max_iter: int, iterations: int, s_tol: float, prm: np.ndarray,
+            imp: np.ndarray, eig: np.ndarray, b: np.ndarray, bt: np.ndarray, x: np.ndarray, xl: np.ndarray,
+            xlt: np.ndarray, d1e: np.ndarray, sigma: np.ndarray, z_best: np.ndarray,
+            t_best: np.ndarray) -> tuple[float, bool]:
+    """One cap of ``refine_on_arc`` with the measure ``t_μ`` (fold) or ``μ`` (``use_load``).
+
+    Writes the refined state and tangent into ``z_best``, ``t_best``; returns (s, ok).
+    """
+    m1 = anchor.shape[0]
+    lo = 0.0
+    hi = s_hi
+    glo = g_lo
+    ghi = g_hi
+    side = 0
+    s_a = g_a = s_b = g_b = s_last = np.nan
+    z = np.empty(m1)
+    t = np.empty(m1)
+    scale = max(s_hi, 1e-300)
+    for _ in range(iterations):
+        width = hi - lo
+        denom = ghi - glo
+        s = (lo * ghi - hi * glo) / denom if denom != 0 else 0.5 * (lo + hi)
+        gd = g_b - g_a
+        sec = s_b - g_b * (s_b - s_a) / gd if gd != 0 else np.nan
+        if np.isfinite(sec) and sec > lo + 1e-3 * width and sec < hi - 1e-3 * width:
+            s = sec
+        else:
+            if np.isnan(s):
+                s = 0.0
+            s = min(max(s, lo + 0.01 * width), hi - 0.01 * width)
+        conv, _ = _correct(anchor, tangent, s, w, tol, max_iter, prm, imp, eig, b, bt, x, xl, xlt, d1e, sigma, z, t)
+        if not conv:
+            s_out = s_last if np.isfinite(s_last) else 0.5 * (lo + hi)
+            return s_out, False
+        g = z[m1 - 1] if use_load else t[m1 - 1]
+        z_best[:] = z
+        t_best[:] = t
+        s_a, g_a = s_b, g_b
+        s_b, g_b = s, g
+        moved = abs(s - s_last)
+        s_last = s
+        if np.sign(g) == np.sign(glo):
+            # Illinois: halve the stale end's value when the same end moves twice
+            if side == -1:
+                ghi *= 0.5
+            lo, glo, side = s, g, -1
+        else:
+            if side == 1:
+                glo *= 0.5
+            hi, ghi, side = s, g, 1
+        if (hi - lo) < s_tol * scale or moved < s_tol * scale or g == 0.0:
+            break
+    s_out = s_last if np.isfinite(s_last) else 0.5 * (lo + hi)
+    return s_out, True
+
+
+def refine_caps_on_arc(pb: CapPathProblem, anchor: np.ndarray, tangent: np.ndarray, s_hi: np.ndarray,
+                       g_lo: np.ndarray, g_hi: np.ndarray, idx: np.ndarray, w: np.ndarray, *, use_load: bool,
+                       tol: float, max_iter: int, iterations: int, s_tol: float,
+                       ) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+    """Compiled :func:`sweepshell.numerics.arclength.refine_on_arc` for the measures ``t_μ`` and ``μ``.
+
+    ``use_load`` False refines a limit point (zero of the tangent's load component), True a
+    return to zero load. Same results as the numpy function with that measure.
+    """
+    k, m1 = anchor.shape
+    x, xl, d1e, sigma, _ = _shared(pb)
+    xlt = np.ascontiguousarray(xl.T)
+    prm = pack_cap_parameters(pb)
+    z = np.full((k, m1), np.nan)
+    t = np.full((k, m1), np.nan)
+    s = np.empty(k)
+    ok = np.zeros(k, dtype=bool)
+    for r in range(k):
+        i = int(idx[r])
+        b = pb.stretch_inverse[i]
+        s[r], ok[r] = _refine(np.ascontiguousarray(anchor[r]), np.ascontiguousarray(tangent[r]), float(s_hi[r]),
+                              float(g_lo[r]), float(g_hi[r]), use_load, w, tol, max_iter, iterations, s_tol,
+                              prm[i], np.ascontiguousarray(pb.imperfection[i]),
+                              np.ascontiguousarray(pb.eigen_stress[i]), np.ascontiguousarray(b),
+                              np.ascontiguousarray(b.T), x, xl, xlt, d1e, sigma, z[r], t[r])
+    return z, t, s, ok

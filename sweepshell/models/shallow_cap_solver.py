@@ -19,7 +19,7 @@ from typing import Any
 import numpy as np
 
 from sweepshell.models.base import Status
-from sweepshell.models.shallow_cap_compiled import correct_caps_on_arc, trace_cap_paths
+from sweepshell.models.shallow_cap_compiled import correct_caps_on_arc, refine_caps_on_arc, trace_cap_paths
 from sweepshell.models.shallow_cap_kernels import CapPathProblem, eigenstrain_stress
 from sweepshell.models.shallow_cap_modes import compute_mode_determinants, count_unstable_modes
 from sweepshell.numerics.arclength import (
@@ -270,9 +270,9 @@ def solve_caps(lam: np.ndarray, nu: np.ndarray, clamped: np.ndarray, immovable: 
     rf = np.nonzero(has_fold & ((jb < 0) | (jb >= jf + 1)))[0]
     if rf.size:
         jr = jf[rf]
-        zf, _, sf, okf = refine_on_arc(
+        zf, _, sf, okf = refine_caps_on_arc(
             pb, hist.z[rf, jr], hist.t[rf, jr], hist.step[rf, jr + 1], tmu[rf, jr], tmu[rf, jr + 1], rf, w,
-            lambda z, t, ii: t[:, -1], tol=tol, max_iter=8, iterations=40, s_tol=1e-7, corrector=correct_caps_on_arc)
+            use_load=False, tol=tol, max_iter=8, iterations=40, s_tol=1e-7)
         z_fold[rf], crit_s_fold[rf] = zf, sf
         refine_ok[rf] &= okf
     if crossings.point.size:
@@ -353,10 +353,9 @@ def _check_bistability(pb: CapPathProblem, hist: Any, w: np.ndarray, has_fold: n
     if rows.size == 0:
         return out
     j = np.argmax(up[rows], axis=1)
-    zr, tr, _, ok = refine_on_arc(pb, hist.z[rows, j], hist.t[rows, j], hist.step[rows, j + 1],
-                                  mu[rows, j], mu[rows, j + 1], rows, w, lambda z, t, ii: z[:, -1],
-                                  tol=tol, max_iter=8, iterations=30, s_tol=1e-6,
-                                  corrector=correct_caps_on_arc)
+    zr, tr, _, ok = refine_caps_on_arc(pb, hist.z[rows, j], hist.t[rows, j], hist.step[rows, j + 1],
+                                       mu[rows, j], mu[rows, j + 1], rows, w, use_load=True,
+                                       tol=tol, max_iter=8, iterations=30, s_tol=1e-6)
     stable = ok & (np.nan_to_num(tr[:, -1]) > 0)
     if modes.size and ok.any():
         unstable = count_unstable_modes(pb, np.nan_to_num(zr[ok]), rows[ok], modes)

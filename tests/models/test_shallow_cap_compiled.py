@@ -120,3 +120,28 @@ def test_compiled_reduced_stability_matrix_is_the_schur_complement_of_the_full_m
         scale = np.abs(want).max(axis=(1, 2), keepdims=True)
         np.testing.assert_allclose(got / scale, want / scale, rtol=0, atol=1e-9, err_msg=f"n={n}")
         assert j == list(modes).index(n)
+
+
+def test_compiled_fold_refinement_matches_refine_on_arc():
+    from sweepshell.models.shallow_cap_compiled import refine_caps_on_arc
+    from sweepshell.numerics.arclength import refine_on_arc
+
+    pb, w, idx, z0, t0 = make_mixed_problem()
+    zh, th, sh, _, _ = trace_cap_paths(pb, z0, t0, w, first_step=0.1, max_step=0.25, min_step=1e-7,
+                                           max_points=400, max_turn_deg=12.0, tol=1e-10, max_iter=8,
+                                           mu_max=np.full(idx.size, np.inf), defl_max=np.full(idx.size, 1e3),
+                                           check_bistability=False, max_suction=2.0)
+    tmu = th[:, :, -1]
+    bracket = (tmu[:, :-1] > 0) & (tmu[:, 1:] <= 0)
+    rows = np.nonzero(bracket.any(axis=1))[0]
+    assert rows.size >= 3  # the deeper caps have a limit point
+    j = np.argmax(bracket[rows], axis=1)
+    args = (zh[rows, j], th[rows, j], sh[rows, j + 1], tmu[rows, j], tmu[rows, j + 1], rows, w)
+    want = refine_on_arc(pb, *args, lambda z, t, ii: t[:, -1], tol=1e-10, max_iter=8, iterations=40, s_tol=1e-7)
+    got = refine_caps_on_arc(pb, *args, use_load=False, tol=1e-10, max_iter=8, iterations=40, s_tol=1e-7)
+    np.testing.assert_array_equal(got[3], want[3])
+    assert want[3].all()
+    # both stop once the bracket is below s_tol·s_hi (1e-8 here): rounding moves the last secant step
+    np.testing.assert_allclose(got[2], want[2], rtol=0, atol=1e-9)
+    np.testing.assert_allclose(got[0], want[0], rtol=0, atol=1e-8)
+    assert np.abs(got[1][:, -1]).max() < 1e-6  # the tangent's load component vanishes at the fold
