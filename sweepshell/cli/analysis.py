@@ -188,7 +188,6 @@ def _out_path(args: argparse.Namespace, suffix: str) -> str:
 
 def _cmd_map(args: argparse.Namespace) -> int:
     from sweepshell.plot.regime_map import draw_output_lines, draw_regime_map
-    from sweepshell.plot.style import save_figure
     from sweepshell.query.slicing import parse_at
     from sweepshell.query.table import describe_fields
 
@@ -203,10 +202,16 @@ def _cmd_map(args: argparse.Namespace) -> int:
         if args.contour:
             raise QueryError("--contour applies to regime maps (--y AXIS), not to line plots", field="contour")
         result = draw_output_lines(ds, args.x, args.y, series=args.color, at=at)
-    save_figure(result.figure, out)
-    for cut in result.view.cuts:
-        print(f"fixed {cut.describe()}", file=sys.stderr)
-    for note in result.notes:
+    return _save_and_tell(result.figure, out, [f"fixed {cut.describe()}" for cut in result.view.cuts]
+                          + list(result.notes))
+
+
+def _save_and_tell(figure: Any, out: str, notes: list[str]) -> int:
+    """Save a figure, say on stderr what was fixed or noticed, and print the file written."""
+    from sweepshell.plot.style import save_figure
+
+    save_figure(figure, out)
+    for note in notes:
         print(note, file=sys.stderr)
     print(out)
     return 0
@@ -306,17 +311,12 @@ def _register_path(subparsers: Any) -> None:
 
 def _cmd_path(args: argparse.Namespace) -> int:
     from sweepshell.plot.paths import draw_load_paths, parse_point
-    from sweepshell.plot.style import save_figure
 
     ds = _open(args.store)
     points = [parse_point(text) for text in args.at or []]
     out = _out_path(args, "path")
     result = draw_load_paths(ds, points, y=args.y, x=args.x)
-    save_figure(result.figure, out)
-    for note in result.notes:
-        print(note, file=sys.stderr)
-    print(out)
-    return 0
+    return _save_and_tell(result.figure, out, list(result.notes))
 
 
 def _register_report(subparsers: Any) -> None:
