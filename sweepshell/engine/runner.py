@@ -24,7 +24,7 @@ from sweepshell.engine.plan import Block, ExecutorSpec, SweepPlan, choose_block_
 from sweepshell.engine.reuse import Donor, find_donors
 from sweepshell.engine.worker import compute_block
 from sweepshell.models import make_model
-from sweepshell.models.base import Status
+from sweepshell.models.base import Status, SweepModel
 from sweepshell.store.reader import is_block_final, read_ledger
 from sweepshell.store.writer import (
     check_store_matches,
@@ -107,9 +107,9 @@ class RunSummary:
         return f"{done}: {self.total} points ({', '.join(parts) or 'none'}) -> {self.store_path}"
 
 
-def prepare_store(plan: SweepPlan) -> tuple[tuple[int, ...], bool]:
+def prepare_store(plan: SweepPlan, model: SweepModel | None = None) -> tuple[tuple[int, ...], bool]:
     """Check or create the store of ``plan``; return its block shape and whether it was new."""
-    model = make_model(plan.model, plan.settings)
+    model = model or make_model(plan.model, plan.settings)
     path = plan.store_path
     if Path(path).exists():
         check_store_matches(path, plan, model)
@@ -202,14 +202,16 @@ def run_plan(plan: SweepPlan, *, observer: RunObserver | None = None, claim_ttl:
     observer = observer or SilentObserver()
     t0 = time.perf_counter()
     path = plan.store_path
-    if Path(path).exists():  # refuse a store of another sweep before starting anything
-        check_store_matches(path, plan, make_model(plan.model, plan.settings))
+    model = make_model(plan.model, plan.settings)
+    existing = Path(path).exists()
+    # an existing store is checked (a store of another sweep is refused) before anything starts
+    block_shape: tuple[int, ...] = prepare_store(plan, model)[0] if existing else ()
     tally = {"model_seconds": 0.0, "computed": 0, "blocks": 0, "by_others": 0, "reused": 0}
     claims: ClaimBook | None = None
-    block_shape: tuple[int, ...] = ()
     try:
         with _client_started_early(plan) as get_client:
-            block_shape, _ = prepare_store(plan)
+            if not existing:
+                block_shape, _ = prepare_store(plan, model)
             ledger = read_ledger(path, block_shape)
             pending = [b for b in iter_blocks(plan.shape, block_shape)
                        if np.any(ledger[b.slices] == Status.pending)]
@@ -218,7 +220,7 @@ def run_plan(plan: SweepPlan, *, observer: RunObserver | None = None, claim_ttl:
                                   blocks=0, wall_seconds=time.perf_counter() - t0)
             to_compute = sum(b.n_points for b in pending)
             claims = ClaimBook(path, ttl=claim_ttl)
-            donors = find_donors(plan, make_model(plan.model, plan.settings)) if plan.reuse else []
+            donors = find_donors(plan, model) if plan.reuse else []
             client = get_client()
             observer.start(plan.n_points, plan.n_points - to_compute, to_compute)
             _drive(client, plan, pending, claims, observer, tally, donors)
