@@ -12,16 +12,7 @@ import pytest
 
 from sweepshell import CAUTION
 from sweepshell.cli.main import main
-from tests.query.stores import FAULTY_OVERRIDES, make_column_store
-
-SWEEP = """\
-name: column3
-model: winkler_column
-axes:
-  stiffness_ratio: {logspace: [-1, 3, 13]}
-  load_ratio: {linspace: [0.5, 40, 11]}
-  end: [pinned, weak]
-"""
+from tests.query.stores import FAULTY_OVERRIDES, THREE_AXES, make_column_store
 
 
 class Collector(HTMLParser):
@@ -45,7 +36,7 @@ class Collector(HTMLParser):
 
 @pytest.fixture(scope="module")
 def store(tmp_path_factory):
-    return make_column_store(tmp_path_factory.mktemp("r"), "column3", FAULTY_OVERRIDES, sweep_text=SWEEP)
+    return make_column_store(tmp_path_factory.mktemp("r"), "column3", FAULTY_OVERRIDES, sweep_text=THREE_AXES)
 
 
 def test_report_is_self_contained_and_says_what_was_computed(store, tmp_path, capsys):

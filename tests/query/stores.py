@@ -16,6 +16,16 @@ from sweepshell.engine.worker import compute_block
 from tests.conftest import COLUMN_SWEEP, CONFIGS, write_sweep
 
 #: a column sweep with a few failed and outside-validity points (load_ratio == 0.5 fails; eta > 500 is outside)
+#: a three-axis column sweep (one named axis) shared by the boundary and report tests
+THREE_AXES = """\
+name: column3
+model: winkler_column
+axes:
+  stiffness_ratio: {logspace: [-1, 3, 13]}
+  load_ratio: {linspace: [0.5, 40, 11]}
+  end: [pinned, weak]
+"""
+
 FAULTY_OVERRIDES = ("+settings.fail_at=0.5", "settings.validity_limit=500")
 
 

@@ -17,7 +17,7 @@ from sweepshell.cli.main import main
 from sweepshell.query.boundary import find_boundary
 from sweepshell.store.points import read_points
 from sweepshell.testing import WinklerColumnModel, winkler_column_critical
-from tests.query.stores import make_column_store
+from tests.query.stores import THREE_AXES, make_column_store
 
 # The stable/buckled boundary of the column is load_ratio = P_cr(η) L²/(π²B) = min_m (m² + η/m²)
 # (Timoshenko & Gere 1961, pinned beam on a Winkler foundation), increasing in η.
@@ -107,15 +107,6 @@ def test_bad_requests_and_other_model_versions_are_refused(store, capsys, monkey
     assert "winkler_column 1.0" in capsys.readouterr().err
     assert read_points(store) is None
 
-
-THREE_AXES = """\
-name: column3
-model: winkler_column
-axes:
-  stiffness_ratio: {logspace: [-1, 3, 13]}
-  load_ratio: {linspace: [0.5, 40, 11]}
-  end: [pinned, weak]
-"""
 
 
 def test_boundary_on_a_view_with_a_named_axis_fixed(tmp_path):
