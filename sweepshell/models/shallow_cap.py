@@ -39,7 +39,7 @@ carries the membrane stress of the classical sphere, N = −E h ε₀/2 = −E h
 the region is a step smoothed by a Gaussian, χ = ½[erf((x+ρ)/w) − erf((x−ρ)/w)] (even in x),
 ``mismatch_step_width`` w = 0.1 a by default: a coating whose edge tapers over ≈ 0.2 a
 (10–90 %). Results converge spectrally in ``nodes`` for fixed w; mismatch points use
-max(``nodes``, ⌈3.4/w⌉) nodes (34 at the default w; about 10⁻⁶ relative accuracy);
+max(``nodes`` or 34, ⌈3.4/w⌉) nodes (34 at the default w; about 10⁻⁶ relative accuracy);
 the sharp-edge limit w → 0 is approached roughly as w^1.8 and matters where a mode sits at
 the region's edge: a shrinking disc (ρ = 0.5, clamped, λ = 8) wrinkles at e = −4.46 with
 w = 0.1, −4.04 with w = 0.05, −3.91 with w = 0.025 (about −3.86 extrapolated); a swelling
@@ -91,7 +91,8 @@ Conventions
 
 Numerics
 --------
-Chebyshev collocation on the odd half grid (``nodes`` points in 0 < x ≤ 1), Newton with the
+Chebyshev collocation on the odd half grid (``nodes`` points in 0 < x ≤ 1; see "Resolution"
+below), Newton with the
 analytic Jacobian and the stretching block eliminated (Schur complement), pseudo-arclength
 continuation with step control on Newton work and tangent turning (each cap's whole path and
 every Newton corrector run in compiled per-cap kernels, :mod:`.shallow_cap_compiled`; the
@@ -110,11 +111,29 @@ gave results identical to stride 1 on 348 test points. For sliding edges, n = 1 
 in-plane edge condition (N_r and N_rθ both reduce to F' − F). The apex-force singularity
 y ∝ x log x is subtracted analytically.
 
+Resolution
+----------
+``nodes`` = 0 (default) picks each point's grid (:func:`choose_grids`): the count grows linearly
+with λ (14 + λ with the asymmetric scan, 12 + 1.5λ without; dimpled caps also 4 + 2λ/b; apex
+forces 16 + 1.4λ; even, 16 … 96), fitted to the measured need for 3·10⁻⁷ relative accuracy of
+the critical load over λ = 3.5 … 30 and checked against grids twice as fine
+(tests/models/test_shallow_cap_resolution.py). Dimpled caps and apex forces use nodes stretched
+towards the axis, x = (1 − β)ξ + βξ³ of the Chebyshev points ξ (β = ``dimple_grid_stretch``
+0.5, ``apex_grid_stretch`` 0.85), because their solutions vary fastest there; perfect caps keep
+Chebyshev points (the asymmetric modes live at the edge, where the stretch coarsens the grid).
+Apex-force results converge only algebraically: after the x log x singularity is removed the
+nonlinear state keeps weaker singular terms at the apex, and the force maximum is resolved to
+about 3·10⁻⁴ (on 34 plain nodes, as before version 1.8, it was off by 1–2 %). A positive
+``nodes`` fixes the count for all points (stretches still apply).
+
+The continuation limits the tangent's turn per step to ``max_turn_deg`` = 8°: near λ ≈ 25 a
+small first fold (δ ≈ 0.4 h) is stepped over with 12° turns (tested, with other λ where the
+first pressure maximum changes fold).
+
 Range of validity
 -----------------
 Shallow caps (a/R ≲ 0.5; points with physical dimensions and a/R > ``max_base_ratio`` get
-``outside_validity``), elastic, moderate rotations, axisymmetric stress-free shape. The
-default resolution resolves λ up to about 20 (see the convergence test).
+``outside_validity``), elastic, moderate rotations, axisymmetric stress-free shape; λ ≤ 30.
 
 References checked by the tests
 -------------------------------
@@ -152,7 +171,7 @@ class ShallowCapModel(SweepModel):
     """Shallow spherical cap under pressure or an apex force: limit points and bifurcations."""
 
     name: ClassVar[str] = "shallow_cap"
-    version: ClassVar[str] = "1.7"
+    version: ClassVar[str] = "1.8"
     summary: ClassVar[str] = ("shallow spherical cap (Föppl–von Kármán): snap-through, asymmetric "
                               "bifurcation, apex indentation, mismatch strain, dimple imperfections")
     parameters: ClassVar[tuple[ParameterSpec, ...]] = (
@@ -191,11 +210,18 @@ class ShallowCapModel(SweepModel):
     # scan, ~21 ms with bistability
     cost_hint: ClassVar[float] = 0.025
 
-    def __init__(self, *, nodes: int = 34, asymmetric_modes: int = 30, max_pressure: float = 2.0,
+    def __init__(self, *, nodes: int = 0, asymmetric_modes: int = 30, max_pressure: float = 2.0,
                  max_indentation: float = 1.0, path_samples: int = 64, check_bistability: bool = True,
                  tolerance: float = 1e-10, max_points: int = 400, max_base_ratio: float = 0.5,
-                 max_turn_deg: float = 12.0, scan_stride: int = 3, mismatch_step_width: float = 0.1) -> None:
+                 max_turn_deg: float = 8.0, scan_stride: int = 3, mismatch_step_width: float = 0.1,
+                 dimple_grid_stretch: float = 0.5, apex_grid_stretch: float = 0.85) -> None:
         super().__init__()
+        for key, beta in (("dimple_grid_stretch", dimple_grid_stretch), ("apex_grid_stretch", apex_grid_stretch)):
+            if not 0.0 <= float(beta) < 1.0:
+                raise ValueError(f"settings.{key} must be in [0, 1) (a grid map x = (1-b) xi + b xi^3); "
+                                 f"got {beta}")
+        if int(nodes) != 0 and int(nodes) < 8:
+            raise ValueError(f"settings.nodes must be 0 (automatic) or at least 8; got {nodes}")
         self._settings: dict[str, Any] = {
             "nodes": int(nodes), "asymmetric_modes": int(asymmetric_modes),
             "max_pressure": float(max_pressure), "max_indentation": float(max_indentation),
@@ -204,6 +230,7 @@ class ShallowCapModel(SweepModel):
             "max_base_ratio": float(max_base_ratio), "max_turn_deg": float(max_turn_deg),
             "scan_stride": max(int(scan_stride), 1),
             "mismatch_step_width": float(mismatch_step_width),
+            "dimple_grid_stretch": float(dimple_grid_stretch), "apex_grid_stretch": float(apex_grid_stretch),
         }
 
     @property
@@ -331,26 +358,64 @@ def _get(inputs: Mapping[str, np.ndarray], key: str, n: int) -> np.ndarray:
     return np.full(n, np.nan)
 
 
+_FIXED_NODES = 34  # mismatch points' base grid when ``nodes`` is automatic
+
+
 def get_mismatch_nodes(settings: Mapping[str, Any]) -> int:
     """Return the grid size of mismatch-strain points: ``nodes``, raised until w·nodes ≥ 3.4.
 
     The smoothed edge of the strained region sits inside the cap, where the Chebyshev grid is
     coarsest; below w·nodes ≈ 3.4 the results lose digits fast (10⁻⁶ relative at 3.4, 10⁻³ at 2).
+    Automatic ``nodes`` (0) starts from 34 here.
     """
-    return max(int(settings["nodes"]), math.ceil(3.4 / float(settings["mismatch_step_width"])))
+    base = int(settings["nodes"]) or _FIXED_NODES
+    return max(base, math.ceil(3.4 / float(settings["mismatch_step_width"])))
+
+
+def choose_grids(settings: Mapping[str, Any], lam: np.ndarray, apex: np.ndarray, eigen: np.ndarray,
+                 amplitude: np.ndarray, width: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Return each point's radial grid: node count and stretch β (see ``make_radial_grid``).
+
+    With ``nodes`` 0 (automatic) the count follows the measured need for 3·10⁻⁷ relative
+    accuracy of the critical load (tests/models/test_shallow_cap_resolution.py; DEVELOPERS.md).
+    It grows about linearly with λ (edge and ridge layers of width ∝ 1/λ; a dimple of width b
+    over a/λ has width b/λ in x). Grids are stretched towards the axis where the solution
+    varies fastest there: dimpled caps (``dimple_grid_stretch``) and apex forces
+    (``apex_grid_stretch``); perfect caps under pressure keep Chebyshev points, whose edge
+    clustering the asymmetric modes need; mismatch points use :func:`get_mismatch_nodes`.
+    Counts are even, from 16 to 96.
+    """
+    scan = int(settings["asymmetric_modes"]) > 0
+    dimpled = (amplitude != 0.0) & ~apex & ~eigen
+    beta = np.where(apex, float(settings["apex_grid_stretch"]),
+                    np.where(dimpled, float(settings["dimple_grid_stretch"]), 0.0))
+    if int(settings["nodes"]):
+        nodes = np.full(lam.shape, int(settings["nodes"]))
+    else:
+        perfect = 14.0 + lam if scan else 12.0 + 1.5 * lam
+        stretched = 12.0 + 1.5 * lam if scan else 14.0 + 1.2 * lam
+        dimple = 4.0 + 2.0 * lam / np.maximum(width, 0.25)
+        need = np.where(apex, 16.0 + 1.4 * lam, np.where(dimpled, np.maximum(stretched, dimple), perfect))
+        nodes = np.clip(np.ceil(need / 2.0) * 2.0, 16, 96).astype(int)
+    nodes = np.where(eigen, get_mismatch_nodes(settings), nodes)
+    return nodes, np.where(eigen, 0.0, beta)
 
 
 def _solve_by_grid(s: Mapping[str, Any], eigen: np.ndarray, *args: np.ndarray) -> CapSolution:
-    """Solve pressure/apex-force points on ``nodes`` and mismatch points on their finer grid."""
+    """Solve the points in groups that share a radial grid (:func:`choose_grids`)."""
     lam, nu, clamped, immovable, apex, amp, width, strain, radius, annulus = args
+    nodes, stretch = choose_grids(s, lam, apex, eigen, amp, width)
+    keys = np.stack([nodes.astype(float), stretch], axis=1)
+    groups, inverse = np.unique(keys, axis=0, return_inverse=True)
+    inverse = inverse.reshape(-1)
     parts: list[tuple[np.ndarray, CapSolution]] = []
-    for rows, settings in ((np.nonzero(~eigen)[0], s),
-                           (np.nonzero(eigen)[0], {**s, "nodes": get_mismatch_nodes(s)})):
-        if rows.size:
-            parts.append((rows, solve_caps(
-                lam[rows], nu[rows], clamped[rows], immovable[rows], apex[rows], amp[rows], width[rows],
-                settings=settings, mismatch=eigen[rows], mismatch_strain=strain[rows],
-                mismatch_radius=radius[rows], annulus=annulus[rows])))
+    for k, (size, beta) in enumerate(groups):
+        rows = np.nonzero(inverse == k)[0]
+        settings = {**s, "nodes": int(size), "grid_stretch": float(beta)}
+        parts.append((rows, solve_caps(
+            lam[rows], nu[rows], clamped[rows], immovable[rows], apex[rows], amp[rows], width[rows],
+            settings=settings, mismatch=eigen[rows], mismatch_strain=strain[rows],
+            mismatch_radius=radius[rows], annulus=annulus[rows])))
     if len(parts) == 1:
         return parts[0][1]
     out = {}

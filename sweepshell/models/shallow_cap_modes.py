@@ -64,8 +64,8 @@ class ModeOperators:
     stress: FieldOperators
 
 
-def _field_operators(size: int, n: int, m: int) -> FieldOperators:
-    g = make_radial_grid(size)
+def _field_operators(size: int, n: int, m: int, stretch: float) -> FieldOperators:
+    g = make_radial_grid(size, stretch)
     x = g.x
     pv = 1 if (n - m) % 2 == 0 else -1
     pn = 1 if n % 2 == 0 else -1
@@ -83,10 +83,13 @@ def _field_operators(size: int, n: int, m: int) -> FieldOperators:
 
 
 @lru_cache(maxsize=512)
-def make_mode_operators(size: int, n: int) -> ModeOperators:
-    """Return the operators of wave number ``n ≥ 1`` on a half grid of ``size`` nodes (cached)."""
-    return ModeOperators(n=n, deflection=_field_operators(size, n, 1 if n == 1 else 2),
-                         stress=_field_operators(size, n, 3 if n == 1 else 2))
+def make_mode_operators(size: int, n: int, stretch: float = 0.0) -> ModeOperators:
+    """Return the operators of wave number ``n ≥ 1`` on a half grid of ``size`` nodes (cached).
+
+    ``stretch`` is the grid map's β (see :func:`~sweepshell.numerics.radial_chebyshev.make_radial_grid`).
+    """
+    return ModeOperators(n=n, deflection=_field_operators(size, n, 1 if n == 1 else 2, stretch),
+                         stress=_field_operators(size, n, 3 if n == 1 else 2, stretch))
 
 
 def _stress_edge_rows(ops: ModeOperators, nu: float, immovable: bool) -> tuple[np.ndarray, np.ndarray]:
@@ -110,13 +113,13 @@ def _stress_edge_rows(ops: ModeOperators, nu: float, immovable: bool) -> tuple[n
 
 
 @lru_cache(maxsize=2048)
-def _make_stress_reduction(size: int, n: int, nu: float, immovable: bool) -> np.ndarray:
+def _make_stress_reduction(size: int, n: int, nu: float, immovable: bool, stretch: float = 0.0) -> np.ndarray:
     """Return ``[P₁; P₂] S⁻¹`` (``2M × M``), the fixed part of ``B S⁻¹`` (cached).
 
     ``B = −(diag(ζ'') P₁ + diag(x ζ') P₂)`` with ``P₁ = x φ' − n² φ``, ``P₂ = φ''`` operators on
     the stress function, zero on the two edge rows.
     """
-    ops = make_mode_operators(size, n)
+    ops = make_mode_operators(size, n, stretch)
     so = ops.stress
     s = so.bilaplacian.copy()
     s[0], s[1] = _stress_edge_rows(ops, nu, immovable)
@@ -200,6 +203,7 @@ def build_mode_matrices(ops: ModeOperators, x: np.ndarray, co: ModeCoefficients)
 def _reduced_matrices(problem: CapPathProblem, co: ModeCoefficients, modes: np.ndarray):  # type: ignore[no-untyped-def]
     """Yield ``(j, n, A − B S⁻¹ C)`` ``(k, M, M)`` for each wave number of ``modes``."""
     x = problem.grid.x
+    stretch = problem.grid.stretch
     m = co.f.shape[1]
     keys = list(zip(co.nu.tolist(), co.immovable.tolist(), strict=True))
     unique = sorted(set(keys))
@@ -207,9 +211,9 @@ def _reduced_matrices(problem: CapPathProblem, co: ModeCoefficients, modes: np.n
         else np.zeros(len(keys), dtype=np.int64)
     f, df, zeta1, zeta2 = (np.ascontiguousarray(v) for v in (co.f, co.df, co.zeta1, co.zeta2))
     for j, n in enumerate(modes):
-        ops = make_mode_operators(m, int(n))
+        ops = make_mode_operators(m, int(n), stretch)
         wo = ops.deflection
-        reduction = np.stack([_make_stress_reduction(m, int(n), nu, im) for nu, im in unique])
+        reduction = np.stack([_make_stress_reduction(m, int(n), nu, im, stretch) for nu, im in unique])
         a = assemble_reduced_stability(wo.bilaplacian, wo.bracket, wo.w2, wo.w0[0].copy(), wo.w1[0].copy(),
                                        wo.w2[0].copy(), x, reduction, group, f, df, zeta1, zeta2,
                                        co.nu.astype(float), co.clamped.astype(bool), co.immovable.astype(bool),
