@@ -63,7 +63,7 @@ Conventions
   its stability operators are those of the polynomial interpolant of the state, on a grid of
   3×``nodes`` (:mod:`.shallow_cap_modes`); on the state's own grid they have spurious n = 2, 3
   modes (determinant sign changes at the first loaded step). Observed with the defaults
-  (clamped immovable): no bifurcation for λ ≤ 8; n = 4 at δ = 18.9 h for λ = 10, n = 3 at
+  (clamped immovable): no bifurcation for λ = 4, 6, 8; n = 4 at δ = 18.9 h for λ = 10, n = 3 at
   δ ≈ 14.4–15.4 h, F R/(E h³) ≈ 6.1–6.3 for λ = 16–20 (nearly independent of λ: the dimple is local),
   well before the force maximum; pinned caps with λ = 6–8 bifurcate in n = 1 just before it.
   Deep indented shells do buckle into polygonal shapes once the inverted dimple is deep
