@@ -22,9 +22,9 @@ Under a point load the surface curvature ``ζ''`` (and ``ζ'/x``) of the state g
 ``log x`` at the apex. Collocating the operator with that curvature sampled at the nodes, or
 with the interpolant of the state on its own grid, is not a convergent discretisation. With
 the log sampled, the eigenvalues' rate of change with the force at zero force grows like the
-node count (λ = 10, n = 2: −7.2·10⁵, −1.1·10⁶, −1.7·10⁶, −2.3·10⁶ for 24, 34, 48, 64 nodes,
-against −2·10⁴ for a smooth change of the state), so n = 2, 3 determinants change sign at the
-first loaded step. With the state's interpolant on its own grid, at λ = 10 and δ ≈ h, the n = 3
+node count (λ = 10, n = 2, over λ⁴ per unit force P: −70, −109, −159, −213 for 24, 34, 48, 64
+nodes; on the refined grid below +0.082 at all four), so n = 2, 3 determinants change sign at
+the first loaded step. With the state's interpolant on its own grid, at λ = 10 and δ ≈ h, the n = 3
 operator has an eigenvalue of −22, −75, −232, −604 λ⁴ (24 … 64 nodes; its eigenvector sits on
 the innermost nodes) and n = 4 converges to a value 14 % too high. The continuous operator is
 well posed: in displacement form its quadratic form depends on the slope ``ζ'`` (bounded,

@@ -18,18 +18,16 @@ from sweepshell.models.shallow_cap_modes import (
 )
 from sweepshell.models.shallow_cap_solver import make_problem
 from sweepshell.numerics.arclength import compute_tangent
-
-from .test_shallow_cap import make_inputs
+from tests.models.test_shallow_cap import make_inputs
 
 NU = 0.3
 C = np.sqrt(3.0 * (1.0 - NU**2))
 MODES = np.arange(1, 31)
 
 
-def trace_apex_paths(lam, clamped, immovable, nodes, max_deflection):  # type: ignore[no-untyped-def]
-    """Return the problem and the traced apex-force paths ``(z, count)`` up to ``max_deflection`` (over h)."""
-    n = lam.size
-    pb = make_problem(lam, np.full(n, NU), clamped, immovable, np.ones(n, bool), np.zeros(n), np.full(n, 2.0), nodes)
+def make_initial_tangent(pb):  # type: ignore[no-untyped-def]
+    """Return the arclength weights, the unloaded states and the initial path tangents of ``pb``."""
+    n = pb.lam.size
     m = pb.unknowns
     w = np.full(m + 1, 1.0 / m)
     w[-1] = 1.0
@@ -37,7 +35,14 @@ def trace_apex_paths(lam, clamped, immovable, nodes, max_deflection):  # type: i
     e = np.zeros((n, m + 1))
     e[:, -1] = 1.0
     _, lin = pb.linearize(z0, np.arange(n))
-    t0 = compute_tangent(lin, e, w)
+    return w, z0, compute_tangent(lin, e, w)
+
+
+def trace_apex_paths(lam, clamped, immovable, nodes, max_deflection):  # type: ignore[no-untyped-def]
+    """Return the problem and the traced apex-force paths ``(z, count)`` up to ``max_deflection`` (over h)."""
+    n = lam.size
+    pb = make_problem(lam, np.full(n, NU), clamped, immovable, np.ones(n, bool), np.zeros(n), np.full(n, 2.0), nodes)
+    w, z0, t0 = make_initial_tangent(pb)
     zh, _, _, count, _ = trace_cap_paths(
         pb, z0, t0, w, first_step=0.1, max_step=0.25, min_step=1e-7, max_points=400, max_turn_deg=12.0, tol=1e-10,
         max_iter=8, mu_max=np.full(n, np.inf), defl_max=np.asarray(max_deflection, float), check_bistability=False,
@@ -97,6 +102,25 @@ def test_state_grid_gives_spurious_modes_that_the_refined_grid_removes():
     assert own[1] < -10.0
     assert np.all(three > 1.0)
     np.testing.assert_allclose(three, four, rtol=3e-3)
+
+
+def test_asymmetric_stiffness_rises_under_a_small_apex_force():
+    # common practice, no source: d(lowest eigenvalue)/dP at P → 0, λ = 10 clamped immovable, over λ⁴.
+    # On the refined grid it is positive and converged (n = 2, 3, 4: +0.0822, +0.0590, +0.0449 at 24
+    # and 34 nodes); on the state's own grid it is negative and grows with the nodes (n = 2: −70, −109)
+    slopes = {}
+    for nodes in (24, 34):
+        pb = make_problem(np.array([10.0]), np.full(1, NU), np.ones(1, bool), np.ones(1, bool), np.ones(1, bool),
+                          np.zeros(1), np.full(1, 2.0), nodes)
+        _, z0, t0 = make_initial_tangent(pb)
+        z1 = 1e-4 * t0 / (t0[0, -1] * pb.force_scale[0])  # the state at P = 1e-4, to first order
+        modes = np.array([2, 3, 4])
+        for grid in (nodes, 3 * nodes):
+            low = lowest_eigenvalues(pb, np.concatenate([z0, z1]), np.zeros(2, int), modes, grid)
+            slopes[nodes, grid] = (low[1] - low[0]) / 1e-4 / 10.0**4
+    np.testing.assert_allclose(slopes[24, 72], [0.0822, 0.0590, 0.0449], rtol=5e-3)
+    np.testing.assert_allclose(slopes[34, 102], slopes[24, 72], rtol=5e-3)
+    assert slopes[34, 34][0] < slopes[24, 24][0] < -50.0
 
 
 @pytest.mark.parametrize("nodes", [24, pytest.param(34, marks=pytest.mark.slow)])
