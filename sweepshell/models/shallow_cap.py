@@ -58,10 +58,20 @@ Conventions
 * Pressure is a dead load along the cap axis (shallow-shell sense), positive inwards.
 * The apex force acts inwards along the axis; its whole path is traced by pseudo-arclength
   continuation in (state, force), i.e. as under displacement control, snap-backs included.
-  Its critical state is the first force maximum (snap-through under force control); the
-  asymmetric scan is not applied to apex-force paths (their x log x curvature singularity
-  gives spurious determinant sign changes; not yet resolved). The force unit is E h³/R; the linear
-  stiffness unit is Reissner's k_R = 4 E h²/(R c) (Reissner 1946).
+  Its critical state is the first force maximum (snap-through under force control) or an
+  earlier ``cos nθ`` bifurcation. The apex curvature of a point-loaded state grows like log x:
+  its stability operators are those of the polynomial interpolant of the state, on a grid of
+  3×``nodes`` (:mod:`.shallow_cap_modes`); on the state's own grid they have spurious n = 2, 3
+  modes (determinant sign changes at the first loaded step). Observed with the defaults
+  (clamped immovable): no bifurcation for λ = 4, 6, 8; n = 5 at δ = 19.2 h, F R/(E h³) = 9.76 for
+  λ = 10; n = 3 at δ ≈ 15.2–15.3 h, F R/(E h³) ≈ 6.25–6.30 for λ = 20–30 (nearly independent of λ:
+  the dimple is local), well before the force maximum; pinned caps with λ = 6–8 bifurcate in n = 1
+  just before it.
+  Deep indented shells do buckle into polygonal shapes once the inverted dimple is deep
+  (Vaziri & Mahadevan 2008, PNAS 105:7913; Pauchard & Rica 1998, Phil. Mag. B 78:225; value
+  from memory, qualitative only); the values above are not checked against a published source.
+  The force unit is E h³/R; the linear stiffness unit is Reissner's k_R = 4 E h²/(R c)
+  (Reissner 1946).
 * Edge r = a: W = 0 and clamped (W' = 0) or pinned (M_r = 0). In-plane: ``immovable``
   (u_r = 0, and u_θ = 0 for asymmetric modes) by default, or ``sliding`` (N_r = N_rθ = 0).
 * Asymmetric bifurcation: the linearised equations for w(r) cos nθ, Φ(r) cos nθ about the
@@ -109,7 +119,12 @@ that flipped in the first flipped step is refined (several often cross within on
 A wave number whose determinant changes sign twice between evaluations is missed; stride 3
 gave results identical to stride 1 on 348 test points. For sliding edges, n = 1 has one
 in-plane edge condition (N_r and N_rθ both reduce to F' − F). The apex-force singularity
-y ∝ x log x is subtracted analytically.
+y ∝ x log x is subtracted analytically in the axisymmetric problem; apex-force stability
+operators are evaluated on 3×``nodes`` (see Conventions; 2× leaves spurious sign changes at
+small forces, also on the stretched grid). The apex-force critical force converges
+algebraically in ``nodes`` (see Resolution): on the stretched grid to ~10⁻⁵ (bifurcation,
+λ = 10, immovable) and ~3·10⁻⁴ (force maximum); on plain Chebyshev nodes an immovable edge
+converged at about first order and picked n = 4 instead of 5 at λ = 10.
 
 Resolution
 ----------
@@ -143,6 +158,10 @@ the linear in-plane response of a nearly flat cap; the clamped circular plate un
 equibiaxial compression, N_cr = j₁,₁² D/a² = 14.682 D/a², pinned 4.198 D/a² at ν = 0.3,
 asymmetric n = 1 j₂,₁² = 26.375 (Timoshenko & Gere 1961; Bessel zeros recomputed) for the
 λ → 0 limit of the stability operators.
+
+Vaziri & Mahadevan 2008, PNAS 105:7913 and Pauchard & Rica 1998, Phil. Mag. B 78:225 (value
+from memory, qualitative: indented spheres stay axisymmetric at small indentation, polygonal
+buckling once the dimple is deep).
 
 Zoelly 1915 (p_cl); Reissner 1946, J. Math. Phys. 25 (apex stiffness); Budiansky 1959,
 Weinitschke 1960 J. Math. Phys. 38:209, Huang 1964 J. Appl. Mech. 31:447 (clamped caps:
@@ -207,7 +226,7 @@ class ShallowCapModel(SweepModel):
     )
     regimes: ClassVar[tuple[str, ...]] = ("stable", "limit_point", "bifurcation")
     # measured (one core, wall, benchmarks/bench_shallow_cap.py): ~1.8 ms axisymmetric, ~16 ms with the
-    # scan, ~21 ms with bistability
+    # scan, ~21 ms with bistability; apex-force points 0.1–0.8 s with the scan (its 3x stability grid)
     cost_hint: ClassVar[float] = 0.025
 
     def __init__(self, *, nodes: int = 0, asymmetric_modes: int = 30, max_pressure: float = 2.0,

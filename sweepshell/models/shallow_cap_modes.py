@@ -15,6 +15,30 @@ and its stress block ``S`` (in-plane bilaplacian with its edge rows) does not de
 state. So ``det = det S · det(A − B S⁻¹ C)`` and the state-dependent factor, an ``M``-square
 determinant instead of a ``2M``-square one, carries every sign change along a path. ``S⁻¹`` is
 folded into two fixed matrices per wave number, Poisson's ratio and in-plane edge.
+
+Apex-force states: the stability grid is finer than the state's
+-----------------------------------------------------------------
+Under a point load the surface curvature ``ζ''`` (and ``ζ'/x``) of the state grows like
+``log x`` at the apex. Collocating the operator with that curvature sampled at the nodes, or
+with the interpolant of the state on its own grid, is not a convergent discretisation. With
+the log sampled, the eigenvalues' rate of change with the force at zero force grows like the
+node count (λ = 10, n = 2, over λ⁴ per unit force P: −70, −109, −159, −213 for 24, 34, 48, 64
+nodes; on the refined grid below +0.082 at all four), so n = 2, 3 determinants change sign at
+the first loaded step. With the state's interpolant on its own grid, at λ = 10 and δ ≈ h, the n = 3
+operator has an eigenvalue of −22, −75, −232, −604 λ⁴ (24 … 64 nodes; its eigenvector sits on
+the innermost nodes) and n = 4 converges to a value 14 % too high. The continuous operator is
+well posed: in displacement form its quadratic form depends on the slope ``ζ'`` (bounded,
+``x log x``) and the prestress (bounded) only, so its eigenvalues depend continuously on ``ζ'``
+in the maximum norm. Apex-force states are therefore analysed as the polynomial interpolant of
+the discrete state (slope ``ζ'`` and stress slope ``f`` on the state's ``M`` nodes, degree
+``2M − 1``; ``ζ''`` and ``f'`` its exact derivatives) on a grid of
+``APEX_STABILITY_REFINEMENT·M`` nodes that resolves that polynomial. The interpolant
+converges uniformly to the state as ``M`` grows, and for a fixed interpolant the eigenvalues
+converge with the stability grid: at λ = 10, δ ≈ h the lowest eigenvalues of n = 2, 3, 4 over
+λ⁴ are 1.3724, 1.4645, 1.6489 on 3M and 4M nodes for M = 24, 34, 48 (within 4·10⁻⁴). A 2M grid
+is enough at λ = 10 but not at λ = 20 (spurious modes again), hence 3M; this costs about
+8× the scan of a pressure point.
+Pressure and mismatch states are smooth and keep the state's grid.
 """
 
 from __future__ import annotations
@@ -26,16 +50,20 @@ import numpy as np
 
 from sweepshell.models.shallow_cap_compiled import assemble_reduced_stability
 from sweepshell.models.shallow_cap_kernels import CapPathProblem
-from sweepshell.numerics.radial_chebyshev import make_radial_grid
+from sweepshell.numerics.radial_chebyshev import make_interpolation_matrix, make_radial_grid
 
 __all__ = [
+    "APEX_STABILITY_REFINEMENT",
     "ModeCoefficients",
     "build_mode_matrices",
     "compute_mode_coefficients",
     "compute_mode_determinants",
     "count_unstable_modes",
     "make_mode_operators",
+    "select_stability_nodes",
 ]
+
+APEX_STABILITY_REFINEMENT = 3
 
 
 @dataclass(frozen=True)
@@ -148,21 +176,63 @@ class ModeCoefficients:
     immovable: np.ndarray
 
 
-def compute_mode_coefficients(problem: CapPathProblem, z: np.ndarray, idx: np.ndarray) -> ModeCoefficients:
-    """Return the stability coefficients of axisymmetric states ``z`` ``(k, 2M+1)``."""
+def select_stability_nodes(problem: CapPathProblem, idx: np.ndarray) -> np.ndarray:
+    """Return the node count of each state's stability grid, ``(k,)``.
+
+    ``APEX_STABILITY_REFINEMENT`` times the state's nodes for apex-force states (see the module
+    docstring), the state's own nodes otherwise.
+    """
+    return np.where(problem.apex[idx], APEX_STABILITY_REFINEMENT * problem.size, problem.size)
+
+
+@lru_cache(maxsize=32)
+def _make_refinement(size: int, nodes: int, stretch: float = 0.0) -> tuple[np.ndarray, np.ndarray]:
+    """Return ``(E, D E)``: values and slopes at the ``nodes`` grid of the odd interpolant on ``size`` nodes.
+
+    Both grids share the map of ``stretch``, so the interpolation runs in the Chebyshev
+    coordinate ξ (the fine grid's ξ are its unstretched nodes).
+    """
+    fine = make_radial_grid(nodes, stretch)
+    e = make_interpolation_matrix(size, -1, make_radial_grid(nodes).x)
+    de = fine.d1[-1] @ e
+    e.setflags(write=False)
+    de.setflags(write=False)
+    return e, de
+
+
+def compute_mode_coefficients(problem: CapPathProblem, z: np.ndarray, idx: np.ndarray,
+                              nodes: int | None = None) -> ModeCoefficients:
+    """Return the stability coefficients of axisymmetric states ``z`` ``(k, 2M+1)``.
+
+    Parameters
+    ----------
+    nodes
+        Node count of the stability grid (default: the state's ``M``). On another grid the
+        coefficients are those of the polynomial interpolant of the state's slope ``ζ'`` and
+        stress slope ``f`` (their derivatives exact), which is how apex-force states are
+        analysed (:func:`select_stability_nodes`); that path ignores the mismatch strain's
+        exact stress slope, so it is meant for pressure and apex-force states.
+    """
     g = problem.grid
     x = g.x
     lam2 = problem.lam[idx] ** 2
     y, _, _, p = problem.split(z, idx)
-    # the mismatch strain's stress F_p is kinked at the region's edge: its slope is exact, not
-    # a derivative of the interpolant
     fs, dfs_eigen = problem.total_stress(z, idx)
-    dfs = (z[:, g.size:2 * g.size] @ g.d1[-1].T) + dfs_eigen
     kap = problem.kappa[idx]
     ybar = y + (kap * p)[:, None] * problem.sigma[None, :]
+    imp = problem.imperfection[idx]
+    if nodes is not None and nodes != g.size:
+        e, de = _make_refinement(g.size, int(nodes), g.stretch)
+        slope = ybar - (x[None, :] - imp)
+        return ModeCoefficients(
+            f=lam2[:, None] * (fs @ e.T), df=lam2[:, None] * (fs @ de.T),
+            zeta1=lam2[:, None] * (slope @ e.T), zeta2=lam2[:, None] * (slope @ de.T),
+            nu=problem.nu[idx], clamped=problem.clamped[idx], immovable=problem.immovable[idx])
+    # the mismatch strain's stress F_p is kinked at the region's edge: its slope is exact, not
+    # a derivative of the interpolant
+    dfs = (z[:, g.size:2 * g.size] @ g.d1[-1].T) + dfs_eigen
     d1t = g.d1[-1].T
     dybar = y @ d1t + (kap * p)[:, None] * problem.dsigma[None, :]
-    imp = problem.imperfection[idx]
     dimp = imp @ d1t
     return ModeCoefficients(
         f=lam2[:, None] * fs, df=lam2[:, None] * dfs,
@@ -201,10 +271,10 @@ def build_mode_matrices(ops: ModeOperators, x: np.ndarray, co: ModeCoefficients)
 
 
 def _reduced_matrices(problem: CapPathProblem, co: ModeCoefficients, modes: np.ndarray):  # type: ignore[no-untyped-def]
-    """Yield ``(j, n, A − B S⁻¹ C)`` ``(k, M, M)`` for each wave number of ``modes``."""
-    x = problem.grid.x
+    """Yield ``(j, n, A − B S⁻¹ C)`` ``(k, M, M)`` for each wave number of ``modes`` (on the grid of ``co``)."""
     stretch = problem.grid.stretch
     m = co.f.shape[1]
+    x = problem.grid.x if m == problem.size else make_radial_grid(m, stretch).x
     keys = list(zip(co.nu.tolist(), co.immovable.tolist(), strict=True))
     unique = sorted(set(keys))
     group = np.array([unique.index(key) for key in keys], dtype=np.int64) if len(unique) > 1 \
@@ -227,6 +297,8 @@ def compute_mode_determinants(problem: CapPathProblem, z: np.ndarray, idx: np.nd
 
     The determinant is that of ``A − B S⁻¹ C``: the full one divided by the state-independent
     ``det S``, so its sign changes and log-differences along a path are those of the full one.
+    Each state is analysed on its :func:`select_stability_nodes` grid (fixed per cap, so
+    determinants of one cap's states stay comparable).
 
     Parameters
     ----------
@@ -237,14 +309,27 @@ def compute_mode_determinants(problem: CapPathProblem, z: np.ndarray, idx: np.nd
     modes
         Wave numbers ``n ≥ 1``.
     coefficients
-        Precomputed :func:`compute_mode_coefficients` of the same states, if at hand.
+        Precomputed :func:`compute_mode_coefficients` of the same states, if at hand (their
+        grid is used for every state).
     """
-    co = compute_mode_coefficients(problem, z, idx) if coefficients is None else coefficients
-    sign = np.empty((co.f.shape[0], len(modes)))
+    sign = np.empty((z.shape[0], len(modes)))
     logdet = np.empty_like(sign)
-    for j, _, a in _reduced_matrices(problem, co, modes):
-        sign[:, j], logdet[:, j] = np.linalg.slogdet(a)
+    for rows, co in _group_coefficients(problem, z, idx, coefficients):
+        for j, _, a in _reduced_matrices(problem, co, modes):
+            sign[rows, j], logdet[rows, j] = np.linalg.slogdet(a)
     return sign, logdet
+
+
+def _group_coefficients(problem: CapPathProblem, z: np.ndarray, idx: np.ndarray,
+                        coefficients: ModeCoefficients | None = None):  # type: ignore[no-untyped-def]
+    """Yield ``(rows, coefficients)`` per stability grid of the states."""
+    if coefficients is not None:
+        yield np.arange(z.shape[0]), coefficients
+        return
+    nodes = select_stability_nodes(problem, idx)
+    for size in np.unique(nodes):
+        rows = np.nonzero(nodes == size)[0]
+        yield rows, compute_mode_coefficients(problem, z[rows], idx[rows], int(size))
 
 
 def count_unstable_modes(problem: CapPathProblem, z: np.ndarray, idx: np.ndarray, modes: np.ndarray) -> np.ndarray:
@@ -253,15 +338,16 @@ def count_unstable_modes(problem: CapPathProblem, z: np.ndarray, idx: np.ndarray
     The eigenproblem is ``x²(L_n w) = σ x² w`` with ``L_n`` the linearised operator (stress
     function eliminated); its two edge rows are eliminated exactly, which leaves a standard
     eigenproblem on the interior nodes. A count, unlike a determinant's sign, also sees two
-    eigenvalues of one wave number that became negative together.
+    eigenvalues of one wave number that became negative together. Each state is analysed on
+    its :func:`select_stability_nodes` grid.
     """
-    co = compute_mode_coefficients(problem, z, idx)
-    x = problem.grid.x
-    out = np.zeros((co.f.shape[0], len(modes)), dtype=int)
-    for j, n, a in _reduced_matrices(problem, co, modes):
-        edge, edge_in = a[:, :2, :2], a[:, :2, 2:]
-        inner = a[:, 2:, 2:] - a[:, 2:, :2] @ np.linalg.solve(edge, edge_in)
-        mass = x[2:] ** ((1 if n == 1 else 2) + 2)
-        sigma = np.linalg.eigvals(inner / mass[None, :, None])
-        out[:, j] = np.count_nonzero(sigma.real < 0.0, axis=1)
+    out = np.zeros((z.shape[0], len(modes)), dtype=int)
+    for rows, co in _group_coefficients(problem, z, idx):
+        x = make_radial_grid(co.f.shape[1], problem.grid.stretch).x
+        for j, n, a in _reduced_matrices(problem, co, modes):
+            edge, edge_in = a[:, :2, :2], a[:, :2, 2:]
+            inner = a[:, 2:, 2:] - a[:, 2:, :2] @ np.linalg.solve(edge, edge_in)
+            mass = x[2:] ** ((1 if n == 1 else 2) + 2)
+            sigma = np.linalg.eigvals(inner / mass[None, :, None])
+            out[rows, j] = np.count_nonzero(sigma.real < 0.0, axis=1)
     return out

@@ -258,9 +258,10 @@ def solve_caps(lam: np.ndarray, nu: np.ndarray, clamped: np.ndarray, immovable: 
     # asymmetric scan along the path up to the fold bracket
     n_modes = int(settings["asymmetric_modes"])
     modes = np.arange(1, n_modes + 1)
-    # apex-force paths are not scanned: the x log x singularity of their curvature gives
-    # spurious determinant sign changes at small forces (open issue), so only force maxima count
-    jb, crossings = _scan_modes(pb, hist.z, ~apex, scan_end, modes, int(settings["scan_stride"]))
+    # apex-force states are analysed on a 3x finer stability grid (the polynomial interpolant
+    # of the state): their log-singular apex curvature sampled on the state's own grid gives
+    # spurious n = 2, 3 modes (see shallow_cap_modes)
+    jb, crossings = _scan_modes(pb, hist.z, np.ones(n, dtype=bool), scan_end, modes, int(settings["scan_stride"]))
     bif_mode = np.zeros(n, dtype=int)
 
     crit_z = np.full((n, m + 1), np.nan)
