@@ -81,10 +81,12 @@ def main() -> None:
     fast = make_model("shallow_cap", {"asymmetric_modes": 0, "check_bistability": False})
     scan = make_model("shallow_cap", {"check_bistability": False})
     full = make_model("shallow_cap", {})
-    for m in (fast, scan, full):
-        m.solve_batch(make_inputs(LAMBDAS[:2]))  # warm caches
     big = np.linspace(3.5, 20.0, 200)
     mid = np.linspace(3.5, 20.0, 40)
+    # warm the compiled kernels and the per-grid caches (operators of each automatic grid size), as
+    # a sweep's workers have them after their first block
+    for m in (fast, scan, full):
+        m.solve_batch(make_inputs(mid))
     t_fast = time_per_point(fast, big)
     t_scan = time_per_point(scan, mid)
     t_full = time_per_point(full, mid)
