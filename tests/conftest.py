@@ -3,13 +3,17 @@
 from __future__ import annotations
 
 import os
+
+# one BLAS thread, set before numpy loads: the suite runs in one process on small matrices, where
+# OpenBLAS threads on a shared 2-core machine made single tests up to 10x slower
+os.environ.setdefault("OPENBLAS_NUM_THREADS", "1")
+os.environ.setdefault("MPLBACKEND", "Agg")
+
 import textwrap
 from pathlib import Path
 
 import numpy as np
 import pytest
-
-os.environ.setdefault("MPLBACKEND", "Agg")
 
 REPO = Path(__file__).resolve().parents[1]
 CONFIGS = REPO / "configs"
