@@ -225,8 +225,8 @@ class ShallowCapModel(SweepModel):
                       bounds=(0.0, math.inf), closed=(False, False), symbol="E"),
     )
     regimes: ClassVar[tuple[str, ...]] = ("stable", "limit_point", "bifurcation")
-    # measured (one core, wall, benchmarks/bench_shallow_cap.py): ~1.8 ms axisymmetric, ~16 ms with the
-    # scan, ~21 ms with bistability; apex-force points 0.1–0.8 s with the scan (its 3x stability grid)
+    # measured (one core, wall, benchmarks/bench_shallow_cap.py, λ = 3.5 … 20): ~2 ms axisymmetric, ~19 ms
+    # with the scan, ~23 ms with bistability; apex-force points 0.1–0.8 s with the scan (its 3x stability grid)
     cost_hint: ClassVar[float] = 0.025
 
     def __init__(self, *, nodes: int = 0, asymmetric_modes: int = 30, max_pressure: float = 2.0,
@@ -280,6 +280,12 @@ class ShallowCapModel(SweepModel):
             OutputSpec("critical_mismatch_strain", "1", "critical mismatch strain (plain strain, negative = "
                        "shrinkage); NaN unless h and R are given and the load is mismatch", nullable=True),
         )
+
+    def estimated_cost(self) -> float:
+        """Seconds per pressure point on one core with these settings (sizes blocks; see ``cost_hint``)."""
+        s = self._settings
+        cost = 0.002 if int(s["asymmetric_modes"]) == 0 else 0.002 + 0.00055 * int(s["asymmetric_modes"])
+        return cost + (0.005 if s["check_bistability"] else 0.0)
 
     @property
     def extra_dims(self) -> dict[str, int]:

@@ -21,7 +21,11 @@ import numpy as np
 from sweepshell.models.base import Status
 from sweepshell.models.shallow_cap_compiled import correct_caps_on_arc, refine_caps_on_arc, trace_cap_paths
 from sweepshell.models.shallow_cap_kernels import CapPathProblem, eigenstrain_stress
-from sweepshell.models.shallow_cap_modes import compute_mode_determinants, count_unstable_modes
+from sweepshell.models.shallow_cap_modes import (
+    compute_mode_determinants,
+    count_unstable_modes,
+    select_stability_nodes,
+)
 from sweepshell.numerics.arclength import (
     TRACE_DONE,
     PathHistory,
@@ -34,6 +38,7 @@ __all__ = ["CapSolution", "solve_caps"]
 
 _REGIME_STABLE, _REGIME_LIMIT, _REGIME_BIFURCATION = 0, 1, 2
 _DET_CHUNK = 1024
+_DET_CHUNK_ELEMENTS = 12_500_000  # ~100 MB per (states, M, M) float64 stack of stability matrices
 _FIRST_STEP, _MAX_STEP = 0.1, 0.25
 _MAX_SUCTION = 2.0  # a path needing more outward load than this (in its load unit) is not followed
 
@@ -94,8 +99,13 @@ def _modes_determinants(pb: CapPathProblem, z: np.ndarray, idx: np.ndarray,
                         modes: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     sign = np.empty((z.shape[0], modes.size))
     logdet = np.empty_like(sign)
-    for lo in range(0, z.shape[0], _DET_CHUNK):
-        sl = slice(lo, lo + _DET_CHUNK)
+    if z.shape[0] == 0:
+        return sign, logdet
+    # apex-force states are analysed on a 3x grid: fewer states per chunk keeps the matrices in memory bounds
+    size = int(select_stability_nodes(pb, idx).max())
+    chunk = int(max(32, min(_DET_CHUNK, _DET_CHUNK_ELEMENTS // (size * size))))
+    for lo in range(0, z.shape[0], chunk):
+        sl = slice(lo, lo + chunk)
         sign[sl], logdet[sl] = compute_mode_determinants(pb, z[sl], idx[sl], modes)
     return sign, logdet
 
