@@ -100,6 +100,9 @@ def main() -> None:
     for lam, a, b in zip(LAMBDAS, ours, ref, strict=True):
         print(f"{lam:6.2f}  {a:.8f}    {b:.8f}        {abs(a - b) / b:.1e}")
     print(f"axisymmetric limit pressure, batch of {big.size}: {t_fast * 1e3:.2f} ms/point")
+    for lo, hi in ((3.5, 8.0), (8.0, 14.0), (14.0, 20.0)):
+        band = np.linspace(lo, hi, 100)
+        print(f"  lambda {lo:4.1f} .. {hi:4.1f}: {time_per_point(fast, band) * 1e3:.2f} ms/point")
     print(f"with the asymmetric scan (n = 1..30), batch of {mid.size}: {t_scan * 1e3:.2f} ms/point")
     print(f"full analysis (scan and bistability), batch of {mid.size}: {t_full * 1e3:.2f} ms/point")
     print(f"same {LAMBDAS.size} caps: model {t_ours * 1e3:.2f} ms/point, reference {t_ref * 1e3:.1f} ms/point,"
