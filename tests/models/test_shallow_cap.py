@@ -32,8 +32,8 @@ def make_inputs(lam, **over):
     return base
 
 
-def linear_apex_deflection(pb: CapPathProblem) -> np.ndarray:
-    """Return dδ/dμ of the linearised problem (initial tangent)."""
+def make_initial_tangent(pb: CapPathProblem) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Return the arclength weights, the unloaded states and the initial path tangents of ``pb``."""
     n = pb.lam.size
     m = pb.unknowns
     w = np.full(m + 1, 1.0 / m)
@@ -42,8 +42,13 @@ def linear_apex_deflection(pb: CapPathProblem) -> np.ndarray:
     e = np.zeros((n, m + 1))
     e[:, -1] = 1.0
     _, lin = pb.linearize(z0, np.arange(n))
-    t = compute_tangent(lin, e, w)
-    return pb.apex_deflection(t, np.arange(n)) / t[:, -1]
+    return w, z0, compute_tangent(lin, e, w)
+
+
+def linear_apex_deflection(pb: CapPathProblem) -> np.ndarray:
+    """Return dδ/dμ of the linearised problem (initial tangent)."""
+    _, _, t = make_initial_tangent(pb)
+    return pb.apex_deflection(t, np.arange(pb.lam.size)) / t[:, -1]
 
 
 def exact_linear_pressure_deflection(lam: float, nu: float = NU) -> float:

@@ -17,25 +17,11 @@ from sweepshell.models.shallow_cap_modes import (
     select_stability_nodes,
 )
 from sweepshell.models.shallow_cap_solver import make_problem
-from sweepshell.numerics.arclength import compute_tangent
-from tests.models.test_shallow_cap import make_inputs
+from tests.models.test_shallow_cap import make_initial_tangent, make_inputs
 
 NU = 0.3
 C = np.sqrt(3.0 * (1.0 - NU**2))
 MODES = np.arange(1, 31)
-
-
-def make_initial_tangent(pb):  # type: ignore[no-untyped-def]
-    """Return the arclength weights, the unloaded states and the initial path tangents of ``pb``."""
-    n = pb.lam.size
-    m = pb.unknowns
-    w = np.full(m + 1, 1.0 / m)
-    w[-1] = 1.0
-    z0 = np.zeros((n, m + 1))
-    e = np.zeros((n, m + 1))
-    e[:, -1] = 1.0
-    _, lin = pb.linearize(z0, np.arange(n))
-    return w, z0, compute_tangent(lin, e, w)
 
 
 def trace_apex_paths(lam, clamped, immovable, nodes, max_deflection):  # type: ignore[no-untyped-def]
