@@ -36,14 +36,26 @@ N_r = (Eh/(1−ν²))[(ε_r − ε*) + ν(ε_θ − ε*)] it enters compatibilit
 ∇⁴F/(Eh) = −∇²ε* − ½([Z,Z] − [Z₀,Z₀]), i.e. once integrated ``x L[f] = … + 4 e x χ'``.
 The load parameter is e = ε₀/ε_cl, ε_cl = 2h/(R c): at e = 1 a small disc in a large flat sheet
 carries the membrane stress of the classical sphere, N = −E h ε₀/2 = −E h²/(R c). The edge of
-the region is a step smoothed by a Gaussian, χ = ½[erf((x+ρ)/w) − erf((x−ρ)/w)] (even in x),
-``mismatch_step_width`` w = 0.1 a by default: a coating whose edge tapers over ≈ 0.2 a
-(10–90 %). Results converge spectrally in ``nodes`` for fixed w; mismatch points use
-max(``nodes`` or 34, ⌈3.4/w⌉) nodes (34 at the default w; about 10⁻⁶ relative accuracy);
-the sharp-edge limit w → 0 is approached roughly as w^1.8 and matters where a mode sits at
-the region's edge: a shrinking disc (ρ = 0.5, clamped, λ = 8) wrinkles at e = −4.46 with
-w = 0.1, −4.04 with w = 0.05, −3.91 with w = 0.025 (about −3.86 extrapolated); a swelling
-annulus (λ = 6) moves by 0.6 % between w = 0.1 and 0.025. In a flat sheet a shrinking disc
+the region is sharp by default (``mismatch_step_width`` w = 0): the particular stress is then
+in closed form (F_p = 2x inside, 2ρ²/x outside the disc: continuous, its slope and the hoop
+stress jump at ρ) and the response has a kink there (the slope's third derivative jumps). On
+plain Chebyshev nodes that converges only at first order and oscillates with where ρ falls
+between nodes (λ = 8 disc below: −3.75, −3.94, −3.80, −3.91, −3.87 on 34 … 128 nodes), so
+sharp-edged points use nodes clustered around ±ρ with a node on ρ (the odd sinh map of
+:mod:`sweepshell.numerics.radial_chebyshev`, cluster width ∝ 1/nodes²), where the hoop
+stress takes the mean of its one-sided values. The critical load then converges at observed
+order ≈ 6 (λ = 8 disc: −3.87073, −3.86888, −3.86861, −3.86856 on 34, 48, 64, 96 nodes;
+λ = 6 swelling annulus: 7.086669, 7.086306, 7.086273, 7.086263), about 10⁻⁴ relative with the
+automatic 44 + 1.8λ nodes (48 … 96), and agrees with the sharp-edge extrapolation of smoothed
+edges to ≈ 10⁻⁴. Points with different ρ do not share a grid (one batch per ρ). A positive
+w smooths the step by a Gaussian, χ = ½[erf((x+ρ)/w) − erf((x−ρ)/w)] (even in x), a coating
+whose edge tapers over ≈ 2w (10–90 %), on plain nodes: results converge spectrally in
+``nodes`` for fixed w, with max(``nodes`` or 34, ⌈3.4/w⌉) nodes (about 10⁻⁶ relative); the
+sharp-edge limit w → 0 is approached roughly as w² (observed w^1.8 … w^2.7) and matters where a mode sits at the
+region's edge: a shrinking disc (ρ = 0.5, clamped, λ = 8) wrinkles at e = −4.46 with w = 0.1,
+−4.04 with w = 0.05, −3.91 with w = 0.025, −3.880 with w = 0.0125 and −3.8686 with a sharp
+edge; a swelling annulus (λ = 6) moves by 0.7 % between w = 0.1 and the sharp edge (7.039 →
+7.0863). In a flat sheet a shrinking disc
 puts its surroundings in hoop compression (the sheet wrinkles around the disc), a swelling
 disc is itself in equibiaxial compression. On a cap the mismatch stress times the curvature
 is a normal load: a shrinking (tensed) disc pulls the apex in, a swelling one pushes it out,
@@ -154,7 +166,8 @@ References checked by the tests
 -------------------------------
 Mismatch strain: the plane-stress disc inclusion (Lamé problem; Timoshenko & Goodier 1951,
 thermal stresses in a thin circular disc; re-derived for the immovable and the free edge) for
-the linear in-plane response of a nearly flat cap; the clamped circular plate under
+the linear in-plane response of a nearly flat cap, with a nearly sharp smoothed edge and with
+the sharp edge (there at every node, the edge node included); the clamped circular plate under
 equibiaxial compression, N_cr = j₁,₁² D/a² = 14.682 D/a², pinned 4.198 D/a² at ν = 0.3,
 asymmetric n = 1 j₂,₁² = 26.375 (Timoshenko & Gere 1961; Bessel zeros recomputed) for the
 λ → 0 limit of the stability operators.
@@ -232,13 +245,16 @@ class ShallowCapModel(SweepModel):
     def __init__(self, *, nodes: int = 0, asymmetric_modes: int = 30, max_pressure: float = 2.0,
                  max_indentation: float = 1.0, path_samples: int = 64, check_bistability: bool = True,
                  tolerance: float = 1e-10, max_points: int = 400, max_base_ratio: float = 0.5,
-                 max_turn_deg: float = 8.0, scan_stride: int = 3, mismatch_step_width: float = 0.1,
+                 max_turn_deg: float = 8.0, scan_stride: int = 3, mismatch_step_width: float = 0.0,
                  dimple_grid_stretch: float = 0.5, apex_grid_stretch: float = 0.85) -> None:
         super().__init__()
         for key, beta in (("dimple_grid_stretch", dimple_grid_stretch), ("apex_grid_stretch", apex_grid_stretch)):
             if not 0.0 <= float(beta) < 1.0:
                 raise ValueError(f"settings.{key} must be in [0, 1) (a grid map x = (1-b) xi + b xi^3); "
                                  f"got {beta}")
+        if not float(mismatch_step_width) >= 0.0:
+            raise ValueError(f"settings.mismatch_step_width must be 0 (a sharp edge) or a positive smoothing "
+                             f"width over the base radius; got {mismatch_step_width}")
         if int(nodes) != 0 and int(nodes) < 8:
             raise ValueError(f"settings.nodes must be 0 (automatic) or at least 8; got {nodes}")
         self._settings: dict[str, Any] = {
@@ -383,18 +399,40 @@ def _get(inputs: Mapping[str, np.ndarray], key: str, n: int) -> np.ndarray:
     return np.full(n, np.nan)
 
 
-_FIXED_NODES = 34  # mismatch points' base grid when ``nodes`` is automatic
+_FIXED_NODES = 34  # smoothed-edge mismatch points' base grid when ``nodes`` is automatic
 
 
-def get_mismatch_nodes(settings: Mapping[str, Any]) -> int:
-    """Return the grid size of mismatch-strain points: ``nodes``, raised until w·nodes ≥ 3.4.
+def get_mismatch_nodes(settings: Mapping[str, Any], lam: np.ndarray) -> np.ndarray:
+    """Return the grid size of mismatch-strain points with shell parameters ``lam``.
 
-    The smoothed edge of the strained region sits inside the cap, where the Chebyshev grid is
-    coarsest; below w·nodes ≈ 3.4 the results lose digits fast (10⁻⁶ relative at 3.4, 10⁻³ at 2).
-    Automatic ``nodes`` (0) starts from 34 here.
+    Sharp edge (``mismatch_step_width`` 0), on the grid clustered at the edge
+    (:func:`choose_grid_centres`): ``nodes``, or when automatic 44 + 1.8λ (even, 48 … 96), the
+    measured need for 10⁻⁴ relative accuracy of the critical load (against 160 nodes: 48 nodes
+    leave 2·10⁻⁴ at λ = 8 and 12, 10⁻³ at λ = 20; 64 nodes 4·10⁻⁵ at λ = 12, 80 nodes 7·10⁻⁵ at
+    λ = 20; tests/models/test_shallow_cap_mismatch_sharp.py). Smoothed edge: the edge sits
+    inside the cap, where the Chebyshev grid is coarsest; below w·nodes ≈ 3.4 the results lose
+    digits fast (10⁻⁶ relative at 3.4, 10⁻³ at 2), so ``nodes`` (34 when automatic) is raised
+    until w·nodes ≥ 3.4.
     """
+    width = float(settings["mismatch_step_width"])
+    if width == 0.0:
+        if int(settings["nodes"]):
+            return np.full(lam.shape, int(settings["nodes"]))
+        return np.clip(np.ceil((44.0 + 1.8 * lam) / 2.0) * 2.0, 48, 96).astype(int)
     base = int(settings["nodes"]) or _FIXED_NODES
-    return max(base, math.ceil(3.4 / float(settings["mismatch_step_width"])))
+    return np.full(lam.shape, max(base, math.ceil(3.4 / width)))
+
+
+def choose_grid_centres(settings: Mapping[str, Any], eigen: np.ndarray, radius: np.ndarray) -> np.ndarray:
+    """Return each point's clustering centre ρ of the radial grid (0: none; see ``make_radial_grid``).
+
+    Mismatch points with a sharp edge inside the cap (``mismatch_step_width`` 0, ρ < 1) get the
+    grid clustered around x = ±ρ with a node on ρ: their response has a kink there (a jump of
+    the hoop prestress and of the third derivative of the slope), which a plain grid resolves
+    only to first order, oscillating with where ρ falls between nodes.
+    """
+    sharp = eigen & (float(settings["mismatch_step_width"]) == 0.0) & (radius < 1.0)
+    return np.where(sharp, radius, 0.0)
 
 
 def choose_grids(settings: Mapping[str, Any], lam: np.ndarray, apex: np.ndarray, eigen: np.ndarray,
@@ -407,7 +445,8 @@ def choose_grids(settings: Mapping[str, Any], lam: np.ndarray, apex: np.ndarray,
     over a/λ has width b/λ in x). Grids are stretched towards the axis where the solution
     varies fastest there: dimpled caps (``dimple_grid_stretch``) and apex forces
     (``apex_grid_stretch``); perfect caps under pressure keep Chebyshev points, whose edge
-    clustering the asymmetric modes need; mismatch points use :func:`get_mismatch_nodes`.
+    clustering the asymmetric modes need; mismatch points use :func:`get_mismatch_nodes` (and
+    sharp-edged ones the clustered map of :func:`choose_grid_centres`).
     Counts are even, from 16 to 96.
     """
     scan = int(settings["asymmetric_modes"]) > 0
@@ -422,7 +461,7 @@ def choose_grids(settings: Mapping[str, Any], lam: np.ndarray, apex: np.ndarray,
         dimple = 4.0 + 2.0 * lam / np.maximum(width, 0.25)
         need = np.where(apex, 16.0 + 1.4 * lam, np.where(dimpled, np.maximum(stretched, dimple), perfect))
         nodes = np.clip(np.ceil(need / 2.0) * 2.0, 16, 96).astype(int)
-    nodes = np.where(eigen, get_mismatch_nodes(settings), nodes)
+    nodes = np.where(eigen, get_mismatch_nodes(settings, lam), nodes)
     return nodes, np.where(eigen, 0.0, beta)
 
 
@@ -430,13 +469,14 @@ def _solve_by_grid(s: Mapping[str, Any], eigen: np.ndarray, *args: np.ndarray) -
     """Solve the points in groups that share a radial grid (:func:`choose_grids`)."""
     lam, nu, clamped, immovable, apex, amp, width, strain, radius, annulus = args
     nodes, stretch = choose_grids(s, lam, apex, eigen, amp, width)
-    keys = np.stack([nodes.astype(float), stretch], axis=1)
+    centre = choose_grid_centres(s, eigen, radius)
+    keys = np.stack([nodes.astype(float), stretch, centre], axis=1)
     groups, inverse = np.unique(keys, axis=0, return_inverse=True)
     inverse = inverse.reshape(-1)
     parts: list[tuple[np.ndarray, CapSolution]] = []
-    for k, (size, beta) in enumerate(groups):
+    for k, (size, beta, rho) in enumerate(groups):
         rows = np.nonzero(inverse == k)[0]
-        settings = {**s, "nodes": int(size), "grid_stretch": float(beta)}
+        settings = {**s, "nodes": int(size), "grid_stretch": float(beta), "grid_centre": float(rho)}
         parts.append((rows, solve_caps(
             lam[rows], nu[rows], clamped[rows], immovable[rows], apex[rows], amp[rows], width[rows],
             settings=settings, mismatch=eigen[rows], mismatch_strain=strain[rows],

@@ -13,7 +13,7 @@ with the apex-force singularity ``σ = −½ x log x`` (``x L[σ] = −1``) remo
 ``κ = 2c²/π`` and ``P = F_apex R/(E h³)``.
 
 Mismatch strain: an isotropic eigenstrain ``ε* = e ε_cl χ(x)`` (``ε_cl = 2h/(R c)``, ``χ`` the
-strained disc ``x < ρ`` or annulus ``ρ < x < 1``, its edge smoothed over a width ``w``) adds
+strained disc ``x < ρ`` or annulus ``ρ < x < 1``, its edge sharp or smoothed over a width ``w``) adds
 ``−4 e x χ'`` to the compatibility equation. Its particular solution ``F_p``
 (``(x F_p)' = 4 x χ``, in closed form) is carried analytically, so only the edge row of the
 compatibility equation changes (:func:`eigenstrain_stress`).
@@ -56,15 +56,19 @@ def _weighted_step_integral(x: np.ndarray, rho: np.ndarray, w: float) -> np.ndar
                   + antiderivative(zero, -rho))
 
 
+_ON_EDGE = 1e-12  # relative distance at which a node counts as lying on the region's edge
+
+
 def eigenstrain_stress(x: np.ndarray, rho: np.ndarray, annulus: np.ndarray, nu: np.ndarray,
                        immovable: np.ndarray, width: float) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """Return the particular stress slope of a unit mismatch strain and its edge constant.
 
     The strained disc is ``χ(x) = ½[erf((x+ρ)/w) − erf((x−ρ)/w)]``: the indicator of ``|x| < ρ``
-    smoothed by a Gaussian of width ``w`` (even in x, so the parity grid keeps it exact); the
-    annulus is ``1 − χ``; ``ρ = 1`` (disc) is the whole cap with no step. ``F_p`` solves
-    ``(x F_p)' = 4 x χ``, regular at 0: for a sharp disc ``2x`` inside and ``2ρ²/x`` outside (the
-    plane-stress inclusion in an infinite sheet, ``N = −E h ε*/2`` inside). The edge row of the
+    smoothed by a Gaussian of width ``w`` (even in x, so the parity grid keeps it exact), or for
+    ``w = 0`` the sharp indicator (½ at a node on ``x = ρ``); the annulus is ``1 − χ``; ``ρ = 1``
+    (disc) is the whole cap with no step. ``F_p`` solves ``(x F_p)' = 4 x χ``, regular at 0: for
+    a sharp disc ``2x`` inside and ``2ρ²/x`` outside (the plane-stress inclusion in an infinite
+    sheet, ``N = −E h ε*/2`` inside), continuous with a slope jump from 2 to −2 at ρ. The edge row of the
     smooth remainder ``F`` becomes ``F'(1) − νF(1) = e·k`` (immovable: ``u_r = 0``, with the
     eigenstrain at the edge) or ``F(1) = e·k`` (sliding: ``N_r = 0``).
 
@@ -76,7 +80,7 @@ def eigenstrain_stress(x: np.ndarray, rho: np.ndarray, annulus: np.ndarray, nu: 
         ``(n,)`` region radius over ``a``, whether the region is the annulus ``ρ < x < 1``,
         Poisson's ratio and the in-plane edge condition.
     width
-        Smoothing width ``w`` of the region's edge, over ``a``.
+        Smoothing width ``w`` of the region's edge, over ``a`` (0: a sharp edge).
 
     Returns
     -------
@@ -86,8 +90,16 @@ def eigenstrain_stress(x: np.ndarray, rho: np.ndarray, annulus: np.ndarray, nu: 
     pts = np.concatenate([x, [1.0]])[None, :]
     r = rho[:, None]
     whole = r >= 1.0
-    chi = np.where(whole, 1.0, 0.5 * (special.erf((pts + r) / width) - special.erf((pts - r) / width)))
-    f_disc = np.where(whole, 2.0 * pts, 4.0 * _weighted_step_integral(pts, r, width) / pts)
+    if width > 0.0:
+        chi = np.where(whole, 1.0, 0.5 * (special.erf((pts + r) / width) - special.erf((pts - r) / width)))
+        f_disc = np.where(whole, 2.0 * pts, 4.0 * _weighted_step_integral(pts, r, width) / pts)
+    else:
+        # sharp step; at a node on the edge χ = ½ gives F_p' the mean of its two one-sided values
+        # (0 for the disc), which makes the collocated jump second-order accurate (first order
+        # with either one-sided value)
+        on_edge = np.abs(pts - r) <= _ON_EDGE * r
+        chi = np.where(whole, 1.0, np.where(on_edge, 0.5, np.where(pts < r, 1.0, 0.0)))
+        f_disc = np.where(whole | (pts < r), 2.0 * pts, 2.0 * r**2 / pts)
     df_disc = 4.0 * chi - f_disc / pts
     ann = annulus[:, None]
     f_p = np.where(ann, 2.0 * pts - f_disc, f_disc)

@@ -62,16 +62,19 @@ def make_problem(lam: np.ndarray, nu: np.ndarray, clamped: np.ndarray, immovable
                  apex: np.ndarray, amplitude: np.ndarray, width: np.ndarray, nodes: int, *,
                  mismatch: np.ndarray | None = None, mismatch_strain: np.ndarray | None = None,
                  mismatch_radius: np.ndarray | None = None, annulus: np.ndarray | None = None,
-                 step_width: float = 0.1, stretch: float = 0.0) -> CapPathProblem:
+                 step_width: float = 0.1, stretch: float = 0.0, centre: float = 0.0) -> CapPathProblem:
     """Return the batched axisymmetric problem of the given caps.
 
     The mismatch arrays (all or none) select the mismatch load per cap: its direction is the
     sign of ``mismatch_strain`` (over ε_cl; negative = shrinkage), its region the disc
-    ``x < mismatch_radius`` or, where ``annulus``, the ring outside it, its edge smoothed over
-    ``step_width`` (over a). ``nodes`` and ``stretch`` choose the radial grid (see
-    :func:`~sweepshell.numerics.radial_chebyshev.make_radial_grid`).
+    ``x < mismatch_radius`` or, where ``annulus``, the ring outside it, its edge sharp
+    (``step_width`` 0) or smoothed over ``step_width`` (over a; 0.1 here for direct callers, the
+    model's default is the sharp edge). ``nodes``, ``stretch`` and
+    ``centre`` choose the radial grid (see
+    :func:`~sweepshell.numerics.radial_chebyshev.make_radial_grid`; a sharp edge wants
+    ``centre`` = its radius, which puts a node on it).
     """
-    grid = make_radial_grid(nodes, stretch)
+    grid = make_radial_grid(nodes, stretch, centre)
     x = grid.x
     n = lam.shape[0]
     c = np.sqrt(3.0 * (1.0 - nu**2))
@@ -218,7 +221,8 @@ def solve_caps(lam: np.ndarray, nu: np.ndarray, clamped: np.ndarray, immovable: 
     pb = make_problem(lam, nu, clamped, immovable, apex, amplitude, width, nodes, mismatch=mismatch,
                       mismatch_strain=mismatch_strain, mismatch_radius=mismatch_radius, annulus=annulus,
                       step_width=float(settings.get("mismatch_step_width", 0.1)),
-                      stretch=float(settings.get("grid_stretch", 0.0)))
+                      stretch=float(settings.get("grid_stretch", 0.0)),
+                      centre=float(settings.get("grid_centre", 0.0)))
     eigen = pb.mismatch
     m = pb.unknowns
     w = np.full(m + 1, 1.0 / m)
