@@ -411,16 +411,20 @@ def get_mismatch_nodes(settings: Mapping[str, Any], lam: np.ndarray) -> np.ndarr
     leave 2·10⁻⁴ at λ = 8 and 12, 10⁻³ at λ = 20; 64 nodes 4·10⁻⁵ at λ = 12, 80 nodes 7·10⁻⁵ at
     λ = 20; tests/models/test_shallow_cap_mismatch_sharp.py). Smoothed edge: the edge sits
     inside the cap, where the Chebyshev grid is coarsest; below w·nodes ≈ 3.4 the results lose
-    digits fast (10⁻⁶ relative at 3.4, 10⁻³ at 2), so ``nodes`` (34 when automatic) is raised
-    until w·nodes ≥ 3.4.
+    digits fast (10⁻⁶ relative at 3.4, 10⁻³ at 2), so ``nodes`` (when automatic max(34,
+    16 + 1.5λ), even) is raised until w·nodes ≥ 3.4.
     """
     width = float(settings["mismatch_step_width"])
     if width == 0.0:
         if int(settings["nodes"]):
             return np.full(lam.shape, int(settings["nodes"]))
         return np.clip(np.ceil((44.0 + 1.8 * lam) / 2.0) * 2.0, 48, 96).astype(int)
-    base = int(settings["nodes"]) or _FIXED_NODES
-    return np.full(lam.shape, max(base, math.ceil(3.4 / width)))
+    if int(settings["nodes"]):
+        return np.full(lam.shape, max(int(settings["nodes"]), math.ceil(3.4 / width)))
+    # on deep caps the mismatch state needs more than 34 nodes whatever the width: at λ = 20 a
+    # shrinking disc (ρ = 0.5) showed a spurious n = 2 bifurcation on 34 nodes, none on 40 … 80
+    return np.maximum(math.ceil(3.4 / width),
+                      np.maximum(_FIXED_NODES, np.ceil((16.0 + 1.5 * lam) / 2.0) * 2.0)).astype(int)
 
 
 def choose_grid_centres(settings: Mapping[str, Any], eigen: np.ndarray, radius: np.ndarray) -> np.ndarray:
@@ -458,10 +462,18 @@ def choose_grids(settings: Mapping[str, Any], lam: np.ndarray, apex: np.ndarray,
     else:
         perfect = 14.0 + lam if scan else 12.0 + 1.5 * lam
         stretched = 12.0 + 1.5 * lam if scan else 14.0 + 1.2 * lam
-        dimple = 4.0 + 2.0 * lam / np.maximum(width, 0.25)
-        need = np.where(apex, 16.0 + 1.4 * lam, np.where(dimpled, np.maximum(stretched, dimple), perfect))
+        dimple = np.where(amplitude != 0.0, 4.0 + 2.0 * lam / np.maximum(width, 0.25), 0.0)
+        need = np.where(apex, np.maximum(16.0 + 1.4 * lam, dimple),
+                        np.where(dimpled, np.maximum(stretched, dimple), perfect))
         nodes = np.clip(np.ceil(need / 2.0) * 2.0, 16, 96).astype(int)
-    nodes = np.where(eigen, get_mismatch_nodes(settings, lam), nodes)
+    mismatch_nodes = get_mismatch_nodes(settings, lam)
+    if not int(settings["nodes"]):
+        # a dimple on a mismatch grid (no axis stretch there): the plain-grid need of a dimple,
+        # 2 + 4.6λ/b (measured for pressure; not separately measured for mismatch loads)
+        plain_dimple = np.where(amplitude != 0.0, 2.0 + 4.6 * lam / np.maximum(width, 0.25), 0.0)
+        mismatch_nodes = np.maximum(mismatch_nodes,
+                                    np.clip(np.ceil(plain_dimple / 2.0) * 2.0, 0, 96).astype(int))
+    nodes = np.where(eigen, mismatch_nodes, nodes)
     return nodes, np.where(eigen, 0.0, beta)
 
 
