@@ -126,8 +126,11 @@ rejected when the corrector lands far from the predictor (a fold pair inside the
 stability determinants are those of ``A − B S⁻¹ C`` (the fixed stress block ``S`` eliminated;
 assembled per state in a compiled kernel);
 all n = 1…N are evaluated at every ``scan_stride``-th path point (default 3; the steps are short
-where the state changes fast), only the flipped wave numbers in between, and every wave number
-that flipped in the first flipped step is refined (several often cross within one step).
+where the state changes fast), only the flipped wave numbers in between. Several wave numbers
+often flip within one step (about six per cap on deep caps, the sphere's nearly degenerate
+spectrum): their determinants are evaluated at four interior points of the step, and only those
+flipping in its earliest flipped part are refined (the same critical states as refining all, at
+about 60 % of the scan's cost; tested).
 A wave number whose determinant changes sign twice between evaluations is missed; stride 3
 gave results identical to stride 1 on 348 test points. For sliding edges, n = 1 has one
 in-plane edge condition (N_r and N_rθ both reduce to F' − F). The apex-force singularity
@@ -238,8 +241,9 @@ class ShallowCapModel(SweepModel):
                       bounds=(0.0, math.inf), closed=(False, False), symbol="E"),
     )
     regimes: ClassVar[tuple[str, ...]] = ("stable", "limit_point", "bifurcation")
-    # measured (one core, wall, benchmarks/bench_shallow_cap.py, λ = 3.5 … 20): ~2 ms axisymmetric, ~19 ms
-    # with the scan, ~23 ms with bistability; apex-force points 0.1–0.8 s with the scan (its 3x stability grid)
+    # measured (one core, wall, benchmarks/bench_shallow_cap.py, λ = 3.5 … 20): ~2 ms axisymmetric, ~12 ms
+    # with the scan, ~17 ms with bistability; apex-force points 0.1–0.8 s with the scan (its 3x stability
+    # grid); sharp-edged mismatch points 45–100 ms with the scan
     cost_hint: ClassVar[float] = 0.025
 
     def __init__(self, *, nodes: int = 0, asymmetric_modes: int = 30, max_pressure: float = 2.0,
@@ -300,8 +304,8 @@ class ShallowCapModel(SweepModel):
     def estimated_cost(self) -> float:
         """Seconds per pressure point on one core with these settings (sizes blocks; see ``cost_hint``)."""
         s = self._settings
-        cost = 0.002 if int(s["asymmetric_modes"]) == 0 else 0.002 + 0.00055 * int(s["asymmetric_modes"])
-        return cost + (0.005 if s["check_bistability"] else 0.0)
+        cost = 0.002 + 0.00035 * int(s["asymmetric_modes"])
+        return cost + (0.0045 if s["check_bistability"] else 0.0)
 
     @property
     def extra_dims(self) -> dict[str, int]:

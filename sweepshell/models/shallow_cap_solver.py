@@ -293,8 +293,11 @@ def solve_caps(lam: np.ndarray, nu: np.ndarray, clamped: np.ndarray, immovable: 
         z_fold[rf], crit_s_fold[rf] = zf, sf
         refine_ok[rf] &= okf
     if crossings.point.size:
-        # every wave number that changed sign in the first flipped step is refined: when several
-        # cross within one step, a linear estimate of which came first is not reliable
+        # several wave numbers often change sign within one step (about six per cap on deep caps):
+        # sampling the step first keeps only those that change sign in its earliest flipped part
+        keep, s_lo, s_hi, g_lo, g_hi = _bracket_first_crossings(pb, hist, jb, crossings, w, tol)
+        crossings = ModeCrossings(*(np.asarray(v)[keep] for v in vars(crossings).values()))
+        s_lo, s_hi, g_lo, g_hi = s_lo[keep], s_hi[keep], g_lo[keep], g_hi[keep]
         cp, cm = crossings.point, crossings.mode
         jr = jb[cp]
 
@@ -309,8 +312,8 @@ def solve_caps(lam: np.ndarray, nu: np.ndarray, clamped: np.ndarray, immovable: 
             return out
 
         zb, _, sb, okb = refine_on_arc(
-            pb, hist.z[cp, jr - 1], hist.t[cp, jr - 1], hist.step[cp, jr], np.ones(cp.size), crossings.ratio, cp, w,
-            measure, tol=tol, max_iter=8, iterations=40, s_tol=1e-9, corrector=correct_caps_on_arc)
+            pb, hist.z[cp, jr - 1], hist.t[cp, jr - 1], s_hi, g_lo, g_hi, cp, w,
+            measure, tol=tol, max_iter=8, iterations=40, s_tol=1e-9, corrector=correct_caps_on_arc, s_lo=s_lo)
         sb = np.where(okb, sb, np.inf)
         order = np.lexsort((sb, cp))
         first = order[np.r_[True, cp[order][1:] != cp[order][:-1]]]
@@ -343,6 +346,64 @@ def solve_caps(lam: np.ndarray, nu: np.ndarray, clamped: np.ndarray, immovable: 
     return CapSolution(status=status, regime=np.where(status <= Status.no_instability, regime, -1).astype(np.int8),
                        critical_load=crit_load, critical_wavenumber=wavenumber, critical_deflection=deflection,
                        critical_volume_change=volume, stiffness=stiffness, bistable=bistable, load_path=path)
+
+
+_CROSSING_SAMPLES = 4  # interior points of a flipped step at which its crossings are located
+
+
+def _bracket_first_crossings(pb: CapPathProblem, hist: Any, jb: np.ndarray, crossings: ModeCrossings,
+                             w: np.ndarray, tol: float,
+                             ) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+    """Locate each crossing inside its step and keep the earliest ones per cap.
+
+    The determinants of a cap's crossing wave numbers are evaluated at ``_CROSSING_SAMPLES``
+    evenly spaced points of the flipped step (on the same arc as the refinement). Each crossing
+    gets the sub-interval of its first sign change; a cap keeps the crossings of its earliest
+    sub-interval (several if they share it: their order inside is left to the refinement).
+    Caps whose samples do not all converge keep every crossing and the whole step.
+
+    Returns
+    -------
+    keep, s_lo, s_hi, g_lo, g_hi
+        Per crossing: kept or not, and the bracket (arclengths from the step's start, and the
+        determinant ratios to the step's start at both ends).
+    """
+    cp, cm = crossings.point, crossings.mode
+    caps, cap_of = np.unique(cp, return_inverse=True)
+    cap_of = cap_of.reshape(-1)
+    q = _CROSSING_SAMPLES
+    frac = np.arange(1, q + 1) / (q + 1)
+    jr = jb[caps]
+    step = hist.step[caps, jr]
+    anchor = np.repeat(hist.z[caps, jr - 1], q, axis=0)
+    tangent = np.repeat(hist.t[caps, jr - 1], q, axis=0)
+    z, conv, _, _ = correct_caps_on_arc(pb, anchor, tangent, (step[:, None] * frac[None, :]).ravel(),
+                                        np.repeat(caps, q), w, tol=tol, max_iter=8)
+    settled = np.asarray(np.asarray(conv).reshape(-1, q).all(axis=1), dtype=bool).reshape(-1)
+    rows = (cap_of[:, None] * q + np.arange(q)[None, :]).ravel()  # each crossing's samples
+    g_flat = np.full(rows.size, np.nan)
+    mode_rows = np.repeat(cm, q)
+    for mode in np.unique(cm):
+        sel = mode_rows == mode
+        sg, ld = compute_mode_determinants(pb, np.nan_to_num(z[rows[sel]]), np.repeat(caps, q)[rows[sel]],
+                                           np.array([mode]))
+        ref = np.repeat(np.arange(cp.size), q)[sel]
+        g_flat[sel] = sg[:, 0] * crossings.sign[ref] * np.exp(np.clip(ld[:, 0] - crossings.logdet[ref], -700, 700))
+    g = g_flat.reshape(cp.size, q)
+    flipped = np.asarray(g <= 0)
+    sub = np.where(flipped.any(axis=1), np.argmax(flipped, axis=1), q)  # crossing in (s_sub, s_sub+1)
+    earliest = np.full(caps.size, q)
+    np.minimum.at(earliest, cap_of, sub)
+    ok = settled[cap_of]
+    keep = ~ok | (sub == earliest[cap_of])
+    bounds = np.concatenate([[0.0], frac, [1.0]])
+    row = np.arange(cp.size)
+    s_step = step[cap_of]
+    s_lo = np.where(ok, bounds[sub] * s_step, 0.0)
+    s_hi = np.where(ok, bounds[sub + 1] * s_step, s_step)
+    g_lo = np.where(ok & (sub > 0), g[row, np.maximum(sub - 1, 0)], 1.0)
+    g_hi = np.where(ok & (sub < q), g[row, np.minimum(sub, q - 1)], crossings.ratio)
+    return keep, s_lo, s_hi, g_lo, g_hi
 
 
 def _check_bistability(pb: CapPathProblem, hist: Any, w: np.ndarray, has_fold: np.ndarray, jf: np.ndarray,

@@ -257,8 +257,9 @@ def refine_on_arc(problem: ContinuationProblem, anchor: np.ndarray, tangent: np.
                   w: np.ndarray, measure: Callable[[np.ndarray, np.ndarray, np.ndarray], np.ndarray],
                   *, tol: float, max_iter: int, iterations: int, s_tol: float,
                   corrector: Callable[..., tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]] | None = None,
+                  s_lo: np.ndarray | None = None,
                   ) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
-    """Find the arclength ``s ∈ (0, s_hi)`` from ``anchor`` where ``measure`` changes sign.
+    """Find the arclength ``s ∈ (s_lo, s_hi)`` from ``anchor`` where ``measure`` changes sign.
 
     Parameters
     ----------
@@ -268,6 +269,8 @@ def refine_on_arc(problem: ContinuationProblem, anchor: np.ndarray, tangent: np.
         ``(k,)`` arclength of the accepted point after the sign change.
     g_lo, g_hi
         ``(k,)`` values of ``measure`` at both ends (opposite signs).
+    s_lo
+        ``(k,)`` start of the bracket along the same arc (default 0: the anchor).
     measure
         ``f(z, t, rows) -> (k,)`` scalar whose zero is sought (e.g. the tangent's load
         component for a fold, or a stability determinant for a bifurcation); ``rows`` are the
@@ -283,7 +286,7 @@ def refine_on_arc(problem: ContinuationProblem, anchor: np.ndarray, tangent: np.
         The refined states, tangents, arclengths from the anchor and a success mask.
     """
     k = anchor.shape[0]
-    lo = np.zeros(k)
+    lo = np.zeros(k) if s_lo is None else s_lo.astype(float).copy()
     hi = s_hi.astype(float).copy()
     glo = g_lo.astype(float).copy()
     ghi = g_hi.astype(float).copy()

@@ -196,3 +196,36 @@ def test_pinned_deep_cap_is_bistable_with_a_near_mirror_inverted_state():
     j = np.nonzero((load[:-1] < 0) & (load[1:] >= 0))[0][-1]  # the path ends just past the zero-load state
     at_zero = deflection[j] - load[j] * (deflection[j + 1] - deflection[j]) / (load[j + 1] - load[j])
     assert at_zero == pytest.approx(10.0**2 / (2 * C), rel=0.02)
+
+
+def test_locating_crossings_inside_the_step_keeps_the_first_bifurcation(monkeypatch):
+    # common practice, no source: refining only the wave numbers that change sign in the earliest
+    # sampled part of the flipped step gives the same critical state as refining all of them
+    import sweepshell.models.shallow_cap_solver as solver
+
+    lam = np.array([6.0, 8.5, 11.0, 14.0, 17.0, 20.0])
+    inputs = make_inputs(lam, dimple_amplitude=np.array([0.0, 0.1, 0.0, 0.3, 0.0, 0.05]))
+    model = make_model("shallow_cap", {"check_bistability": False})
+    kept: list[tuple[int, int]] = []
+    real = solver._bracket_first_crossings
+
+    def recording(*args):  # type: ignore[no-untyped-def]
+        out = real(*args)
+        kept.append((int(out[0].sum()), out[0].size))
+        return out
+
+    monkeypatch.setattr(solver, "_bracket_first_crossings", recording)
+    pruned = model.solve_batch(inputs).outputs
+    assert sum(k for k, _ in kept) < sum(n for _, n in kept)  # crossings were dropped
+
+    def keep_all(pb, hist, jb, crossings, w, tol):  # type: ignore[no-untyped-def]
+        step = hist.step[crossings.point, jb[crossings.point]]
+        n = crossings.point.size
+        return np.ones(n, dtype=bool), np.zeros(n), step, np.ones(n), crossings.ratio
+
+    monkeypatch.setattr(solver, "_bracket_first_crossings", keep_all)
+    full = model.solve_batch(inputs).outputs
+    assert np.sum(full["critical_wavenumber"] > 0) >= 4  # bifurcations: the pruning was exercised
+    np.testing.assert_array_equal(pruned["critical_wavenumber"], full["critical_wavenumber"])
+    np.testing.assert_allclose(pruned["critical_load"], full["critical_load"], rtol=1e-8)
+    np.testing.assert_allclose(pruned["critical_deflection"], full["critical_deflection"], rtol=1e-7)
