@@ -242,8 +242,8 @@ class ShallowCapModel(SweepModel):
     )
     regimes: ClassVar[tuple[str, ...]] = ("stable", "limit_point", "bifurcation")
     # measured (one core, wall, benchmarks/bench_shallow_cap.py, λ = 3.5 … 20): ~2 ms axisymmetric, ~12 ms
-    # with the scan, ~17 ms with bistability; apex-force points 0.1–0.8 s with the scan (its 3x stability
-    # grid); sharp-edged mismatch points 45–100 ms with the scan
+    # with the scan, ~17 ms with bistability; apex-force points 0.1–1.6 s (λ 6–30) with the scan (its 3x
+    # stability grid); sharp-edged mismatch points 45–100 ms with the scan
     cost_hint: ClassVar[float] = 0.025
 
     def __init__(self, *, nodes: int = 0, asymmetric_modes: int = 30, max_pressure: float = 2.0,
