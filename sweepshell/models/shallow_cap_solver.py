@@ -41,6 +41,8 @@ _DET_CHUNK = 1024
 _DET_CHUNK_ELEMENTS = 12_500_000  # ~100 MB per (states, M, M) float64 stack of stability matrices
 _FIRST_STEP, _MAX_STEP = 0.1, 0.25
 _MAX_SUCTION = 2.0  # a path needing more outward load than this (in its load unit) is not followed
+_SCAN_ROUND = 8  # sampled path points per cap evaluated before looking for a flip
+_CROSSING_SAMPLES = 4  # interior points of a flipped step at which its crossings are located
 
 
 @dataclass
@@ -134,7 +136,9 @@ def _scan_modes(pb: CapPathProblem, zh: np.ndarray, scanned: np.ndarray, scan_en
 
     All wave numbers are evaluated at every ``stride``-th accepted step (and at the last one);
     path steps are short where the state changes fast (near folds), so this sampling is
-    densest where determinants move fastest. Inside the first sampled interval whose end has a
+    densest where determinants move fastest. The samples are evaluated ``_SCAN_ROUND`` per cap at
+    a time along the path, and a cap's later samples are skipped once one has flipped (same
+    result, tested). Inside the first sampled interval whose end has a
     flipped sign, only the flipped wave numbers are evaluated at the steps in between, and the
     first step with a flip is kept. A wave number whose determinant changes sign twice between
     two evaluations (two eigenvalues crossing) is missed: ``stride = 1`` (every step) is the
@@ -154,14 +158,26 @@ def _scan_modes(pb: CapPathProblem, zh: np.ndarray, scanned: np.ndarray, scan_en
     steps = np.arange(zh.shape[1])
     inside = (steps[None, :] <= scan_end[:, None]) & scanned[:, None]
     sampled = inside & ((steps[None, :] % stride == 0) | (steps[None, :] == scan_end[:, None]))
-    pi, pj = np.nonzero(sampled)
-    sg, ld = _modes_determinants(pb, zh[pi, pj], pi, modes)
     sg_all = np.full((n, zh.shape[1], modes.size), np.nan)
     ld_all = np.full_like(sg_all, np.nan)
-    sg_all[pi, pj] = sg
-    ld_all[pi, pj] = ld
+    # samples are evaluated in rounds along the path, and a cap stops at the round of its first flip
+    # (a deep cap under an apex force bifurcates long before its path ends)
+    rank = np.cumsum(sampled, axis=1) - 1
+    last_rank = rank[:, -1]
+    evaluated = np.zeros_like(sampled)
+    active = sampled.any(axis=1)
+    start = 0
+    while active.any():
+        chunk = sampled & active[:, None] & (rank >= start) & (rank < start + _SCAN_ROUND)
+        pi, pj = np.nonzero(chunk)
+        sg_all[pi, pj], ld_all[pi, pj] = _modes_determinants(pb, zh[pi, pj], pi, modes)
+        evaluated |= chunk
+        flipped_now = (sg_all[pi, pj] != sg_all[pi, 0]).any(axis=1)
+        active[pi[flipped_now]] = False
+        start += _SCAN_ROUND
+        active &= last_rank >= start
     ref = sg_all[:, 0]
-    flip_at = (sg_all != ref[:, None, :]) & sampled[:, :, None]
+    flip_at = (sg_all != ref[:, None, :]) & evaluated[:, :, None]
     any_flip = flip_at.any(axis=2)
     rows = np.nonzero(any_flip.any(axis=1))[0]
     if rows.size == 0:
@@ -346,9 +362,6 @@ def solve_caps(lam: np.ndarray, nu: np.ndarray, clamped: np.ndarray, immovable: 
     return CapSolution(status=status, regime=np.where(status <= Status.no_instability, regime, -1).astype(np.int8),
                        critical_load=crit_load, critical_wavenumber=wavenumber, critical_deflection=deflection,
                        critical_volume_change=volume, stiffness=stiffness, bistable=bistable, load_path=path)
-
-
-_CROSSING_SAMPLES = 4  # interior points of a flipped step at which its crossings are located
 
 
 def _bracket_first_crossings(pb: CapPathProblem, hist: Any, jb: np.ndarray, crossings: ModeCrossings,

@@ -190,3 +190,19 @@ def test_deep_cap_bifurcation_is_local_to_the_indenter():
     np.testing.assert_array_equal(out["critical_wavenumber"], [3.0, 3.0, 3.0])
     np.testing.assert_allclose(out["critical_load"], 6.24, rtol=5e-3)
     np.testing.assert_allclose(out["critical_deflection"], 15.26, rtol=5e-3)
+
+
+def test_scanning_in_rounds_finds_the_same_first_flip(monkeypatch):
+    # common practice, no source: evaluating the path samples in rounds and stopping each cap at its first
+    # flip gives the same critical states as evaluating every sample at once
+    import sweepshell.models.shallow_cap_solver as solver
+
+    model = make_model("shallow_cap", {"check_bistability": False, "path_samples": 8})
+    inputs = make_inputs([10.0, 20.0, 8.0], load=np.array(["apex_force", "apex_force", "pressure"]))
+    monkeypatch.setattr(solver, "_SCAN_ROUND", 2)  # several rounds before every flip here
+    rounds = model.solve_batch(inputs).outputs
+    monkeypatch.setattr(solver, "_SCAN_ROUND", 10**6)
+    at_once = model.solve_batch(inputs).outputs
+    np.testing.assert_array_equal(rounds["critical_wavenumber"], at_once["critical_wavenumber"])
+    np.testing.assert_array_equal(rounds["critical_load"], at_once["critical_load"])
+    assert np.all(rounds["critical_wavenumber"][:2] > 0)
