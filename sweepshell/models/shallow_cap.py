@@ -116,7 +116,8 @@ Numerics
 Chebyshev collocation on the odd half grid (``nodes`` points in 0 < x ≤ 1; see "Resolution"
 below), Newton with the
 analytic Jacobian and the stretching block eliminated (Schur complement), pseudo-arclength
-continuation with step control on Newton work and tangent turning (each cap's whole path and
+continuation with step control on Newton work and tangent turning (each step sized for 60 % of the turn
+limit at the turning rate extrapolated from the last two steps) (each cap's whole path and
 every Newton corrector run in compiled per-cap kernels, :mod:`.shallow_cap_compiled`; the
 batched numpy versions in :mod:`.shallow_cap_kernels` and :mod:`sweepshell.numerics.arclength`
 are the specification they are tested against), and
@@ -158,7 +159,8 @@ about 3·10⁻⁴ (on 34 plain nodes, as before version 1.8, it was off by 1–2
 
 The continuation limits the tangent's turn per step to ``max_turn_deg`` = 8°: near λ ≈ 25 a
 small first fold (δ ≈ 0.4 h) is stepped over with 12° turns (tested, with other λ where the
-first pressure maximum changes fold).
+first pressure maximum changes fold). Near λ = 24.46 two branches pass close to each other, and
+bolder step sizing (80 % of the limit) stepped onto the other one (0.991 instead of 0.974 p_cl).
 
 Range of validity
 -----------------
@@ -242,7 +244,7 @@ class ShallowCapModel(SweepModel):
     )
     regimes: ClassVar[tuple[str, ...]] = ("stable", "limit_point", "bifurcation")
     # measured (one core, wall, benchmarks/bench_shallow_cap.py, λ = 3.5 … 20): ~2 ms axisymmetric, ~12 ms
-    # with the scan, ~17 ms with bistability; apex-force points 0.1–1.6 s (λ 6–30) with the scan (its 3x
+    # with the scan, ~17 ms with bistability; apex-force points 0.1–0.3 s (λ 6–30) with the scan (its 3x
     # stability grid); sharp-edged mismatch points 45–100 ms with the scan
     cost_hint: ClassVar[float] = 0.025
 

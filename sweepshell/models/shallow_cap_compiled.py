@@ -21,6 +21,7 @@ import numpy as np
 from numba import njit
 
 from sweepshell.models.shallow_cap_kernels import CapPathProblem
+from sweepshell.numerics.arclength import TURN_SAFETY
 
 __all__ = ["assemble_reduced_stability", "correct_caps_on_arc", "pack_cap_parameters", "refine_caps_on_arc",
            "trace_cap_paths"]
@@ -289,6 +290,7 @@ def _trace(z0: np.ndarray, t0: np.ndarray, w: np.ndarray, first_step: float, max
     turn_cap = max_turn_deg
     fold_seen = False
     went_negative = False
+    turn_rate_prev = 0.0
     apex = prm[_P_APEX] != 0.0
     eigen = prm[_P_MISMATCH] != 0.0
     z = np.empty(m1)
@@ -327,7 +329,15 @@ def _trace(z0: np.ndarray, t0: np.ndarray, w: np.ndarray, first_step: float, max
         # a strongly turning path gets shorter steps before the angle test rejects them
         if cosang < 0.5 * (1.0 + cos_max):
             grow = min(grow, 0.8)
-        h = min(h * grow, step_max)
+        h_next = h * grow
+        # turning rate (radians per arclength): near limit points it grows fast, so the next step is
+        # sized for the rate extrapolated by its last growth factor (avoids most angle rejections)
+        turn_rate = np.arccos(min(max(cosang, -1.0), 1.0)) / h
+        predicted = turn_rate * max(1.0, turn_rate / turn_rate_prev) if turn_rate_prev > 0.0 else turn_rate
+        if predicted > 0.0:
+            h_next = min(h_next, TURN_SAFETY * np.radians(turn_cap) / predicted)
+        turn_rate_prev = turn_rate
+        h = min(h_next, step_max)
         # stopping rule of solve_caps (is_finished)
         mu_p = zc[m1 - 1]
         mu_n = z[m1 - 1]

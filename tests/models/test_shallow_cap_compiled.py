@@ -74,7 +74,8 @@ def test_compiled_path_tracing_matches_trace_paths():
         c_i = count[i]
         np.testing.assert_allclose(zh[i, :c_i], want.z[i, :c_i], rtol=0, atol=1e-9)
         np.testing.assert_allclose(th[i, :c_i], want.t[i, :c_i], rtol=0, atol=1e-8)
-        np.testing.assert_allclose(sh[i, :c_i], want.step[i, :c_i], rtol=1e-12)
+        # steps follow the turning angle, an arccos of cosines near 1 that amplifies rounding of the states
+        np.testing.assert_allclose(sh[i, :c_i], want.step[i, :c_i], rtol=1e-7)
         assert np.isnan(zh[i, c_i:]).all()
 
 
