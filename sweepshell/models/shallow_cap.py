@@ -114,16 +114,16 @@ Conventions
 Numerics
 --------
 Chebyshev collocation on the odd half grid (``nodes`` points in 0 < x ≤ 1; see "Resolution"
-below), Newton with the
-analytic Jacobian and the stretching block eliminated (Schur complement), pseudo-arclength
-continuation with step control on Newton work and tangent turning (each step sized for 60 % of the turn
-limit at the turning rate extrapolated from the last two steps) (each cap's whole path and
-every Newton corrector run in compiled per-cap kernels, :mod:`.shallow_cap_compiled`; the
-batched numpy versions in :mod:`.shallow_cap_kernels` and :mod:`sweepshell.numerics.arclength`
-are the specification they are tested against), and
-secant/regula-falsi refinement of limit points (zero of dq/ds) and of determinant sign
-changes. Each Newton solve carries the tangent as a second right-hand side; steps are also
-rejected when the corrector lands far from the predictor (a fold pair inside the step). The
+below), Newton with the analytic Jacobian and the stretching block eliminated (Schur
+complement), pseudo-arclength continuation with step control on Newton work and tangent
+turning: each step is sized for 60 % of the turn limit at the turning rate extrapolated from
+the last two steps. Each cap's whole path and every Newton corrector run in compiled per-cap
+kernels (:mod:`.shallow_cap_compiled`; the batched numpy versions in
+:mod:`.shallow_cap_kernels` and :mod:`sweepshell.numerics.arclength` are the specification they
+are tested against). Limit points (zeros of dq/ds) and determinant sign changes are refined
+by secant/regula-falsi steps along the arc. Each Newton solve carries the tangent as a second
+right-hand side; steps are also rejected when the corrector lands far from the predictor (a
+fold pair inside the step). The
 stability determinants are those of ``A − B S⁻¹ C`` (the fixed stress block ``S`` eliminated;
 assembled per state in a compiled kernel);
 all n = 1…N are evaluated at every ``scan_stride``-th path point (default 3; the steps are short
