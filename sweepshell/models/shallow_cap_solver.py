@@ -390,17 +390,19 @@ def _bracket_first_crossings(pb: CapPathProblem, hist: Any, jb: np.ndarray, cros
     step = hist.step[caps, jr]
     anchor = np.repeat(hist.z[caps, jr - 1], q, axis=0)
     tangent = np.repeat(hist.t[caps, jr - 1], q, axis=0)
+    sample_cap = np.repeat(caps, q)
     z, conv, _, _ = correct_caps_on_arc(pb, anchor, tangent, (step[:, None] * frac[None, :]).ravel(),
-                                        np.repeat(caps, q), w, tol=tol, max_iter=8)
-    settled = np.asarray(np.asarray(conv).reshape(-1, q).all(axis=1), dtype=bool).reshape(-1)
+                                        sample_cap, w, tol=tol, max_iter=8)
+    settled = np.asarray(np.asarray(conv, dtype=bool).reshape(-1, q).all(axis=1))
     rows = (cap_of[:, None] * q + np.arange(q)[None, :]).ravel()  # each crossing's samples
+    crossing_of = np.repeat(np.arange(cp.size), q)
     g_flat = np.full(rows.size, np.nan)
     mode_rows = np.repeat(cm, q)
     for mode in np.unique(cm):
         sel = mode_rows == mode
-        sg, ld = compute_mode_determinants(pb, np.nan_to_num(z[rows[sel]]), np.repeat(caps, q)[rows[sel]],
+        sg, ld = compute_mode_determinants(pb, np.nan_to_num(z[rows[sel]]), sample_cap[rows[sel]],
                                            np.array([mode]))
-        ref = np.repeat(np.arange(cp.size), q)[sel]
+        ref = crossing_of[sel]
         g_flat[sel] = sg[:, 0] * crossings.sign[ref] * np.exp(np.clip(ld[:, 0] - crossings.logdet[ref], -700, 700))
     g = g_flat.reshape(cp.size, q)
     flipped = np.asarray(g <= 0)
