@@ -75,8 +75,9 @@ Conventions
   its stability operators are those of the polynomial interpolant of the state, on a grid of
   3×``nodes`` (:mod:`.shallow_cap_modes`); on the state's own grid they have spurious n = 2, 3
   modes (determinant sign changes at the first loaded step). Observed with the defaults
-  (clamped immovable): no bifurcation for λ = 4, 6, 8; n = 5 at δ = 19.2 h, F R/(E h³) = 9.76 for
-  λ = 10; n = 3 at δ ≈ 15.2–15.3 h, F R/(E h³) ≈ 6.25–6.30 for λ = 20–30 (nearly independent of λ:
+  (clamped immovable): no bifurcation for λ = 4, 6, 8; n = 4 at δ = 18.7 h, F R/(E h³) = 9.447 for
+  λ = 10 (version 1.8 reported n = 5 at 9.76: its sparser stability samples missed the n = 4
+  window); n = 3 at δ ≈ 15.2–15.3 h, F R/(E h³) ≈ 6.25–6.30 for λ = 20–30 (nearly independent of λ:
   the dimple is local), well before the force maximum; pinned caps with λ = 6–8 bifurcate in n = 1
   just before it.
   Deep indented shells do buckle into polygonal shapes once the inverted dimple is deep
@@ -121,19 +122,36 @@ the last two steps. Each cap's whole path and every Newton corrector run in comp
 kernels (:mod:`.shallow_cap_compiled`; the batched numpy versions in
 :mod:`.shallow_cap_kernels` and :mod:`sweepshell.numerics.arclength` are the specification they
 are tested against). Limit points (zeros of dq/ds) and determinant sign changes are refined
-by secant/regula-falsi steps along the arc. Each Newton solve carries the tangent as a second
+by secant/regula-falsi steps along the arc (limit points to 10⁻⁴ of their step, where the
+load is stationary: about 10⁻⁹ relative). Each Newton solve carries the tangent as a second
 right-hand side; steps are also rejected when the corrector lands far from the predictor (a
-fold pair inside the step). The
+fold pair inside the step) and when they change the path's orientation, the sign of
+det [∂R/∂z; tᵀ] (Keller 1977), which stays constant along a path, through limit points too,
+and flips only across a branch point. Paths of slightly imperfect caps turn through tight
+corners where a neighbouring branch passes within a step (a nearly broken bifurcation): a step
+across such a corner lands on the other branch with a nearly parallel tangent, so neither the
+turn limit nor the drift test sees it, but the orientation does. Before version 1.9 such jumps
+overestimated the first limit pressure by up to 16 % for about one cap in a thousand (small
+narrow dimples, e.g. λ = 19.54, ν = 0.25, amplitude 0.042 h, width 1.28: 1.0089 instead of
+0.8703). A step shorter than 4·10⁻⁷ may change the orientation: it crosses a branch point of
+its own path. The turn limit ``max_turn_deg`` is automatic by default (0): 6° with the
+asymmetric scan, whose stability samples are the path's points (8° missed a first bifurcation
+of deep pinned caps, n = 21 for 22, in 2 of 600 random caps; 6° costs no more), and 12°
+without it (validated with the orientation test on 12,000 random caps and on λ 23.5 … 27 in
+steps of 0.025, where the first pressure maximum changes folds; see Resolution).
+The
 stability determinants are those of ``A − B S⁻¹ C`` (the fixed stress block ``S`` eliminated;
 assembled per state in a compiled kernel);
-all n = 1…N are evaluated at every ``scan_stride``-th path point (default 3; the steps are short
-where the state changes fast), only the flipped wave numbers in between. Several wave numbers
+all n = 1…N are evaluated at every ``scan_stride``-th path point (default 1, every point; the
+steps are short where the state changes fast), only the flipped wave numbers in between. Several wave numbers
 often flip within one step (about six per cap on deep caps, the sphere's nearly degenerate
 spectrum): their determinants are evaluated at four interior points of the step, and only those
 flipping in its earliest flipped part are refined (the same critical states as refining all, at
 about 60 % of the scan's cost; tested).
-A wave number whose determinant changes sign twice between evaluations is missed; stride 3
-gave results identical to stride 1 on 348 test points. For sliding edges, n = 1 has one
+A wave number whose determinant changes sign twice between evaluations is missed: stride 3
+(the default before version 1.9) missed the first bifurcation of the apex-force λ = 10 cap
+(n = 4 at F R/(E h³) = 9.447, whose determinant changes sign twice within three steps; it
+reported n = 5 at 9.763) and costs no less, since the scan stops at a cap's first flip. For sliding edges, n = 1 has one
 in-plane edge condition (N_r and N_rθ both reduce to F' − F). The apex-force singularity
 y ∝ x log x is subtracted analytically in the axisymmetric problem; apex-force stability
 operators are evaluated on 3×``nodes`` (see Conventions; 2× leaves spurious sign changes at
@@ -145,10 +163,12 @@ converged at about first order and picked n = 4 instead of 5 at λ = 10.
 Resolution
 ----------
 ``nodes`` = 0 (default) picks each point's grid (:func:`choose_grids`): the count grows linearly
-with λ (14 + λ with the asymmetric scan, 12 + 1.5λ without; dimpled caps also 4 + 2λ/b; apex
-forces 16 + 1.4λ; even, 16 … 96), fitted to the measured need for 3·10⁻⁷ relative accuracy of
-the critical load over λ = 3.5 … 30 and checked against grids twice as fine
-(tests/models/test_shallow_cap_resolution.py). Dimpled caps and apex forces use nodes stretched
+with λ (14 + λ with the asymmetric scan, max(14 + λ, 8 + 1.5λ) without; dimpled caps also
+4 + 2λ/b; apex forces 16 + 1.4λ; even, 16 … 96), fitted to the measured need for 3·10⁻⁷
+relative accuracy of the critical load over λ = 3.5 … 30 and checked against grids twice as
+fine (tests/models/test_shallow_cap_resolution.py). The rule for perfect caps without the scan
+was checked at every 0.1 of λ = 3.5 … 30 for clamped and pinned, immovable and sliding edges,
+ν = 0.3 and 0.45, against 84 nodes: within 4.8·10⁻⁷ (2,128 points). Dimpled caps and apex forces use nodes stretched
 towards the axis, x = (1 − β)ξ + βξ³ of the Chebyshev points ξ (β = ``dimple_grid_stretch``
 0.5, ``apex_grid_stretch`` 0.85), because their solutions vary fastest there; perfect caps keep
 Chebyshev points (the asymmetric modes live at the edge, where the stretch coarsens the grid).
@@ -157,10 +177,13 @@ nonlinear state keeps weaker singular terms at the apex, and the force maximum i
 about 3·10⁻⁴ (on 34 plain nodes, as before version 1.8, it was off by 1–2 %). A positive
 ``nodes`` fixes the count for all points (stretches still apply).
 
-The continuation limits the tangent's turn per step to ``max_turn_deg`` = 8°: near λ ≈ 25 a
-small first fold (δ ≈ 0.4 h) is stepped over with 12° turns (tested, with other λ where the
-first pressure maximum changes fold). Near λ = 24.46 two branches pass close to each other, and
-bolder step sizing (80 % of the limit) stepped onto the other one (0.991 instead of 0.974 p_cl).
+The continuation limits the tangent's turn per step to ``max_turn_deg`` (automatic: 6° with the
+scan, 12° without; see Numerics). Before the orientation test (version 1.9) 12° turns stepped
+over a small first fold near λ ≈ 25 (δ ≈ 0.4 h) and bolder step sizing stepped onto a
+neighbouring branch at λ = 24.46 (0.991 instead of 0.974 p_cl); both were jumps across a
+corner of the path, which the orientation test now rejects (tested, with other λ where the
+first pressure maximum changes fold). ``benchmarks/check_first_fold.py`` compares random caps
+against a 2.5° continuation; re-run it after any change to the step rules.
 
 Range of validity
 -----------------
@@ -202,13 +225,16 @@ from sweepshell.models.shallow_cap_solver import CapSolution, solve_caps
 __all__ = ["ShallowCapModel"]
 
 _NAN = math.nan
+# automatic turn limits per continuation step (degrees; see Numerics): validated against a 2.5° continuation
+# (benchmarks/check_first_fold.py)
+_TURN_WITH_SCAN, _TURN_AXISYMMETRIC = 6.0, 12.0
 
 
 class ShallowCapModel(SweepModel):
     """Shallow spherical cap under pressure or an apex force: limit points and bifurcations."""
 
     name: ClassVar[str] = "shallow_cap"
-    version: ClassVar[str] = "1.8"
+    version: ClassVar[str] = "1.9"
     summary: ClassVar[str] = ("shallow spherical cap (Föppl–von Kármán): snap-through, asymmetric "
                               "bifurcation, apex indentation, mismatch strain, dimple imperfections")
     parameters: ClassVar[tuple[ParameterSpec, ...]] = (
@@ -243,7 +269,7 @@ class ShallowCapModel(SweepModel):
                       bounds=(0.0, math.inf), closed=(False, False), symbol="E"),
     )
     regimes: ClassVar[tuple[str, ...]] = ("stable", "limit_point", "bifurcation")
-    # measured (one core, wall, benchmarks/bench_shallow_cap.py, λ = 3.5 … 20): ~2 ms axisymmetric, ~12 ms
+    # measured (one core, wall, benchmarks/bench_shallow_cap.py, λ = 3.5 … 20): ~1 ms axisymmetric, ~12 ms
     # with the scan, ~17 ms with bistability; apex-force points 0.1–0.3 s (λ 6–30) with the scan (its 3x
     # stability grid); sharp-edged mismatch points 45–100 ms with the scan
     cost_hint: ClassVar[float] = 0.025
@@ -251,7 +277,7 @@ class ShallowCapModel(SweepModel):
     def __init__(self, *, nodes: int = 0, asymmetric_modes: int = 30, max_pressure: float = 2.0,
                  max_indentation: float = 1.0, path_samples: int = 64, check_bistability: bool = True,
                  tolerance: float = 1e-10, max_points: int = 400, max_base_ratio: float = 0.5,
-                 max_turn_deg: float = 8.0, scan_stride: int = 3, mismatch_step_width: float = 0.0,
+                 max_turn_deg: float = 0.0, scan_stride: int = 1, mismatch_step_width: float = 0.0,
                  dimple_grid_stretch: float = 0.5, apex_grid_stretch: float = 0.85) -> None:
         super().__init__()
         for key, beta in (("dimple_grid_stretch", dimple_grid_stretch), ("apex_grid_stretch", apex_grid_stretch)):
@@ -263,6 +289,12 @@ class ShallowCapModel(SweepModel):
                              f"width over the base radius; got {mismatch_step_width}")
         if int(nodes) != 0 and int(nodes) < 8:
             raise ValueError(f"settings.nodes must be 0 (automatic) or at least 8; got {nodes}")
+        if not 0.0 <= float(max_turn_deg) <= 45.0:
+            raise ValueError(f"settings.max_turn_deg must be 0 (automatic) or a turn limit in degrees up to 45; "
+                             f"got {max_turn_deg}")
+        if float(max_turn_deg) == 0.0:
+            # the scan's stability samples are the path's points: it keeps the finer steps (see Numerics)
+            max_turn_deg = _TURN_WITH_SCAN if int(asymmetric_modes) > 0 else _TURN_AXISYMMETRIC
         self._settings: dict[str, Any] = {
             "nodes": int(nodes), "asymmetric_modes": int(asymmetric_modes),
             "max_pressure": float(max_pressure), "max_indentation": float(max_indentation),
@@ -306,7 +338,7 @@ class ShallowCapModel(SweepModel):
     def estimated_cost(self) -> float:
         """Seconds per pressure point on one core with these settings (sizes blocks; see ``cost_hint``)."""
         s = self._settings
-        cost = 0.002 + 0.00035 * int(s["asymmetric_modes"])
+        cost = 0.001 + 0.00035 * int(s["asymmetric_modes"])
         return cost + (0.0045 if s["check_bistability"] else 0.0)
 
     @property
@@ -466,7 +498,7 @@ def choose_grids(settings: Mapping[str, Any], lam: np.ndarray, apex: np.ndarray,
     if int(settings["nodes"]):
         nodes = np.full(lam.shape, int(settings["nodes"]))
     else:
-        perfect = 14.0 + lam if scan else 12.0 + 1.5 * lam
+        perfect = 14.0 + lam if scan else np.maximum(14.0 + lam, 8.0 + 1.5 * lam)
         stretched = 12.0 + 1.5 * lam if scan else 14.0 + 1.2 * lam
         dimple = np.where(amplitude != 0.0, 4.0 + 2.0 * lam / np.maximum(width, 0.25), 0.0)
         need = np.where(apex, np.maximum(16.0 + 1.4 * lam, dimple),

@@ -21,10 +21,10 @@ import numpy as np
 from numba import njit
 
 from sweepshell.models.shallow_cap_kernels import CapPathProblem
-from sweepshell.numerics.arclength import TURN_SAFETY
+from sweepshell.numerics.arclength import CROSS_STEP, TURN_SAFETY
 
-__all__ = ["assemble_reduced_stability", "correct_caps_on_arc", "pack_cap_parameters", "refine_caps_on_arc",
-           "trace_cap_paths"]
+__all__ = ["assemble_reduced_stability", "correct_caps_on_arc", "initial_tangents", "pack_cap_parameters",
+           "refine_caps_on_arc", "trace_cap_paths"]
 
 _P_EPS, _P_NU, _P_KAP, _P_FS, _P_CLAMPED, _P_IMMOVABLE, _P_APEX, _P_MISMATCH, _P_EDGE, _P_DEFL = range(10)
 _TRACE_RUNNING, _TRACE_DONE, _TRACE_STALLED, _TRACE_STEP_LIMIT = 0, 1, 2, 3
@@ -57,14 +57,16 @@ def _wdot(a: np.ndarray, b: np.ndarray, w: np.ndarray) -> float:
 
 
 @njit(cache=True)
-def _lu_solve(g: np.ndarray, n: int, u: np.ndarray) -> None:
+def _lu_solve(g: np.ndarray, n: int, u: np.ndarray) -> float:
     """Solve ``a X = r`` for the augmented ``g = [a | r]`` ``(n, n+p)`` in place (X replaces r).
 
-    LU with partial pivoting. The row updates index with unsigned integers: without
-    negative-index wraparound checks the compiler vectorises them (several times faster). An
-    exactly singular pivot gives inf/NaN, which callers test for.
+    LU with partial pivoting; returns the sign of ``det a`` (±1, 0 if a pivot is zero). The
+    row updates index with unsigned integers: without negative-index wraparound checks the
+    compiler vectorises them (several times faster). An exactly singular pivot gives inf/NaN,
+    which callers test for.
     """
     w = g.shape[1]
+    sign = 1.0
     for k in range(n):
         piv = k
         big = abs(g[k, k])
@@ -77,6 +79,7 @@ def _lu_solve(g: np.ndarray, n: int, u: np.ndarray) -> None:
         hi = np.uint64(w)
         gk = g[k]
         if piv != k:
+            sign = -sign
             gp = g[piv]
             for j in range(lo, hi):
                 tmp = gk[j]
@@ -85,6 +88,10 @@ def _lu_solve(g: np.ndarray, n: int, u: np.ndarray) -> None:
         # the pivot row in its own buffer: the updated rows then cannot alias it
         for j in range(lo, hi):
             u[j] = gk[j]
+        if u[k] < 0.0:
+            sign = -sign
+        elif u[k] == 0.0:
+            sign = 0.0
         inv = 1.0 / u[k]
         lo1 = np.uint64(k + 1)
         for i in range(k + 1, n):
@@ -111,6 +118,7 @@ def _lu_solve(g: np.ndarray, n: int, u: np.ndarray) -> None:
     for col in range(n, w):
         for k in range(n):
             g[k, col] = sol[col - n, k]
+    return sign
 
 
 @njit(cache=True)
@@ -123,8 +131,11 @@ def _axpy(y: np.ndarray, alpha: float, v: np.ndarray) -> None:
 @njit(cache=True)
 def _newton_solve(z: np.ndarray, row: np.ndarray, c0: float, prm: np.ndarray, imp: np.ndarray,
                   eig: np.ndarray, b: np.ndarray, bt: np.ndarray, x: np.ndarray, xl: np.ndarray,
-                  xlt: np.ndarray, d1e: np.ndarray, sigma: np.ndarray, out: np.ndarray) -> None:
+                  xlt: np.ndarray, d1e: np.ndarray, sigma: np.ndarray, out: np.ndarray) -> float:
     """Linearise at ``z`` and solve ``[∂R/∂z; row] d = [−R, 0; c0, 1]`` into ``out`` ``(2M+1, 2)``.
+
+    Returns the sign of the bordered matrix's determinant relative to the cap's fixed stretching
+    block (the sign of the reduced ``(M+1)``-square system; see ``_correct``).
 
     Column 0 is the Newton correction, column 1 the (unnormalised) tangent. ``bt``, ``xlt``
     are the transposes of ``b``, ``xl`` (contiguous), so that every matrix-vector product is a
@@ -214,7 +225,7 @@ def _newton_solve(z: np.ndarray, row: np.ndarray, c0: float, prm: np.ndarray, im
     g[m, m] = row[2 * m] - rf_bj
     g[m, m + 1] = c0 - rf_br2
     g[m, m + 2] = 1.0
-    _lu_solve(g, m + 1, np.empty(m + 3))
+    orientation = _lu_solve(g, m + 1, np.empty(m + 3))
     back = np.empty(m)
     for col in range(2):
         dmu = g[m, m + 1 + col]
@@ -227,17 +238,24 @@ def _newton_solve(z: np.ndarray, row: np.ndarray, c0: float, prm: np.ndarray, im
             base = br2[i] if col == 0 else 0.0
             out[m + i, col] = base - back[i] - bj[i] * dmu
         out[2 * m, col] = dmu
+    return orientation
 
 
 @njit(cache=True)
 def _correct(anchor: np.ndarray, tangent: np.ndarray, s: float, w: np.ndarray, tol: float, max_iter: int,
              prm: np.ndarray, imp: np.ndarray, eig: np.ndarray, b: np.ndarray, bt: np.ndarray, x: np.ndarray,
              xl: np.ndarray, xlt: np.ndarray, d1e: np.ndarray, sigma: np.ndarray, z: np.ndarray,
-             t_out: np.ndarray) -> tuple[bool, int]:
+             t_out: np.ndarray) -> tuple[bool, int, float]:
     """Newton-correct ``anchor + s·tangent`` onto the path at arclength ``s`` (one cap).
 
     Writes the state into ``z`` and the unit tangent into ``t_out``; returns (converged,
-    iterations). Same acceptance and stopping rules as ``correct_on_arc``.
+    iterations, orientation). Same acceptance and stopping rules as ``correct_on_arc``.
+
+    The orientation is the sign of ``det [∂R/∂z; tᵀ]`` at the last linearisation, with ``t``
+    the path's tangent oriented along ``tangent`` (the bordering row ``tangent·w`` has the same
+    sign of determinant: ``det [J; r] = (r·t) det [J; tᵀ]/|t|²``). It keeps its sign along a
+    regular path, through limit points too, and changes it only across a branch point: a
+    step whose end has the other sign has jumped to another branch (or crossed one).
     """
     m1 = anchor.shape[0]
     for i in range(m1):
@@ -248,11 +266,12 @@ def _correct(anchor: np.ndarray, tangent: np.ndarray, s: float, w: np.ndarray, t
     tn = np.empty(m1)
     last = np.inf
     its = 0
+    orientation = 0.0
     for _ in range(max_iter):
         c0 = s
         for i in range(m1):
             c0 -= tangent[i] * (z[i] - anchor[i]) * w[i]
-        _newton_solve(z, row, c0, prm, imp, eig, b, bt, x, xl, xlt, d1e, sigma, out)
+        orientation = _newton_solve(z, row, c0, prm, imp, eig, b, bt, x, xl, xlt, d1e, sigma, out)
         for i in range(m1):
             dz[i] = out[i, 0]
             tn[i] = out[i, 1]
@@ -261,15 +280,15 @@ def _correct(anchor: np.ndarray, tangent: np.ndarray, s: float, w: np.ndarray, t
         prev = last
         # a corrector that stops contracting quadratically will not recover: fail fast
         if not np.isfinite(size) or (size > 0.5 * prev + 1e-14 and its > 1):
-            return False, its
+            return False, its, orientation
         for i in range(m1):
             z[i] += dz[i]
             t_out[i] = tn[i] / norm_t
         its += 1
         last = size
         if size < tol or (np.isfinite(prev) and size**3 < tol * prev**2 and size < 1e-4):
-            return True, its
-    return False, its
+            return True, its, orientation
+    return False, its, orientation
 
 
 @njit(cache=True)
@@ -277,13 +296,20 @@ def _trace(z0: np.ndarray, t0: np.ndarray, w: np.ndarray, first_step: float, max
            max_points: int, max_turn_deg: float, tol: float, max_iter: int, max_drift: float, mu_max: float,
            defl_max: float, check_bi: bool, max_suction: float, prm: np.ndarray, imp: np.ndarray,
            eig: np.ndarray, b: np.ndarray, x: np.ndarray, xl: np.ndarray, d1e: np.ndarray, sigma: np.ndarray,
-           integ: np.ndarray, zh: np.ndarray, th: np.ndarray, sh: np.ndarray) -> tuple[int, int]:
-    """Trace one cap's path into ``zh``, ``th``, ``sh``; return (accepted points, trace state)."""
+           integ: np.ndarray, orient_ref: float, zh: np.ndarray, th: np.ndarray, sh: np.ndarray,
+           dh: np.ndarray) -> tuple[int, int]:
+    """Trace one cap's path into ``zh``, ``th``, ``sh`` and its apex deflections into ``dh``.
+
+    ``orient_ref`` is the path's orientation at ``z0`` (see ``_correct``): a step whose end has
+    the other one is rejected unless shorter than ``CROSS_STEP``. Returns (accepted points,
+    trace state).
+    """
     m1 = z0.shape[0]
     m = x.shape[0]
     zh[0] = z0
     th[0] = t0
     sh[0] = 0.0
+    dh[0] = 0.0
     count = 1
     h = first_step
     step_cap = max_step
@@ -302,7 +328,8 @@ def _trace(z0: np.ndarray, t0: np.ndarray, w: np.ndarray, first_step: float, max
         tc = th[count - 1]
         cos_max = np.cos(np.radians(turn_cap))
         step_max = step_cap
-        conv, its = _correct(zc, tc, h, w, tol, max_iter, prm, imp, eig, b, bt, x, xl, xlt, d1e, sigma, z, tn)
+        conv, its, orient = _correct(zc, tc, h, w, tol, max_iter, prm, imp, eig, b, bt, x, xl, xlt, d1e, sigma, z,
+                                     tn)
         ok = conv
         cosang = 0.0
         if ok:
@@ -316,6 +343,13 @@ def _trace(z0: np.ndarray, t0: np.ndarray, w: np.ndarray, first_step: float, max
                 dd += di * di * w[i]
             drift = np.sqrt(dd) / h
             ok = cosang > cos_max and not skipped and drift < max_drift
+            if ok and orient != orient_ref:
+                # another branch, reached across (or past) a branch point: near a branch point
+                # of this path the two meet within a step, so only tiny steps may cross
+                if h > CROSS_STEP:
+                    ok = False
+                else:
+                    orient_ref = orient
         if not ok:
             h *= 0.5
             if h < min_step:
@@ -324,7 +358,7 @@ def _trace(z0: np.ndarray, t0: np.ndarray, w: np.ndarray, first_step: float, max
         zh[count] = z
         th[count] = tn
         sh[count] = h
-        count += 1
+        bracketed = tc[m1 - 1] > 0.0 and tn[m1 - 1] <= 0.0
         grow = 1.6 if its <= 2 else (1.25 if its <= 3 else (1.0 if its <= 5 else 0.7))
         # a strongly turning path gets shorter steps before the angle test rejects them
         if cosang < 0.5 * (1.0 + cos_max):
@@ -348,11 +382,14 @@ def _trace(z0: np.ndarray, t0: np.ndarray, w: np.ndarray, first_step: float, max
         for i in range(m):
             integral += integ[i] * z[i]
         defl = prm[_P_DEFL] * (integral + prm[_P_KAP] * p / 8.0)
+        dh[count] = defl
+        count += 1
         if eigen:
             defl = abs(defl)
         done = mu_n > mu_max or defl > defl_max
         if not check_bi:
-            done = done or fold_seen
+            # the first limit point is bracketed as soon as dμ/ds turns non-positive
+            done = done or fold_seen or bracketed
         else:
             # past the critical part the path is only searched for a return to zero load
             if fold_seen:
@@ -367,6 +404,46 @@ def _trace(z0: np.ndarray, t0: np.ndarray, w: np.ndarray, first_step: float, max
             return count, _TRACE_STEP_LIMIT
 
 
+@njit(cache=True)
+def _start(z0: np.ndarray, row: np.ndarray, w: np.ndarray, prm: np.ndarray, imp: np.ndarray, eig: np.ndarray,
+           b: np.ndarray, x: np.ndarray, xl: np.ndarray, d1e: np.ndarray, sigma: np.ndarray,
+           t_out: np.ndarray) -> float:
+    """Write the unit tangent at ``z0`` oriented along ``row`` into ``t_out``; return the orientation."""
+    m1 = z0.shape[0]
+    out = np.empty((m1, 2))
+    orientation = _newton_solve(z0.copy(), row, 0.0, prm, imp, eig, b, np.ascontiguousarray(b.T), x, xl,
+                                np.ascontiguousarray(xl.T), d1e, sigma, out)
+    for i in range(m1):
+        t_out[i] = out[i, 1]
+    norm = np.sqrt(_wdot(t_out, t_out, w))
+    for i in range(m1):
+        t_out[i] /= norm
+    return orientation
+
+
+def initial_tangents(pb: CapPathProblem, z0: np.ndarray, w: np.ndarray,
+                     rows: np.ndarray | None = None) -> tuple[np.ndarray, np.ndarray]:
+    """Return the unit tangents at the states ``z0`` and the paths' orientation there.
+
+    Tangents are oriented along ``rows`` (default: increasing load, the compiled form of
+    :func:`sweepshell.numerics.arclength.compute_tangent` with ``e_μ``); the orientation is the
+    sign of ``det [∂R/∂z; tᵀ]`` (see ``_correct``).
+    """
+    n, m1 = z0.shape
+    x, xl, d1e, sigma, _ = _shared(pb)
+    prm = pack_cap_parameters(pb)
+    if rows is None:
+        rows = np.zeros((n, m1))
+        rows[:, -1] = w[-1]
+    t = np.empty((n, m1))
+    orientation = np.empty(n)
+    for i in range(n):
+        orientation[i] = _start(np.ascontiguousarray(z0[i]), np.ascontiguousarray(rows[i]), w, prm[i],
+                                np.ascontiguousarray(pb.imperfection[i]), np.ascontiguousarray(pb.eigen_stress[i]),
+                                np.ascontiguousarray(pb.stretch_inverse[i]), x, xl, d1e, sigma, t[i])
+    return t, orientation
+
+
 def _shared(pb: CapPathProblem) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
     g = pb.grid
     return (np.ascontiguousarray(g.x), np.ascontiguousarray(pb.xl), np.ascontiguousarray(g.d1[-1][0]),
@@ -376,39 +453,46 @@ def _shared(pb: CapPathProblem) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.
 def trace_cap_paths(pb: CapPathProblem, z0: np.ndarray, t0: np.ndarray, w: np.ndarray, *, first_step: float,
                     max_step: float, min_step: float, max_points: int, max_turn_deg: float, tol: float,
                     max_iter: int, mu_max: np.ndarray, defl_max: np.ndarray, check_bistability: bool,
-                    max_suction: float, max_drift: float = 0.2,
-                    ) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+                    max_suction: float, max_drift: float = 0.2, orientation: np.ndarray | None = None,
+                    ) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
     """Trace every cap's axisymmetric path, one cap at a time in compiled code.
 
-    Returns ``(z, t, step, count, state)`` laid out as
-    :class:`sweepshell.numerics.arclength.PathHistory` (rows past ``count`` NaN, steps 0); the
-    history length is the longest path (at least ``min(max_points, 48)``).
+    ``orientation`` is each path's orientation at ``z0`` (from :func:`initial_tangents`;
+    computed here when not given). Returns ``(z, t, step, count, state, deflection)`` laid out
+    as :class:`sweepshell.numerics.arclength.PathHistory` (rows past ``count`` NaN, steps 0),
+    ``deflection`` the apex deflection over h of every point; the history length is the
+    longest path (at least ``min(max_points, 48)``).
     """
     n, m1 = z0.shape
     x, xl, d1e, sigma, integ = _shared(pb)
     prm = pack_cap_parameters(pb)
+    if orientation is None:
+        orientation = initial_tangents(pb, z0, w, t0 * w[None, :])[1]
     count = np.empty(n, dtype=int)
     state = np.empty(n, dtype=np.int8)
     paths = []
     zbuf = np.empty((max_points, m1))
     tbuf = np.empty((max_points, m1))
     sbuf = np.empty(max_points)
+    dbuf = np.empty(max_points)
     for i in range(n):
         c, st = _trace(np.ascontiguousarray(z0[i]), np.ascontiguousarray(t0[i]), w, first_step, max_step,
                        min_step, max_points, max_turn_deg, tol, max_iter, max_drift, float(mu_max[i]),
                        float(defl_max[i]), check_bistability, max_suction, prm[i],
                        np.ascontiguousarray(pb.imperfection[i]), np.ascontiguousarray(pb.eigen_stress[i]),
-                       np.ascontiguousarray(pb.stretch_inverse[i]), x, xl, d1e, sigma, integ, zbuf, tbuf, sbuf)
+                       np.ascontiguousarray(pb.stretch_inverse[i]), x, xl, d1e, sigma, integ, float(orientation[i]),
+                       zbuf, tbuf, sbuf, dbuf)
         count[i], state[i] = c, st
-        paths.append((zbuf[:c].copy(), tbuf[:c].copy(), sbuf[:c].copy()))
+        paths.append((zbuf[:c].copy(), tbuf[:c].copy(), sbuf[:c].copy(), dbuf[:c].copy()))
     cap = max(min(max_points, 48), int(count.max()) if n else 0)
     zh = np.full((n, cap, m1), np.nan)
     th = np.full((n, cap, m1), np.nan)
     sh = np.zeros((n, cap))
-    for i, (zp, tp, sp) in enumerate(paths):
+    dh = np.full((n, cap), np.nan)
+    for i, (zp, tp, sp, dp) in enumerate(paths):
         c = zp.shape[0]
-        zh[i, :c], th[i, :c], sh[i, :c] = zp, tp, sp
-    return zh, th, sh, count, state
+        zh[i, :c], th[i, :c], sh[i, :c], dh[i, :c] = zp, tp, sp, dp
+    return zh, th, sh, count, state, dh
 
 
 def correct_caps_on_arc(pb: CapPathProblem, anchor: np.ndarray, tangent: np.ndarray, s: np.ndarray,
@@ -430,7 +514,7 @@ def correct_caps_on_arc(pb: CapPathProblem, anchor: np.ndarray, tangent: np.ndar
     for r in range(k):
         i = int(idx[r])
         b = pb.stretch_inverse[i]
-        ok, it = _correct(np.ascontiguousarray(anchor[r]), np.ascontiguousarray(tangent[r]), float(s[r]), w, tol,
+        ok, it, _ = _correct(np.ascontiguousarray(anchor[r]), np.ascontiguousarray(tangent[r]), float(s[r]), w, tol,
                           max_iter, prm[i], np.ascontiguousarray(pb.imperfection[i]),
                           np.ascontiguousarray(pb.eigen_stress[i]), np.ascontiguousarray(b),
                           np.ascontiguousarray(b.T), x, xl, xlt, d1e, sigma, z[r], tn)
@@ -522,7 +606,8 @@ def _refine(anchor: np.ndarray, tangent: np.ndarray, s_hi: float, g_lo: float, g
             if np.isnan(s):
                 s = 0.0
             s = min(max(s, lo + 0.01 * width), hi - 0.01 * width)
-        conv, _ = _correct(anchor, tangent, s, w, tol, max_iter, prm, imp, eig, b, bt, x, xl, xlt, d1e, sigma, z, t)
+        conv, _, _ = _correct(anchor, tangent, s, w, tol, max_iter, prm, imp, eig, b, bt, x, xl, xlt, d1e, sigma, z,
+                              t)
         if not conv:
             s_out = s_last if np.isfinite(s_last) else 0.5 * (lo + hi)
             return s_out, False

@@ -162,13 +162,18 @@ class CapPathProblem:
         self.sigma, self.dsigma, _ = singular_slope(x)
         c = np.sqrt(3.0 * (1.0 - self.nu**2))
         self.kappa = 2.0 * c**2 / np.pi
-        # the stretching block εA with its edge row depends on the point only: invert once
+        # the stretching block εA with its edge row depends on the point only: invert once. It is
+        # diag(1, ε, …, ε)·S with S (edge row, then the rows of x L) set by (ν, in-plane edge), so
+        # S⁻¹ is computed once per such pair and its columns 1… scaled by 1/ε = λ²
         m = g.size
-        stretch = (1.0 / self.lam**2)[:, None, None] * self.xl[None]
         d1 = g.d1[-1][0]
-        stretch[:, 0, :] = np.where(self.immovable[:, None], d1[None, :] - self.nu[:, None] * np.eye(1, m),
-                                    np.eye(1, m))
-        self.stretch_inverse = np.linalg.inv(stretch)
+        keys = np.stack([self.nu, self.immovable.astype(float)], axis=1)
+        pairs, which = np.unique(keys, axis=0, return_inverse=True)
+        s = np.repeat(self.xl[None], pairs.shape[0], axis=0)
+        s[:, 0, :] = np.where(pairs[:, 1:2] != 0.0, d1[None, :] - pairs[:, :1] * np.eye(1, m), np.eye(1, m))
+        scale = np.repeat(self.lam[:, None] ** 2, m, axis=1)
+        scale[:, 0] = 1.0
+        self.stretch_inverse = np.linalg.inv(s)[which.reshape(-1)] * scale[:, None, :]
 
     @property
     def unknowns(self) -> int:
@@ -238,6 +243,10 @@ class CapPathProblem:
         j2mu[:, 0] = -de * eigen_edge
         return r, CapLinearization(j11=j11, arm=arm0, j1mu=j1mu, j2mu=j2mu, b=self.stretch_inverse[idx])
 
+    def orientation(self, z: np.ndarray, row: np.ndarray, idx: np.ndarray) -> np.ndarray:
+        """Return the sign of ``det [∂R/∂z; row]`` at states ``z`` (up to a per-cap constant sign)."""
+        return self.linearize(z, idx)[1].orientation(row)
+
     def evaluate(self, z: np.ndarray, idx: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         """Return the residual and the dense Jacobian ``∂R/∂z`` ``(k, 2M, 2M+1)`` (for tests)."""
         r, lin = self.linearize(z, idx)
@@ -295,15 +304,9 @@ class CapLinearization:
         k, m = self.arm.shape
         arm, b = self.arm, self.b
         r1, r2 = r[:, :m], r[:, m:]
-        ry, rf, rmu = row[:, :m], row[:, m:2 * m], row[:, -1]
+        rf = row[:, m:2 * m]
         br2 = b @ r2
-        bj = np.einsum("kij,kj->ki", b, self.j2mu)
-        btrf = np.einsum("kji,kj->ki", b, rf)
-        a = np.empty((k, m + 1, m + 1))
-        a[:, :m, :m] = self.j11 - arm[:, :, None] * b * arm[:, None, :]
-        a[:, :m, m] = self.j1mu - arm * bj
-        a[:, m, :m] = ry - arm * btrf
-        a[:, m, m] = rmu - np.einsum("ki,ki->k", rf, bj)
+        a, bj = self._reduced(row)
         rhs = np.empty((k, m + 1, r.shape[2]))
         rhs[:, :m] = r1 - arm[:, :, None] * br2
         rhs[:, m] = c - np.einsum("ki,kip->kp", rf, br2)
@@ -314,3 +317,25 @@ class CapLinearization:
         out[:, m:2 * m] = br2 - b @ (arm[:, :, None] * dy) - bj[:, :, None] * dmu[:, None, :]
         out[:, -1] = dmu
         return out[:, :, 0] if single else out
+
+    def orientation(self, row: np.ndarray) -> np.ndarray:
+        """Return the sign of ``det [J; row]`` over that of the fixed stretching block, ``(k,)``.
+
+        It is the sign of the reduced ``(M+1)``-square matrix (the stretching block's own
+        determinant does not change along a path); see ``shallow_cap_compiled._correct``.
+        """
+        return np.sign(np.linalg.det(self._reduced(row)[0]))
+
+    def _reduced(self, row: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """Return the bordered matrix with the stretching block eliminated, and ``b·j2mu``."""
+        k, m = self.arm.shape
+        arm, b = self.arm, self.b
+        ry, rf, rmu = row[:, :m], row[:, m:2 * m], row[:, -1]
+        bj = np.einsum("kij,kj->ki", b, self.j2mu)
+        btrf = np.einsum("kji,kj->ki", b, rf)
+        a = np.empty((k, m + 1, m + 1))
+        a[:, :m, :m] = self.j11 - arm[:, :, None] * b * arm[:, None, :]
+        a[:, :m, m] = self.j1mu - arm * bj
+        a[:, m, :m] = ry - arm * btrf
+        a[:, m, m] = rmu - np.einsum("ki,ki->k", rf, bj)
+        return a, bj

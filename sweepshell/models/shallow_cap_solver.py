@@ -19,7 +19,12 @@ from typing import Any
 import numpy as np
 
 from sweepshell.models.base import Status
-from sweepshell.models.shallow_cap_compiled import correct_caps_on_arc, refine_caps_on_arc, trace_cap_paths
+from sweepshell.models.shallow_cap_compiled import (
+    correct_caps_on_arc,
+    initial_tangents,
+    refine_caps_on_arc,
+    trace_cap_paths,
+)
 from sweepshell.models.shallow_cap_kernels import CapPathProblem, eigenstrain_stress
 from sweepshell.models.shallow_cap_modes import (
     compute_mode_determinants,
@@ -29,7 +34,6 @@ from sweepshell.models.shallow_cap_modes import (
 from sweepshell.numerics.arclength import (
     TRACE_DONE,
     PathHistory,
-    compute_tangent,
     refine_on_arc,
 )
 from sweepshell.numerics.radial_chebyshev import make_radial_grid
@@ -40,6 +44,9 @@ _REGIME_STABLE, _REGIME_LIMIT, _REGIME_BIFURCATION = 0, 1, 2
 _DET_CHUNK = 1024
 _DET_CHUNK_ELEMENTS = 12_500_000  # ~100 MB per (states, M, M) float64 stack of stability matrices
 _FIRST_STEP, _MAX_STEP = 0.1, 0.25
+# limit points are refined to this share of their step: the load there is stationary, so its
+# error is about |dt_μ/ds|·(s_tol·step)²/2 ≤ 10⁻⁸·step (10⁻⁹ relative or less); the state's is s_tol·step
+_FOLD_S_TOL = 1e-4
 _MAX_SUCTION = 2.0  # a path needing more outward load than this (in its load unit) is not followed
 _SCAN_ROUND = 8  # sampled path points per cap evaluated before looking for a flip
 _CROSSING_SAMPLES = 4  # interior points of a flipped step at which its crossings are located
@@ -246,10 +253,8 @@ def solve_caps(lam: np.ndarray, nu: np.ndarray, clamped: np.ndarray, immovable: 
     idx = np.arange(n)
     c = np.sqrt(3.0 * (1.0 - nu**2))
     z0 = np.zeros((n, m + 1))
-    e_mu = np.zeros((n, m + 1))
-    e_mu[:, -1] = 1.0
-    _, lin = pb.linearize(z0, idx)
-    t0 = compute_tangent(lin, e_mu, w)
+    # the initial tangents (increasing load) and the paths' orientation at the unloaded state
+    t0, orientation = initial_tangents(pb, z0, w)
     load_unit = pb.force_scale
     d_defl = pb.apex_deflection(t0, idx)
     with np.errstate(divide="ignore", invalid="ignore"):
@@ -267,11 +272,11 @@ def solve_caps(lam: np.ndarray, nu: np.ndarray, clamped: np.ndarray, immovable: 
     check_bi = bool(settings["check_bistability"])
     # the whole axisymmetric path of each cap runs in compiled code (same rules as trace_paths
     # with the stopping rule below: see shallow_cap_compiled)
-    zh, th, sh, count, state = trace_cap_paths(
+    zh, th, sh, count, state, path_deflection = trace_cap_paths(
         pb, z0, t0, w, first_step=_FIRST_STEP, max_step=_MAX_STEP, min_step=1e-7,
         max_points=int(settings["max_points"]), max_turn_deg=float(settings["max_turn_deg"]),
         tol=float(settings["tolerance"]), max_iter=8, mu_max=mu_max, defl_max=defl_max,
-        check_bistability=check_bi, max_suction=_MAX_SUCTION)
+        check_bistability=check_bi, max_suction=_MAX_SUCTION, orientation=orientation)
     hist = PathHistory(z=zh, t=th, step=sh, count=count, state=state)
     tol = float(settings["tolerance"])
     count = hist.count
@@ -305,7 +310,7 @@ def solve_caps(lam: np.ndarray, nu: np.ndarray, clamped: np.ndarray, immovable: 
         jr = jf[rf]
         zf, _, sf, okf = refine_caps_on_arc(
             pb, hist.z[rf, jr], hist.t[rf, jr], hist.step[rf, jr + 1], tmu[rf, jr], tmu[rf, jr + 1], rf, w,
-            use_load=False, tol=tol, max_iter=8, iterations=40, s_tol=1e-7)
+            use_load=False, tol=tol, max_iter=8, iterations=40, s_tol=_FOLD_S_TOL)
         z_fold[rf], crit_s_fold[rf] = zf, sf
         refine_ok[rf] &= okf
     if crossings.point.size:
@@ -358,7 +363,7 @@ def solve_caps(lam: np.ndarray, nu: np.ndarray, clamped: np.ndarray, immovable: 
     volume = np.where(in_range, pb.volume_change(np.nan_to_num(crit_z), idx), np.nan)
     bistable = _check_bistability(pb, hist, w, has_fold, jf, modes, tol=tol) \
         if check_bi else np.full(n, np.nan)
-    path = _sample_paths(pb, hist, load_unit, int(settings["path_samples"]))
+    path = _sample_paths(hist, path_deflection, load_unit, int(settings["path_samples"]))
     return CapSolution(status=status, regime=np.where(status <= Status.no_instability, regime, -1).astype(np.int8),
                        critical_load=crit_load, critical_wavenumber=wavenumber, critical_deflection=deflection,
                        critical_volume_change=volume, stiffness=stiffness, bistable=bistable, load_path=path)
@@ -457,19 +462,18 @@ def _check_bistability(pb: CapPathProblem, hist: Any, w: np.ndarray, has_fold: n
     return out
 
 
-def _sample_paths(pb: CapPathProblem, hist: Any, load_unit: np.ndarray, samples: int) -> np.ndarray:
+def _sample_paths(hist: Any, deflection: np.ndarray, load_unit: np.ndarray, samples: int) -> np.ndarray:
     """Return ``(n, samples, 2)``: (load, apex deflection/h) evenly spaced along each path.
 
-    Length along a path is measured with load and deflection each scaled by their largest
-    magnitude on that path; all paths are interpolated at once (one sorted search).
+    ``deflection`` ``(n, S)`` is the apex deflection of every path point. Length along a path is
+    measured with load and deflection each scaled by their largest magnitude on that path; all
+    paths are interpolated at once (one sorted search).
     """
-    n, cap, m1 = hist.z.shape
+    n, cap, _ = hist.z.shape
     out = np.empty((n, samples, 2))
     if n == 0:
         return out
-    flat = hist.z.reshape(n * cap, m1)
-    rows = np.repeat(np.arange(n), cap)
-    defl = pb.apex_deflection(np.nan_to_num(flat), rows).reshape(n, cap)
+    defl = np.nan_to_num(deflection)
     load = hist.z[:, :, -1] * load_unit[:, None]
     # past a path's end repeat its last point: zero-length segments that interpolation never lands in
     last = np.maximum(hist.count - 1, 0)

@@ -28,6 +28,7 @@ from typing import Protocol
 import numpy as np
 
 __all__ = [
+    "CROSS_STEP",
     "TRACE_DONE",
     "TRACE_RUNNING",
     "TRACE_STALLED",
@@ -48,6 +49,8 @@ TRACE_STEP_LIMIT = 3
 # steps are sized for this share of the turn limit at the extrapolated turning rate (validated on
 # 3,000 caps against a 2–3° continuation: 0.5 and 0.8 each stepped off the first fold at λ = 24.46)
 TURN_SAFETY = 0.6
+# a step that changes the path's orientation (see trace_paths) is accepted only when shorter
+CROSS_STEP = 4e-7
 
 
 class BorderedSolver(Protocol):
@@ -169,6 +172,8 @@ def trace_paths(problem: ContinuationProblem, z0: np.ndarray, t0: np.ndarray, id
                 max_points: int, max_angle_deg: float | np.ndarray, tol: float, max_iter: int,
                 max_drift: float = 0.2,
                 is_finished: Callable[[np.ndarray, np.ndarray, np.ndarray, np.ndarray], np.ndarray],
+                orientation: Callable[[np.ndarray, np.ndarray, np.ndarray], np.ndarray] | None = None,
+                cross_step: float = CROSS_STEP,
                 ) -> PathHistory:
     """Continue every path from ``z0`` along ``t0`` until ``is_finished`` says so.
 
@@ -196,6 +201,16 @@ def trace_paths(problem: ContinuationProblem, z0: np.ndarray, t0: np.ndarray, id
     is_finished
         ``f(z_prev, z_new, t_new, rows) -> bool mask``: whether each path just accepted its
         last point (``rows`` are the path numbers 0…n-1).
+    orientation
+        ``f(z, row, idx) -> signs``: the sign of ``det [∂R/∂z; row]`` (up to a constant sign
+        per problem). With the bordering row ``t·w`` of a tangent ``t`` it is the sign of the
+        path's orientation ``det [∂R/∂z; tᵀ]``, which keeps its sign along a regular path
+        (through limit points too) and changes it only across a branch point (Keller 1977).
+        A step whose end has the other sign has jumped to a neighbouring branch, typically
+        across the corner of a nearly broken symmetry where the two pass within a step of
+        each other; it is rejected unless the step is shorter than ``cross_step`` (then the
+        path crosses a branch point of its own and continues with the new sign). None: no
+        such test.
     """
     n, m1 = z0.shape
     # the history grows on demand: most paths need a few dozen points, not max_points
@@ -210,6 +225,7 @@ def trace_paths(problem: ContinuationProblem, z0: np.ndarray, t0: np.ndarray, id
     h = np.full(n, float(first_step))
     turn_rate = np.zeros(n)
     rows_all = np.arange(n)
+    orient_ref = None if orientation is None else orientation(z0, t0 * w, idx)
     while True:
         act = np.nonzero(state == TRACE_RUNNING)[0]
         if act.size == 0:
@@ -237,6 +253,14 @@ def trace_paths(problem: ContinuationProblem, z0: np.ndarray, t0: np.ndarray, id
         with np.errstate(invalid="ignore"):
             drift = np.sqrt(_wdot(z - zc - h[act][:, None] * tc, z - zc - h[act][:, None] * tc, w)) / h[act]
         ok &= (cosang > cos_max) & ~skipped & (drift < max_drift)
+        if orientation is not None and orient_ref is not None and ok.any():
+            sign = orient_ref[act].copy()
+            sign[ok] = orientation(z[ok], tc[ok] * w, idx[act][ok])
+            flipped = ok & (sign != orient_ref[act])
+            jumped = flipped & (h[act] > cross_step)
+            ok &= ~jumped
+            crossed = flipped & ~jumped
+            orient_ref[act[crossed]] = sign[crossed]
         rej = act[~ok]
         h[rej] *= 0.5
         state[rej[h[rej] < min_step]] = TRACE_STALLED

@@ -123,12 +123,54 @@ def test_limit_pressure_converges_spectrally_with_resolution():
 def test_first_limit_point_is_not_stepped_over_near_fold_jumps(lam):
     # near these λ the first pressure maximum moves to another fold (steep drops of the limit-pressure
     # curve); a continuation with finer turning control must find the same first maximum (at λ ≈ 25
-    # a small fold at δ ≈ 0.4 h comes first: 12° turns stepped over it, the default 8° does not)
+    # a small fold at δ ≈ 0.4 h comes first: before the orientation test 12° turns stepped over it,
+    # jumping across a corner of the path; the default is now 12° without the scan)
     bold = make_model("shallow_cap", {"asymmetric_modes": 0, "check_bistability": False})
     careful = make_model("shallow_cap", {"asymmetric_modes": 0, "check_bistability": False, "max_turn_deg": 3.0})
     a = bold.solve_batch(make_inputs([lam])).outputs["critical_load"][0]
     b = careful.solve_batch(make_inputs([lam])).outputs["critical_load"][0]
     assert a == pytest.approx(b, rel=1e-7)
+
+
+def test_first_limit_point_is_not_lost_at_a_corner_of_the_path():
+    # common practice, no source (self-consistency): a clamped cap with a small narrow dimple whose
+    # path turns through a corner of radius ~10⁻⁶ at its first pressure maximum (q = 0.8703 p_cl,
+    # δ = 0.59 h), where a neighbouring branch passes within one step. Without the orientation test
+    # (the sign of det [∂R/∂z; tᵀ], see numerics.arclength.trace_paths) the 8° continuation stepped
+    # across to that branch and reported the next maximum, 1.0089 (16 % high); 1° and 4° did not.
+    inp = make_inputs([19.5402], poisson_ratio=0.25, dimple_amplitude=0.042, dimple_width=1.28)
+    base = {"asymmetric_modes": 0, "check_bistability": False, "max_pressure": 3.0}
+    bold = make_model("shallow_cap", base).solve_batch(inp).outputs
+    careful = make_model("shallow_cap", {**base, "max_turn_deg": 1.0}).solve_batch(inp).outputs
+    assert bold["critical_load"][0] == pytest.approx(careful["critical_load"][0], rel=1e-8)
+    assert bold["critical_load"][0] == pytest.approx(0.87028, rel=1e-4)
+    assert bold["critical_deflection"][0] == pytest.approx(0.5906, rel=1e-3)
+
+
+def test_path_orientation_keeps_its_sign_through_a_limit_point():
+    # Keller 1977 (pseudo-arclength continuation): det [∂R/∂z; tᵀ] does not vanish at regular points
+    # of a path, limit points included, while det ∂R/∂u changes sign at every limit point
+    from sweepshell.models.shallow_cap_compiled import trace_cap_paths
+
+    pb = make_problem(np.array([9.0]), np.array([NU]), np.array([True]), np.array([True]), np.array([False]),
+                      np.zeros(1), np.full(1, 2.0), 24)
+    w, z0, t0 = make_initial_tangent(pb)
+    zh, th, _, count, _, _ = trace_cap_paths(pb, z0, t0, w, first_step=0.1, max_step=0.25, min_step=1e-7,
+                                          max_points=400, max_turn_deg=8.0, tol=1e-10, max_iter=8,
+                                          mu_max=np.full(1, 3.0), defl_max=np.full(1, 50.0),
+                                          check_bistability=True, max_suction=2.0)
+    c = int(count[0])
+    z, t = zh[0, :c], th[0, :c]
+    idx = np.zeros(c, dtype=int)
+    sign = pb.orientation(z, t * w, idx)
+    assert np.all(sign == sign[0]) and sign[0] != 0
+    # the state Jacobian alone (the row picks the load column: det [J_u j_μ; 0 1] = det J_u) flips at folds
+    e_mu = np.zeros_like(z)
+    e_mu[:, -1] = 1.0
+    folds = int(np.sum(np.diff(np.sign(t[:, -1])) != 0))
+    assert folds >= 2  # the first maximum and the minimum after it
+    flips = int(np.sum(np.diff(pb.orientation(z, e_mu, idx)) != 0))
+    assert flips == folds
 
 
 def test_apex_force_initial_stiffness_is_reissner_like_and_path_is_traced():

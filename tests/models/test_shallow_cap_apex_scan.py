@@ -29,7 +29,7 @@ def trace_apex_paths(lam, clamped, immovable, nodes, max_deflection):  # type: i
     n = lam.size
     pb = make_problem(lam, np.full(n, NU), clamped, immovable, np.ones(n, bool), np.zeros(n), np.full(n, 2.0), nodes)
     w, z0, t0 = make_initial_tangent(pb)
-    zh, _, _, count, _ = trace_cap_paths(
+    zh, _, _, count, _, _ = trace_cap_paths(
         pb, z0, t0, w, first_step=0.1, max_step=0.25, min_step=1e-7, max_points=400, max_turn_deg=12.0, tol=1e-10,
         max_iter=8, mu_max=np.full(n, np.inf), defl_max=np.asarray(max_deflection, float), check_bistability=False,
         max_suction=2.0)
@@ -131,18 +131,19 @@ def test_no_asymmetric_instability_at_small_indentation(nodes):
 def test_deep_caps_buckle_asymmetrically_at_an_indentation_of_many_thicknesses():
     # qualitative, Vaziri & Mahadevan 2008 (PNAS 105:7913), value from memory: deep indented shells buckle
     # into polygonal (n ≥ 2) shapes once the axisymmetric dimple is deep; shallow caps do not. Measured here
-    # (automatic grids, clamped immovable): λ = 5 no bifurcation before the path ends; λ = 10 n = 5 at
-    # δ = 19.19 h, P = 9.763; λ = 20 n = 3 at δ = 15.34 h, P = 6.297; both before the force maximum (11.55, 34.3).
-    # On 34 plain Chebyshev nodes (version 1.7's grid) λ = 10 gave n = 4 at P = 9.49: under-resolved at the apex
+    # (automatic grids, clamped immovable): λ = 5 no bifurcation before the path ends; λ = 10 n = 4 at
+    # δ = 18.72 h, P = 9.4474; λ = 20 n = 3 at δ = 15.34 h, P = 6.297; both before the force maximum (11.55,
+    # 34.3). The same with 2° and 1.5° turn limits; version 1.8 (stability sampled at every third path point)
+    # missed the n = 4 window at λ = 10 and reported n = 5 at 9.763
     model = make_model("shallow_cap", {"check_bistability": False, "path_samples": 8})
     res = model.solve_batch(make_inputs([5.0, 10.0, 20.0], load="apex_force"))
     out = res.outputs
     assert res.regime[0] != 2
     np.testing.assert_array_equal(res.regime[1:], [2, 2])
-    np.testing.assert_array_equal(out["critical_wavenumber"][1:], [5.0, 3.0])
+    np.testing.assert_array_equal(out["critical_wavenumber"][1:], [4.0, 3.0])
     assert np.all(out["critical_deflection"][1:] > 5.0)
-    np.testing.assert_allclose(out["critical_load"][1:], [9.7627, 6.2973], rtol=1e-4)
-    np.testing.assert_allclose(out["critical_deflection"][1:], [19.186, 15.343], rtol=1e-4)
+    np.testing.assert_allclose(out["critical_load"][1:], [9.4474, 6.2973], rtol=1e-4)
+    np.testing.assert_allclose(out["critical_deflection"][1:], [18.718, 15.343], rtol=1e-4)
 
 
 def fit_order(nodes: np.ndarray, values: np.ndarray) -> float:
@@ -160,11 +161,11 @@ def fit_order(nodes: np.ndarray, values: np.ndarray) -> float:
 def test_apex_bifurcation_force_converges_with_nodes():
     # common practice, no source: observed order of the critical force from successive differences.
     # On the grid stretched towards the apex (apex_grid_stretch 0.85). Sliding edge, λ = 12: n = 3 at
-    # P = 6.223535, 6.224301, 6.224304 (24, 34, 48 nodes; 6.224304 at 64). Immovable edge, λ = 10: n = 5 at
-    # P = 9.76201, 9.76258, 9.76265 (9.76268 at 64): order ≈ 5 over 24 … 48, ≈ 3 over 34 … 64 (algebraic: the
-    # apex state keeps weak singular terms). On plain Chebyshev nodes the immovable case converged at about
-    # first order, to n = 4 at 24 … 64 nodes
-    nodes = np.array([24, 34, 48])
+    # P = 6.223535, 6.224301, 6.224304 (24, 34, 48 nodes; 6.224304 at 64): order > 3. Immovable edge, λ = 10:
+    # n = 4 at P = 9.44607, 9.44741, 9.44736, 9.44722 (24, 34, 48, 64 nodes; 9.44687 at 72), not monotone, so
+    # no order is fitted; its n = 4 window (the determinant flips back near P = 10.5, after n = 5 at 9.76)
+    # is the same on 34 and 64 nodes. On plain Chebyshev nodes the immovable case converged at about first order
+    nodes = np.array([24, 34, 48, 64])
     loads, waves = [], []
     for m in nodes:
         model = make_model("shallow_cap", {"nodes": int(m), "check_bistability": False, "path_samples": 8})
@@ -173,11 +174,10 @@ def test_apex_bifurcation_force_converges_with_nodes():
         loads.append(res.outputs["critical_load"])
         waves.append(res.outputs["critical_wavenumber"])
     loads_arr = np.array(loads)
-    np.testing.assert_array_equal(np.array(waves), [[3.0, 5.0]] * 3)
-    assert fit_order(nodes, loads_arr[:, 0]) > 3.0
+    np.testing.assert_array_equal(np.array(waves), [[3.0, 4.0]] * 4)
+    assert fit_order(nodes[:3], loads_arr[:3, 0]) > 3.0
     assert abs(loads_arr[2, 0] - loads_arr[1, 0]) < 2e-4 * loads_arr[2, 0]
-    assert fit_order(nodes, loads_arr[:, 1]) > 3.0
-    assert abs(loads_arr[2, 1] - loads_arr[1, 1]) < 2e-5 * loads_arr[2, 1]
+    assert np.ptp(loads_arr[1:, 1]) < 3e-5 * loads_arr[2, 1]
 
 
 def test_deep_cap_bifurcation_is_local_to_the_indenter():
