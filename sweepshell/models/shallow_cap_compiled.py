@@ -606,6 +606,8 @@ def _refine(anchor: np.ndarray, tangent: np.ndarray, s_hi: float, g_lo: float, g
             if np.isnan(s):
                 s = 0.0
             s = min(max(s, lo + 0.01 * width), hi - 0.01 * width)
+        if abs(s - s_last) < s_tol * scale:
+            break  # the next point would move less than the tolerance: keep the last one
         conv, _, _ = _correct(anchor, tangent, s, w, tol, max_iter, prm, imp, eig, b, bt, x, xl, xlt, d1e, sigma, z,
                               t)
         if not conv:

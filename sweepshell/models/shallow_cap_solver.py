@@ -43,7 +43,7 @@ __all__ = ["CapSolution", "solve_caps"]
 _REGIME_STABLE, _REGIME_LIMIT, _REGIME_BIFURCATION = 0, 1, 2
 _DET_CHUNK = 1024
 _DET_CHUNK_ELEMENTS = 12_500_000  # ~100 MB per (states, M, M) float64 stack of stability matrices
-_FIRST_STEP, _MAX_STEP = 0.1, 0.25
+_FIRST_STEP, _MAX_STEP = 0.25, 0.25
 # limit points are refined to this share of their step: the load there is stationary, so its
 # error is about |dt_μ/ds|·(s_tol·step)²/2 ≤ 10⁻⁸·step (10⁻⁹ relative or less); the state's is s_tol·step
 _FOLD_S_TOL = 1e-4

@@ -350,6 +350,13 @@ def refine_on_arc(problem: ContinuationProblem, anchor: np.ndarray, tangent: np.
             sec = s_b[act] - g_b[act] * (s_b[act] - s_a[act]) / (g_b[act] - g_a[act])
         inside = np.isfinite(sec) & (sec > lo[act] + 1e-3 * width) & (sec < hi[act] - 1e-3 * width)
         s = np.where(inside, sec, np.clip(np.nan_to_num(s), lo[act] + 0.01 * width, hi[act] - 0.01 * width))
+        # a point that would move less than the tolerance is not corrected: the last one is kept
+        with np.errstate(invalid="ignore"):
+            near = np.abs(s - s_last[act]) < s_tol * np.maximum(s_hi[act], 1e-300)
+        done[act[near]] = True
+        act, s = act[~near], s[~near]
+        if act.size == 0:
+            break
         z, conv, _, t_all = correct(problem, anchor[act], tangent[act], s, idx[act], w,
                                     tol=tol, max_iter=max_iter)
         ok[act[~conv]] = False
