@@ -134,11 +134,10 @@ turn limit nor the drift test sees it, but the orientation does. Before version 
 overestimated the first limit pressure by up to 16 % for about one cap in a thousand (small
 narrow dimples, e.g. λ = 19.54, ν = 0.25, amplitude 0.042 h, width 1.28: 1.0089 instead of
 0.8703). A step shorter than 4·10⁻⁷ may change the orientation: it crosses a branch point of
-its own path. The turn limit ``max_turn_deg`` is automatic by default (0): 6° with the
-asymmetric scan, whose stability samples are the path's points (8° missed a first bifurcation
-of deep pinned caps, n = 21 for 22, in 2 of 600 random caps; 6° costs no more), and 12°
-without it (validated with the orientation test on 12,000 random caps and on λ 23.5 … 27 in
-steps of 0.025, where the first pressure maximum changes folds; see Resolution).
+its own path. The turn limit ``max_turn_deg`` is 12° (validated with the orientation test
+against a 2.5° continuation on 9,000 random caps for the first limit point, 1,400 with the
+scan, 2,000 with the bistability search, and on λ 23.5 … 27 in steps of 0.025, where the
+first pressure maximum changes folds; version 1.8 needed 8° without the orientation test).
 The
 stability determinants are those of ``A − B S⁻¹ C`` (the fixed stress block ``S`` eliminated;
 assembled per state in a compiled kernel);
@@ -150,8 +149,9 @@ flipping in its earliest flipped part are refined (the same critical states as r
 about 60 % of the scan's cost; tested).
 A wave number whose determinant changes sign twice between evaluations is missed: stride 3
 (the default before version 1.9) missed the first bifurcation of the apex-force λ = 10 cap
-(n = 4 at F R/(E h³) = 9.447, whose determinant changes sign twice within three steps; it
-reported n = 5 at 9.763) and costs no less, since the scan stops at a cap's first flip. For sliding edges, n = 1 has one
+(n = 4 at F R/(E h³) = 9.447; it reported n = 5 at 9.763) and of deep pinned caps (n = 22 for
+21, 0.05–0.1 % high, in 2 of 600 random caps with 8° steps, 20 of 600 with 16°), while stride 1
+costs no more, since the scan stops at a cap's first flip. For sliding edges, n = 1 has one
 in-plane edge condition (N_r and N_rθ both reduce to F' − F). The apex-force singularity
 y ∝ x log x is subtracted analytically in the axisymmetric problem; apex-force stability
 operators are evaluated on 3×``nodes`` (see Conventions; 2× leaves spurious sign changes at
@@ -177,8 +177,8 @@ nonlinear state keeps weaker singular terms at the apex, and the force maximum i
 about 3·10⁻⁴ (on 34 plain nodes, as before version 1.8, it was off by 1–2 %). A positive
 ``nodes`` fixes the count for all points (stretches still apply).
 
-The continuation limits the tangent's turn per step to ``max_turn_deg`` (automatic: 6° with the
-scan, 12° without; see Numerics). Before the orientation test (version 1.9) 12° turns stepped
+The continuation limits the tangent's turn per step to ``max_turn_deg`` = 12° (see Numerics).
+Before the orientation test (version 1.9) 12° turns stepped
 over a small first fold near λ ≈ 25 (δ ≈ 0.4 h) and bolder step sizing stepped onto a
 neighbouring branch at λ = 24.46 (0.991 instead of 0.974 p_cl); both were jumps across a
 corner of the path, which the orientation test now rejects (tested, with other λ where the
@@ -225,9 +225,6 @@ from sweepshell.models.shallow_cap_solver import CapSolution, solve_caps
 __all__ = ["ShallowCapModel"]
 
 _NAN = math.nan
-# automatic turn limits per continuation step (degrees; see Numerics): validated against a 2.5° continuation
-# (benchmarks/check_first_fold.py)
-_TURN_WITH_SCAN, _TURN_AXISYMMETRIC = 6.0, 12.0
 
 
 class ShallowCapModel(SweepModel):
@@ -277,7 +274,7 @@ class ShallowCapModel(SweepModel):
     def __init__(self, *, nodes: int = 0, asymmetric_modes: int = 30, max_pressure: float = 2.0,
                  max_indentation: float = 1.0, path_samples: int = 64, check_bistability: bool = True,
                  tolerance: float = 1e-10, max_points: int = 400, max_base_ratio: float = 0.5,
-                 max_turn_deg: float = 0.0, scan_stride: int = 1, mismatch_step_width: float = 0.0,
+                 max_turn_deg: float = 12.0, scan_stride: int = 1, mismatch_step_width: float = 0.0,
                  dimple_grid_stretch: float = 0.5, apex_grid_stretch: float = 0.85) -> None:
         super().__init__()
         for key, beta in (("dimple_grid_stretch", dimple_grid_stretch), ("apex_grid_stretch", apex_grid_stretch)):
@@ -289,12 +286,9 @@ class ShallowCapModel(SweepModel):
                              f"width over the base radius; got {mismatch_step_width}")
         if int(nodes) != 0 and int(nodes) < 8:
             raise ValueError(f"settings.nodes must be 0 (automatic) or at least 8; got {nodes}")
-        if not 0.0 <= float(max_turn_deg) <= 45.0:
-            raise ValueError(f"settings.max_turn_deg must be 0 (automatic) or a turn limit in degrees up to 45; "
+        if not 0.0 < float(max_turn_deg) <= 45.0:
+            raise ValueError(f"settings.max_turn_deg must be a turn limit in degrees, above 0 and at most 45; "
                              f"got {max_turn_deg}")
-        if float(max_turn_deg) == 0.0:
-            # the scan's stability samples are the path's points: it keeps the finer steps (see Numerics)
-            max_turn_deg = _TURN_WITH_SCAN if int(asymmetric_modes) > 0 else _TURN_AXISYMMETRIC
         self._settings: dict[str, Any] = {
             "nodes": int(nodes), "asymmetric_modes": int(asymmetric_modes),
             "max_pressure": float(max_pressure), "max_indentation": float(max_indentation),
