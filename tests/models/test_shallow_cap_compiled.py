@@ -160,3 +160,14 @@ def test_compiled_lu_returns_the_sign_of_the_determinant(rng):
             sign = _lu_solve(g, n, np.empty(n + 2))
             assert sign == np.sign(np.linalg.det(a))
             np.testing.assert_allclose(a @ g[:, n:], rhs, atol=1e-8 * max(1.0, np.abs(rhs).max()))
+
+
+def test_stretching_inverse_shared_per_poisson_ratio_and_edge_is_exact():
+    # one inverse per (ν, in-plane edge), its columns scaled by λ², against the inverse of each cap's own block
+    pb, _, _, _, _ = make_mixed_problem()
+    m = pb.size
+    d1 = pb.grid.d1[-1][0]
+    for i in range(pb.lam.size):
+        block = pb.xl / pb.lam[i] ** 2
+        block[0] = d1 - pb.nu[i] * np.eye(1, m)[0] if pb.immovable[i] else np.eye(1, m)[0]
+        np.testing.assert_allclose(pb.stretch_inverse[i] @ block, np.eye(m), atol=1e-9)
