@@ -33,6 +33,7 @@ from sweepshell.models.shallow_cap_modes import (
 )
 from sweepshell.numerics.arclength import (
     TRACE_DONE,
+    TRACE_STEP_LIMIT,
     PathHistory,
     refine_on_arc,
 )
@@ -48,6 +49,8 @@ _FIRST_STEP, _MAX_STEP = 0.25, 0.25
 # error is about |dt_μ/ds|·(s_tol·step)²/2 ≤ 10⁻⁸·step (10⁻⁹ relative or less); the state's is s_tol·step
 _FOLD_S_TOL = 1e-4
 _MAX_SUCTION = 2.0  # a path needing more outward load than this (in its load unit) is not followed
+# undecided bistability: the path is followed again with this many times the capacity, so many caps at a time
+_LONG_PATH_FACTOR, _LONG_PATH_GROUP = 5, 16
 _SCAN_ROUND = 8  # sampled path points per cap evaluated before looking for a flip
 _CROSSING_SAMPLES = 4  # interior points of a flipped step at which its crossings are located
 
@@ -222,8 +225,14 @@ def solve_caps(lam: np.ndarray, nu: np.ndarray, clamped: np.ndarray, immovable: 
                apex: np.ndarray, amplitude: np.ndarray, width: np.ndarray, *,
                settings: Mapping[str, Any], mismatch: np.ndarray | None = None,
                mismatch_strain: np.ndarray | None = None, mismatch_radius: np.ndarray | None = None,
-               annulus: np.ndarray | None = None) -> CapSolution:
+               annulus: np.ndarray | None = None, retry_long_paths: bool = True) -> CapSolution:
     """Solve n caps; every array argument has shape ``(n,)``.
+
+    A path that fills ``max_points`` after its first limit point without deciding bistability
+    is followed again with ``_LONG_PATH_FACTOR`` times the capacity (``retry_long_paths``; in
+    groups of ``_LONG_PATH_GROUP`` caps, since histories are padded to the longest path): some
+    sliding-edge caps wind through several hundred points before the load returns to zero. The
+    same path is traced again, so only the undecided flag and the load path change.
 
     Parameters
     ----------
@@ -364,9 +373,23 @@ def solve_caps(lam: np.ndarray, nu: np.ndarray, clamped: np.ndarray, immovable: 
     bistable = _check_bistability(pb, hist, w, has_fold, jf, modes, tol=tol) \
         if check_bi else np.full(n, np.nan)
     path = _sample_paths(hist, path_deflection, load_unit, int(settings["path_samples"]))
-    return CapSolution(status=status, regime=np.where(status <= Status.no_instability, regime, -1).astype(np.int8),
-                       critical_load=crit_load, critical_wavenumber=wavenumber, critical_deflection=deflection,
-                       critical_volume_change=volume, stiffness=stiffness, bistable=bistable, load_path=path)
+    solution = CapSolution(status=status,
+                           regime=np.where(status <= Status.no_instability, regime, -1).astype(np.int8),
+                           critical_load=crit_load, critical_wavenumber=wavenumber, critical_deflection=deflection,
+                           critical_volume_change=volume, stiffness=stiffness, bistable=bistable, load_path=path)
+    undecided = np.nonzero(np.isnan(bistable) & has_fold & (hist.state == TRACE_STEP_LIMIT))[0]
+    if check_bi and retry_long_paths and undecided.size:
+        longer = {**settings, "max_points": _LONG_PATH_FACTOR * int(settings["max_points"])}
+        for lo in range(0, undecided.size, _LONG_PATH_GROUP):
+            rows = undecided[lo:lo + _LONG_PATH_GROUP]
+            part = solve_caps(lam[rows], nu[rows], clamped[rows], immovable[rows], apex[rows], amplitude[rows],
+                              width[rows], settings=longer, mismatch=pb.mismatch[rows],
+                              mismatch_strain=None if mismatch_strain is None else mismatch_strain[rows],
+                              mismatch_radius=None if mismatch_radius is None else mismatch_radius[rows],
+                              annulus=None if annulus is None else annulus[rows], retry_long_paths=False)
+            for key, value in vars(part).items():
+                getattr(solution, key)[rows] = value
+    return solution
 
 
 def _bracket_first_crossings(pb: CapPathProblem, hist: Any, jb: np.ndarray, crossings: ModeCrossings,

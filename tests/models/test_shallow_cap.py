@@ -310,3 +310,18 @@ def test_scan_finds_the_first_bifurcation_of_deep_pinned_caps():
     np.testing.assert_array_equal(got["critical_wavenumber"], want["critical_wavenumber"])
     np.testing.assert_allclose(got["critical_load"], want["critical_load"], rtol=1e-8)
     np.testing.assert_allclose(got["critical_load"], [0.71434, 0.72795, 0.67716, 0.67773], rtol=2e-5)
+
+
+def test_long_paths_past_the_first_limit_point_are_followed_to_a_bistability_decision():
+    # common practice, no source: clamped caps with a sliding edge wind through several hundred path points
+    # after the first limit point before the load returns to zero (more than max_points = 400); they are
+    # followed again with five times the capacity, which traces the same path: the same results as a run
+    # with 4000 points from the start, and a decision instead of NaN
+    inp = make_inputs([20.3848, 13.6092], poisson_ratio=np.array([0.45, 0.40]), edge_inplane="sliding")
+    base = {"asymmetric_modes": 0, "max_pressure": 3.0}
+    got = make_model("shallow_cap", base).solve_batch(inp)
+    want = make_model("shallow_cap", {**base, "max_points": 4000}).solve_batch(inp)
+    np.testing.assert_array_equal(got.outputs["bistable"], [0.0, 0.0])
+    for name, value in want.outputs.items():
+        np.testing.assert_array_equal(got.outputs[name], value, err_msg=name)
+    np.testing.assert_array_equal(got.status, want.status)
