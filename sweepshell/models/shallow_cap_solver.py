@@ -50,7 +50,7 @@ _FIRST_STEP, _MAX_STEP = 0.25, 0.25
 _FOLD_S_TOL = 1e-4
 _MAX_SUCTION = 2.0  # a path needing more outward load than this (in its load unit) is not followed
 # undecided bistability: the path is followed again with this many times the capacity, so many caps at a time
-_LONG_PATH_FACTOR, _LONG_PATH_GROUP = 5, 16
+_LONG_PATH_FACTOR, _LONG_PATH_GROUP = 5, 8  # 8 × 2000 points × 193 unknowns × 2: 50 MB at most
 _SCAN_ROUND = 8  # sampled path points per cap evaluated before looking for a flip
 _CROSSING_SAMPLES = 4  # interior points of a flipped step at which its crossings are located
 
