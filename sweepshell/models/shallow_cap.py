@@ -273,7 +273,7 @@ class ShallowCapModel(SweepModel):
     )
     regimes: ClassVar[tuple[str, ...]] = ("stable", "limit_point", "bifurcation")
     # measured (one core, wall, benchmarks/bench_shallow_cap.py, λ = 3.5 … 20): ~1 ms axisymmetric, ~12 ms
-    # with the scan, ~17 ms with bistability; apex-force points 0.1–0.3 s (λ 6–30) with the scan (its 3x
+    # with the scan, ~15 ms with bistability; apex-force points 0.1–0.3 s (λ 6–30) with the scan (its 3x
     # stability grid); sharp-edged mismatch points 45–100 ms with the scan
     cost_hint: ClassVar[float] = 0.025
 
