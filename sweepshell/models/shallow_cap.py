@@ -112,7 +112,7 @@ Conventions
   connected path from the unloaded cap is searched. Observed with the defaults: no cap with
   λ ≤ 6 is bistable; clamped immovable caps are not bistable up to λ = 20 (the load stays
   positive along the whole inversion); pinned immovable caps are bistable in bands of λ
-  (≈ 8–11, 15–16), elsewhere their near-inverted shape needs outward pressure and the path
+  (≈ 8–11, 14.5–16.5), elsewhere their near-inverted shape needs outward pressure and the path
   turns back — not monotone in λ, and not checked against a published source.
 
 Numerics
