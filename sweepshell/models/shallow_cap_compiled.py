@@ -406,13 +406,13 @@ def _trace(z0: np.ndarray, t0: np.ndarray, w: np.ndarray, first_step: float, max
 
 @njit(cache=True)
 def _start(z0: np.ndarray, row: np.ndarray, w: np.ndarray, prm: np.ndarray, imp: np.ndarray, eig: np.ndarray,
-           b: np.ndarray, x: np.ndarray, xl: np.ndarray, d1e: np.ndarray, sigma: np.ndarray,
+           b: np.ndarray, x: np.ndarray, xl: np.ndarray, xlt: np.ndarray, d1e: np.ndarray, sigma: np.ndarray,
            t_out: np.ndarray) -> float:
     """Write the unit tangent at ``z0`` oriented along ``row`` into ``t_out``; return the orientation."""
     m1 = z0.shape[0]
     out = np.empty((m1, 2))
-    orientation = _newton_solve(z0.copy(), row, 0.0, prm, imp, eig, b, np.ascontiguousarray(b.T), x, xl,
-                                np.ascontiguousarray(xl.T), d1e, sigma, out)
+    orientation = _newton_solve(z0.copy(), row, 0.0, prm, imp, eig, b, np.ascontiguousarray(b.T), x, xl, xlt, d1e,
+                                sigma, out)
     for i in range(m1):
         t_out[i] = out[i, 1]
     norm = np.sqrt(_wdot(t_out, t_out, w))
@@ -437,10 +437,11 @@ def initial_tangents(pb: CapPathProblem, z0: np.ndarray, w: np.ndarray,
         rows[:, -1] = w[-1]
     t = np.empty((n, m1))
     orientation = np.empty(n)
+    xlt = np.ascontiguousarray(xl.T)
     for i in range(n):
         orientation[i] = _start(np.ascontiguousarray(z0[i]), np.ascontiguousarray(rows[i]), w, prm[i],
                                 np.ascontiguousarray(pb.imperfection[i]), np.ascontiguousarray(pb.eigen_stress[i]),
-                                np.ascontiguousarray(pb.stretch_inverse[i]), x, xl, d1e, sigma, t[i])
+                                np.ascontiguousarray(pb.stretch_inverse[i]), x, xl, xlt, d1e, sigma, t[i])
     return t, orientation
 
 
