@@ -87,9 +87,12 @@ def draw_cap_panel(sub: Figure | SubFigure, field: np.ndarray, radius: np.ndarra
     y = radius[:, None] * np.sin(theta)[None, :]
     if np.all(np.isfinite(w)):
         mesh = ax.pcolormesh(x, y, w, shading="gouraud", cmap=cmap, norm=norm, rasterized=True)
-    else:  # gouraud shading cannot leave holes: cells around the stored values, missing ones grey
-        mesh = ax.pcolormesh(x, y, np.ma.masked_invalid(w), shading="nearest", cmap=cmap, norm=norm,
-                             rasterized=True)
+    else:  # gouraud shading cannot leave holes: polar cells around the stored values, missing ones grey
+        r_edges = np.concatenate([radius[:1], 0.5 * (radius[1:] + radius[:-1]), radius[-1:]])
+        half = math.pi / len(angle)
+        t_edges = np.append(angle - half, angle[-1] + half)
+        mesh = ax.pcolormesh(r_edges[:, None] * np.cos(t_edges)[None, :], r_edges[:, None] * np.sin(t_edges)[None, :],
+                             np.ma.masked_invalid(field), shading="flat", cmap=cmap, norm=norm, rasterized=True)
     finite = w[np.isfinite(w)]
     if finite.size and float(np.ptp(finite)) > 0:
         ax.contour(x, y, np.ma.masked_invalid(w), levels=9, colors=CONTOUR_COLOR, linewidths=0.45, alpha=0.8)

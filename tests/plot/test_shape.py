@@ -86,6 +86,17 @@ def test_field_colours_diverge_around_zero_for_two_signs_and_run_from_zero_for_o
     assert scales[1] == ("viridis", pytest.approx(one_signed.min()), 0.0)
 
 
+def test_a_field_with_holes_leaves_them_grey():
+    radius, angle = np.linspace(0, 1, 24), 2 * np.pi * np.arange(72) / 72
+    field = cap_field(2.0, 4, radius, angle)
+    field[5, 10] = np.nan
+    fig = Figure()
+    draw_cap_panel(fig, field, radius, angle, 4)
+    cells = fig.axes[0].collections[0].get_array()
+    assert cells.shape == (24, 72) and int(np.ma.count_masked(cells)) == 1
+    assert texts_outside_canvas(fig) == []
+
+
 def test_several_points_side_by_side_with_a_panel_for_the_missing_one(stores):
     ds = open_sweep(stores["cap"])
     points = [{"shell_parameter": "9", "max_indentation": "8"}, {"shell_parameter": "20", "max_indentation": "20"},
