@@ -113,9 +113,12 @@ def find_shape_output(ds: xr.Dataset) -> ShapeOutput:
 
 
 def _wave_number(view: xr.Dataset, ds: xr.Dataset) -> int | None:
-    candidates: list[Any] = []
+    """Return n ≥ 2 of the point's pattern: the output of the followed branch, else the parameter asked for."""
     if "wave_number" in view.data_vars:
-        candidates.append(view["wave_number"].values)
+        n = float(view["wave_number"].values)
+        if math.isfinite(n):  # the branch followed; 0 = axisymmetric, whatever was asked for
+            return int(n) if n >= 2 and n == int(n) else None
+    candidates: list[Any] = []
     if "wave_number" in view.coords:
         candidates.append(view["wave_number"].values)
     with contextlib.suppress(ValueError, AttributeError):
@@ -141,7 +144,7 @@ def read_shape_point(ds: xr.Dataset, output: ShapeOutput, at: Mapping[str, str])
     if status not in TRUSTED_STATUSES:
         return ShapePoint(view.cuts, status, regime, None, f"status {status.name.replace('_', ' ')}", n)
     values = np.asarray(view.ds[output.name].values, dtype=float)
-    drawable = values[:2] if output.kind == "section" else values  # the fold stage is NaN without a fold
+    drawable = values[:1] if output.kind == "section" else values  # later stages are NaN without limit point/fold
     if not np.any(np.isfinite(drawable)):
         return ShapePoint(view.cuts, status, regime, None, "none stored at this point (NaN)", n)
     return ShapePoint(view.cuts, status, regime, values, "", n)
@@ -278,7 +281,7 @@ def pick_representative_points(ds: xr.Dataset, output: ShapeOutput | None = None
         for row in where[order[:20]]:  # the nearest few suffice; a regime's shapes are NaN only exceptionally
             index = dict(zip(axes, (int(i) for i in row), strict=True))
             values = np.asarray(ds[output.name].isel(index).values, dtype=float)
-            if np.any(np.isfinite(values[:2] if output.kind == "section" else values)):
+            if np.any(np.isfinite(values[:1] if output.kind == "section" else values)):
                 picked.append((name, {a: _at_text(ds[a].values[i]) for a, i in index.items()}))
                 break
     return picked

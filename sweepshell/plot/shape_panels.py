@@ -29,6 +29,8 @@ _STAGE_STYLES: tuple[dict[str, Any], ...] = (
     {"color": OKABE_ITO[5], "linestyle": "-", "linewidth": 1.8},
     {"color": OKABE_ITO[6], "linestyle": "-", "linewidth": 1.8},
 )
+#: what a NaN stage means (the stored section has no such stage at this point)
+_NO_STAGE = {1: "none (no limit point)", 2: "none (no fold)"}
 #: share of the largest |w| below which the other sign counts as round-off (one-signed field)
 _SIGN_TOLERANCE = 0.02
 _HALO_WIDTH = 2.6
@@ -134,8 +136,8 @@ def draw_section_panel(sub: Figure | SubFigure, section: np.ndarray, factor: flo
     Parameters
     ----------
     section
-        Shape (stages, 2, stations): ``[:, 0]`` y [m], ``[:, 1]`` z [m]; a stage that is all NaN (no fold)
-        is named in the legend instead of drawn.
+        Shape (stages, 2, stations): ``[:, 0]`` y [m], ``[:, 1]`` z [m]; a stage that is all NaN (no limit
+        point, no fold) is named in the legend instead of drawn.
     factor, unit
         Lengths are drawn as ``value / factor`` in ``unit`` (e.g. 1e-3, ``mm``).
     """
@@ -149,8 +151,7 @@ def draw_section_panel(sub: Figure | SubFigure, section: np.ndarray, factor: flo
         y, z = section[k, 0], section[k, 1]
         keep = np.isfinite(y) & np.isfinite(z)
         if not np.any(keep):
-            handles.append(Line2D([], [], color="none", label=f"{label}: none (no fold)" if k == 2 else
-                                  f"{label}: not stored"))
+            handles.append(Line2D([], [], color="none", label=f"{label}: {_NO_STAGE.get(k, 'not stored')}"))
             continue
         (line,) = ax.plot(y[keep] / factor, z[keep] / factor, label=label, **style)
         handles.append(line)

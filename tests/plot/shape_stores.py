@@ -104,7 +104,7 @@ def strip_section(width: float, radius: float, flatten: float) -> np.ndarray:
 
 
 def make_strip_store(folder: Path) -> Path:
-    """Write a 2 × 2 strip store over width × load (named axis); one point without a fold, one failed."""
+    """Write a 2 × 2 strip store over width × load (named axis); one point without limit point or fold, one failed."""
     widths = np.array([0.02, 0.04])
     loads = np.array(["bend_opposite", "bend_equal"], dtype=object)
     radius = 0.025
@@ -116,7 +116,7 @@ def make_strip_store(folder: Path) -> Path:
             section[i, j, 0] = strip_section(w, radius, 1.0)
             section[i, j, 1] = strip_section(w, radius, 0.6)
             section[i, j, 2] = strip_section(w, radius, 0.05)
-    section[0, 1, 2] = np.nan        # no fold: stage 2 is NaN
+    section[0, 1, 1:] = np.nan       # no limit point and no fold: stages 1 and 2 are NaN
     regime[0, 1] = 0
     status[1, 1], regime[1, 1] = int(Status.failed), -1
     section[1, 1] = np.nan

@@ -126,7 +126,8 @@ def test_strip_sections_in_millimetres_equal_aspect(stores):
     assert folded.get_aspect() == 1.0
     labels = [t.get_text() for t in folded.get_legend().get_texts()]
     assert labels == ["unloaded", "at the peak moment", "in the fold"]
-    assert "in the fold: none (no fold)" in [t.get_text() for t in stiff.get_legend().get_texts()]
+    assert [t.get_text() for t in stiff.get_legend().get_texts()] == [
+        "unloaded", "at the peak moment: none (no limit point)", "in the fold: none (no fold)"]
     unloaded = folded.get_lines()[0]
     np.testing.assert_allclose(unloaded.get_xdata()[[0, -1]], [-10.0, 10.0])         # 20 mm wide
     np.testing.assert_allclose(unloaded.get_ydata()[0], -1e3 * 0.01**2 / (2 * 0.025))  # arc depth in mm
