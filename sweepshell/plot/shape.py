@@ -29,7 +29,7 @@ import numpy as np
 from sweepshell import CAUTION
 from sweepshell.errors import QueryError
 from sweepshell.models.base import TRUSTED_STATUSES, Status
-from sweepshell.plot.shape_panels import draw_cap_panel, draw_missing_panel, draw_section_panel
+from sweepshell.plot.shape_panels import draw_cap_panel, draw_missing_panel, draw_section_panel, section_limits
 from sweepshell.plot.style import add_caution_footer, axis_label, title_lines
 from sweepshell.plot.units import engineering_scale, format_quantity
 from sweepshell.query.slicing import AxisCut, slice_sweep
@@ -51,7 +51,7 @@ SECTION_DIMS = ("section_stage", "section_xy", "section_arc")
 #: the most points drawn side by side in one figure
 MAX_PANELS = 6
 _WIDTH = {"cap": 3.3, "section": 3.7}      # inches per panel
-_HEIGHT = {"cap": 7.0, "section": 4.6}
+_HEIGHT = {"cap": 7.0, "section": 4.0}
 _MIN_WIDTH = 6.4
 _CHARS_PER_INCH = 19                        # caution footer at 6.2 pt
 
@@ -242,6 +242,7 @@ def draw_shapes(ds: xr.Dataset, points: Sequence[Mapping[str, str]]) -> ShapeFig
         angle = _coordinate(ds, CAP_DIMS[1], 2 * math.pi * np.arange(m) / m)
     else:
         factor, unit = _section_scale(chosen, str(ds[output.name].attrs.get("units", "m")))
+        limits = section_limits([p.values for p in chosen if p.values is not None], factor)
     for sub, point in zip(subs, chosen, strict=True):
         sub.suptitle(_panel_title(ds, point), fontsize=8.5, linespacing=1.3)
         if point.values is None:
@@ -249,7 +250,7 @@ def draw_shapes(ds: xr.Dataset, points: Sequence[Mapping[str, str]]) -> ShapeFig
         elif kind == "cap":
             draw_cap_panel(sub, point.values, radius, angle, point.wave_number)
         else:
-            draw_section_panel(sub, point.values, factor, unit)
+            draw_section_panel(sub, point.values, factor, unit, limits)
     what = "Shape w/h at max_indentation" if kind == "cap" else "Cross-section of the strip"
     fig.suptitle(title_lines(dict(ds.attrs), what, _study_line(ds)), x=0.01, ha="left", fontsize=9.5)
     return ShapeFigure(fig, tuple(chosen), tuple(notes))

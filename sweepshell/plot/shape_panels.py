@@ -20,7 +20,8 @@ from sweepshell.plot.style import CONTOUR_COLOR, OKABE_ITO, UNTRUSTED_COLOR
 if TYPE_CHECKING:
     from matplotlib.figure import Figure, SubFigure
 
-__all__ = ["STAGE_LABELS", "draw_cap_panel", "draw_missing_panel", "draw_section_panel", "meridian"]
+__all__ = ["STAGE_LABELS", "draw_cap_panel", "draw_missing_panel", "draw_section_panel", "meridian",
+           "section_limits"]
 
 #: what each stage of a stored cross-section shows (``section_stage`` 0, 1, 2)
 STAGE_LABELS = ("unloaded", "at the peak moment", "in the fold")
@@ -130,7 +131,17 @@ def draw_cap_panel(sub: Figure | SubFigure, field: np.ndarray, radius: np.ndarra
     sec.legend(fontsize=7.5, frameon=True, framealpha=0.9, edgecolor="#CCCCCC", loc="best")
 
 
-def draw_section_panel(sub: Figure | SubFigure, section: np.ndarray, factor: float, unit: str) -> None:
+def section_limits(sections: list[np.ndarray], factor: float) -> tuple[tuple[float, float], tuple[float, float]]:
+    """Return the (y, z) limits that hold every section drawn in ``value / factor`` units, with a margin."""
+    y = np.concatenate([s[:, 0].ravel() for s in sections]) / factor
+    z = np.concatenate([s[:, 1].ravel() for s in sections]) / factor
+    y, z = y[np.isfinite(y)], z[np.isfinite(z)]
+    margin = 0.06 * max(float(np.ptp(y)), float(np.ptp(z)), 1e-300)
+    return ((float(y.min()) - margin, float(y.max()) + margin), (float(z.min()) - margin, float(z.max()) + margin))
+
+
+def draw_section_panel(sub: Figure | SubFigure, section: np.ndarray, factor: float, unit: str,
+                       limits: tuple[tuple[float, float], tuple[float, float]]) -> None:
     """Draw the cross-section of each stage: height z against the transverse coordinate y, equal aspect.
 
     Parameters
@@ -140,6 +151,9 @@ def draw_section_panel(sub: Figure | SubFigure, section: np.ndarray, factor: flo
         point, no fold) is named in the legend instead of drawn.
     factor, unit
         Lengths are drawn as ``value / factor`` in ``unit`` (e.g. 1e-3, ``mm``).
+    limits
+        (y, z) limits shared by the panels of one figure (:func:`section_limits`), so equal lengths look
+        equal side by side; equal aspect widens one of them to fit the panel.
     """
     from matplotlib.lines import Line2D
 
@@ -155,8 +169,9 @@ def draw_section_panel(sub: Figure | SubFigure, section: np.ndarray, factor: flo
             continue
         (line,) = ax.plot(y[keep] / factor, z[keep] / factor, label=label, **style)
         handles.append(line)
+    ax.set_xlim(*limits[0])
+    ax.set_ylim(*limits[1])
     ax.set_aspect("equal", adjustable="datalim")
-    ax.margins(0.06)
     ax.set_xlabel(f"transverse coordinate y  [{unit}]", labelpad=1)
     ax.set_ylabel(f"height z  [{unit}]")
     ax.grid(True, color="#E5E5E5", linewidth=0.6)
