@@ -31,7 +31,6 @@ from sweepshell.errors import QueryError
 from sweepshell.models.base import TRUSTED_STATUSES, Status
 from sweepshell.plot.shape_panels import draw_cap_panel, draw_missing_panel, draw_section_panel, section_limits
 from sweepshell.plot.style import add_caution_footer, axis_label, title_lines
-from sweepshell.plot.units import engineering_scale, format_quantity
 from sweepshell.query.slicing import AxisCut, slice_sweep
 from sweepshell.query.table import describe_fields, regime_names
 from sweepshell.store import layout
@@ -42,9 +41,15 @@ if TYPE_CHECKING:
     from matplotlib.figure import Figure
 
 __all__ = ["CAP_DIMS", "SECTION_DIMS", "ShapeFigure", "ShapeOutput", "ShapePoint", "draw_shapes",
-           "find_shape_output", "pick_representative_points", "read_shape_point"]
+           "engineering_scale", "find_shape_output", "format_value", "pick_representative_points",
+           "read_shape_point"]
 
 log = logging.getLogger(__name__)
+
+#: units written with an engineering prefix (single symbols only: "mN m" would read ambiguously)
+_PREFIXED_UNITS = frozenset({"m", "Pa", "N", "J", "W", "s"})
+_PREFIXES = {-12: "p", -9: "n", -6: "µ", -3: "m", 0: "", 3: "k", 6: "M", 9: "G", 12: "T"}
+_DIMENSIONLESS = ("", "1", "-", "dimensionless")
 
 CAP_DIMS = ("shape_radius", "shape_angle")
 SECTION_DIMS = ("section_stage", "section_xy", "section_arc")
@@ -87,6 +92,39 @@ class ShapeFigure:
     figure: Figure
     points: tuple[ShapePoint, ...]
     notes: tuple[str, ...] = ()
+
+
+def engineering_scale(magnitude: float, units: str) -> tuple[float, str]:
+    """Return ``(factor, unit)`` so that ``magnitude / factor`` lies in [1, 1000) in ``unit`` (``mm``, ``GPa``).
+
+    Units that take no prefix (compound or dimensionless) come back unchanged with factor 1.
+    """
+    if units not in _PREFIXED_UNITS or not math.isfinite(magnitude) or magnitude <= 0:
+        return 1.0, units
+    power = max(min(3 * math.floor(math.log10(magnitude) / 3 + 1e-9), 12), -12)
+    return 10.0**power, _PREFIXES[power] + units
+
+
+def format_value(value: Any, units: str = "") -> str:
+    """Return a value for a title: ``25.4 mm``, ``200 GPa``, ``0.3``, ``5`` (integers as integers), ``∞ m``."""
+    if isinstance(value, str):
+        return value
+    try:
+        v = float(value)
+    except (TypeError, ValueError):
+        return str(value)
+    unit = "" if units in _DIMENSIONLESS else units
+    if math.isfinite(v) and v != 0:
+        factor, unit = engineering_scale(abs(v), unit)
+        v /= factor
+    if math.isinf(v):
+        text = "∞" if v > 0 else "−∞"
+    elif v == int(v) and abs(v) < 1e4:
+        text = str(int(v))
+    else:
+        text = f"{v:.4g}".replace("e+0", "e").replace("e-0", "e-")
+    text = text.replace("-", "−")
+    return f"{text} {unit}" if unit else text
 
 
 def find_shape_output(ds: xr.Dataset) -> ShapeOutput:
@@ -161,7 +199,7 @@ def _panel_title(ds: xr.Dataset, point: ShapePoint) -> str:
     for cut in point.cuts:
         attrs = dict(ds[cut.name].attrs)
         name = axis_label(cut.name, {"symbol": attrs.get("symbol", "")})
-        lines.append(f"{name} = {format_quantity(cut.value, str(attrs.get('units', '')))}")
+        lines.append(f"{name} = {format_value(cut.value, str(attrs.get('units', '')))}")
     if point.values is None:
         lines.append(point.missing)
     else:
@@ -188,7 +226,7 @@ def _study_line(ds: xr.Dataset) -> str:
             value = ds[name].values[0]
             fixed[name] = value.item() if hasattr(value, "item") else value
             units[name] = str(ds[name].attrs.get("units", ""))
-    return ", ".join(f"{k} = {format_quantity(v, units.get(k, ''))}" for k, v in fixed.items() if v is not None)
+    return ", ".join(f"{k} = {format_value(v, units.get(k, ''))}" for k, v in fixed.items() if v is not None)
 
 
 def _section_scale(points: Sequence[ShapePoint], units: str) -> tuple[float, str]:

@@ -11,9 +11,14 @@ from matplotlib.figure import Figure
 
 from sweepshell import open_sweep
 from sweepshell.errors import QueryError
-from sweepshell.plot.shape import draw_shapes, find_shape_output, pick_representative_points
+from sweepshell.plot.shape import (
+    draw_shapes,
+    engineering_scale,
+    find_shape_output,
+    format_value,
+    pick_representative_points,
+)
 from sweepshell.plot.shape_panels import draw_cap_panel, meridian
-from sweepshell.plot.units import engineering_scale, format_quantity
 from tests.plot.clipping import texts_outside_canvas
 from tests.plot.shape_stores import cap_field, make_cap_store, make_plain_store, make_strip_store
 
@@ -175,7 +180,7 @@ def test_representative_points_are_median_points_with_a_shape(stores):
     (-3.0, "", "−3"), (0.0, "m", "0 m"),
 ])
 def test_quantities_read_with_engineering_prefixes(value, units, text):
-    assert format_quantity(value, units) == text
+    assert format_value(value, units) == text
 
 
 def test_engineering_scale_puts_the_mantissa_in_one_to_a_thousand():
