@@ -99,7 +99,7 @@ def _line_plots(ds: xr.Dataset, info: Any) -> str:
 
 def _shape_section(ds: xr.Dataset) -> list[str]:
     """Shapes at one representative point per regime, for stores that hold a shape (none otherwise)."""
-    from sweepshell.plot.shape import draw_shapes, find_shape_output, pick_representative_points
+    from sweepshell.plot.shape import describe_point, draw_shapes, find_shape_output, pick_representative_points
 
     try:
         output = find_shape_output(ds)
@@ -114,8 +114,8 @@ def _shape_section(ds: xr.Dataset) -> list[str]:
     for start in range(0, len(picked), _SHAPES_PER_FIGURE):
         chunk = picked[start:start + _SHAPES_PER_FIGURE]
         result = draw_shapes(ds, [at for _, at in chunk])
-        where = "; ".join(f"{name.replace('_', ' ')}: {point.where()}" for (name, _), point in
-                          zip(chunk, result.points, strict=True))
+        where = "; ".join(f"{name.replace('_', ' ')}: {describe_point(ds, point, symbols=False)}"
+                          for (name, _), point in zip(chunk, result.points, strict=True))
         parts.append(f"<figure><img alt='stored shapes at representative points' "
                      f"src='data:image/png;base64,{_png(result.figure)}'><figcaption class='muted'>"
                      f"{html.escape(where)}</figcaption></figure>")

@@ -40,9 +40,20 @@ if TYPE_CHECKING:
     import xarray as xr
     from matplotlib.figure import Figure
 
-__all__ = ["CAP_DIMS", "SECTION_DIMS", "ShapeFigure", "ShapeOutput", "ShapePoint", "draw_shapes",
-           "engineering_scale", "find_shape_output", "format_value", "pick_representative_points",
-           "read_shape_point"]
+__all__ = [
+    "CAP_DIMS",
+    "SECTION_DIMS",
+    "ShapeFigure",
+    "ShapeOutput",
+    "ShapePoint",
+    "describe_point",
+    "draw_shapes",
+    "engineering_scale",
+    "find_shape_output",
+    "format_value",
+    "pick_representative_points",
+    "read_shape_point",
+]
 
 log = logging.getLogger(__name__)
 
@@ -194,12 +205,21 @@ def _coordinate(ds: xr.Dataset, dim: str, default: np.ndarray) -> np.ndarray:
     return default
 
 
-def _panel_title(ds: xr.Dataset, point: ShapePoint) -> str:
-    lines = []
+def describe_point(ds: xr.Dataset, point: ShapePoint, sep: str = ", ", *, symbols: bool = True) -> str:
+    """Return the point's axis values with units, e.g. ``width  w = 20 mm, load = bend_equal``.
+
+    ``symbols=False`` leaves out the symbols (drawn as mathtext in figures), for plain text such as HTML.
+    """
+    parts = []
     for cut in point.cuts:
         attrs = dict(ds[cut.name].attrs)
-        name = axis_label(cut.name, {"symbol": attrs.get("symbol", "")})
-        lines.append(f"{name} = {format_value(cut.value, str(attrs.get('units', '')))}")
+        name = axis_label(cut.name, {"symbol": attrs.get("symbol", "") if symbols else ""})
+        parts.append(f"{name} = {format_value(cut.value, str(attrs.get('units', '')))}")
+    return sep.join(parts) or "the only point"
+
+
+def _panel_title(ds: xr.Dataset, point: ShapePoint) -> str:
+    lines = [describe_point(ds, point, "\n")]
     if point.values is None:
         lines.append(point.missing)
     else:

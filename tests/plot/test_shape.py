@@ -209,7 +209,7 @@ def test_report_shows_one_shape_per_regime_and_keeps_the_caution(stores, tmp_pat
     image = mpimg.imread(io.BytesIO(base64.b64decode(images[0])), format="png")
     assert image.shape[1] > 1200 and np.std(image[..., :3]) > 0.05  # four panels side by side
     caption = re.findall(r"<figcaption class='muted'>(.*?)</figcaption>", section)[0]
-    assert caption.startswith("stable: shell_parameter = 14, max_indentation = 2; limit point: shell_parameter = 5")
+    assert caption.startswith("stable: shell parameter = 14, max indentation = 2; limit point: shell parameter = 5")
     assert CAUTION.removeprefix("Caution: ") in text
 
     plain = tmp_path / "plain.html"
