@@ -24,7 +24,7 @@ import numpy as np
 import yaml
 from omegaconf import DictConfig, ListConfig, OmegaConf
 
-from sweepshell.engine.plan import Axis, ExecutorSpec, SweepPlan
+from sweepshell.plan import Axis, ExecutorSpec, SweepPlan
 from sweepshell.errors import ConfigError, ParameterError
 from sweepshell.models import get_model
 from sweepshell.models.base import SweepModel

@@ -19,7 +19,7 @@ from typing import Any
 
 import numpy as np
 
-from sweepshell.engine.plan import SweepPlan
+from sweepshell.plan import SweepPlan
 from sweepshell.models.base import BatchResult, SweepModel
 from sweepshell.store import layout
 from sweepshell.store.layout import ATTR

@@ -15,7 +15,7 @@ from typing import Any
 
 import numpy as np
 
-from sweepshell.engine.plan import Block
+from sweepshell.plan import Block
 from sweepshell.engine.reuse import Donor, take_from_donors
 from sweepshell.models import make_model
 from sweepshell.models.base import BatchResult, Status, SweepModel

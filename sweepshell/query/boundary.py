@@ -23,10 +23,15 @@ import numpy as np
 
 from sweepshell.errors import QueryError
 
-__all__ = ["Boundary", "BoundaryLine", "locate_boundary", "trace_boundary"]
+__all__ = ["Boundary", "BoundaryLine", "EvaluatorFactory", "RegimeEvaluator", "find_boundary", "locate_boundary",
+           "trace_boundary"]
 
 #: evaluates the regime (code, −1 when untrusted) at points given by their two axis values
 RegimeEvaluator = Callable[[np.ndarray, np.ndarray], np.ndarray]
+
+#: builds the regime evaluator of one view from the fixed values of its other axes and the two axis names;
+#: the caller supplies it (the engine runs models, this layer only reads)
+EvaluatorFactory = Callable[[Mapping[str, Any], str, str], RegimeEvaluator]
 
 
 @dataclass(frozen=True)
@@ -282,9 +287,13 @@ def known_points(points: Mapping[str, np.ndarray] | None, fixed: Mapping[str, An
 
 
 def find_boundary(ds: Any, x_axis: str, y_axis: str, between: tuple[str, str], *,
-                  at: Mapping[str, str] | None = None, bisections: int = 6, evaluate: bool = True,
-                  record: bool = True) -> tuple[Boundary, Any]:
+                  at: Mapping[str, str] | None = None, bisections: int = 6,
+                  evaluator: EvaluatorFactory | None = None) -> tuple[Boundary, Any]:
     """Return the boundary between two regimes of a store on the view (x_axis, y_axis).
+
+    The query layer never runs a model: new evaluations come only from an ``evaluator`` its
+    caller passes in (:func:`sweepshell.engine.evaluate.store_evaluator`). Without one the
+    boundary uses the grid and the stored off-grid points only.
 
     Parameters
     ----------
@@ -297,11 +306,11 @@ def find_boundary(ds: Any, x_axis: str, y_axis: str, between: tuple[str, str], *
     at
         ``name → value`` text for the fixed axes.
     bisections
-        Rounds of bisection with new model evaluations (0: use only stored points).
-    evaluate
-        Whether new model evaluations are allowed.
-    record
-        Whether new evaluations are appended to the store's point list.
+        Rounds of bisection with new model evaluations (0: use only stored points); used only with an
+        ``evaluator``.
+    evaluator
+        Builds the view's evaluator from the fixed values of the other axes and the two axis names
+        (see :data:`EvaluatorFactory`); ``None`` allows no new evaluations.
 
     Returns
     -------
@@ -319,17 +328,11 @@ def find_boundary(ds: Any, x_axis: str, y_axis: str, between: tuple[str, str], *
             raise QueryError(f"axis {name!r} holds names, not numbers; a boundary needs two numeric axes",
                              field="axis", value=name)
     known = known_points(read_store_points(ds), view.fixed_values, x_axis, y_axis)
-    evaluator = None
-    if evaluate and bisections > 0:
-        from sweepshell.query.evaluate import PointEvaluator
-
-        source = ds.encoding.get("source")
-        if not source:
-            raise QueryError("the Dataset has no store path to record new points in; open it with "
-                             "sweepshell.open_sweep or pass evaluate=False", field="store")
-        evaluator = PointEvaluator(source, ds.attrs, view.fixed_values, record=record).regimes_at(x_axis, y_axis)
+    evaluate = None
+    if evaluator is not None and bisections > 0:
+        evaluate = evaluator(view.fixed_values, x_axis, y_axis)
     boundary = locate_boundary(x_axis, y_axis, np.asarray(view.ds[x_axis].values, float),
                                np.asarray(view.ds[y_axis].values, float), (view.log[0], view.log[1]),
-                               slice_codes(view.ds), regime_names(ds), between, known=known, evaluate=evaluator,
-                               bisections=bisections if evaluator is not None else 0)
+                               slice_codes(view.ds), regime_names(ds), between, known=known, evaluate=evaluate,
+                               bisections=bisections if evaluate is not None else 0)
     return boundary, view

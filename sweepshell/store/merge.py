@@ -39,8 +39,8 @@ from typing import Any
 
 import numpy as np
 
-from sweepshell import __version__
-from sweepshell.engine.plan import iter_blocks
+from sweepshell.about import __version__
+from sweepshell.plan import iter_blocks
 from sweepshell.errors import StoreMismatchError, StoreSchemaError
 from sweepshell.models.base import Status
 from sweepshell.store import layout

@@ -17,7 +17,7 @@ from sweepshell.store.layout import ATTR
 if TYPE_CHECKING:
     import xarray as xr
 
-    from sweepshell.engine.plan import Block
+    from sweepshell.plan import Block
 
 __all__ = ["check_readable_store", "is_block_final", "open_sweep", "read_attrs", "read_ledger"]
 
@@ -78,7 +78,7 @@ def read_ledger(path: str | os.PathLike[str], block_shape: tuple[int, ...] | Non
         return np.asarray(arr[...])
     except Exception:  # a torn chunk: fall back to reading chunk by chunk
         log.warning("ledger of %s has unreadable chunks; they will be recomputed", path)
-    from sweepshell.engine.plan import iter_blocks
+    from sweepshell.plan import iter_blocks
 
     out = np.zeros(arr.shape, dtype=np.uint8)
     chunks = block_shape or tuple(arr.chunks)

@@ -43,7 +43,7 @@ from typing import Any
 
 import numpy as np
 
-from sweepshell.engine.plan import iter_blocks
+from sweepshell.plan import iter_blocks
 from sweepshell.errors import StoreNotFoundError, StoreSchemaError
 from sweepshell.models.base import TRUSTED_STATUSES, Status
 from sweepshell.store import layout

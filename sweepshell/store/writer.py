@@ -25,8 +25,8 @@ from typing import Any
 
 import numpy as np
 
-from sweepshell import CAUTION, __version__
-from sweepshell.engine.plan import Block, SweepPlan
+from sweepshell.about import CAUTION, __version__
+from sweepshell.plan import Block, SweepPlan
 from sweepshell.errors import StoreMismatchError, StoreSchemaError
 from sweepshell.models.base import BatchResult, SweepModel
 from sweepshell.store import layout

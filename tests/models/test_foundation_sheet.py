@@ -14,8 +14,8 @@ import pytest
 from sweepshell.errors import ParameterError
 from sweepshell.models import Status, get_model, make_model
 from sweepshell.models.base import TRUSTED_STATUSES
-from sweepshell.models.foundation_sheet import FoundationSheetModel, compute_sheet_scales
-from sweepshell.numerics.sheet_energy import (
+from sweepshell.models.foundation_sheet.model import FoundationSheetModel, compute_sheet_scales
+from sweepshell.models.foundation_sheet.energy import (
     compute_height_field,
     compute_variable_of_height,
     evaluate_sheet_energy,
@@ -203,7 +203,7 @@ def test_swapping_strains_turns_the_stripes(model: FoundationSheetModel) -> None
 def test_airy_reduction_agrees_with_displacement_form(substrate: str) -> None:
     # the in-plane displacements eliminated exactly (Airy) vs kept as unknowns (reference
     # solver): same equilibrium of an equibiaxial checkerboard with its harmonics
-    from sweepshell.numerics.sheet_reference import minimize_reference_energy
+    from sweepshell.models.foundation_sheet.reference import minimize_reference_energy
 
     n, s = 12, 2.0 / 1.3
     problem = make_sheet_problem(n, 1, substrate, 0.3, (s, s))
@@ -220,7 +220,7 @@ def test_airy_reduction_agrees_with_displacement_form(substrate: str) -> None:
 
 
 def test_numerical_trouble_is_status_failed_not_an_exception(monkeypatch: pytest.MonkeyPatch) -> None:
-    import sweepshell.models.foundation_sheet as module
+    import sweepshell.models.foundation_sheet.model as module
 
     def explode(*args: Any, **kwargs: Any) -> None:
         raise FloatingPointError("overflow encountered")

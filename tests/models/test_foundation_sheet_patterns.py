@@ -9,7 +9,7 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
-from sweepshell.numerics.sheet_patterns import (
+from sweepshell.models.foundation_sheet.patterns import (
     PATTERN_NAMES,
     classify_pattern,
     measure_pattern,

@@ -6,10 +6,10 @@ import numpy as np
 import pytest
 
 from sweepshell.models import TRUSTED_STATUSES, Status, get_model, make_model
-from sweepshell.models.foundation_strip import FoundationStripModel
-from sweepshell.models.foundation_strip_path import FoldWatch, solve_strip
-from sweepshell.numerics.strip_continuation import StripPath
-from sweepshell.numerics.strip_elastica import (
+from sweepshell.models.foundation_strip.model import FoundationStripModel
+from sweepshell.models.foundation_strip.path import FoldWatch, solve_strip
+from sweepshell.models.foundation_strip.continuation import StripPath
+from sweepshell.models.foundation_strip.elastica import (
     compute_crest_contrast,
     compute_discrete_onset,
     compute_energy,

@@ -6,8 +6,8 @@ import numpy as np
 import pytest
 
 from sweepshell.models import Status, make_model
-from sweepshell.models.foundation_strip_path import solve_strip
-from sweepshell.numerics.strip_elastica import (
+from sweepshell.models.foundation_strip.path import solve_strip
+from sweepshell.models.foundation_strip.elastica import (
     compute_crest_contrast,
     compute_discrete_onset,
     compute_node_heights,

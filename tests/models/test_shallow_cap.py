@@ -7,8 +7,8 @@ import pytest
 from scipy import special
 
 from sweepshell.models import Status, make_model
-from sweepshell.models.shallow_cap_kernels import CapPathProblem
-from sweepshell.models.shallow_cap_solver import make_problem
+from sweepshell.models.shallow_cap.kernels import CapPathProblem
+from sweepshell.models.shallow_cap.solver import make_problem
 from sweepshell.numerics.arclength import compute_tangent
 
 NU = 0.3
@@ -150,7 +150,7 @@ def test_first_limit_point_is_not_lost_at_a_corner_of_the_path():
 def test_path_orientation_keeps_its_sign_through_a_limit_point():
     # Keller 1977 (pseudo-arclength continuation): det [∂R/∂z; tᵀ] does not vanish at regular points
     # of a path, limit points included, while det ∂R/∂u changes sign at every limit point
-    from sweepshell.models.shallow_cap_compiled import trace_cap_paths
+    from sweepshell.models.shallow_cap.compiled import trace_cap_paths
 
     pb = make_problem(np.array([9.0]), np.array([NU]), np.array([True]), np.array([True]), np.array([False]),
                       np.zeros(1), np.full(1, 2.0), 24)
@@ -198,7 +198,7 @@ def test_first_bifurcation_does_not_depend_on_the_path_steps(lam):
 def test_unstable_mode_count_has_the_parity_of_the_determinant_sign(rng):
     # the determinant is the product of the eigenvalues (edge rows eliminated exactly), so an odd count of
     # negative eigenvalues must flip its sign relative to the unloaded cap; common practice, no source
-    from sweepshell.models.shallow_cap_modes import compute_mode_determinants, count_unstable_modes
+    from sweepshell.models.shallow_cap.modes import compute_mode_determinants, count_unstable_modes
 
     k = 6
     pb = make_problem(np.full(k, 12.0), np.full(k, NU), np.array([True, False] * 3), np.array([True, True, False] * 2),
@@ -243,7 +243,7 @@ def test_pinned_deep_cap_is_bistable_with_a_near_mirror_inverted_state():
 def test_locating_crossings_inside_the_step_keeps_the_first_bifurcation(monkeypatch):
     # common practice, no source: refining only the wave numbers that change sign in the earliest
     # sampled part of the flipped step gives the same critical state as refining all of them
-    import sweepshell.models.shallow_cap_solver as solver
+    import sweepshell.models.shallow_cap.solver as solver
 
     lam = np.array([6.0, 8.5, 11.0, 14.0, 17.0, 20.0])
     inputs = make_inputs(lam, dimple_amplitude=np.array([0.0, 0.1, 0.0, 0.3, 0.0, 0.05]))

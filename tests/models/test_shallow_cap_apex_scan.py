@@ -7,8 +7,8 @@ import pytest
 from scipy import optimize
 
 from sweepshell.models import make_model
-from sweepshell.models.shallow_cap_compiled import trace_cap_paths
-from sweepshell.models.shallow_cap_modes import (
+from sweepshell.models.shallow_cap.compiled import trace_cap_paths
+from sweepshell.models.shallow_cap.modes import (
     APEX_STABILITY_REFINEMENT,
     _reduced_matrices,
     compute_mode_coefficients,
@@ -16,7 +16,7 @@ from sweepshell.models.shallow_cap_modes import (
     count_unstable_modes,
     select_stability_nodes,
 )
-from sweepshell.models.shallow_cap_solver import make_problem
+from sweepshell.models.shallow_cap.solver import make_problem
 from tests.models.test_shallow_cap import make_initial_tangent, make_inputs
 
 NU = 0.3
@@ -195,7 +195,7 @@ def test_deep_cap_bifurcation_is_local_to_the_indenter():
 def test_scanning_in_rounds_finds_the_same_first_flip(monkeypatch):
     # common practice, no source: evaluating the path samples in rounds and stopping each cap at its first
     # flip gives the same critical states as evaluating every sample at once
-    import sweepshell.models.shallow_cap_solver as solver
+    import sweepshell.models.shallow_cap.solver as solver
 
     model = make_model("shallow_cap", {"check_bistability": False, "path_samples": 8})
     inputs = make_inputs([10.0, 20.0, 8.0], load=np.array(["apex_force", "apex_force", "pressure"]))

@@ -4,8 +4,8 @@ from __future__ import annotations
 
 import numpy as np
 
-from sweepshell.models.shallow_cap_compiled import correct_caps_on_arc, trace_cap_paths
-from sweepshell.models.shallow_cap_solver import make_problem
+from sweepshell.models.shallow_cap.compiled import correct_caps_on_arc, trace_cap_paths
+from sweepshell.models.shallow_cap.solver import make_problem
 from sweepshell.numerics.arclength import compute_tangent, correct_on_arc, trace_paths
 
 NU = 0.3
@@ -98,7 +98,7 @@ def test_compiled_tracing_is_batch_invariant():
 
 def test_compiled_reduced_stability_matrix_is_the_schur_complement_of_the_full_matrix(rng):
     # A − B S⁻¹ C from the full (deflection, stress) matrix of build_mode_matrices, by a dense solve
-    from sweepshell.models.shallow_cap_modes import (
+    from sweepshell.models.shallow_cap.modes import (
         _reduced_matrices,
         build_mode_matrices,
         compute_mode_coefficients,
@@ -125,7 +125,7 @@ def test_compiled_reduced_stability_matrix_is_the_schur_complement_of_the_full_m
 
 
 def test_compiled_fold_refinement_matches_refine_on_arc():
-    from sweepshell.models.shallow_cap_compiled import refine_caps_on_arc
+    from sweepshell.models.shallow_cap.compiled import refine_caps_on_arc
     from sweepshell.numerics.arclength import refine_on_arc
 
     pb, w, idx, z0, t0 = make_mixed_problem()
@@ -150,7 +150,7 @@ def test_compiled_fold_refinement_matches_refine_on_arc():
 
 
 def test_compiled_lu_returns_the_sign_of_the_determinant(rng):
-    from sweepshell.models.shallow_cap_compiled import _lu_solve
+    from sweepshell.models.shallow_cap.compiled import _lu_solve
 
     for n in (1, 2, 5, 17, 40):
         for _ in range(20):

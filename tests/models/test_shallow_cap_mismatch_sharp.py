@@ -13,8 +13,8 @@ import numpy as np
 import pytest
 
 from sweepshell.models import make_model
-from sweepshell.models.shallow_cap import choose_grid_centres, choose_grids
-from sweepshell.models.shallow_cap_solver import make_problem, solve_caps
+from sweepshell.models.shallow_cap.model import choose_grid_centres, choose_grids
+from sweepshell.models.shallow_cap.solver import make_problem, solve_caps
 from tests.models.test_shallow_cap import make_inputs
 from tests.reference.test_shallow_cap_mismatch_reference import NU, disc_inclusion_stress, linear_state
 

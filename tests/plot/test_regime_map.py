@@ -64,7 +64,7 @@ def test_map_content_regimes_statuses_scales_labels(store):
     # every boundary vertex sits halfway along a grid edge that the closed-form boundary crosses, so it is
     # within half an edge of that curve (Timoshenko & Gere 1961 for the curve; distances in axis units
     # scaled to the plot: log10 η over 4 decades, load over 39.5)
-    from sweepshell.testing import winkler_column_critical
+    from sweepshell.models.winkler_column.model import winkler_column_critical
 
     eta = np.logspace(-1, np.log10(500), 200_001)
     curve = np.stack([np.log10(eta) / 4, winkler_column_critical(eta)[0] / 39.5], 1)

@@ -10,7 +10,7 @@ from collections.abc import Sequence
 from pathlib import Path
 
 from sweepshell.config.loader import load_plan
-from sweepshell.engine.plan import iter_blocks
+from sweepshell.plan import iter_blocks
 from sweepshell.engine.runner import prepare_store
 from sweepshell.engine.worker import compute_block
 from tests.conftest import COLUMN_SWEEP, CONFIGS, write_sweep

@@ -14,8 +14,8 @@ import numpy as np
 import pytest
 
 from sweepshell.models import Status
-from sweepshell.models.foundation_sheet import FoundationSheetModel
-from sweepshell.numerics.sheet_energy import (
+from sweepshell.models.foundation_sheet.model import FoundationSheetModel
+from sweepshell.models.foundation_sheet.energy import (
     compute_variable_of_height,
     make_sheet_problem,
     minimize_sheet_energy,

@@ -12,8 +12,8 @@ import numpy as np
 import pytest
 from scipy import optimize, special
 
-from sweepshell.models.shallow_cap_modes import compute_mode_determinants
-from sweepshell.models.shallow_cap_solver import make_problem
+from sweepshell.models.shallow_cap.modes import compute_mode_determinants
+from sweepshell.models.shallow_cap.solver import make_problem
 from sweepshell.numerics.arclength import compute_tangent
 
 NU = 0.3

@@ -19,13 +19,13 @@ stiffness A (N/m) adds a uniform axial strain P/A to the end-shortening.
 Non-dimensionalisation: ℓ = (B/K)^{1/4}, forces by √(BK); then the only numbers are
 L/ℓ (setting ``length`` in classical wavelengths 2πℓ), a/(2πℓ) (``imperfection``),
 c₃ = K₃ℓ²/K, s = √(BK)/A and c. Discretised as N straight segments
-(:mod:`sweepshell.numerics.strip_elastica`, second order in h) and followed from the
+(:mod:`sweepshell.models.foundation_strip.elastica`, second order in h) and followed from the
 stress-free state by pseudo-arclength continuation
-(:mod:`sweepshell.numerics.strip_continuation`), so limit points are passed.
+(:mod:`sweepshell.models.foundation_strip.continuation`), so limit points are passed.
 Outputs (normalised by the classical 2√(BK) and 2π(B/K)^{1/4} of the infinite strip):
 ``critical_load`` and ``wavelength`` of the first bifurcation of the perfect pinned strip
 (closed form; → 1 as L → ∞), ``fold_confinement`` (criterion in
-:mod:`sweepshell.models.foundation_strip_path`), ``fold_amplitude`` (largest crest depth
+:mod:`sweepshell.models.foundation_strip.path`), ``fold_amplitude`` (largest crest depth
 at the requested confinement over 2πℓ, where folded), and the regime at the requested c:
 ``flat`` (c ≤ onset confinement s·P_c), ``folded`` (c ≥ fold confinement), else
 ``wrinkled``. Validity: no self-contact (past it: ``outside_validity``), |y|
@@ -33,7 +33,7 @@ within the range where the foundation law holds (a softening cubic loses its mea
 where 1 + c₃y² < 0), uniform axial strain P/A ≪ 1.
 
 **flexure** — the linear plate on a fluid foundation in physical units, closed form
-(:mod:`sweepshell.models.foundation_strip_flexure`): D = E T_e³/(12(1 − ν²)), K = Δρ g,
+(:mod:`sweepshell.models.foundation_strip.flexure`): D = E T_e³/(12(1 − ν²)), K = Δρ g,
 D w'''' + N w'' + K w = 0 with a line load and moment at x = 0 on a ``broken`` or
 ``continuous`` plate. Outputs in metres: ``flexural_parameter`` α = (4D/K)^{1/4},
 ``zero_crossing_distance``, ``forebulge_distance``, ``forebulge_height`` (up
@@ -43,7 +43,7 @@ positive), ``max_deflection`` (down positive). Regime ``flat`` (unbuckled); |N| 
 Outputs that do not belong to a point's problem are NaN (all outputs are nullable).
 
 Choices worth knowing: a perfect strip (``imperfection`` = 0) switches branches (see
-:mod:`sweepshell.numerics.strip_continuation`): at the first bifurcation of the flat state
+:mod:`sweepshell.models.foundation_strip.continuation`): at the first bifurcation of the flat state
 (the discrete P_c) onto the periodic wrinkle, and at the first bifurcation on that wrinkle
 that keeps its mirror symmetry about mid-length onto the branch that localises there.
 Bifurcations that shift the envelope to one end (the periodic wrinkle of a pinned strip
@@ -76,8 +76,8 @@ from typing import Any, ClassVar
 import numpy as np
 
 from sweepshell.models.base import BatchResult, OutputSpec, ParameterSpec, Status, SweepModel
-from sweepshell.models.foundation_strip_flexure import compute_flexure
-from sweepshell.models.foundation_strip_path import compute_pinned_onset, solve_strip
+from sweepshell.models.foundation_strip.flexure import compute_flexure
+from sweepshell.models.foundation_strip.path import compute_pinned_onset, solve_strip
 
 __all__ = ["FoundationStripModel"]
 

@@ -36,9 +36,9 @@ points per side). The flat film of the cell is unstable when
 ``overstress = max(ε₁ + ν_f ε₂, ε₂ + ν_f ε₁)/ε_c`` exceeds 1 (on the grid modes).
 Equilibria are found by L-BFGS on the pseudo-spectral energy from small seeded random
 heights, one run per seed, keeping the lowest energy (see
-:mod:`sweepshell.numerics.sheet_energy`); the regime comes from the equilibrium spectrum
+:mod:`sweepshell.models.foundation_sheet.energy`); the regime comes from the equilibrium spectrum
 and the local orientation of the height field (rule in
-:mod:`sweepshell.numerics.sheet_patterns`).
+:mod:`sweepshell.models.foundation_sheet.patterns`).
 
 Resolution as a parameter
 -------------------------
@@ -82,14 +82,14 @@ import numpy as np
 
 from sweepshell.errors import ParameterError
 from sweepshell.models.base import BatchResult, OutputSpec, ParameterSpec, Status, SweepModel
-from sweepshell.numerics.sheet_energy import (
+from sweepshell.models.foundation_sheet.energy import (
     SheetMinimum,
     compute_height_field,
     make_sheet_problem,
     minimize_sheet_energy,
     project_field_to_modes,
 )
-from sweepshell.numerics.sheet_patterns import (
+from sweepshell.models.foundation_sheet.patterns import (
     PATTERN_NAMES,
     classify_pattern,
     measure_pattern,

@@ -1,6 +1,6 @@
 """Linear stability of axisymmetric cap states against ``cos nθ`` modes (shallow-cap model).
 
-Notation of :mod:`sweepshell.models.shallow_cap`. About an axisymmetric state with slope and
+Notation of :mod:`sweepshell.models.shallow_cap.model`. About an axisymmetric state with slope and
 curvature ``ζ'``, ``ζ''`` of the deformed surface and compressive stress-function slope
 ``f = −Φ₀'``, the perturbation ``w(x) cos nθ``, ``Φ(x) cos nθ`` satisfies (times x²)::
 
@@ -49,8 +49,8 @@ from functools import lru_cache
 
 import numpy as np
 
-from sweepshell.models.shallow_cap_compiled import assemble_reduced_stability
-from sweepshell.models.shallow_cap_kernels import CapPathProblem
+from sweepshell.models.shallow_cap.compiled import assemble_reduced_stability
+from sweepshell.models.shallow_cap.kernels import CapPathProblem
 from sweepshell.numerics.radial_chebyshev import make_interpolation_matrix, make_radial_grid, to_chebyshev_coordinate
 
 __all__ = [

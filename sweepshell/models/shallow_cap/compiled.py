@@ -1,10 +1,10 @@
 """Compiled per-cap kernels of the shallow-cap model: Newton corrector and path tracing (numba).
 
-Same equations, Jacobian and algorithm as :class:`~sweepshell.models.shallow_cap_kernels.CapPathProblem`
+Same equations, Jacobian and algorithm as :class:`~sweepshell.models.shallow_cap.kernels.CapPathProblem`
 (residual and Schur-complement bordered solve), :func:`sweepshell.numerics.arclength.correct_on_arc`
 (Newton on the pseudo-arclength bordered system, tangent as a second right-hand side) and
 :func:`sweepshell.numerics.arclength.trace_paths` with the stopping rule of
-:func:`sweepshell.models.shallow_cap_solver.solve_caps`, written for one cap at a time so that
+:func:`sweepshell.models.shallow_cap.solver.solve_caps`, written for one cap at a time so that
 a cap's whole axisymmetric path runs in compiled code. The numpy versions stay the
 specification (and serve the tests that compare both); results agree to rounding.
 
@@ -20,7 +20,7 @@ from __future__ import annotations
 import numpy as np
 from numba import njit
 
-from sweepshell.models.shallow_cap_kernels import CapPathProblem
+from sweepshell.models.shallow_cap.kernels import CapPathProblem
 from sweepshell.numerics.arclength import CROSS_STEP, TURN_SAFETY
 
 __all__ = ["assemble_reduced_stability", "correct_caps_on_arc", "initial_tangents", "pack_cap_parameters",

@@ -1,6 +1,6 @@
 """Path following and critical-state search of the shallow-cap model (batched, numpy only).
 
-See :mod:`sweepshell.models.shallow_cap` for the equations and conventions. Steps:
+See :mod:`sweepshell.models.shallow_cap.model` for the equations and conventions. Steps:
 
 1. trace every cap's axisymmetric path by pseudo-arclength continuation from the unloaded
    state until the load range ends, or (when bistability is checked) until the path
@@ -19,14 +19,14 @@ from typing import Any
 import numpy as np
 
 from sweepshell.models.base import Status
-from sweepshell.models.shallow_cap_compiled import (
+from sweepshell.models.shallow_cap.compiled import (
     correct_caps_on_arc,
     initial_tangents,
     refine_caps_on_arc,
     trace_cap_paths,
 )
-from sweepshell.models.shallow_cap_kernels import CapPathProblem, eigenstrain_stress
-from sweepshell.models.shallow_cap_modes import (
+from sweepshell.models.shallow_cap.kernels import CapPathProblem, eigenstrain_stress
+from sweepshell.models.shallow_cap.modes import (
     compute_mode_determinants,
     count_unstable_modes,
     select_stability_nodes,

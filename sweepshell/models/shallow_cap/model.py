@@ -73,7 +73,7 @@ Conventions
   Its critical state is the first force maximum (snap-through under force control) or an
   earlier ``cos nθ`` bifurcation. The apex curvature of a point-loaded state grows like log x:
   its stability operators are those of the polynomial interpolant of the state, on a grid of
-  3×``nodes`` (:mod:`.shallow_cap_modes`); on the state's own grid they have spurious n = 2, 3
+  3×``nodes`` (:mod:`.modes`); on the state's own grid they have spurious n = 2, 3
   modes (determinant sign changes at the first loaded step). Observed with the defaults
   (clamped immovable): no bifurcation for λ = 4, 6, 8; n = 4 at δ = 18.7 h, F R/(E h³) = 9.447 for
   λ = 10 (version 1.8 reported n = 5 at 9.76: its sparser stability samples missed the n = 4
@@ -122,8 +122,8 @@ below), Newton with the analytic Jacobian and the stretching block eliminated (S
 complement), pseudo-arclength continuation with step control on Newton work and tangent
 turning: each step is sized for 60 % of the turn limit at the turning rate extrapolated from
 the last two steps. Each cap's whole path and every Newton corrector run in compiled per-cap
-kernels (:mod:`.shallow_cap_compiled`; the batched numpy versions in
-:mod:`.shallow_cap_kernels` and :mod:`sweepshell.numerics.arclength` are the specification they
+kernels (:mod:`.compiled`; the batched numpy versions in
+:mod:`.kernels` and :mod:`sweepshell.numerics.arclength` are the specification they
 are tested against). Limit points (zeros of dq/ds) and determinant sign changes are refined
 by secant/regula-falsi steps along the arc (limit points to 10⁻⁴ of their step, where the
 load is stationary: about 10⁻⁹ relative). Each Newton solve carries the tangent as a second
@@ -226,7 +226,7 @@ from typing import Any, ClassVar
 import numpy as np
 
 from sweepshell.models.base import BatchResult, OutputSpec, ParameterSpec, Status, SweepModel
-from sweepshell.models.shallow_cap_solver import CapSolution, solve_caps
+from sweepshell.models.shallow_cap.solver import CapSolution, solve_caps
 
 __all__ = ["ShallowCapModel"]
 

@@ -1,6 +1,6 @@
 """Discrete operators of the shallow-cap model: axisymmetric residual and stability matrices.
 
-Notation of :mod:`sweepshell.models.shallow_cap` (read its docstring first): ``x = r/a``,
+Notation of :mod:`sweepshell.models.shallow_cap.model` (read its docstring first): ``x = r/a``,
 ``y = ω'`` the deflection slope and ``f = −Φ'`` the compressive stress-function slope, both
 stored divided by λ² (``Y = y/λ²``, ``F = f/λ²``); ``ŝ(x) = x − g(x)/λ²`` is the stress-free
 slope (sphere minus dimple) over λ². Equations (integrated once, collocated at the interior

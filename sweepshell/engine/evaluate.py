@@ -18,12 +18,13 @@ from typing import Any
 
 import numpy as np
 
-from sweepshell.errors import StoreMismatchError
+from sweepshell.errors import QueryError, StoreMismatchError
 from sweepshell.models import make_model
 from sweepshell.models.base import TRUSTED_STATUSES, BatchResult, SweepModel
+from sweepshell.query.boundary import EvaluatorFactory, RegimeEvaluator
 from sweepshell.store.layout import ATTR
 
-__all__ = ["PointEvaluator", "make_store_model"]
+__all__ = ["PointEvaluator", "make_store_model", "store_evaluator"]
 
 log = logging.getLogger(__name__)
 
@@ -74,7 +75,7 @@ class PointEvaluator:
     store: str | os.PathLike[str]
     attrs: Mapping[str, Any]
     fixed_axes: Mapping[str, Any]
-    record: bool = True
+    record: bool = False
     origin: str = "boundary"
     level: int = 0
     evaluations: int = 0
@@ -124,7 +125,7 @@ class PointEvaluator:
             log.exception("model %s raised on %d new points; they are marked failed", self.model.name, n)
             return self.model.empty_result(n)
 
-    def regimes_at(self, x_axis: str, y_axis: str) -> Any:
+    def regimes_at(self, x_axis: str, y_axis: str) -> RegimeEvaluator:
         """Return a function (x values, y values) → regime codes (−1 where untrusted)."""
         trusted = np.array(sorted(int(s) for s in TRUSTED_STATUSES))
 
@@ -133,3 +134,32 @@ class PointEvaluator:
             return np.where(np.isin(result.status, trusted), result.regime, -1)
 
         return evaluate
+
+
+def store_evaluator(ds: Any, *, record: bool = False, origin: str = "boundary") -> EvaluatorFactory:
+    """Return the boundary evaluator factory of an opened store (for :func:`~sweepshell.query.boundary.find_boundary`).
+
+    Parameters
+    ----------
+    ds
+        A store Dataset opened from a path (:func:`sweepshell.open_sweep`).
+    record
+        Whether new evaluations are appended to the store's point list.
+    origin
+        The origin recorded with those points.
+
+    Raises
+    ------
+    QueryError
+        If the Dataset was not opened from a store path.
+    """
+    source = ds.encoding.get("source")
+    if not source:
+        raise QueryError("the Dataset has no store path to record new points in; open it with "
+                         "sweepshell.open_sweep or pass no evaluator", field="store")
+
+    def factory(fixed_axes: Mapping[str, Any], x_axis: str, y_axis: str) -> RegimeEvaluator:
+        evaluator = PointEvaluator(source, ds.attrs, fixed_axes, record=record, origin=origin)
+        return evaluator.regimes_at(x_axis, y_axis)
+
+    return factory

@@ -2,7 +2,7 @@
 
 Unknowns X = (φ₁..φ_N, P, R, d): segment angles, compressive force, vertical end reaction
 and the geometric end-shortening per unit length beyond the imperfection's own slack.
-Equations (N + 2, see :mod:`sweepshell.numerics.strip_elastica`):
+Equations (N + 2, see :mod:`sweepshell.models.foundation_strip.elastica`):
 
     (∇E − P h sin φ + R h cos φ)/h = 0,
     (h Σ (1 − cos φ) − slack⁰)/L − d = 0,
@@ -36,7 +36,7 @@ from dataclasses import dataclass, field
 import numpy as np
 from scipy.linalg import LinAlgWarning, lu_factor, lu_solve, svd
 
-from sweepshell.numerics.strip_elastica import (
+from sweepshell.models.foundation_strip.elastica import (
     StripProblem,
     compute_crest_contrast,
     compute_critical_mode,

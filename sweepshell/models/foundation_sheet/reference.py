@@ -1,6 +1,6 @@
 """A straightforward reference solver of the film cell: displacements kept, no tricks.
 
-Same physics and scaling as :mod:`sweepshell.numerics.sheet_energy`, written the direct
+Same physics and scaling as :mod:`sweepshell.models.foundation_sheet.energy`, written the direct
 way, to check the fast solver and to time it against:
 
 * the in-plane displacements (U, V) are unknowns next to the height W (3n² unknowns)
@@ -11,7 +11,7 @@ way, to check the fast solver and to time it against:
   gradient.
 
 Scaled variables: W = w/b, U = u k₀/ε_c, energy in Ē_f h ε_c² (see
-:mod:`sweepshell.numerics.sheet_energy`), reported relative to the flat film.
+:mod:`sweepshell.models.foundation_sheet.energy`), reported relative to the flat film.
 """
 
 from __future__ import annotations
@@ -21,7 +21,7 @@ from dataclasses import dataclass
 import numpy as np
 import scipy.optimize
 
-from sweepshell.numerics.sheet_energy import compute_substrate_stiffness
+from sweepshell.models.foundation_sheet.energy import compute_substrate_stiffness
 
 __all__ = ["ReferenceSheetMinimum", "evaluate_reference_energy", "minimize_reference_energy"]
 
@@ -88,7 +88,7 @@ def minimize_reference_energy(n: int, cells: int, substrate: str, poisson_ratio:
     Parameters
     ----------
     n, cells, substrate, poisson_ratio, overstrain
-        As in :func:`sweepshell.numerics.sheet_energy.make_sheet_problem`.
+        As in :func:`sweepshell.models.foundation_sheet.energy.make_sheet_problem`.
     height0
         Scaled start height (n × n).
     gradient_tolerance

@@ -8,7 +8,7 @@ the model documents:
   1961): P_c = (π/L)² min_m (m² + η/m²), η = (L/π)⁴, wavelength 2L/m; the onset
   confinement of an extensible strip is c_on = s P_c (s = √(BK)/A), zero if inextensible.
 * **fold criterion**: along the path, the crest contrast (largest crest over the median
-  crest, :func:`~sweepshell.numerics.strip_elastica.compute_crest_contrast`) first falls
+  crest, :func:`~sweepshell.models.foundation_strip.elastica.compute_crest_contrast`) first falls
   below ``fold_contrast`` as the imperfection's bump spreads into a wrinkle, then rises
   through it as the wrinkle localises; the fold confinement is that upward crossing
   (linear interpolation in c). If the contrast starts to rise again before it ever fell
@@ -25,13 +25,13 @@ from dataclasses import dataclass
 import numpy as np
 
 from sweepshell.models.base import Status
-from sweepshell.numerics.strip_continuation import (
+from sweepshell.models.foundation_strip.continuation import (
     PathEnd,
     StripPath,
     follow_confinement_path,
     solve_at_confinement,
 )
-from sweepshell.numerics.strip_elastica import (
+from sweepshell.models.foundation_strip.elastica import (
     compute_crest_contrast,
     compute_node_heights,
     make_strip_grid,
