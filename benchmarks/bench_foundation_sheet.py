@@ -28,13 +28,13 @@ import time
 import numpy as np
 
 from sweepshell.models import make_model
-from sweepshell.models.foundation_sheet.model import compute_sheet_scales
 from sweepshell.models.foundation_sheet.energy import (
     compute_height_field,
     make_sheet_problem,
     minimize_sheet_energy,
     project_field_to_modes,
 )
+from sweepshell.models.foundation_sheet.model import compute_sheet_scales
 from sweepshell.models.foundation_sheet.reference import minimize_reference_energy
 
 

@@ -25,7 +25,6 @@ from scipy.integrate import solve_bvp
 from scipy.optimize import root
 
 from sweepshell.models import make_model
-from sweepshell.models.foundation_strip.path import FoldWatch, compute_pinned_onset
 from sweepshell.models.foundation_strip.continuation import StripPath
 from sweepshell.models.foundation_strip.elastica import (
     compute_crest_contrast,
@@ -35,6 +34,7 @@ from sweepshell.models.foundation_strip.elastica import (
     make_strip_grid,
     make_strip_problem,
 )
+from sweepshell.models.foundation_strip.path import FoldWatch, compute_pinned_onset
 
 TWO_PI = 2.0 * np.pi
 

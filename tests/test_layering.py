@@ -108,7 +108,7 @@ def test_model_packages_import_only_the_seam_and_their_own_code():
             for line, target in imports_of(path):
                 allowed = (own, *MODEL_SEAM)
                 if not any(target == a or target.startswith(a + ".") for a in allowed):
-                    bad.append(f"{path.relative_to(root.parent)}:{line}: {target}")
+                    bad.append(f"{path.relative_to(ROOT.parent)}:{line}: {target}")
     assert not bad, "model packages import outside the model seam:\n" + "\n".join(bad)
 
 

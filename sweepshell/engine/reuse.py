@@ -19,8 +19,8 @@ from typing import Any
 
 import numpy as np
 
-from sweepshell.plan import SweepPlan
 from sweepshell.models.base import BatchResult, SweepModel
+from sweepshell.plan import SweepPlan
 from sweepshell.store import layout
 from sweepshell.store.layout import ATTR
 

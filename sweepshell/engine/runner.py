@@ -11,7 +11,7 @@ import contextlib
 import logging
 import os
 import time
-from collections.abc import Callable, Iterator, Sequence
+from collections.abc import Callable, Iterator
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
@@ -20,11 +20,11 @@ import numpy as np
 
 from sweepshell.engine.claims import ClaimBook
 from sweepshell.engine.observers import RunObserver, SilentObserver
-from sweepshell.plan import Block, ExecutorSpec, SweepPlan, choose_block_shape, iter_blocks
 from sweepshell.engine.reuse import Donor, find_donors
 from sweepshell.engine.worker import compute_block
 from sweepshell.models import make_model
 from sweepshell.models.base import Status, SweepModel
+from sweepshell.plan import Block, ExecutorSpec, SweepPlan, choose_block_shape, iter_blocks
 from sweepshell.store.reader import is_block_final, read_ledger
 from sweepshell.store.writer import (
     check_store_matches,

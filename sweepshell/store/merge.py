@@ -40,9 +40,9 @@ from typing import Any
 import numpy as np
 
 from sweepshell.about import __version__
-from sweepshell.plan import iter_blocks
 from sweepshell.errors import StoreMismatchError, StoreSchemaError
 from sweepshell.models.base import Status
+from sweepshell.plan import iter_blocks
 from sweepshell.store import layout
 from sweepshell.store.catalog import read_axis_order
 from sweepshell.store.layout import ATTR

@@ -43,9 +43,9 @@ from typing import Any
 
 import numpy as np
 
-from sweepshell.plan import iter_blocks
 from sweepshell.errors import StoreNotFoundError, StoreSchemaError
 from sweepshell.models.base import TRUSTED_STATUSES, Status
+from sweepshell.plan import iter_blocks
 from sweepshell.store import layout
 from sweepshell.store.catalog import read_axis_order
 from sweepshell.store.layout import ATTR

@@ -26,9 +26,9 @@ from typing import Any
 import numpy as np
 
 from sweepshell.about import CAUTION, __version__
-from sweepshell.plan import Block, SweepPlan
 from sweepshell.errors import StoreMismatchError, StoreSchemaError
 from sweepshell.models.base import BatchResult, SweepModel
+from sweepshell.plan import Block, SweepPlan
 from sweepshell.store import layout
 from sweepshell.store.layout import ATTR
 

@@ -12,9 +12,9 @@ import xarray as xr
 from sweepshell import open_sweep, run_sweep
 from sweepshell.cli.main import main
 from sweepshell.config.loader import load_plan
-from sweepshell.plan import choose_block_shape, iter_blocks
 from sweepshell.models.base import Status
 from sweepshell.models.winkler_column.model import winkler_column_critical
+from sweepshell.plan import choose_block_shape, iter_blocks
 from tests.conftest import COLUMN_SWEEP, write_sweep
 
 

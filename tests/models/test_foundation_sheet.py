@@ -14,7 +14,6 @@ import pytest
 from sweepshell.errors import ParameterError
 from sweepshell.models import Status, get_model, make_model
 from sweepshell.models.base import TRUSTED_STATUSES
-from sweepshell.models.foundation_sheet.model import FoundationSheetModel, compute_sheet_scales
 from sweepshell.models.foundation_sheet.energy import (
     compute_height_field,
     compute_variable_of_height,
@@ -23,6 +22,7 @@ from sweepshell.models.foundation_sheet.energy import (
     minimize_sheet_energy,
     project_field_to_modes,
 )
+from sweepshell.models.foundation_sheet.model import FoundationSheetModel, compute_sheet_scales
 
 # E_f/E_s = 1000 at equal Poisson ratios: ε_c = ¼(3/1000)^{2/3}
 EPS_C = 0.25 * (3.0 / 1000.0) ** (2.0 / 3.0)

@@ -6,8 +6,6 @@ import numpy as np
 import pytest
 
 from sweepshell.models import TRUSTED_STATUSES, Status, get_model, make_model
-from sweepshell.models.foundation_strip.model import FoundationStripModel
-from sweepshell.models.foundation_strip.path import FoldWatch, solve_strip
 from sweepshell.models.foundation_strip.continuation import StripPath
 from sweepshell.models.foundation_strip.elastica import (
     compute_crest_contrast,
@@ -18,6 +16,8 @@ from sweepshell.models.foundation_strip.elastica import (
     make_strip_grid,
     make_strip_problem,
 )
+from sweepshell.models.foundation_strip.model import FoundationStripModel
+from sweepshell.models.foundation_strip.path import FoldWatch, solve_strip
 
 TWO_PI = 2.0 * np.pi
 

@@ -6,7 +6,6 @@ import numpy as np
 import pytest
 
 from sweepshell.models import Status, make_model
-from sweepshell.models.foundation_strip.path import solve_strip
 from sweepshell.models.foundation_strip.elastica import (
     compute_crest_contrast,
     compute_discrete_onset,
@@ -14,6 +13,7 @@ from sweepshell.models.foundation_strip.elastica import (
     count_half_waves,
     make_strip_grid,
 )
+from sweepshell.models.foundation_strip.path import solve_strip
 
 TWO_PI = 2.0 * np.pi
 

@@ -243,7 +243,7 @@ def test_pinned_deep_cap_is_bistable_with_a_near_mirror_inverted_state():
 def test_locating_crossings_inside_the_step_keeps_the_first_bifurcation(monkeypatch):
     # common practice, no source: refining only the wave numbers that change sign in the earliest
     # sampled part of the flipped step gives the same critical state as refining all of them
-    import sweepshell.models.shallow_cap.solver as solver
+    from sweepshell.models.shallow_cap import solver
 
     lam = np.array([6.0, 8.5, 11.0, 14.0, 17.0, 20.0])
     inputs = make_inputs(lam, dimple_amplitude=np.array([0.0, 0.1, 0.0, 0.3, 0.0, 0.05]))

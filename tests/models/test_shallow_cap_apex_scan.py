@@ -195,7 +195,7 @@ def test_deep_cap_bifurcation_is_local_to_the_indenter():
 def test_scanning_in_rounds_finds_the_same_first_flip(monkeypatch):
     # common practice, no source: evaluating the path samples in rounds and stopping each cap at its first
     # flip gives the same critical states as evaluating every sample at once
-    import sweepshell.models.shallow_cap.solver as solver
+    from sweepshell.models.shallow_cap import solver
 
     model = make_model("shallow_cap", {"check_bistability": False, "path_samples": 8})
     inputs = make_inputs([10.0, 20.0, 8.0], load=np.array(["apex_force", "apex_force", "pressure"]))

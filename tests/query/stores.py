@@ -10,9 +10,9 @@ from collections.abc import Sequence
 from pathlib import Path
 
 from sweepshell.config.loader import load_plan
-from sweepshell.plan import iter_blocks
 from sweepshell.engine.runner import prepare_store
 from sweepshell.engine.worker import compute_block
+from sweepshell.plan import iter_blocks
 from tests.conftest import COLUMN_SWEEP, CONFIGS, write_sweep
 
 #: a column sweep with a few failed and outside-validity points (load_ratio == 0.5 fails; eta > 500 is outside)

@@ -15,9 +15,9 @@ import sweepshell.query  # noqa: F401  (registers the .sweep accessor)
 from sweepshell import open_sweep
 from sweepshell.cli.main import main
 from sweepshell.engine.evaluate import store_evaluator
+from sweepshell.models.winkler_column.model import WinklerColumnModel, winkler_column_critical
 from sweepshell.query.boundary import find_boundary
 from sweepshell.store.points import read_points
-from sweepshell.models.winkler_column.model import WinklerColumnModel, winkler_column_critical
 from tests.query.stores import THREE_AXES, make_column_store
 
 # The stable/buckled boundary of the column is load_ratio = P_cr(η) L²/(π²B) = min_m (m² + η/m²)

@@ -14,8 +14,8 @@ from sweepshell import CAUTION, open_sweep
 from sweepshell.cli.main import main
 from sweepshell.errors import QueryError
 from sweepshell.models.base import Status
-from sweepshell.query.expression import check_expression
 from sweepshell.models.winkler_column.model import winkler_column_critical
+from sweepshell.query.expression import check_expression
 from tests.query.stores import FAULTY_OVERRIDES, make_column_store
 
 

@@ -13,8 +13,8 @@ import sweepshell.query  # noqa: F401  (registers the .sweep accessor)
 from sweepshell import open_sweep
 from sweepshell.cli.main import main
 from sweepshell.engine.refine import node_crossings, refine_store
-from sweepshell.store.points import read_points
 from sweepshell.models.winkler_column.model import winkler_column_critical
+from sweepshell.store.points import read_points
 from tests.query.stores import make_column_store
 
 # Closed form of the stable/buckled boundary: load_ratio = min_m (m² + η/m²) (Timoshenko & Gere 1961).

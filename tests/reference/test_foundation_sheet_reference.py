@@ -14,12 +14,12 @@ import numpy as np
 import pytest
 
 from sweepshell.models import Status
-from sweepshell.models.foundation_sheet.model import FoundationSheetModel
 from sweepshell.models.foundation_sheet.energy import (
     compute_variable_of_height,
     make_sheet_problem,
     minimize_sheet_energy,
 )
+from sweepshell.models.foundation_sheet.model import FoundationSheetModel
 from tests.models.test_foundation_sheet import make_inputs
 
 H = 1e-6

@@ -8,8 +8,8 @@ from scipy.integrate import solve_bvp
 from scipy.optimize import brentq
 
 from sweepshell.models import Status, make_model
-from sweepshell.models.foundation_strip.path import compute_pinned_onset, solve_strip
 from sweepshell.models.foundation_strip.elastica import compute_discrete_onset, make_strip_grid
+from sweepshell.models.foundation_strip.path import compute_pinned_onset, solve_strip
 
 TWO_PI = 2.0 * np.pi
 
