@@ -8,7 +8,6 @@ could not be compared.
 
 from __future__ import annotations
 
-import json
 import logging
 import math
 import os
@@ -22,7 +21,8 @@ from sweepshell.errors import QueryError, StoreMismatchError
 from sweepshell.models import make_model
 from sweepshell.models.base import TRUSTED_STATUSES, BatchResult, SweepModel
 from sweepshell.query.boundary import EvaluatorFactory, RegimeEvaluator
-from sweepshell.store.layout import ATTR
+from sweepshell.store import metadata
+from sweepshell.store.metadata import ATTR
 
 __all__ = ["PointEvaluator", "make_store_model", "store_evaluator"]
 
@@ -30,7 +30,7 @@ log = logging.getLogger(__name__)
 
 
 def _settings_from_json(text: str | None) -> dict[str, Any]:
-    settings: dict[str, Any] = json.loads(text or "{}")
+    settings: dict[str, Any] = metadata.load_record(text or "{}")
     # the store writes NaN settings as null (JSON has no NaN); give them back as NaN
     return {k: (math.nan if v is None else v) for k, v in settings.items()}
 
@@ -83,8 +83,9 @@ class PointEvaluator:
 
     def __post_init__(self) -> None:
         self.model = make_store_model(self.attrs)
-        self._fixed = {k: (math.nan if v is None else v) for k, v in json.loads(self.attrs[ATTR.fixed]).items()}
-        self._axes = list(json.loads(self.attrs[ATTR.axes]))
+        fixed = metadata.read_record(self.attrs, ATTR.fixed)
+        self._fixed = {k: (math.nan if v is None else v) for k, v in fixed.items()}
+        self._axes = list(metadata.read_record(self.attrs, ATTR.axes))
 
     def solve(self, varied: Mapping[str, np.ndarray]) -> BatchResult:
         """Evaluate the model where the named axes take the given values; record the points."""

@@ -25,12 +25,12 @@ from sweepshell.engine.worker import compute_block
 from sweepshell.models import make_model
 from sweepshell.models.base import Status, SweepModel
 from sweepshell.plan import Block, ExecutorSpec, SweepPlan, choose_block_shape, iter_blocks
+from sweepshell.store.metadata import is_store
 from sweepshell.store.reader import is_block_final, read_ledger
 from sweepshell.store.writer import (
     check_store_matches,
     clean_stale_temporaries,
     create_store,
-    is_store,
     store_block_shape,
 )
 

@@ -19,7 +19,7 @@ import numpy as np
 from sweepshell.about import CAUTION
 from sweepshell.query.boundary import find_boundary
 from sweepshell.query.table import describe_fields, select_points
-from sweepshell.store.layout import ATTR
+from sweepshell.store.metadata import ATTR
 
 if TYPE_CHECKING:
     import xarray as xr

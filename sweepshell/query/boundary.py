@@ -260,10 +260,10 @@ def boundary_to_records(boundary: Boundary, extra: Mapping[str, Any] | None = No
 def slice_codes(view: Any) -> np.ndarray:
     """Return the regime codes of a (sliced) store Dataset, −1 where the status is not trustworthy."""
     from sweepshell.models.base import TRUSTED_STATUSES
-    from sweepshell.store import layout
+    from sweepshell.store import metadata
 
-    status = np.asarray(view[layout.STATUS_VAR].values)
-    regime = np.asarray(view[layout.REGIME_VAR].values).astype(np.int64)
+    status = np.asarray(view[metadata.STATUS_VAR].values)
+    regime = np.asarray(view[metadata.REGIME_VAR].values).astype(np.int64)
     return np.where(np.isin(status, sorted(int(s) for s in TRUSTED_STATUSES)), regime, -1)
 
 
@@ -272,15 +272,15 @@ def known_points(points: Mapping[str, np.ndarray] | None, fixed: Mapping[str, An
     """Return the trusted point-list entries of a slice as ``x``, ``y``, ``regime`` arrays."""
     from sweepshell.models.base import TRUSTED_STATUSES
     from sweepshell.query.slicing import points_in_slice
-    from sweepshell.store import layout
+    from sweepshell.store import metadata
 
     idx = points_in_slice(points, fixed)
     if points is None or idx is None or idx.size == 0:
         return None
-    status = np.asarray(points[layout.STATUS_VAR])[idx]
+    status = np.asarray(points[metadata.STATUS_VAR])[idx]
     ok = np.isin(status, sorted(int(s) for s in TRUSTED_STATUSES))
     out = {"x": np.asarray(points[x_axis], float)[idx][ok], "y": np.asarray(points[y_axis], float)[idx][ok],
-           "regime": np.asarray(points[layout.REGIME_VAR]).astype(np.int64)[idx][ok]}
+           "regime": np.asarray(points[metadata.REGIME_VAR]).astype(np.int64)[idx][ok]}
     if "level" in points:
         out["level"] = np.asarray(points["level"]).astype(np.int64)[idx][ok]
     return out
