@@ -176,3 +176,10 @@ def model_inputs(model: Any, **columns: Any) -> dict[str, np.ndarray]:
             out[p.name] = np.broadcast_to(np.asarray(np.nan if value is None else value, dtype=np.float64),
                                           (n,)).copy()
     return out
+
+
+def cap_inputs(lam: Any, **columns: Any) -> dict[str, np.ndarray]:
+    """Return ``shallow_cap`` inputs at shell parameters ``lam``, the other parameters at their defaults."""
+    from sweepshell.models.shallow_cap.model import ShallowCapModel
+
+    return model_inputs(ShallowCapModel, shell_parameter=np.atleast_1d(np.asarray(lam, dtype=float)), **columns)

@@ -101,8 +101,12 @@ def test_imports_point_down_only():
 
 
 def test_model_packages_import_only_the_seam_and_their_own_code():
+    from sweepshell.models import list_models
+
+    packages = sorted(p for p in (ROOT / "models").iterdir() if (p / "__init__.py").is_file())
+    assert {p.name for p in packages} >= set(list_models()), "every registered model is a package"
     bad = []
-    for package in sorted(p for p in (ROOT / "models").iterdir() if (p / "__init__.py").is_file()):
+    for package in packages:
         own = f"sweepshell.models.{package.name}"
         for path in sorted(package.rglob("*.py")):
             for line, target in imports_of(path):
@@ -143,9 +147,11 @@ def test_the_check_names_the_file_line_and_edge(tmp_path, text, expected):
 
 
 def test_registry_names_match_the_model_classes():
-    from sweepshell.models import get_model, list_models
+    from sweepshell.models import _REGISTRY, get_model, list_models
 
     names = list_models()
     assert {"shallow_cap", "foundation_strip", "foundation_sheet", "winkler_column"} <= set(names)
     for name in names:
-        assert get_model(name).name == name
+        module, _ = _REGISTRY[name]
+        assert get_model(name).name == name, f"registry key {name!r} names a class called {get_model(name).name!r}"
+        assert module == f"sweepshell.models.{name}.model", f"model {name!r} lives outside its package"

@@ -21,7 +21,7 @@ The classification rule (applied to the height w on a square periodic n × n gri
 7. **labyrinth** otherwise (ridges meandering through all directions).
 
 Thresholds are fixed here (they are part of the model version) and tested on synthetic
-fields in ``tests/models/test_foundation_sheet_patterns.py``.
+fields in ``tests/models/foundation_sheet/test_patterns.py``.
 
 Pattern names follow Audoly & Boudaoud 2008 (JMPS 56:2401) and Cai, Breid, Crosby, Suo &
 Hutchinson 2011 (JMPS 59:1094).

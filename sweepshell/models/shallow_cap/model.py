@@ -172,7 +172,7 @@ Resolution
 with λ (14 + λ with the asymmetric scan, max(14 + λ, 8 + 1.5λ) without; dimpled caps also
 4 + 2λ/b; apex forces 16 + 1.4λ; even, 16 … 96), fitted to the measured need for 3·10⁻⁷
 relative accuracy of the critical load over λ = 3.5 … 30 and checked against grids twice as
-fine (tests/models/test_shallow_cap_resolution.py). The rule for perfect caps without the scan
+fine (tests/models/shallow_cap/test_resolution.py). The rule for perfect caps without the scan
 was checked at every 0.1 of λ = 3.5 … 30 for clamped and pinned, immovable and sliding edges,
 ν = 0.3 and 0.45, against 84 nodes: within 4.8·10⁻⁷ (2,128 points). Dimpled caps and apex forces use nodes stretched
 towards the axis, x = (1 − β)ξ + βξ³ of the Chebyshev points ξ (β = ``dimple_grid_stretch``
@@ -447,7 +447,7 @@ def get_mismatch_nodes(settings: Mapping[str, Any], lam: np.ndarray) -> np.ndarr
     (:func:`choose_grid_centres`): ``nodes``, or when automatic 44 + 1.8λ (even, 48 … 96), the
     measured need for 10⁻⁴ relative accuracy of the critical load (against 160 nodes: 48 nodes
     leave 2·10⁻⁴ at λ = 8 and 12, 10⁻³ at λ = 20; 64 nodes 4·10⁻⁵ at λ = 12, 80 nodes 7·10⁻⁵ at
-    λ = 20; tests/models/test_shallow_cap_mismatch_sharp.py). Smoothed edge: the edge sits
+    λ = 20; tests/models/shallow_cap/test_mismatch_sharp.py). Smoothed edge: the edge sits
     inside the cap, where the Chebyshev grid is coarsest; below w·nodes ≈ 3.4 the results lose
     digits fast (10⁻⁶ relative at 3.4, 10⁻³ at 2), so ``nodes`` (when automatic max(34,
     16 + 1.5λ), even) is raised until w·nodes ≥ 3.4.
@@ -482,7 +482,7 @@ def choose_grids(settings: Mapping[str, Any], lam: np.ndarray, apex: np.ndarray,
     """Return each point's radial grid: node count and stretch β (see ``make_radial_grid``).
 
     With ``nodes`` 0 (automatic) the count follows the measured need for 3·10⁻⁷ relative
-    accuracy of the critical load (tests/models/test_shallow_cap_resolution.py; DEVELOPERS.md).
+    accuracy of the critical load (tests/models/shallow_cap/test_resolution.py; theory.md).
     It grows about linearly with λ (edge and ridge layers of width ∝ 1/λ; a dimple of width b
     over a/λ has width b/λ in x). Grids are stretched towards the axis where the solution
     varies fastest there: dimpled caps (``dimple_grid_stretch``) and apex forces

@@ -18,14 +18,9 @@ from sweepshell.models.foundation_strip.elastica import (
 )
 from sweepshell.models.foundation_strip.model import FoundationStripModel
 from sweepshell.models.foundation_strip.path import FoldWatch, solve_strip
+from tests.conftest import model_inputs
 
 TWO_PI = 2.0 * np.pi
-
-
-def make_inputs(model, **columns):
-    n = max(np.size(v) for v in columns.values())
-    return {p.name: np.broadcast_to(np.asarray(columns.get(p.name, p.default)), (n,)).copy()
-            for p in model.parameters}
 
 
 def test_registry_and_declarations():
@@ -49,7 +44,7 @@ def test_contract_shapes_nan_and_batch_invariance():
         "confinement": [0.0, 0.0, 0.01, 0.03, 0.0, 0.3],
         "axial_force": [0.0, 0.0, 0.0, 0.0, 1e20, 0.0],  # the second flexure point buckles
     }
-    whole = model.solve_batch(make_inputs(model, **cols))
+    whole = model.solve_batch(model_inputs(model, **cols))
     assert whole.status.dtype == np.uint8 and whole.regime.dtype == np.int8
     assert list(whole.status) == [1, 1, 1, 1, Status.outside_validity, Status.outside_validity]
     assert list(whole.regime) == [0, 0, 1, 2, -1, -1]
@@ -59,7 +54,7 @@ def test_contract_shapes_nan_and_batch_invariance():
         assert np.all(np.isnan(v[~trusted])), name
     # batch invariance and determinism: each point alone gives the same answer
     for i in range(6):
-        alone = model.solve_batch(make_inputs(model, **{k: [v[i]] for k, v in cols.items()}))
+        alone = model.solve_batch(model_inputs(model, **{k: [v[i]] for k, v in cols.items()}))
         assert alone.status[0] == whole.status[i] and alone.regime[0] == whole.regime[i]
         for name, v in whole.outputs.items():
             np.testing.assert_array_equal(alone.outputs[name][0], v[i], err_msg=name)
@@ -68,8 +63,9 @@ def test_contract_shapes_nan_and_batch_invariance():
 def test_points_sharing_a_strip_share_its_fold():
     # B and K only rescale; a sweep over confinement reuses one path
     model = make_model("foundation_strip")
-    res = model.solve_batch(make_inputs(model, bending_stiffness=[1.0, 16.0, 1.0], foundation_stiffness=[1.0, 1.0, 1.0],
-                                        cubic_stiffness=[0.0, 0.0, 0.0], confinement=[0.005, 0.04, 0.04]))
+    res = model.solve_batch(model_inputs(model, bending_stiffness=[1.0, 16.0, 1.0],
+                                         foundation_stiffness=[1.0, 1.0, 1.0], cubic_stiffness=[0.0, 0.0, 0.0],
+                                         confinement=[0.005, 0.04, 0.04]))
     fold = res.outputs["fold_confinement"]
     assert fold[0] == fold[1] == fold[2]
     assert list(res.regime) == [1, 2, 2]
@@ -80,12 +76,12 @@ def test_points_sharing_a_strip_share_its_fold():
 def test_extensible_strip_is_flat_below_onset_and_can_skip_the_path():
     # onset confinement = P_c/A = 2√(BK)/A = 0.002 for B = K = 1, A = 1000
     fast = make_model("foundation_strip", {"follow_path_below_onset": False})
-    res = fast.solve_batch(make_inputs(fast, stretching_stiffness=1000.0, confinement=[0.0, 0.0019, 0.0021]))
+    res = fast.solve_batch(model_inputs(fast, stretching_stiffness=1000.0, confinement=[0.0, 0.0019, 0.0021]))
     assert list(res.regime[:2]) == [0, 0] and res.regime[2] in (1, 2)
     assert np.all(np.isnan(res.outputs["fold_confinement"][:2]))
     assert res.outputs["fold_confinement"][2] > 0.002
     full = make_model("foundation_strip")
-    res2 = full.solve_batch(make_inputs(full, stretching_stiffness=1000.0, confinement=[0.0019]))
+    res2 = full.solve_batch(model_inputs(full, stretching_stiffness=1000.0, confinement=[0.0019]))
     assert res2.regime[0] == 0 and res2.outputs["fold_confinement"][0] == res.outputs["fold_confinement"][2]
 
 
@@ -163,7 +159,7 @@ def test_fold_watch_rules():
 
 def test_larger_imperfection_folds_earlier():
     model = make_model("foundation_strip")
-    res = model.solve_batch(make_inputs(model, imperfection=[1e-4, 1e-3, 1e-2], confinement=0.02))
+    res = model.solve_batch(model_inputs(model, imperfection=[1e-4, 1e-3, 1e-2], confinement=0.02))
     fold = res.outputs["fold_confinement"]
     assert np.all(res.status == Status.ok)
     assert fold[0] > fold[1] > fold[2]
@@ -171,7 +167,7 @@ def test_larger_imperfection_folds_earlier():
 
 def test_contact_is_outside_validity():
     model = make_model("foundation_strip")
-    res = model.solve_batch(make_inputs(model, confinement=[0.5, 0.03]))
+    res = model.solve_batch(model_inputs(model, confinement=[0.5, 0.03]))
     assert res.status[0] == Status.outside_validity and res.regime[0] == -1
     assert res.status[1] == Status.ok and res.regime[1] == 2
     assert np.all(np.isnan([v[0] for v in res.outputs.values()]))

@@ -2,7 +2,7 @@
 
 Common practice, no source: a result counts as resolved when a grid about twice as fine changes
 it by less than the stated tolerance. The automatic node counts (``choose_grids``) were fitted
-to the measured need for 3·10⁻⁷ relative accuracy over λ = 3.5 … 30 (DEVELOPERS.md).
+to the measured need for 3·10⁻⁷ relative accuracy over λ = 3.5 … 30 (sweepshell/models/shallow_cap/theory.md).
 """
 
 from __future__ import annotations
@@ -12,13 +12,13 @@ import pytest
 
 from sweepshell.models import make_model
 from sweepshell.models.shallow_cap.model import choose_grids
-from tests.models.test_shallow_cap import make_inputs
+from tests.conftest import cap_inputs
 
 AXISYMMETRIC = {"asymmetric_modes": 0, "check_bistability": False, "max_pressure": 3.0}
 
 
 def critical(settings, lam, **over):  # type: ignore[no-untyped-def]
-    out = make_model("shallow_cap", settings).solve_batch(make_inputs(lam, **over)).outputs
+    out = make_model("shallow_cap", settings).solve_batch(cap_inputs(lam, **over)).outputs
     return out["critical_load"], out["critical_wavenumber"]
 
 

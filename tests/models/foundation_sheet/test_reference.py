@@ -20,13 +20,13 @@ from sweepshell.models.foundation_sheet.energy import (
     minimize_sheet_energy,
 )
 from sweepshell.models.foundation_sheet.model import FoundationSheetModel
-from tests.models.test_foundation_sheet import make_inputs
+from tests.models.foundation_sheet.test_model import sheet_inputs
 
 H = 1e-6
 
 
 def _solve(model: FoundationSheetModel, **columns):  # type: ignore[no-untyped-def]
-    return model.solve_batch(make_inputs(model, film_thickness=[H] * len(next(iter(columns.values()))),
+    return model.solve_batch(sheet_inputs(model, film_thickness=[H] * len(next(iter(columns.values()))),
                                          **columns))
 
 

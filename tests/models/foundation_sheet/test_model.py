@@ -1,7 +1,7 @@
 """``foundation_sheet``: the model seam, statuses, the discrete energy and its minimiser.
 
 Physics checks against published values live in
-``tests/reference/test_foundation_sheet_reference.py``.
+``tests/models/foundation_sheet/test_reference.py``.
 """
 
 from __future__ import annotations
@@ -23,22 +23,20 @@ from sweepshell.models.foundation_sheet.energy import (
     project_field_to_modes,
 )
 from sweepshell.models.foundation_sheet.model import FoundationSheetModel, compute_sheet_scales
+from tests.conftest import model_inputs
 
 # E_f/E_s = 1000 at equal Poisson ratios: ε_c = ¼(3/1000)^{2/3}
 EPS_C = 0.25 * (3.0 / 1000.0) ** (2.0 / 3.0)
 
 
-def make_inputs(model: FoundationSheetModel, **columns: Any) -> dict[str, np.ndarray]:
-    """Return solve_batch inputs: defaults, a 1000:1 film/substrate pair, then ``columns``."""
-    n = len(next(iter(columns.values()))) if columns else 1
-    base: dict[str, Any] = {p.name: p.default for p in model.parameters}
-    base.update(film_modulus=1e9, substrate_modulus=1e6, film_poisson_ratio=0.3,
-                substrate_poisson_ratio=0.3, modes=16, cell_wavelengths=2)
-    out = {}
-    for name, default in base.items():
-        value = columns.get(name, [default] * n)
-        out[name] = np.asarray(value, dtype=object if isinstance(default, str) else float)
-    return out
+#: a 1000:1 film/substrate pair of equal Poisson ratios on a small cell: the base of every case here
+SHEET_BASE = {"film_modulus": 1e9, "substrate_modulus": 1e6, "film_poisson_ratio": 0.3,
+              "substrate_poisson_ratio": 0.3, "modes": 16, "cell_wavelengths": 2}
+
+
+def sheet_inputs(model: FoundationSheetModel, **columns: Any) -> dict[str, np.ndarray]:
+    """Return solve_batch inputs: defaults, the 1000:1 pair of ``SHEET_BASE``, then ``columns``."""
+    return model_inputs(model, **{**SHEET_BASE, **columns})
 
 
 @pytest.fixture(scope="module")
@@ -77,7 +75,7 @@ def test_check_combination_rejects_unresolved_cells() -> None:
 def test_batch_shapes_dtypes_statuses_and_nan(model: FoundationSheetModel) -> None:
     strains = [0.5, 1.5, 1.5, 0.0, -1.0, 50.0]
     ratio = [1000, 1000, 1000, 1000, 1000, 1000]
-    inputs = make_inputs(model, strain_x=[s * EPS_C for s in strains],
+    inputs = sheet_inputs(model, strain_x=[s * EPS_C for s in strains],
                          strain_y=[0.0, 0.0, 0.0, 0.0, 0.0, 0.0],
                          substrate=["half_space", "half_space", "winkler", "half_space", "half_space",
                                     "half_space"],
@@ -104,7 +102,7 @@ def test_batch_shapes_dtypes_statuses_and_nan(model: FoundationSheetModel) -> No
 
 
 def test_low_contrast_and_unresolved_cells_are_outside_validity(model: FoundationSheetModel) -> None:
-    res = model.solve_batch(make_inputs(model, film_modulus=[2e6, 1e9], strain_x=[0.03, 2 * EPS_C],
+    res = model.solve_batch(sheet_inputs(model, film_modulus=[2e6, 1e9], strain_x=[0.03, 2 * EPS_C],
                                         modes=[16, 16], cell_wavelengths=[2, 8]))
     assert list(res.status) == [Status.outside_validity] * 2 and list(res.regime) == [-1, -1]
 
@@ -112,9 +110,9 @@ def test_low_contrast_and_unresolved_cells_are_outside_validity(model: Foundatio
 def test_deterministic_and_batch_invariant(model: FoundationSheetModel) -> None:
     sx = [1.6 * EPS_C, 1.2 * EPS_C, 1.1 * EPS_C]
     sy = [0.2 * EPS_C, 1.2 * EPS_C, 0.0]
-    together = model.solve_batch(make_inputs(model, strain_x=sx, strain_y=sy))
-    again = model.solve_batch(make_inputs(model, strain_x=sx, strain_y=sy))
-    alone = model.solve_batch(make_inputs(model, strain_x=sx[1:2], strain_y=sy[1:2]))
+    together = model.solve_batch(sheet_inputs(model, strain_x=sx, strain_y=sy))
+    again = model.solve_batch(sheet_inputs(model, strain_x=sx, strain_y=sy))
+    alone = model.solve_batch(sheet_inputs(model, strain_x=sx[1:2], strain_y=sy[1:2]))
     for name, arr in together.outputs.items():
         np.testing.assert_array_equal(arr, again.outputs[name])
         np.testing.assert_array_equal(arr[1], alone.outputs[name][0])
@@ -123,13 +121,13 @@ def test_deterministic_and_batch_invariant(model: FoundationSheetModel) -> None:
 
 def test_iteration_cap_gives_not_converged_with_nan() -> None:
     capped = FoundationSheetModel(seeds=(1,), max_iterations=2, height_samples=4)
-    res = capped.solve_batch(make_inputs(capped, strain_x=[2.0 * EPS_C]))
+    res = capped.solve_batch(sheet_inputs(capped, strain_x=[2.0 * EPS_C]))
     assert res.status[0] == Status.not_converged and res.regime[0] == -1
     assert all(np.all(np.isnan(v)) for v in res.outputs.values())
 
 
 def test_height_output_samples_the_equilibrium(model: FoundationSheetModel) -> None:
-    res = model.solve_batch(make_inputs(model, strain_x=[2.0 * EPS_C]))
+    res = model.solve_batch(sheet_inputs(model, strain_x=[2.0 * EPS_C]))
     height = res.outputs["height"][0]
     # uniaxial stripes along x: every row is the same profile, rms matches the fine field
     np.testing.assert_allclose(height, np.broadcast_to(height[0], height.shape), atol=1e-3 * np.abs(height).max())
@@ -189,7 +187,7 @@ def test_flat_start_stays_flat_and_zero_energy() -> None:
 def test_swapping_strains_turns_the_stripes(model: FoundationSheetModel) -> None:
     # uniaxial-dominated loading: stripes whose wavevector follows the larger compression
     sx, sy = [1.8 * EPS_C, 0.2 * EPS_C], [0.2 * EPS_C, 1.8 * EPS_C]
-    res = model.solve_batch(make_inputs(model, strain_x=sx, strain_y=sy))
+    res = model.solve_batch(sheet_inputs(model, strain_x=sx, strain_y=sy))
     assert list(res.regime) == [1, 1]
     h0, h1 = res.outputs["height"]
     # stripes normal to x: the height varies along x only, and the swap transposes it
@@ -227,7 +225,7 @@ def test_numerical_trouble_is_status_failed_not_an_exception(monkeypatch: pytest
 
     monkeypatch.setattr(module, "minimize_sheet_energy", explode)
     model = FoundationSheetModel(seeds=(1,), height_samples=4)
-    res = model.solve_batch(make_inputs(model, strain_x=[2.0 * EPS_C, 0.5 * EPS_C]))
+    res = model.solve_batch(sheet_inputs(model, strain_x=[2.0 * EPS_C, 0.5 * EPS_C]))
     assert list(res.status) == [Status.failed, Status.no_instability]
     assert res.regime[0] == -1 and res.regime[1] == 0
     assert all(np.all(np.isnan(v[0])) for v in res.outputs.values())

@@ -15,8 +15,8 @@ import pytest
 from sweepshell.models import make_model
 from sweepshell.models.shallow_cap.model import choose_grid_centres, choose_grids
 from sweepshell.models.shallow_cap.solver import make_problem, solve_caps
-from tests.models.test_shallow_cap import make_inputs
-from tests.reference.test_shallow_cap_mismatch_reference import NU, disc_inclusion_stress, linear_state
+from tests.conftest import cap_inputs
+from tests.models.shallow_cap.test_mismatch_reference import NU, disc_inclusion_stress, linear_state
 
 FAST = {"check_bistability": False, "asymmetric_modes": 8, "path_samples": 8}
 DISC = {"lam": 8.0, "mismatch_strain": -6.0}
@@ -27,7 +27,7 @@ def critical(case, **settings):
     """Return the critical load and wave number of a case (modes up to 14) with these settings."""
     case = dict(case)
     model = make_model("shallow_cap", {**FAST, "asymmetric_modes": 14, **settings})
-    res = model.solve_batch(make_inputs([case.pop("lam")], load="mismatch", **case))
+    res = model.solve_batch(cap_inputs([case.pop("lam")], load="mismatch", **case))
     return res.outputs["critical_load"][0], res.outputs["critical_wavenumber"][0]
 
 
@@ -99,7 +99,7 @@ def test_sharp_edge_is_the_limit_of_smoothed_edges(case, automatic_nodes):
 @pytest.mark.parametrize("annulus", [False, True])
 def test_flat_plate_with_a_sharp_disc_is_the_lame_inclusion(immovable, annulus):
     # Lamé disc inclusion, re-derived (Timoshenko & Goodier 1951, thermal stresses in a thin
-    # disc; see tests/reference/test_shallow_cap_mismatch_reference.py): with the sharp edge on
+    # disc; see tests/models/shallow_cap/test_mismatch_reference.py): with the sharp edge on
     # the clustered grid the stresses hold at every node, the edge node included, where the
     # hoop stress is the mean of its one-sided values; λ = 0.01 (curvature coupling O(λ⁴))
     rho = 0.6
@@ -144,9 +144,9 @@ def test_sharp_edge_is_the_default_and_points_with_other_radii_get_their_own_gri
     np.testing.assert_array_equal(old, [34, 34, 46, 62])  # max(34, 16 + 1.5λ) and w·nodes ≥ 3.4
     # one batch with two radii solves each on its own grid: same answers as alone
     model = make_model("shallow_cap", FAST)
-    both = model.solve_batch(make_inputs([8.0, 8.0], load="mismatch", mismatch_strain=-6.0,
+    both = model.solve_batch(cap_inputs([8.0, 8.0], load="mismatch", mismatch_strain=-6.0,
                                          mismatch_radius=np.array([0.5, 0.6])))
-    alone = model.solve_batch(make_inputs([8.0], load="mismatch", mismatch_strain=-6.0, mismatch_radius=0.6))
+    alone = model.solve_batch(cap_inputs([8.0], load="mismatch", mismatch_strain=-6.0, mismatch_radius=0.6))
     assert both.outputs["critical_load"][1] == alone.outputs["critical_load"][0]
     assert both.outputs["critical_load"][0] == pytest.approx(-3.8687, abs=2e-4)
     with pytest.raises(ValueError, match="mismatch_step_width"):

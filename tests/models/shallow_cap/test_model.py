@@ -10,26 +10,10 @@ from sweepshell.models import Status, make_model
 from sweepshell.models.shallow_cap.kernels import CapPathProblem
 from sweepshell.models.shallow_cap.solver import make_problem
 from sweepshell.numerics.arclength import compute_tangent
+from tests.conftest import cap_inputs
 
 NU = 0.3
 C = np.sqrt(3.0 * (1.0 - NU**2))
-
-
-def make_inputs(lam, **over):
-    lam = np.atleast_1d(np.asarray(lam, dtype=float))
-    n = lam.size
-    base = {"shell_parameter": lam, "poisson_ratio": np.full(n, NU), "edge": np.array(["clamped"] * n),
-            "edge_inplane": np.array(["immovable"] * n), "load": np.array(["pressure"] * n),
-            "dimple_amplitude": np.zeros(n), "dimple_width": np.full(n, 2.0),
-            "mismatch_strain": np.full(n, -8.0), "mismatch_radius": np.full(n, 0.5),
-            "mismatch_region": np.array(["disc"] * n)}
-    for k in ("thickness", "sphere_radius", "base_radius", "youngs_modulus"):
-        base[k] = np.full(n, np.nan)
-    for k, v in over.items():
-        base[k] = np.asarray(v) if np.ndim(v) else np.full(n, v, dtype=object if isinstance(v, str) else float)
-        if isinstance(v, str):
-            base[k] = base[k].astype(str)
-    return base
 
 
 def make_initial_tangent(pb: CapPathProblem) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
@@ -78,7 +62,7 @@ def test_linear_pressure_response_matches_bessel_solution(lam):
 
 def test_outputs_nan_exactly_where_untrusted_and_dtypes():
     model = make_model("shallow_cap", {"asymmetric_modes": 4, "path_samples": 16})
-    res = model.solve_batch(make_inputs([2.0, 4.0, 8.0, 40.0]))
+    res = model.solve_batch(cap_inputs([2.0, 4.0, 8.0, 40.0]))
     trusted = np.isin(res.status, [Status.ok, Status.no_instability])
     assert res.status.dtype == np.uint8 and res.regime.dtype == np.int8
     assert list(res.status) == [Status.no_instability, Status.ok, Status.ok, Status.outside_validity]
@@ -95,9 +79,9 @@ def test_outputs_nan_exactly_where_untrusted_and_dtypes():
 def test_batch_invariance_and_determinism():
     model = make_model("shallow_cap", {"asymmetric_modes": 6, "path_samples": 8})
     lam = np.array([3.8, 6.5, 9.0])
-    full = model.solve_batch(make_inputs(lam, dimple_amplitude=np.array([0.0, 0.3, 0.0])))
+    full = model.solve_batch(cap_inputs(lam, dimple_amplitude=np.array([0.0, 0.3, 0.0])))
     for i in range(3):
-        one = model.solve_batch(make_inputs(lam[i:i + 1], dimple_amplitude=np.array([[0.0, 0.3, 0.0][i]])))
+        one = model.solve_batch(cap_inputs(lam[i:i + 1], dimple_amplitude=np.array([[0.0, 0.3, 0.0][i]])))
         for name, v in full.outputs.items():
             np.testing.assert_array_equal(v[i:i + 1], one.outputs[name], err_msg=name)
         assert one.status[0] == full.status[i]
@@ -107,12 +91,12 @@ def test_limit_pressure_converges_spectrally_with_resolution():
     # common practice, no source: observed order from np.polyfit of log error vs log nodes
     lam = [12.5]
     ref = make_model("shallow_cap", {"nodes": 48, "asymmetric_modes": 0, "check_bistability": False}
-                     ).solve_batch(make_inputs(lam)).outputs["critical_load"][0]
+                     ).solve_batch(cap_inputs(lam)).outputs["critical_load"][0]
     nodes = np.array([14, 18, 22, 26])
     err = []
     for m in nodes:
         q = make_model("shallow_cap", {"nodes": int(m), "asymmetric_modes": 0, "check_bistability": False}
-                       ).solve_batch(make_inputs(lam)).outputs["critical_load"][0]
+                       ).solve_batch(cap_inputs(lam)).outputs["critical_load"][0]
         err.append(abs(q - ref) / ref)
     order = -np.polyfit(np.log(nodes), np.log(err), 1)[0]
     assert order > 6.0  # spectral: faster than any fixed algebraic order (observed ≈ 13)
@@ -127,8 +111,8 @@ def test_first_limit_point_is_not_stepped_over_near_fold_jumps(lam):
     # jumping across a corner of the path; the default is now 12° without the scan)
     bold = make_model("shallow_cap", {"asymmetric_modes": 0, "check_bistability": False})
     careful = make_model("shallow_cap", {"asymmetric_modes": 0, "check_bistability": False, "max_turn_deg": 3.0})
-    a = bold.solve_batch(make_inputs([lam])).outputs["critical_load"][0]
-    b = careful.solve_batch(make_inputs([lam])).outputs["critical_load"][0]
+    a = bold.solve_batch(cap_inputs([lam])).outputs["critical_load"][0]
+    b = careful.solve_batch(cap_inputs([lam])).outputs["critical_load"][0]
     assert a == pytest.approx(b, rel=1e-7)
 
 
@@ -138,7 +122,7 @@ def test_first_limit_point_is_not_lost_at_a_corner_of_the_path():
     # δ = 0.59 h), where a neighbouring branch passes within one step. Without the orientation test
     # (the sign of det [∂R/∂z; tᵀ], see numerics.arclength.trace_paths) the 8° continuation stepped
     # across to that branch and reported the next maximum, 1.0089 (16 % high); 1° and 4° did not.
-    inp = make_inputs([19.5402], poisson_ratio=0.25, dimple_amplitude=0.042, dimple_width=1.28)
+    inp = cap_inputs([19.5402], poisson_ratio=0.25, dimple_amplitude=0.042, dimple_width=1.28)
     base = {"asymmetric_modes": 0, "check_bistability": False, "max_pressure": 3.0}
     bold = make_model("shallow_cap", base).solve_batch(inp).outputs
     careful = make_model("shallow_cap", {**base, "max_turn_deg": 1.0}).solve_batch(inp).outputs
@@ -175,7 +159,7 @@ def test_path_orientation_keeps_its_sign_through_a_limit_point():
 
 def test_apex_force_initial_stiffness_is_reissner_like_and_path_is_traced():
     model = make_model("shallow_cap", {"asymmetric_modes": 0, "path_samples": 32})
-    res = model.solve_batch(make_inputs([8.0], load="apex_force"))
+    res = model.solve_batch(cap_inputs([8.0], load="apex_force"))
     # Reissner 1946 stiffness 4Eh²/(Rc) is approached for λ ≫ 1; the edge stiffens a λ = 8 cap a little
     assert 1.0 < res.outputs["stiffness"][0] < 1.06
     path = res.outputs["load_path"][0]
@@ -189,8 +173,8 @@ def test_first_bifurcation_does_not_depend_on_the_path_steps(lam):
     # the earliest kept, so a path with 4x finer turning control gives the same critical state
     bold = make_model("shallow_cap", {"check_bistability": False})
     careful = make_model("shallow_cap", {"check_bistability": False, "max_turn_deg": 3.0})
-    a = bold.solve_batch(make_inputs([lam]))
-    b = careful.solve_batch(make_inputs([lam]))
+    a = bold.solve_batch(cap_inputs([lam]))
+    b = careful.solve_batch(cap_inputs([lam]))
     assert a.outputs["critical_wavenumber"][0] == b.outputs["critical_wavenumber"][0]
     assert a.outputs["critical_load"][0] == pytest.approx(b.outputs["critical_load"][0], rel=1e-6)
 
@@ -223,7 +207,7 @@ def test_shallow_caps_are_never_bistable():
     lam = np.array([2.0, 4.0, 5.0] * 4)
     edge = np.repeat(["clamped", "pinned"], 6)
     inplane = np.tile(np.repeat(["immovable", "sliding"], 3), 2)
-    res = model.solve_batch(make_inputs(lam, edge=edge, edge_inplane=inplane))
+    res = model.solve_batch(cap_inputs(lam, edge=edge, edge_inplane=inplane))
     np.testing.assert_array_equal(res.outputs["bistable"], np.zeros(lam.size))
 
 
@@ -232,7 +216,7 @@ def test_pinned_deep_cap_is_bistable_with_a_near_mirror_inverted_state():
     # The stable zero-load state of a pinned, immovable cap at λ = 10 is that state within 2 % (the
     # edge boundary layer makes up the rest); this model's result, checked against the geometry only
     model = make_model("shallow_cap", {"asymmetric_modes": 30, "path_samples": 256})
-    res = model.solve_batch(make_inputs([10.0], edge="pinned"))
+    res = model.solve_batch(cap_inputs([10.0], edge="pinned"))
     assert res.outputs["bistable"][0] == 1.0
     load, deflection = res.outputs["load_path"][0].T
     j = np.nonzero((load[:-1] < 0) & (load[1:] >= 0))[0][-1]  # the path ends just past the zero-load state
@@ -246,7 +230,7 @@ def test_locating_crossings_inside_the_step_keeps_the_first_bifurcation(monkeypa
     from sweepshell.models.shallow_cap import solver
 
     lam = np.array([6.0, 8.5, 11.0, 14.0, 17.0, 20.0])
-    inputs = make_inputs(lam, dimple_amplitude=np.array([0.0, 0.1, 0.0, 0.3, 0.0, 0.05]))
+    inputs = cap_inputs(lam, dimple_amplitude=np.array([0.0, 0.1, 0.0, 0.3, 0.0, 0.05]))
     model = make_model("shallow_cap", {"check_bistability": False})
     kept: list[tuple[int, int]] = []
     real = solver._bracket_first_crossings
@@ -281,7 +265,7 @@ def test_random_caps_find_the_same_first_limit_point_as_a_careful_continuation(r
     n = 240
     lam = np.where(np.arange(n) % 3 == 0, rng.uniform(23.5, 27.0, n), rng.uniform(3.5, 30.0, n))
     dimpled = rng.random(n) < 0.4
-    inp = make_inputs(lam, poisson_ratio=rng.choice([0.25, 0.3, 0.45], n),
+    inp = cap_inputs(lam, poisson_ratio=rng.choice([0.25, 0.3, 0.45], n),
                       edge=rng.choice(["clamped", "pinned"], n), edge_inplane=rng.choice(["immovable", "sliding"], n),
                       dimple_amplitude=np.where(dimpled, rng.uniform(0.01, 1.0, n), 0.0),
                       dimple_width=rng.uniform(1.0, 4.0, n))
@@ -302,7 +286,7 @@ def test_scan_finds_the_first_bifurcation_of_deep_pinned_caps():
     # n = 22 at 0.72795), with 16° steps also n = 20 for 18 in the last two; every point with the default
     # 12° agrees with 2° on all four
     lam = np.array([28.6699, 29.4980, 25.0942, 25.5843])
-    inp = make_inputs(lam, poisson_ratio=np.array([0.40, 0.45, 0.25, 0.25]), edge="pinned")
+    inp = cap_inputs(lam, poisson_ratio=np.array([0.40, 0.45, 0.25, 0.25]), edge="pinned")
     base = {"check_bistability": False, "max_pressure": 3.0}
     got = make_model("shallow_cap", base).solve_batch(inp).outputs
     want = make_model("shallow_cap", {**base, "max_turn_deg": 2.0}).solve_batch(inp).outputs
@@ -317,7 +301,7 @@ def test_long_paths_past_the_first_limit_point_are_followed_to_a_bistability_dec
     # after the first limit point before the load returns to zero (more than max_points = 400); they are
     # followed again with five times the capacity, which traces the same path: the same results as a run
     # with 4000 points from the start, and a decision instead of NaN
-    inp = make_inputs([20.3848, 13.6092], poisson_ratio=np.array([0.45, 0.40]), edge_inplane="sliding")
+    inp = cap_inputs([20.3848, 13.6092], poisson_ratio=np.array([0.45, 0.40]), edge_inplane="sliding")
     base = {"asymmetric_modes": 0, "max_pressure": 3.0}
     got = make_model("shallow_cap", base).solve_batch(inp)
     want = make_model("shallow_cap", {**base, "max_points": 4000}).solve_batch(inp)

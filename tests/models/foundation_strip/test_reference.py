@@ -65,7 +65,7 @@ def test_fold_follows_diamant_witten_law():
     # Diamant & Witten 2011, PRL 107:164302: on a hydrostatic foundation the exact
     # localised solution has P = 2 − Δ²/16 (units B = K = 1, Δ the total end-shortening).
     # Discretisation error is O(h²): at 32 segments per wavelength we check to 0.01 (0.5 %
-    # of P_c); the observed second-order approach is in test_foundation_strip.py.
+    # of P_c); the observed second-order approach is in foundation_strip/test_model.py.
     L = 8 * TWO_PI
     out = solve_strip(length=L, segments=8 * 32, imperfection=1e-4 * TWO_PI, width=TWO_PI, cubic=0.0,
                       compliance=0.0, onset_confinement=0.0, targets=np.array([4.0 / L]), fold_contrast=3.0,

@@ -6,7 +6,6 @@ import warnings
 
 import matplotlib.image as mpimg
 import numpy as np
-import pytest
 import xarray as xr
 
 import sweepshell.query  # noqa: F401  (registers the .sweep accessor)
@@ -15,14 +14,8 @@ from sweepshell.cli.main import main
 from sweepshell.engine.refine import node_crossings, refine_store
 from sweepshell.models.winkler_column.model import winkler_column_critical
 from sweepshell.store.points import read_points
-from tests.query.stores import make_column_store
 
 # Closed form of the stable/buckled boundary: load_ratio = min_m (m² + η/m²) (Timoshenko & Gere 1961).
-
-
-@pytest.fixture
-def store(tmp_path):
-    return make_column_store(tmp_path)
 
 
 def test_refinement_evaluates_only_near_the_boundary_and_resolves_it(store):

@@ -14,14 +14,9 @@ from sweepshell.models.foundation_strip.elastica import (
     make_strip_grid,
 )
 from sweepshell.models.foundation_strip.path import solve_strip
+from tests.conftest import model_inputs
 
 TWO_PI = 2.0 * np.pi
-
-
-def make_inputs(model, **columns):
-    n = max(np.size(v) for v in columns.values())
-    return {p.name: np.broadcast_to(np.asarray(columns.get(p.name, p.default)), (n,)).copy()
-            for p in model.parameters}
 
 
 def follow_perfect(length, segments, target, search_limit=0.0):
@@ -55,7 +50,7 @@ def test_perfect_strip_fold_is_the_limit_of_imperfect_strips():
     # 0.02419, 0.02487 → 0.02502 at 16 segments per wavelength; the fold is interpolated
     # linearly in the contrast between path states, worth ~0.5 % at these step lengths)
     model = make_model("foundation_strip", {"length": 7.5})
-    res = model.solve_batch(make_inputs(model, imperfection=[1e-3, 1e-4, 0.0], confinement=0.03))
+    res = model.solve_batch(model_inputs(model, imperfection=[1e-3, 1e-4, 0.0], confinement=0.03))
     assert np.all(res.status == Status.ok) and list(res.regime) == [2, 2, 2]
     f3, f4, f0 = res.outputs["fold_confinement"]
     assert abs(f4 - f0) < 0.2 * abs(f3 - f0)
@@ -66,7 +61,7 @@ def test_perfect_strip_fold_is_the_limit_of_imperfect_strips():
 def test_perfect_strip_regimes_and_batch_invariance():
     model = make_model("foundation_strip")
     cols = {"imperfection": [0.0, 0.0, 0.0, 1e-3], "confinement": [0.0, 0.01, 0.03, 0.03]}
-    whole = model.solve_batch(make_inputs(model, **cols))
+    whole = model.solve_batch(model_inputs(model, **cols))
     assert np.all(whole.status == Status.ok)
     assert list(whole.regime) == [0, 1, 2, 2]
     fold = whole.outputs["fold_confinement"]
@@ -74,7 +69,7 @@ def test_perfect_strip_regimes_and_batch_invariance():
     assert 0.01 < fold[0] < 0.03 and fold[0] != fold[3]
     assert np.isnan(whole.outputs["fold_amplitude"][1]) and whole.outputs["fold_amplitude"][2] > 0.0
     for i in range(4):
-        alone = model.solve_batch(make_inputs(model, **{k: [v[i]] for k, v in cols.items()}))
+        alone = model.solve_batch(model_inputs(model, **{k: [v[i]] for k, v in cols.items()}))
         assert alone.status[0] == whole.status[i] and alone.regime[0] == whole.regime[i]
         for name, v in whole.outputs.items():
             np.testing.assert_array_equal(alone.outputs[name][0], v[i], err_msg=name)

@@ -17,7 +17,8 @@ from sweepshell.models.shallow_cap.modes import (
     select_stability_nodes,
 )
 from sweepshell.models.shallow_cap.solver import make_problem
-from tests.models.test_shallow_cap import make_initial_tangent, make_inputs
+from tests.conftest import cap_inputs
+from tests.models.shallow_cap.test_model import make_initial_tangent
 
 NU = 0.3
 C = np.sqrt(3.0 * (1.0 - NU**2))
@@ -136,7 +137,7 @@ def test_deep_caps_buckle_asymmetrically_at_an_indentation_of_many_thicknesses()
     # 34.3). The same with 2° and 1.5° turn limits; version 1.8 (stability sampled at every third path point)
     # missed the n = 4 window at λ = 10 and reported n = 5 at 9.763
     model = make_model("shallow_cap", {"check_bistability": False, "path_samples": 8})
-    res = model.solve_batch(make_inputs([5.0, 10.0, 20.0], load="apex_force"))
+    res = model.solve_batch(cap_inputs([5.0, 10.0, 20.0], load="apex_force"))
     out = res.outputs
     assert res.regime[0] != 2
     np.testing.assert_array_equal(res.regime[1:], [2, 2])
@@ -169,7 +170,7 @@ def test_apex_bifurcation_force_converges_with_nodes():
     loads, waves = [], []
     for m in nodes:
         model = make_model("shallow_cap", {"nodes": int(m), "check_bistability": False, "path_samples": 8})
-        res = model.solve_batch(make_inputs([12.0, 10.0], load="apex_force",
+        res = model.solve_batch(cap_inputs([12.0, 10.0], load="apex_force",
                                             edge_inplane=np.array(["sliding", "immovable"])))
         loads.append(res.outputs["critical_load"])
         waves.append(res.outputs["critical_wavenumber"])
@@ -185,7 +186,7 @@ def test_deep_cap_bifurcation_is_local_to_the_indenter():
     # buckling are local, so in units of E h³/R and h they hardly depend on λ. Sliding clamped caps, 34
     # nodes: n = 3 at P = 6.2252, 6.2517, 6.2390 and δ = 15.28 h, 15.25 h, 15.26 h for λ = 12, 15, 20
     model = make_model("shallow_cap", {"check_bistability": False, "path_samples": 8})
-    res = model.solve_batch(make_inputs([12.0, 15.0, 20.0], load="apex_force", edge_inplane="sliding"))
+    res = model.solve_batch(cap_inputs([12.0, 15.0, 20.0], load="apex_force", edge_inplane="sliding"))
     out = res.outputs
     np.testing.assert_array_equal(out["critical_wavenumber"], [3.0, 3.0, 3.0])
     np.testing.assert_allclose(out["critical_load"], 6.24, rtol=5e-3)
@@ -198,7 +199,7 @@ def test_scanning_in_rounds_finds_the_same_first_flip(monkeypatch):
     from sweepshell.models.shallow_cap import solver
 
     model = make_model("shallow_cap", {"check_bistability": False, "path_samples": 8})
-    inputs = make_inputs([10.0, 20.0, 8.0], load=np.array(["apex_force", "apex_force", "pressure"]))
+    inputs = cap_inputs([10.0, 20.0, 8.0], load=np.array(["apex_force", "apex_force", "pressure"]))
     monkeypatch.setattr(solver, "_SCAN_ROUND", 2)  # several rounds before every flip here
     rounds = model.solve_batch(inputs).outputs
     monkeypatch.setattr(solver, "_SCAN_ROUND", 10**6)
