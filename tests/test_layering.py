@@ -84,7 +84,7 @@ def upward_edges(root: Path = ROOT) -> list[str]:
 
 
 def package_graph() -> dict[str, set[str]]:
-    """Return layer → the layers it imports (for the record; the test checks the edges)."""
+    """Return layer → the layers it imports (printed when this file is run as a script)."""
     graph: dict[str, set[str]] = {}
     for path in sorted(ROOT.rglob("*.py")):
         src = layer_of(module_name(path)) or "sweepshell"
@@ -155,3 +155,8 @@ def test_registry_names_match_the_model_classes():
         module, _ = _REGISTRY[name]
         assert get_model(name).name == name, f"registry key {name!r} names a class called {get_model(name).name!r}"
         assert module == f"sweepshell.models.{name}.model", f"model {name!r} lives outside its package"
+
+
+if __name__ == "__main__":  # print the import graph between layers: python tests/test_layering.py
+    for layer, targets in sorted(package_graph().items(), key=lambda kv: RANK.get(kv[0], 10)):
+        print(f"{layer:10s} -> {', '.join(sorted(targets, key=lambda t: RANK.get(t, 10)))}")
