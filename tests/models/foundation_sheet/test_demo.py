@@ -8,16 +8,15 @@ equibiaxial compression just above onset, zigzag or meandering patterns well abo
 
 from __future__ import annotations
 
-from pathlib import Path
-
 import numpy as np
 import pytest
 import yaml
 
 from sweepshell.config.loader import build_plan
 from sweepshell.models import Status, make_model
+from tests.conftest import CONFIGS
 
-SWEEP = Path(__file__).resolve().parents[2] / "configs" / "sweep" / "coated_patch_wrinkle_map.yaml"
+SWEEP = CONFIGS / "sweep" / "coated_patch_wrinkle_map.yaml"
 
 
 @pytest.mark.slow
