@@ -10,7 +10,7 @@ from __future__ import annotations
 import argparse
 from typing import Any
 
-from sweepshell import CAUTION
+from sweepshell.about import CAUTION
 
 __all__ = ["register"]
 

@@ -26,15 +26,15 @@ from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
-from sweepshell import CAUTION
+from sweepshell.about import CAUTION
 from sweepshell.errors import QueryError
 from sweepshell.models.base import TRUSTED_STATUSES, Status
 from sweepshell.plot.shape_panels import draw_cap_panel, draw_missing_panel, draw_section_panel, section_limits
 from sweepshell.plot.style import add_caution_footer, axis_label, title_lines
 from sweepshell.query.slicing import AxisCut, slice_sweep
 from sweepshell.query.table import describe_fields, regime_names
-from sweepshell.store import layout
-from sweepshell.store.layout import ATTR
+from sweepshell.store import metadata
+from sweepshell.store.metadata import ATTR
 
 if TYPE_CHECKING:
     import xarray as xr
@@ -185,8 +185,8 @@ def _wave_number(view: xr.Dataset, ds: xr.Dataset) -> int | None:
 def read_shape_point(ds: xr.Dataset, output: ShapeOutput, at: Mapping[str, str]) -> ShapePoint:
     """Return the point of ``ds`` chosen by ``at`` with its shape, or the reason it has none."""
     view = slice_sweep(ds, [], at)
-    status = Status(int(view.ds[layout.STATUS_VAR].values))
-    code = int(view.ds[layout.REGIME_VAR].values)
+    status = Status(int(view.ds[metadata.STATUS_VAR].values))
+    code = int(view.ds[metadata.REGIME_VAR].values)
     regimes = regime_names(ds)
     regime = regimes[code] if 0 <= code < len(regimes) else "none"
     n = _wave_number(view.ds, ds)
@@ -326,8 +326,8 @@ def pick_representative_points(ds: xr.Dataset, output: ShapeOutput | None = None
     """
     output = output or find_shape_output(ds)
     axes = describe_fields(ds).axes
-    status = np.asarray(ds[layout.STATUS_VAR].values)
-    codes = np.asarray(ds[layout.REGIME_VAR].values)
+    status = np.asarray(ds[metadata.STATUS_VAR].values)
+    codes = np.asarray(ds[metadata.REGIME_VAR].values)
     trusted = np.isin(status, [int(s) for s in TRUSTED_STATUSES])
     scale = np.array([max(ds.sizes[a] - 1, 1) for a in axes], dtype=float)
     picked = []

@@ -9,18 +9,11 @@ import numpy as np
 import pytest
 
 from sweepshell.cli.main import main
-from tests.plot.shape_stores import make_cap_store, make_plain_store, make_strip_store
 
 
-@pytest.fixture(scope="module")
-def stores(tmp_path_factory):
-    folder = tmp_path_factory.mktemp("shape_cli")
-    return {"cap": make_cap_store(folder), "strip": make_strip_store(folder), "plain": make_plain_store(folder)}
-
-
-def test_shape_writes_a_png_of_points_side_by_side(stores, tmp_path, capsys):
+def test_shape_writes_a_png_of_points_side_by_side(shape_stores, tmp_path, capsys):
     out = tmp_path / "caps.png"
-    code = main(["shape", str(stores["cap"]), "--at", "shell_parameter=9,max_indentation=8",
+    code = main(["shape", str(shape_stores["cap"]), "--at", "shell_parameter=9,max_indentation=8",
                  "--at", "shell_parameter=14, max_indentation=19", "--out", str(out)])
     captured = capsys.readouterr()
     assert code == 0, captured.err
@@ -30,9 +23,9 @@ def test_shape_writes_a_png_of_points_side_by_side(stores, tmp_path, capsys):
     assert min(image.shape[:2]) > 900 and np.std(image[..., :3]) > 0.05
 
 
-def test_shape_of_a_strip_as_svg(stores, tmp_path, capsys):
+def test_shape_of_a_strip_as_svg(shape_stores, tmp_path, capsys):
     out = tmp_path / "strip.svg"
-    assert main(["shape", str(stores["strip"]), "--at", "width=0.04", "--out", str(out)]) == 0
+    assert main(["shape", str(shape_stores["strip"]), "--at", "width=0.04", "--out", str(out)]) == 0
     text = out.read_text()
     assert text.lstrip().startswith("<?xml") and "mm" in text
     assert "load = bend_opposite (first value; choose with --at load=...)" in capsys.readouterr().err
@@ -47,9 +40,9 @@ def test_shape_of_a_strip_as_svg(stores, tmp_path, capsys):
     ("strip", ["--at", "load=twist"], "no such value"),
     ("plain", [], "this store has no stored shape"),
 ])
-def test_bad_input_is_one_line_and_exit_2(stores, tmp_path, capsys, monkeypatch, kind, args, message):
+def test_bad_input_is_one_line_and_exit_2(shape_stores, tmp_path, capsys, monkeypatch, kind, args, message):
     monkeypatch.chdir(tmp_path)
-    code = main(["shape", str(stores[kind]), *args, *(["--out", "x.png"] if "--out" not in args else [])])
+    code = main(["shape", str(shape_stores[kind]), *args, *(["--out", "x.png"] if "--out" not in args else [])])
     err = capsys.readouterr().err
     assert code == 2
     assert err.count("\n") == 1 and err.startswith("sweepshell: error: ") and message in err

@@ -15,10 +15,10 @@ from pathlib import Path
 import numpy as np
 import xarray as xr
 
-from sweepshell import CAUTION
+from sweepshell.about import CAUTION
 from sweepshell.models.base import Status
-from sweepshell.store import layout
-from sweepshell.store.layout import ATTR
+from sweepshell.store import metadata
+from sweepshell.store.metadata import ATTR
 
 CAP_REGIMES = ("stable", "limit_point", "stable_postbuckling", "unstable_postbuckling")
 STRIP_REGIMES = ("stiff", "folded", "collapsed")
@@ -31,7 +31,7 @@ def cap_field(amplitude: float, n: int, radius: np.ndarray, angle: np.ndarray) -
 
 
 def _attrs(model: str, fixed: dict, axes: dict, regimes: tuple[str, ...]) -> dict:
-    return {ATTR.tool: "0.1.0", ATTR.schema: layout.SCHEMA_VERSION, ATTR.model: model, ATTR.model_version: "0.9",
+    return {ATTR.tool: "0.1.0", ATTR.schema: metadata.SCHEMA_VERSION, ATTR.model: model, ATTR.model_version: "0.9",
             ATTR.settings: json.dumps({}), ATTR.fixed: json.dumps(fixed, sort_keys=True),
             ATTR.axes: json.dumps(axes, sort_keys=True), ATTR.sweep_name: f"synthetic_{model}",
             ATTR.sweep_yaml: f"name: synthetic_{model}\nmodel: {model}\n",
@@ -41,10 +41,10 @@ def _attrs(model: str, fixed: dict, axes: dict, regimes: tuple[str, ...]) -> dic
 
 def _write(path: Path, dims: tuple[str, ...], data_vars: dict, coords: dict, attrs: dict,
            regimes: tuple[str, ...]) -> Path:
-    status = data_vars.pop(layout.STATUS_VAR)
-    regime = data_vars.pop(layout.REGIME_VAR)
-    data_vars[layout.STATUS_VAR] = xr.Variable(dims, status.astype(np.uint8), layout.status_attrs())
-    data_vars[layout.REGIME_VAR] = xr.Variable(dims, regime.astype(np.int8), layout.regime_attrs(regimes))
+    status = data_vars.pop(metadata.STATUS_VAR)
+    regime = data_vars.pop(metadata.REGIME_VAR)
+    data_vars[metadata.STATUS_VAR] = xr.Variable(dims, status.astype(np.uint8), metadata.status_attrs())
+    data_vars[metadata.REGIME_VAR] = xr.Variable(dims, regime.astype(np.int8), metadata.regime_attrs(regimes))
     with warnings.catch_warnings():  # consolidated metadata, as the store writer makes it
         warnings.filterwarnings("ignore", message=".*[Cc]onsolidated metadata.*")
         xr.Dataset(data_vars, coords=coords, attrs=attrs).to_zarr(path, mode="w-", zarr_format=3, consolidated=True)
@@ -89,7 +89,7 @@ def make_cap_store(folder: Path) -> Path:
         "shape": xr.Variable((*dims, "shape_radius", "shape_angle"), shape, {"units": "1", "long_name": "w/h"}),
         "wave_number": xr.Variable(dims, wave, {"units": "1"}),
         "ridges": xr.Variable(dims, wave, {"units": "1"}),
-        layout.STATUS_VAR: status, layout.REGIME_VAR: regime,
+        metadata.STATUS_VAR: status, metadata.REGIME_VAR: regime,
     }
     fixed = {"load": "apex_force", "edge": "clamped", "poisson_ratio": 0.3, "wave_number": 0}
     attrs = _attrs("cap_postbuckling", fixed, {"shell_parameter": lam.tolist(), "max_indentation": depth.tolist()},
@@ -132,7 +132,7 @@ def make_strip_store(folder: Path) -> Path:
         "section_shape": xr.Variable((*dims, "section_stage", "section_xy", "section_arc"), section,
                                      {"units": "m", "long_name": "deformed mid-surface section"}),
         "peak_moment": xr.Variable(dims, np.full((2, 2), 0.12), {"units": "N m"}),
-        layout.STATUS_VAR: status, layout.REGIME_VAR: regime,
+        metadata.STATUS_VAR: status, metadata.REGIME_VAR: regime,
     }
     fixed = {"thickness": 1.5e-4, "transverse_radius": radius, "youngs_modulus": 2.0e11, "poisson_ratio": 0.3,
              "length": 0.6}
@@ -145,6 +145,6 @@ def make_plain_store(folder: Path) -> Path:
     lam = np.array([5.0, 9.0])
     coords = {"shell_parameter": xr.Variable(("shell_parameter",), lam, {"units": "1", "spacing": "linear"})}
     data_vars = {"critical_load": xr.Variable(("shell_parameter",), np.array([1.0, 0.8]), {"units": "1"}),
-                 layout.STATUS_VAR: np.ones(2), layout.REGIME_VAR: np.zeros(2)}
+                 metadata.STATUS_VAR: np.ones(2), metadata.REGIME_VAR: np.zeros(2)}
     attrs = _attrs("shallow_cap", {}, {"shell_parameter": lam.tolist()}, ("stable", "limit_point"))
     return _write(folder / "plain.zarr", ("shell_parameter",), data_vars, coords, attrs, ("stable", "limit_point"))

@@ -20,13 +20,7 @@ from sweepshell.plot.shape import (
 )
 from sweepshell.plot.shape_panels import draw_cap_panel, meridian
 from tests.plot.clipping import texts_outside_canvas
-from tests.plot.shape_stores import cap_field, make_cap_store, make_plain_store, make_strip_store
-
-
-@pytest.fixture(scope="module")
-def stores(tmp_path_factory):
-    folder = tmp_path_factory.mktemp("shapes")
-    return {"cap": make_cap_store(folder), "strip": make_strip_store(folder), "plain": make_plain_store(folder)}
+from tests.plot.shape_stores import cap_field
 
 
 def panels(fig, gid):
@@ -43,8 +37,8 @@ def test_clipping_check_can_fail():
     assert texts_outside_canvas(fig) == ["a label running off the right edge"]
 
 
-def test_cap_point_shaded_from_above_with_its_meridians(stores):
-    ds = open_sweep(stores["cap"])
+def test_cap_point_shaded_from_above_with_its_meridians(shape_stores):
+    ds = open_sweep(shape_stores["cap"])
     result = draw_shapes(ds, [{"shell_parameter": "9.4", "max_indentation": "8"}])
     fig = result.figure
     assert len(panels(fig, "shape-field")) == 1 and len(panels(fig, "shape-meridian")) == 1
@@ -102,8 +96,8 @@ def test_a_field_with_holes_leaves_them_grey():
     assert texts_outside_canvas(fig) == []
 
 
-def test_several_points_side_by_side_with_a_panel_for_the_missing_one(stores):
-    ds = open_sweep(stores["cap"])
+def test_several_points_side_by_side_with_a_panel_for_the_missing_one(shape_stores):
+    ds = open_sweep(shape_stores["cap"])
     points = [{"shell_parameter": "9", "max_indentation": "8"}, {"shell_parameter": "20", "max_indentation": "20"},
               {"shell_parameter": "5", "max_indentation": "2"}]
     result = draw_shapes(ds, points)
@@ -118,8 +112,8 @@ def test_several_points_side_by_side_with_a_panel_for_the_missing_one(stores):
     assert [line.get_label() for line in last.get_lines() if not line.get_label().startswith("_")] == ["θ = 0"]
 
 
-def test_strip_sections_in_millimetres_equal_aspect(stores):
-    ds = open_sweep(stores["strip"])
+def test_strip_sections_in_millimetres_equal_aspect(shape_stores):
+    ds = open_sweep(shape_stores["strip"])
     result = draw_shapes(ds, [{"width": "0.02", "load": "bend_opposite"}, {"width": "0.02", "load": "bend_equal"},
                               {"width": "0.04", "load": "bend_equal"}])
     fig = result.figure
@@ -150,19 +144,19 @@ def test_strip_sections_in_millimetres_equal_aspect(stores):
     ("strip", {"load": "twist"}, "no such value; use one of bend_opposite, bend_equal"),
     ("plain", {}, "this store has no stored shape"),
 ])
-def test_refusals_name_the_problem(stores, kind, at, message):
+def test_refusals_name_the_problem(shape_stores, kind, at, message):
     with pytest.raises(QueryError, match=message.replace("(", r"\(").replace(")", r"\)")) as err:
-        draw_shapes(open_sweep(stores[kind]), [at])
+        draw_shapes(open_sweep(shape_stores[kind]), [at])
     assert "\n" not in str(err.value)
 
 
-def test_more_points_than_panels_is_refused(stores):
+def test_more_points_than_panels_is_refused(shape_stores):
     with pytest.raises(QueryError, match="at most 6"):
-        draw_shapes(open_sweep(stores["cap"]), [{"shell_parameter": "9"}] * 7)
+        draw_shapes(open_sweep(shape_stores["cap"]), [{"shell_parameter": "9"}] * 7)
 
 
-def test_representative_points_are_median_points_with_a_shape(stores):
-    ds = open_sweep(stores["cap"])
+def test_representative_points_are_median_points_with_a_shape(shape_stores):
+    ds = open_sweep(shape_stores["cap"])
     picked = dict(pick_representative_points(ds))
     assert set(picked) == {"stable", "limit_point", "stable_postbuckling", "unstable_postbuckling"}
     assert picked["stable"] == {"shell_parameter": "14.0", "max_indentation": "2.0"}
@@ -171,7 +165,7 @@ def test_representative_points_are_median_points_with_a_shape(stores):
     assert picked["stable_postbuckling"]["shell_parameter"] in ("9.0", "20.0")
     assert picked["unstable_postbuckling"]["shell_parameter"] in ("9.0", "14.0")
     assert find_shape_output(ds).kind == "cap"
-    assert find_shape_output(open_sweep(stores["strip"])).kind == "section"
+    assert find_shape_output(open_sweep(shape_stores["strip"])).kind == "section"
 
 
 @pytest.mark.parametrize(("value", "units", "text"), [
@@ -189,17 +183,17 @@ def test_engineering_scale_puts_the_mantissa_in_one_to_a_thousand():
     assert engineering_scale(0.5, "N m") == (1.0, "N m")  # compound units take no prefix
 
 
-def test_report_shows_one_shape_per_regime_and_keeps_the_caution(stores, tmp_path, capsys):
+def test_report_shows_one_shape_per_regime_and_keeps_the_caution(shape_stores, tmp_path, capsys):
     import base64
     import re
 
     import matplotlib.image as mpimg
 
-    from sweepshell import CAUTION
+    from sweepshell.about import CAUTION
     from sweepshell.cli.main import main
 
     out = tmp_path / "caps.html"
-    assert main(["report", str(stores["cap"]), "--out", str(out)]) == 0
+    assert main(["report", str(shape_stores["cap"]), "--out", str(out)]) == 0
     text = out.read_text(encoding="utf-8")
     headings = re.findall(r"<h2>(.*?)</h2>", text)
     assert headings.index("Shapes") == headings.index("Boundaries") + 1
@@ -213,5 +207,5 @@ def test_report_shows_one_shape_per_regime_and_keeps_the_caution(stores, tmp_pat
     assert CAUTION.removeprefix("Caution: ") in text
 
     plain = tmp_path / "plain.html"
-    assert main(["report", str(stores["plain"]), "--out", str(plain)]) == 0
+    assert main(["report", str(shape_stores["plain"]), "--out", str(plain)]) == 0
     assert "<h2>Shapes</h2>" not in plain.read_text(encoding="utf-8")
