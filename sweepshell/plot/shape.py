@@ -15,8 +15,6 @@ is NaN get a panel saying so; a figure in which no point has a shape is refused.
 
 from __future__ import annotations
 
-import contextlib
-import json
 import logging
 import math
 import textwrap
@@ -161,6 +159,15 @@ def find_shape_output(ds: xr.Dataset) -> ShapeOutput:
                      "draw paths with `sweepshell path`", field="store")
 
 
+def _fixed_parameters(ds: xr.Dataset) -> dict[str, Any]:
+    """Return the store's fixed parameters (empty when the record is missing or unreadable)."""
+    try:
+        fixed = metadata.read_record(ds.attrs, ATTR.fixed, "{}")
+    except (TypeError, ValueError):
+        return {}
+    return dict(fixed) if isinstance(fixed, dict) else {}
+
+
 def _wave_number(view: xr.Dataset, ds: xr.Dataset) -> int | None:
     """Return n ≥ 2 of the point's pattern: the output of the followed branch, else the parameter asked for."""
     if "wave_number" in view.data_vars:
@@ -170,8 +177,7 @@ def _wave_number(view: xr.Dataset, ds: xr.Dataset) -> int | None:
     candidates: list[Any] = []
     if "wave_number" in view.coords:
         candidates.append(view["wave_number"].values)
-    with contextlib.suppress(ValueError, AttributeError):
-        candidates.append(json.loads(ds.attrs.get(ATTR.fixed, "{}")).get("wave_number"))
+    candidates.append(_fixed_parameters(ds).get("wave_number"))
     for value in candidates:
         try:
             n = float(value)
@@ -230,10 +236,7 @@ def _panel_title(ds: xr.Dataset, point: ShapePoint) -> str:
 
 def _study_line(ds: xr.Dataset) -> str:
     """Return the fixed parameters and single-valued axes that define the study, with units."""
-    try:
-        fixed: dict[str, Any] = json.loads(ds.attrs.get(ATTR.fixed, "{}"))
-    except ValueError:
-        fixed = {}
+    fixed = _fixed_parameters(ds)
     units: dict[str, str] = {}
     try:
         from sweepshell.models import get_model
