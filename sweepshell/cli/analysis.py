@@ -70,7 +70,7 @@ def _open(store: str) -> Any:
 
     from sweepshell.store.reader import check_readable_store
 
-    check_readable_store(store)
+    check_readable_store(store, chunks=True)
     return xr.open_zarr(store, chunks=None, consolidated=True, zarr_format=3)
 
 

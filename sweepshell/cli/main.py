@@ -23,7 +23,9 @@ from sweepshell.errors import SweepshellError
 __all__ = ["build_parser", "main"]
 
 EXIT_OK = 0
+EXIT_FAILED = 1
 EXIT_BAD_INPUT = 2
+EXIT_STOPPED = 3
 EXIT_INTERRUPTED = 130
 
 _CAUTION_HELP = "CAUTION: " + CAUTION.removeprefix("Caution: ")
@@ -169,7 +171,37 @@ def main(argv: Sequence[str] | None = None) -> int:
     except KeyboardInterrupt:
         print("interrupted; run the same command again to continue", file=sys.stderr)
         return EXIT_INTERRUPTED
+    except Exception as exc:  # no traceback for any input or fault: explain it in one line
+        message, failed_code = _explain_failure(args, exc)
+        print(f"sweepshell: error: {message}", file=sys.stderr)
+        logging.getLogger("sweepshell").debug("details", exc_info=True)
+        return failed_code
     return code
+
+
+def _explain_failure(args: argparse.Namespace, exc: Exception) -> tuple[str, int]:
+    """Return one line and the exit code for an unexpected exception (a damaged chunk if that is the cause)."""
+    from sweepshell.store.integrity import find_undecodable_chunk
+
+    for attr in ("store", "a", "b"):
+        store = getattr(args, attr, None)
+        if not isinstance(store, str) or not os.path.isdir(store):
+            continue
+        try:
+            found = find_undecodable_chunk(store)
+        except Exception:
+            found = None
+        if found is not None:
+            name, index = found
+            return (f"store {store!r}: {name} block {list(index)} does not decode (checksum or format error: the "
+                    f"chunk is damaged); run `sweepshell verify --repair {store}`, then run the sweep again",
+                    EXIT_BAD_INPUT)
+    if isinstance(exc, OSError):
+        return (f"{exc.strerror or type(exc).__name__} ({exc.filename or ''}); check the path, permissions and free "
+                "space", EXIT_FAILED)
+    first = str(exc).splitlines()[0] if str(exc) else ""
+    return (f"unexpected {type(exc).__name__}: {first[:200]}; this is a bug in sweepshell — rerun with -v for the "
+            "details and report them", EXIT_FAILED)
 
 
 def entry() -> None:

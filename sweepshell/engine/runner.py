@@ -25,6 +25,8 @@ from sweepshell.engine.reuse import Donor, find_donors
 from sweepshell.engine.worker import compute_block
 from sweepshell.models import make_model
 from sweepshell.models.base import Status, SweepModel
+from sweepshell.store.integrity import check_store_metadata, find_blocks_missing_chunks
+from sweepshell.store.layout import REGIME_VAR, STATUS_VAR
 from sweepshell.store.reader import is_block_final, read_ledger
 from sweepshell.store.writer import (
     check_store_matches,
@@ -104,6 +106,8 @@ class RunSummary:
             f"computed {self.computed} points in {self.wall_seconds:.1f} s"
         if self.reused:
             done += f" ({self.reused} reused from other stores)"
+        if self.extra.get("damaged_blocks"):
+            done += f" ({self.extra['damaged_blocks']} blocks recomputed because chunks were missing)"
         return f"{done}: {self.total} points ({', '.join(parts) or 'none'}) -> {self.store_path}"
 
 
@@ -112,6 +116,8 @@ def prepare_store(plan: SweepPlan, model: SweepModel | None = None) -> tuple[tup
     model = model or make_model(plan.model, plan.settings)
     path = plan.store_path
     if Path(path).exists():
+        if (Path(path) / "zarr.json").is_file():
+            check_store_metadata(path)  # a damaged store: one line naming the problem and `verify --repair`
         check_store_matches(path, plan, model)
         return store_block_shape(path), False
     clean_stale_temporaries(path)
@@ -206,13 +212,14 @@ def run_plan(plan: SweepPlan, *, observer: RunObserver | None = None, claim_ttl:
     existing = Path(path).exists()
     # an existing store is checked (a store of another sweep is refused) before anything starts
     block_shape: tuple[int, ...] = prepare_store(plan, model)[0] if existing else ()
-    tally = {"model_seconds": 0.0, "computed": 0, "blocks": 0, "by_others": 0, "reused": 0}
+    tally = {"model_seconds": 0.0, "computed": 0, "blocks": 0, "by_others": 0, "reused": 0, "damaged": 0}
     claims: ClaimBook | None = None
     try:
         with _client_started_early(plan) as get_client:
             if not existing:
                 block_shape, _ = prepare_store(plan, model)
             ledger = read_ledger(path, block_shape)
+            tally["damaged"] = _reset_blocks_missing_chunks(path, ledger, block_shape, model)
             pending = [b for b in iter_blocks(plan.shape, block_shape)
                        if np.any(ledger[b.slices] == Status.pending)]
             if not pending:
@@ -236,6 +243,30 @@ def run_plan(plan: SweepPlan, *, observer: RunObserver | None = None, claim_ttl:
     claims.release_all()
     observer.close()
     return _final_summary(plan, block_shape, tally, t0)
+
+
+def _reset_blocks_missing_chunks(path: str, ledger: np.ndarray, block_shape: tuple[int, ...],
+                                 model: SweepModel) -> int:
+    """Set final blocks that lost an output or regime chunk back to pending (in ``ledger`` and on disk).
+
+    Found by listing the array folders (no values are read); the ledger chunk is rewritten whole, as
+    ``verify --repair`` does, so the block is recomputed like any unfinished one. Returns the number of
+    blocks reset.
+    """
+    names = [out.name for out in model.outputs] + [REGIME_VAR]
+    lost = find_blocks_missing_chunks(path, ledger, block_shape, names)
+    if not lost:
+        return 0
+    import zarr
+
+    arr: Any = zarr.open_array(str(Path(path) / STATUS_VAR), mode="r+", zarr_format=3)
+    for block in iter_blocks(tuple(ledger.shape), block_shape):
+        if block.index in lost:
+            log.info("block %s of %s lost its %s chunk(s); recomputing it", list(block.index), path,
+                        ", ".join(lost[block.index]))
+            arr[block.slices] = np.zeros(block.shape, dtype=np.uint8)
+            ledger[block.slices] = 0
+    return len(lost)
 
 
 def _drive(client: Any, plan: SweepPlan, pending: list[Block], claims: ClaimBook, observer: RunObserver,
@@ -305,7 +336,7 @@ def _final_summary(plan: SweepPlan, block_shape: tuple[int, ...], tally: dict[st
     return RunSummary(store_path=plan.store_path, total=plan.n_points, counts=_counts(ledger),
                       computed=tally["computed"], blocks=tally["blocks"], wall_seconds=time.perf_counter() - t0,
                       model_seconds=tally["model_seconds"], reused=tally["reused"],
-                      extra={"by_other_runners": tally["by_others"]})
+                      extra={"by_other_runners": tally["by_others"], "damaged_blocks": tally["damaged"]})
 
 
 def run_sweep(sweep: str | SweepPlan, overrides: Sequence[str] = (), *, observer: RunObserver | None = None,

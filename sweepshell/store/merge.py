@@ -280,7 +280,7 @@ def merge_stores(a: str | os.PathLike[str], b: str | os.PathLike[str], output: s
     if out_path.exists() or out_path.is_symlink():
         raise StoreMismatchError(f"output {str(out_path)!r} exists; merge writes a new store, choose another -o path",
                                  field="output", value=str(out_path))
-    attrs_a, attrs_b = check_readable_store(a), check_readable_store(b)
+    attrs_a, attrs_b = check_readable_store(a, chunks=True), check_readable_store(b, chunks=True)
     _check_same_definition(a, b, attrs_a, attrs_b)
     names_a, axes_a = _parse_axes(a, attrs_a)
     names_b, axes_b = _parse_axes(b, attrs_b)
@@ -429,7 +429,7 @@ def _fill(tmp: Path, a: str, b: str, group_a: Any, group_b: Any, names: list[str
         if prefer is None and counts["conflicts"]:
             continue
         for v in value_vars:  # outputs and regime first, the ledger last (see store/writer.py)
-            arr: Any = target[v]
+            arr: Any = target[v].with_config({"write_empty_chunks": True})  # see store/writer.py
             merged = np.full(values_a[v].shape, arr.fill_value, dtype=values_a[v].dtype)
             merged[use_a] = values_a[v][use_a]
             merged[use_b] = values_b[v][use_b]
