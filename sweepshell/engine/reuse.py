@@ -152,10 +152,10 @@ def take_from_donors(donors: Sequence[Donor], model: SweepModel, inputs: Mapping
                 sel = tuple(w.reshape((-1,) + (1,) * len(extra_shape)) for w in where) + tuple(
                     np.arange(k).reshape((1, *(k if j == i else 1 for j in range(len(extra_shape)))))
                     for i, k in enumerate(extra_shape))
-                values = np.asarray(group[out.name].vindex[sel])  # type: ignore[union-attr]
-                copied[out.name] = values
-                if not out.nullable and values.dtype.kind == "f":
-                    usable &= ~(trusted & np.isnan(values.reshape(rows.size, -1)).all(axis=-1))
+                got = np.asarray(group[out.name].vindex[sel])  # type: ignore[union-attr]
+                copied[out.name] = got
+                if not out.nullable and got.dtype.kind == "f":
+                    usable &= ~(trusted & np.isnan(got.reshape(rows.size, -1)).all(axis=-1))
             regime = np.asarray(group[layout.REGIME_VAR].vindex[where])  # type: ignore[union-attr]
             usable &= ~(trusted & (regime < 0))
             if not usable.any():
@@ -163,8 +163,8 @@ def take_from_donors(donors: Sequence[Donor], model: SweepModel, inputs: Mapping
             if result is None:
                 result = model.empty_result(n)
             rows = rows[usable]
-            for name, values in copied.items():
-                result.outputs[name][rows] = values[usable]
+            for name, got in copied.items():
+                result.outputs[name][rows] = got[usable]
             result.regime[rows] = regime[usable]
             result.status[rows] = status[usable]
             matched[rows] = True

@@ -8,6 +8,7 @@ written are simply recomputed by the next run.
 from __future__ import annotations
 
 import contextlib
+import errno
 import logging
 import os
 import time
@@ -23,6 +24,7 @@ from sweepshell.engine.observers import RunObserver, SilentObserver
 from sweepshell.engine.plan import Block, ExecutorSpec, SweepPlan, choose_block_shape, iter_blocks
 from sweepshell.engine.reuse import Donor, find_donors
 from sweepshell.engine.worker import compute_block
+from sweepshell.errors import ConfigError, RunStoppedError
 from sweepshell.models import make_model
 from sweepshell.models.base import Status, SweepModel
 from sweepshell.store.integrity import check_store_metadata, find_blocks_missing_chunks
@@ -209,6 +211,8 @@ def run_plan(plan: SweepPlan, *, observer: RunObserver | None = None, claim_ttl:
     t0 = time.perf_counter()
     path = plan.store_path
     model = make_model(plan.model, plan.settings)
+    if plan.executor.kind == "distributed":
+        check_scheduler_reachable(plan.executor.address)  # before anything is written
     existing = Path(path).exists()
     # an existing store is checked (a store of another sweep is refused) before anything starts
     block_shape: tuple[int, ...] = prepare_store(plan, model)[0] if existing else ()
@@ -239,10 +243,65 @@ def run_plan(plan: SweepPlan, *, observer: RunObserver | None = None, claim_ttl:
         observer.close()
         summary = _final_summary(plan, block_shape, tally, t0)
         raise SweepInterrupted(summary) from None
+    except Exception as exc:
+        cause = describe_outside_fault(exc)
+        if cause is None:
+            raise
+        if claims is not None:
+            claims.release_all()
+        observer.close()
+        raise RunStoppedError(f"the run stopped: {cause}; the store is consistent, run the same command again to "
+                              "continue", field="store", value=path) from None
     assert claims is not None
     claims.release_all()
     observer.close()
     return _final_summary(plan, block_shape, tally, t0)
+
+
+_FULL_ERRNOS = {errno.ENOSPC: "the disk is full", errno.EFBIG: "a file reached the file-size limit",
+                errno.EDQUOT: "the disk quota is exhausted"}
+
+
+def describe_outside_fault(exc: BaseException) -> str | None:
+    """Return what went wrong if ``exc`` is a fault outside sweepshell's input (disk, limits, scheduler)."""
+    seen: set[int] = set()
+    current: BaseException | None = exc
+    while current is not None and id(current) not in seen:
+        seen.add(id(current))
+        if isinstance(current, OSError) and current.errno in _FULL_ERRNOS:
+            where = f" writing {current.filename}" if current.filename else ""
+            return f"{_FULL_ERRNOS[current.errno]}{where} (free space or raise the limit)"
+        name = type(current).__name__
+        if name in ("CommClosedError", "KilledWorker", "FutureCancelledError", "CancelledError") or (
+                name in ("TimeoutError", "OSError") and "scheduler" in str(current).lower()):
+            return f"the dask scheduler or its workers were lost ({name})"
+        current = current.__cause__ or current.__context__
+    return None
+
+
+def check_scheduler_reachable(address: str | None, timeout: float = 5.0) -> None:
+    """Raise a one-line :class:`ConfigError` unless a TCP connection to the scheduler opens within ``timeout`` s."""
+    import socket
+    from urllib.parse import urlsplit
+
+    if not address:
+        raise ConfigError("executor=distributed needs an address; add executor.address=tcp://HOST:PORT",
+                          field="executor.address")
+    parts = urlsplit(address if "://" in address else f"tcp://{address}")
+    try:
+        host, port = parts.hostname, parts.port
+    except ValueError:
+        host, port = None, None
+    if parts.scheme not in ("tcp", "tls") or not host or not port:
+        raise ConfigError(f"executor.address={address!r} is not a scheduler address; use tcp://HOST:PORT",
+                          field="executor.address", value=address)
+    try:
+        with socket.create_connection((host, port), timeout=timeout):
+            pass
+    except OSError as exc:
+        raise ConfigError(f"executor.address={address!r}: no scheduler answers ({exc.strerror or type(exc).__name__}"
+                          f" within {timeout:g} s); start it (`dask scheduler`) or fix the address",
+                          field="executor.address", value=address) from None
 
 
 def _reset_blocks_missing_chunks(path: str, ledger: np.ndarray, block_shape: tuple[int, ...],

@@ -334,9 +334,9 @@ def list_chunk_indices(array_dir: str | os.PathLike[str]) -> set[tuple[int, ...]
                     found.add(tuple(int(p) for p in parts))
         return found
     for f in os.listdir(folder):
-        parts = f.split(sep)
-        if parts[0] == "c" and len(parts) > 1 and all(p.isdigit() for p in parts[1:]):
-            found.add(tuple(int(p) for p in parts[1:]))
+        pieces = f.split(sep)
+        if pieces[0] == "c" and len(pieces) > 1 and all(p.isdigit() for p in pieces[1:]):
+            found.add(tuple(int(p) for p in pieces[1:]))
     return found
 
 
@@ -401,7 +401,7 @@ def check_store_chunks(path: str | os.PathLike[str], attrs: Mapping[str, Any] | 
     except (KeyError, TypeError, ValueError):
         return  # reported by the attribute checks of verify
     outputs = declared_outputs(attrs)
-    names = [*(outputs or _consolidated_outputs(path)), layout.REGIME_VAR]
+    names: list[str] = [*(outputs or _consolidated_outputs(path)), layout.REGIME_VAR]
     lost = find_blocks_missing_chunks(path, read_ledger(path, block_shape), block_shape, names)
     if lost:
         index, variables = next(iter(sorted(lost.items())))

@@ -429,7 +429,7 @@ def _fill(tmp: Path, a: str, b: str, group_a: Any, group_b: Any, names: list[str
         if prefer is None and counts["conflicts"]:
             continue
         for v in value_vars:  # outputs and regime first, the ledger last (see store/writer.py)
-            arr: Any = target[v].with_config({"write_empty_chunks": True})  # see store/writer.py
+            arr: Any = target[v].with_config({"write_empty_chunks": True})  # type: ignore[union-attr]
             merged = np.full(values_a[v].shape, arr.fill_value, dtype=values_a[v].dtype)
             merged[use_a] = values_a[v][use_a]
             merged[use_b] = values_b[v][use_b]
