@@ -28,6 +28,7 @@ from sweepshell.engine.plan import Axis, ExecutorSpec, SweepPlan
 from sweepshell.errors import ConfigError, ParameterError
 from sweepshell.models import get_model
 from sweepshell.models.base import SweepModel
+from sweepshell.store.integrity import check_model_limits
 
 __all__ = ["find_config_dir", "load_plan", "parse_overrides", "resolve_sweep_file"]
 
@@ -519,9 +520,10 @@ def _make_checked_model(model_cls: type[SweepModel], settings: Any) -> SweepMode
                               f"{', '.join(allowed) or '(none)'}", field=f"settings.{key}", value=key)
     try:
         model = model_cls(**settings)
-    except (TypeError, ValueError) as exc:
+    except (TypeError, ValueError, OverflowError) as exc:
         raise ConfigError(f"settings {json.dumps(settings)} rejected by model {model_cls.name!r}: {exc}",
                           field="settings", value=settings) from None
+    check_model_limits(model, "settings", ConfigError)
     return model
 
 

@@ -21,6 +21,7 @@ import numpy as np
 from sweepshell.errors import StoreMismatchError
 from sweepshell.models import make_model
 from sweepshell.models.base import TRUSTED_STATUSES, BatchResult, SweepModel
+from sweepshell.store.integrity import check_model_limits
 from sweepshell.store.layout import ATTR
 
 __all__ = ["PointEvaluator", "make_store_model"]
@@ -46,6 +47,7 @@ def make_store_model(attrs: Mapping[str, Any]) -> SweepModel:
     """
     name = attrs.get(ATTR.model)
     model = make_model(str(name), _settings_from_json(attrs.get(ATTR.settings)))
+    check_model_limits(model, f"the store's recorded {ATTR.settings}")  # store records are input too
     stored = attrs.get(ATTR.model_version)
     if model.version != stored:
         raise StoreMismatchError(

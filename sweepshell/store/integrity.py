@@ -39,6 +39,8 @@ from sweepshell.store.layout import ATTR
 
 __all__ = [
     "MetadataProblem",
+    "check_model_limits",
+    "check_record_shapes",
     "check_store_chunks",
     "check_store_metadata",
     "check_trusted_values",
@@ -51,6 +53,13 @@ __all__ = [
     "repair_remedy",
     "scan_metadata",
 ]
+
+#: largest root zarr.json read (attributes and consolidated metadata of a store take kilobytes)
+MAX_ROOT_METADATA_BYTES = 16_000_000
+#: most values one point may hold across a model's extra output dimensions
+MAX_VALUES_PER_POINT = 1_000_000
+#: most seconds a model may claim to need per point
+MAX_SECONDS_PER_POINT = 600.0
 
 #: fields of an array's metadata that must agree between its own file and the consolidated copy
 _COMPARED = ("data_type", "shape", "chunk_grid", "chunk_key_encoding", "codecs", "fill_value", "dimension_names")
@@ -137,6 +146,11 @@ def read_root_metadata(path: str | os.PathLike[str]) -> dict[str, Any]:
     file = Path(path) / "zarr.json"
     if not file.is_file():
         raise FileNotFoundError(str(file))
+    size = file.stat().st_size
+    if size > MAX_ROOT_METADATA_BYTES:
+        raise StoreDamagedError(f"store {str(path)!r}: its root metadata zarr.json is {size} bytes, above "
+                                f"{MAX_ROOT_METADATA_BYTES} (a store's records take kilobytes); "
+                                + repair_remedy(path, False), field="store", value=str(path))
     meta, reason = _parse_json_file(file)
     if reason is None and not isinstance(meta, dict):
         reason = "is not a JSON object"
@@ -249,12 +263,70 @@ def check_store_metadata(path: str | os.PathLike[str], root_meta: Mapping[str, A
     """
     meta = root_meta if root_meta is not None else read_root_metadata(path)
     problems = scan_metadata(path, meta)
+    if not problems:
+        problems = check_record_shapes(path, meta)
     if problems:
         first = problems[0]
         more = f" (and {len(problems) - 1} more)" if len(problems) > 1 else ""
         raise StoreDamagedError(f"store {str(path)!r} is damaged: {first.message}{more}; "
                                 + repair_remedy(path, all(p.repairable for p in problems)),
                                 field="store", value=str(path))
+
+
+def check_record_shapes(path: str | os.PathLike[str], root_meta: Mapping[str, Any]) -> list[MetadataProblem]:
+    """Return problems of the recorded axes and block shape against the ledger array's own metadata.
+
+    Commands size their work from these records (refine, merge, run), so a record that claims
+    more values than the arrays hold, a block of zero points or a non-standard number
+    (``Infinity``) is refused before anything is allocated.
+    """
+    attrs = root_meta.get("attributes") or {}
+    status_meta, _ = _parse_json_file(Path(path) / layout.STATUS_VAR / "zarr.json")
+    if not isinstance(status_meta, dict):
+        return []  # reported by the metadata scan
+    dims = [str(d) for d in status_meta.get("dimension_names") or []]
+    shape = status_meta.get("shape") or []
+    try:
+        chunks = list(status_meta["chunk_grid"]["configuration"]["chunk_shape"])
+    except (KeyError, TypeError):
+        chunks = []
+    problems = []
+    try:
+        axes = json.loads(attrs.get(ATTR.axes, ""), parse_constant=_refuse_constant)
+    except (TypeError, ValueError) as exc:
+        return [MetadataProblem(None, f"attribute {ATTR.axes} does not parse ({str(exc).splitlines()[0]})", False)]
+    if not isinstance(axes, dict) or sorted(axes) != sorted(dims) or any(
+            not isinstance(axes[d], list) or len(axes[d]) != n for d, n in zip(dims, shape, strict=False)):
+        claimed = {k: len(v) if isinstance(v, list) else v for k, v in axes.items()} if isinstance(axes, dict) else axes
+        problems.append(MetadataProblem(None, f"attribute {ATTR.axes} ({_clip(claimed)}) does not match the ledger's "
+                                              f"axes {dict(zip(dims, shape, strict=False))}", False))
+    block = attrs.get(ATTR.block_shape)
+    if not (isinstance(block, list) and len(block) == len(dims) and all(
+            isinstance(b, int) and not isinstance(b, bool) and b >= 1 for b in block) and block == chunks):
+        problems.append(MetadataProblem(None, f"attribute {ATTR.block_shape}={_clip(block)} is not the ledger's "
+                                              f"chunk shape {chunks}", False))
+    return problems
+
+
+def _clip(value: Any) -> str:
+    text = repr(value)
+    return text if len(text) <= 60 else text[:57] + "..."
+
+
+def check_model_limits(model: Any, where: str, error: type[Exception] = StoreDamagedError) -> None:
+    """Refuse model settings that would allocate or compute without bound.
+
+    ``where`` names the source in the message (``settings`` of a sweep, or a store's record).
+    """
+    extra = dict(model.extra_dims)
+    per_point = math.prod(int(v) for v in extra.values()) if extra else 1
+    if any(int(v) < 1 for v in extra.values()) or per_point > MAX_VALUES_PER_POINT:
+        raise error(f"{where}: model {model.name} settings give extra output dimensions {extra} ({per_point} values "
+                    f"per point); allowed is 1 to {MAX_VALUES_PER_POINT} per point")
+    cost = float(model.estimated_cost())
+    if not 0 <= cost <= MAX_SECONDS_PER_POINT:
+        raise error(f"{where}: model {model.name} settings ask for {cost:g} s per point; at most "
+                    f"{MAX_SECONDS_PER_POINT:g} s is allowed")
 
 
 def repair_metadata(path: str | os.PathLike[str]) -> list[str]:
