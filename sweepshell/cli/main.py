@@ -127,6 +127,13 @@ def _cmd_status(args: argparse.Namespace) -> int:
     print(f"  axes: {axes}")
     print(f"  {info['total']} points: {counts}; {info['complete_fraction']:.1%} final"
           + ("" if info["complete"] else " (run the sweep again to continue)"))
+    if info["counts"].get("unknown"):
+        print(f"  {info['counts']['unknown']} points hold status codes this sweepshell does not know; "
+              f"`sweepshell verify {info['path']}` names the blocks")
+    off = info.get("off_grid_points") or {}
+    if off:
+        print(f"  off-grid points (refine, boundary): {sum(off.values())} "
+              f"({', '.join(f'{v} {k}' for k, v in off.items())})")
     return EXIT_OK
 
 

@@ -19,7 +19,7 @@ from typing import Any
 
 import numpy as np
 
-from sweepshell.engine.claims import ClaimBook
+from sweepshell.engine.claims import ClaimBook, remove_stale_claims
 from sweepshell.engine.observers import RunObserver, SilentObserver
 from sweepshell.engine.plan import Block, ExecutorSpec, SweepPlan, choose_block_shape, iter_blocks
 from sweepshell.engine.reuse import Donor, find_donors
@@ -227,6 +227,7 @@ def run_plan(plan: SweepPlan, *, observer: RunObserver | None = None, claim_ttl:
             pending = [b for b in iter_blocks(plan.shape, block_shape)
                        if np.any(ledger[b.slices] == Status.pending)]
             if not pending:
+                remove_stale_claims(path, claim_ttl)  # a complete store keeps no claims of dead runners
                 return RunSummary(store_path=path, total=plan.n_points, counts=_counts(ledger), computed=0,
                                   blocks=0, wall_seconds=time.perf_counter() - t0)
             to_compute = sum(b.n_points for b in pending)
@@ -254,6 +255,7 @@ def run_plan(plan: SweepPlan, *, observer: RunObserver | None = None, claim_ttl:
                               "continue", field="store", value=path) from None
     assert claims is not None
     claims.release_all()
+    remove_stale_claims(path, claim_ttl)
     observer.close()
     return _final_summary(plan, block_shape, tally, t0)
 

@@ -47,6 +47,7 @@ from sweepshell.store import layout
 from sweepshell.store.catalog import read_axis_order
 from sweepshell.store.layout import ATTR
 from sweepshell.store.reader import check_readable_store
+from sweepshell.store.writer import clean_stale_temporaries
 
 __all__ = ["MERGED_FROM_ATTR", "MergeConflictError", "MergeReport", "merge_stores", "union_axis_values"]
 
@@ -351,6 +352,7 @@ def merge_stores(a: str | os.PathLike[str], b: str | os.PathLike[str], output: s
         sa, sb = ds_a[n].attrs.get("spacing"), ds_b[n].attrs.get("spacing")
         spacing[n] = str(sa) if sa == sb and sa is not None else "list"
 
+    clean_stale_temporaries(out_path)  # a killed merge's half-built store
     tmp = out_path.with_name(out_path.name + layout.TEMP_SUFFIX + f"-{os.getpid()}")
     out_path.parent.mkdir(parents=True, exist_ok=True)
     if tmp.exists():
