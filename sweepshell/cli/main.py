@@ -1,8 +1,11 @@
 """``sweepshell`` command line: parse arguments, call the library, print, exit.
 
-Exit codes: 0 done, 2 bad input (one clear line on stderr, nothing written), 130
-interrupted (the run resumes where it stopped). Heavy libraries are imported inside the
-commands that need them so that ``--help`` and ``status`` answer quickly.
+Exit codes (:data:`EXIT_CODES_HELP`): 0 done; 1 the command failed (``verify`` found problems,
+or an unexpected error); 2 bad input or a damaged store (one clear line on stderr, nothing
+written); 3 a run stopped on an outside fault (disk full, file-size limit, scheduler lost —
+run the same command again to continue); 130 interrupted (resumable). Every failure is one
+line on stderr, never a traceback (``-v`` logs the details). Heavy libraries are imported
+inside the commands that need them so that ``--help`` and ``status`` answer quickly.
 """
 
 from __future__ import annotations
@@ -29,6 +32,10 @@ EXIT_STOPPED = 3
 EXIT_INTERRUPTED = 130
 
 _CAUTION_HELP = "CAUTION: " + CAUTION.removeprefix("Caution: ")
+EXIT_CODES_HELP = ("exit codes: 0 done; 1 failed (verify found problems, or an unexpected error); 2 bad input or a "
+                   "damaged store (one line on stderr, nothing written); 3 a run stopped on an outside fault (disk "
+                   "full, file-size limit, scheduler lost: run the same command again to continue); 130 interrupted "
+                   "(resumable)")
 
 
 class _Parser(argparse.ArgumentParser):
@@ -43,7 +50,7 @@ def build_parser() -> argparse.ArgumentParser:
         prog="sweepshell",
         description="Sweep validated reduced-order buckling models of thin shells and sheets over parameter "
                     "grids; keep every result in a labelled zarr store; query and map it.",
-        epilog=_CAUTION_HELP, formatter_class=argparse.RawDescriptionHelpFormatter)
+        epilog=EXIT_CODES_HELP + "\n\n" + _CAUTION_HELP, formatter_class=argparse.RawDescriptionHelpFormatter)
     parser.add_argument("--version", action="version", version=f"sweepshell {__version__}")
     parser.add_argument("-v", "--verbose", action="store_true", help="log what the library does")
     sub = parser.add_subparsers(dest="command", metavar="COMMAND", parser_class=_Parser)
@@ -54,7 +61,7 @@ def build_parser() -> argparse.ArgumentParser:
                     "continues where it stopped. Overrides use hydra's grammar, e.g. fixed.poisson_ratio=0.25 "
                     "axes.shell_parameter=range(3,12,0.5) axes.edge=clamped,pinned store.path=scratch/x.zarr "
                     "executor=threads executor.workers=1.",
-        epilog=_CAUTION_HELP)
+        epilog=EXIT_CODES_HELP + ". " + _CAUTION_HELP)
     run.add_argument("sweep", metavar="SWEEP")
     run.add_argument("overrides", nargs="*", metavar="OVERRIDE")
     run.add_argument("--config-dir", help="the configs/ folder (default: ./configs)")
@@ -181,7 +188,7 @@ def main(argv: Sequence[str] | None = None) -> int:
     except Exception as exc:  # no traceback for any input or fault: explain it in one line
         message, failed_code = _explain_failure(args, exc)
         print(f"sweepshell: error: {message}", file=sys.stderr)
-        logging.getLogger("sweepshell").debug("details", exc_info=True)
+        logging.getLogger("sweepshell").info("details of the error above", exc_info=True)
         return failed_code
     return code
 

@@ -145,17 +145,20 @@ def start_client(spec: ExecutorSpec) -> tuple[Any, Any]:
     import dask
     from distributed import Client, LocalCluster
 
+    # a failed block is reported by the runner in one line; dask's own error log would add a traceback
+    quiet = not log.isEnabledFor(logging.INFO)
+    if quiet:
+        logging.getLogger("distributed").setLevel(logging.CRITICAL)
     if spec.kind == "distributed":
         return Client(spec.address, timeout="20s"), None
-    if not log.isEnabledFor(logging.INFO):
-        logging.getLogger("distributed").setLevel(logging.ERROR)
-    with dask.config.set({"logging.distributed": "error"}):
+    with dask.config.set({"logging.distributed": "critical" if quiet else "error"}):
         if spec.kind == "threads":
             cluster = LocalCluster(n_workers=1, threads_per_worker=spec.workers or 1, processes=False,
                                    dashboard_address=":0")
         else:
             cluster = LocalCluster(n_workers=spec.workers or (os.cpu_count() or 1), threads_per_worker=1,
-                                   processes=True, dashboard_address=":0", silence_logs=logging.ERROR)
+                                   processes=True, dashboard_address=":0",
+                                   silence_logs=logging.CRITICAL if quiet else logging.ERROR)
     return Client(cluster), cluster
 
 
