@@ -137,6 +137,9 @@ def _cmd_status(args: argparse.Namespace) -> int:
     if info["counts"].get("unknown"):
         print(f"  {info['counts']['unknown']} points hold status codes this sweepshell does not know; "
               f"`sweepshell verify {info['path']}` names the blocks")
+    if info.get("blocks_missing_chunks"):
+        print(f"  {info['blocks_missing_chunks']} final blocks lost chunks (their values are gone); "
+              f"`sweepshell run` recomputes them, `sweepshell verify {info['path']}` names them")
     off = info.get("off_grid_points") or {}
     if off:
         print(f"  off-grid points (refine, boundary): {sum(off.values())} "

@@ -245,8 +245,8 @@ def load_plan(sweep: str, overrides: Sequence[str] = (), *, config_dir: str | os
     presets = sorted(f.stem for f in (cdir / "executor").glob("*.yaml"))
     for choice in group:
         if choice.split("=", 1)[1] not in presets:  # a preset name, never a path (executor=../sweep/x)
-            raise ConfigError(f"{choice} is not an executor preset; use one of {', '.join(presets)}, or set "
-                              "executor.kind/workers/address directly", field="executor", value=choice)
+            raise ConfigError(f"{choice} is not an executor preset; executor presets are {', '.join(presets)} "
+                              "(or set executor.kind/workers/address directly)", field="executor", value=choice)
     base = _compose_base(cdir, group)
     OmegaConf.set_struct(base, False)
     cfg = OmegaConf.merge(base, _load_sweep_yaml(path))
@@ -467,7 +467,7 @@ def check_store_path(store_path: Any) -> None:
             raise ConfigError(f"store.path={store_path!r} is under {system}, a system folder; give a folder of "
                               "your own such as results/NAME.zarr", field="store.path", value=store_path)
     if resolved.exists() and not resolved.is_dir():
-        raise ConfigError(f"store.path={store_path!r} is a file, not a store folder; give another path",
+        raise ConfigError(f"store.path={store_path!r} is a file; choose another path (a store is a folder)",
                           field="store.path", value=store_path)
     for parent in resolved.parents:
         if parent.exists():

@@ -168,7 +168,8 @@ def take_from_donors(donors: Sequence[Donor], model: SweepModel, inputs: Mapping
             result.regime[rows] = regime[usable]
             result.status[rows] = status[usable]
             matched[rows] = True
-        except Exception:  # an unreadable donor is skipped, never trusted
-            log.warning("could not read reuse source %s; computing instead", donor.path, exc_info=True)
+        except Exception as exc:  # an unreadable donor is skipped, never trusted
+            log.warning("could not read reuse source %s (%s); computing instead", donor.path, type(exc).__name__)
+            log.info("reuse source %s failed", donor.path, exc_info=True)
     return matched, result
 

@@ -44,6 +44,7 @@ __all__ = [
     "check_store_chunks",
     "check_store_metadata",
     "check_trusted_values",
+    "consolidated_outputs",
     "declared_outputs",
     "find_blocks_missing_chunks",
     "find_undecodable_chunk",
@@ -473,7 +474,7 @@ def check_store_chunks(path: str | os.PathLike[str], attrs: Mapping[str, Any] | 
     except (KeyError, TypeError, ValueError):
         return  # reported by the attribute checks of verify
     outputs = declared_outputs(attrs)
-    names: list[str] = [*(outputs or _consolidated_outputs(path)), layout.REGIME_VAR]
+    names: list[str] = [*(outputs or consolidated_outputs(path)), layout.REGIME_VAR]
     lost = find_blocks_missing_chunks(path, read_ledger(path, block_shape), block_shape, names)
     if lost:
         index, variables = next(iter(sorted(lost.items())))
@@ -483,7 +484,8 @@ def check_store_chunks(path: str | os.PathLike[str], attrs: Mapping[str, Any] | 
                                 "then run the sweep again", field="store", value=str(path))
 
 
-def _consolidated_outputs(path: str | os.PathLike[str]) -> list[str]:
+def consolidated_outputs(path: str | os.PathLike[str]) -> list[str]:
+    """Return the data variables other than status and regime, from the consolidated metadata."""
     meta = read_root_metadata(path)
     entries = ((meta.get("consolidated_metadata") or {}).get("metadata") or {})
     status_dims = (entries.get(layout.STATUS_VAR) or {}).get("dimension_names") or []

@@ -54,6 +54,7 @@ def summarize_store(path: str | os.PathLike[str]) -> dict[str, Any]:
         "complete": counts[Status.pending.name] == 0 and not unknown,
         "complete_fraction": (total - counts[Status.pending.name] - unknown) / total if total else 1.0,
         "off_grid_points": _count_off_grid(path),
+        "blocks_missing_chunks": _count_lost_blocks(path, ledger, block_shape),
         "settings": json.loads(attrs.get(ATTR.settings, "{}")),
         "fixed": json.loads(attrs.get(ATTR.fixed, "{}")),
         "bytes_on_disk": size,
@@ -78,3 +79,12 @@ def _count_off_grid(path: str | os.PathLike[str]) -> dict[str, int]:
     if raw[len(Status):].sum():
         counts["unknown"] = int(raw[len(Status):].sum())
     return counts
+
+
+def _count_lost_blocks(path: str | os.PathLike[str], ledger: np.ndarray, block_shape: tuple[int, ...]) -> int:
+    """Return how many final blocks lost an output or regime chunk (a listing; no model import, no decoding)."""
+    from sweepshell.store.integrity import consolidated_outputs, find_blocks_missing_chunks
+    from sweepshell.store.layout import REGIME_VAR
+
+    names = [*consolidated_outputs(path), REGIME_VAR]
+    return len(find_blocks_missing_chunks(path, ledger, block_shape, names))

@@ -235,7 +235,7 @@ CASES = [
     Case("store-url-file", [*RUN, "store.path=file:///tmp/x.zarr"], 2, r"is a URL; object stores"),
     Case("store-under-proc", [*RUN, "store.path=/proc/x.zarr"], 2, r"is under /proc, a system folder"),
     Case("store-inside-file", [*RUN, "store.path=col.yaml/x.zarr"], 2, r"lies inside the file .*col\.yaml"),
-    Case("store-is-file", [*RUN, "store.path=col.yaml"], 2, r"is a file, not a store folder"),
+    Case("store-is-file", [*RUN, "store.path=col.yaml"], 2, r"is a file; choose another path"),
     Case("unreachable-scheduler", [*RUN, "executor=distributed", "executor.address=tcp://127.0.0.1:9",
                                    "store.path=results/new.zarr"], 2, r"no scheduler answers", bounded=True),
     Case("where-bitand-numbers", ["query", STORE, "--where", "load_ratio > 1 & 2"], 2,

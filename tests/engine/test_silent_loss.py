@@ -76,6 +76,8 @@ def test_deleted_output_chunk_is_found_refused_and_recomputed(store, reference, 
 
     assert main(["query", STORE, "--format", "csv"]) == 2
     assert "lost data: critical_load block [2, 0]" in _one_error_line(capsys.readouterr().err)
+    assert main(["status", STORE]) == 0
+    assert "1 final blocks lost chunks" in capsys.readouterr().out
 
     # run notices the missing chunk by listing (no repair needed) and recomputes only that block
     assert main(RUN) == 0
