@@ -11,6 +11,7 @@ inside the commands that need them so that ``--help`` and ``status`` answer quic
 from __future__ import annotations
 
 import argparse
+import errno
 import importlib
 import importlib.util
 import json
@@ -214,8 +215,11 @@ def _explain_failure(args: argparse.Namespace, exc: Exception) -> tuple[str, int
                     f"chunk is damaged); run `sweepshell verify --repair {store}`, then run the sweep again",
                     EXIT_BAD_INPUT)
     if isinstance(exc, OSError):
-        return (f"{exc.strerror or type(exc).__name__} ({exc.filename or ''}); check the path, permissions and free "
-                "space", EXIT_FAILED)
+        if exc.errno in (errno.ENOSPC, errno.EFBIG, errno.EDQUOT):
+            return (f"{exc.strerror} ({exc.filename or ''}); free space or raise the limit, then run the same "
+                    "command again", EXIT_STOPPED)
+        return (f"{exc.strerror or type(exc).__name__} ({exc.filename or ''}); check the path and its permissions",
+                EXIT_BAD_INPUT)
     first = str(exc).splitlines()[0] if str(exc) else ""
     return (f"unexpected {type(exc).__name__}: {first[:200]}; this is a bug in sweepshell — rerun with -v for the "
             "details and report them", EXIT_FAILED)

@@ -28,7 +28,7 @@ from sweepshell.engine.plan import Axis, ExecutorSpec, SweepPlan
 from sweepshell.errors import ConfigError, ParameterError
 from sweepshell.models import get_model
 from sweepshell.models.base import SweepModel
-from sweepshell.store.integrity import check_model_limits
+from sweepshell.store.integrity import check_model_limits, check_store_path
 
 __all__ = ["find_config_dir", "load_plan", "parse_overrides", "resolve_sweep_file"]
 
@@ -36,6 +36,7 @@ SWEEP_KEYS = ("name", "model", "settings", "fixed", "axes", "store", "executor",
               "description", "reuse", "refine")
 EXECUTOR_KINDS = ("local", "threads", "distributed")
 DEFAULT_MAX_POINTS = 20_000_000
+MAX_WORKERS = 512
 _NAME_RE = re.compile(r"^[A-Za-z0-9][A-Za-z0-9_.-]*$")
 
 
@@ -318,7 +319,7 @@ def _check_sweep_size(override: Any, max_points: int) -> None:
                           "non-zero step", field=override.key_or_group, value=override.input_line)
     count = max(0, math.ceil((stop - start) / step))
     if count > max_points:
-        raise ConfigError(f"override {override.input_line!r} gives {count} values, above limits.max_points="
+        raise ConfigError(f"override {override.input_line!r} gives {count:.3g} values, above limits.max_points="
                           f"{max_points}; use a larger step", field=override.key_or_group,
                           value=override.input_line)
 
@@ -443,38 +444,6 @@ def build_plan(cfg: Mapping[str, Any], *, source: str = "<dict>") -> SweepPlan:
         axes=tuple(axes), store_path=str(store_path), executor=executor, block_points=block_points,
         resolved_yaml=yaml.safe_dump(resolved, sort_keys=False), reuse=reuse, refine=refine,
     )
-
-
-_URL_RE = re.compile(r"^[A-Za-z][A-Za-z0-9+.-]+:")
-_SYSTEM_DIRS = ("/proc", "/sys", "/dev")
-
-
-def check_store_path(store_path: Any) -> None:
-    """Refuse store paths that cannot hold a store: URLs, system folders, paths through or onto a file.
-
-    Stores live in local (or shared, mounted) folders; object-store URLs are not supported yet, and
-    refusing them here keeps a URL from becoming a local folder named ``s3:``.
-    """
-    if not isinstance(store_path, str) or not store_path.strip():
-        raise ConfigError(f"store.path={store_path!r} must be a folder path such as results/NAME.zarr",
-                          field="store.path", value=store_path)
-    if _URL_RE.match(store_path):
-        raise ConfigError(f"store.path={store_path!r} is a URL; object stores are not supported yet, give a local "
-                          "or mounted folder such as results/NAME.zarr", field="store.path", value=store_path)
-    resolved = Path(store_path).resolve()
-    for system in _SYSTEM_DIRS:
-        if resolved == Path(system) or Path(system) in resolved.parents:
-            raise ConfigError(f"store.path={store_path!r} is under {system}, a system folder; give a folder of "
-                              "your own such as results/NAME.zarr", field="store.path", value=store_path)
-    if resolved.exists() and not resolved.is_dir():
-        raise ConfigError(f"store.path={store_path!r} is a file; choose another path (a store is a folder)",
-                          field="store.path", value=store_path)
-    for parent in resolved.parents:
-        if parent.exists():
-            if not parent.is_dir():
-                raise ConfigError(f"store.path={store_path!r} lies inside the file {parent}; give a folder path",
-                                  field="store.path", value=store_path)
-            break
 
 
 def _plain(v: Any) -> Any:
@@ -624,6 +593,10 @@ def _make_executor(spec: Mapping[str, Any]) -> ExecutorSpec:
     workers = spec.get("workers")
     if workers is not None:
         workers = _positive_int(workers, "executor.workers")
+        if workers > MAX_WORKERS:
+            raise ConfigError(f"executor.workers={workers} is more than {MAX_WORKERS} worker processes on one "
+                              "machine; use executor=distributed for a cluster", field="executor.workers",
+                              value=workers)
     address = spec.get("address")
     if kind == "distributed" and not address:
         raise ConfigError("executor=distributed needs an address; add executor.address=tcp://HOST:PORT",

@@ -25,6 +25,7 @@ import itertools
 import json
 import math
 import os
+import re
 from collections.abc import Iterable, Mapping
 from dataclasses import dataclass
 from pathlib import Path
@@ -32,7 +33,7 @@ from typing import Any
 
 import numpy as np
 
-from sweepshell.errors import StoreDamagedError
+from sweepshell.errors import ConfigError, StoreDamagedError
 from sweepshell.models.base import TRUSTED_STATUSES
 from sweepshell.store import layout
 from sweepshell.store.layout import ATTR
@@ -43,6 +44,7 @@ __all__ = [
     "check_record_shapes",
     "check_store_chunks",
     "check_store_metadata",
+    "check_store_path",
     "check_trusted_values",
     "consolidated_outputs",
     "declared_outputs",
@@ -84,6 +86,38 @@ class MetadataProblem:
     variable: str | None
     message: str
     repairable: bool
+
+
+_URL_RE = re.compile(r"^[A-Za-z][A-Za-z0-9+.-]+:")
+_SYSTEM_DIRS = ("/proc", "/sys", "/dev")
+
+
+def check_store_path(store_path: Any, what: str = "store.path") -> None:
+    """Refuse store paths that cannot hold a store: URLs, system folders, paths through or onto a file.
+
+    Stores live in local (or shared, mounted) folders; object-store URLs are not supported yet, and
+    refusing them here keeps a URL from becoming a local folder named ``s3:``.
+    """
+    if not isinstance(store_path, str) or not store_path.strip():
+        raise ConfigError(f"{what}={store_path!r} must be a folder path such as results/NAME.zarr",
+                          field=what, value=store_path)
+    if _URL_RE.match(store_path):
+        raise ConfigError(f"{what}={store_path!r} is a URL; object stores are not supported yet, give a local "
+                          "or mounted folder such as results/NAME.zarr", field=what, value=store_path)
+    resolved = Path(store_path).resolve()
+    for system in _SYSTEM_DIRS:
+        if resolved == Path(system) or Path(system) in resolved.parents:
+            raise ConfigError(f"{what}={store_path!r} is under {system}, a system folder; give a folder of "
+                              "your own such as results/NAME.zarr", field=what, value=store_path)
+    if resolved.exists() and not resolved.is_dir():
+        raise ConfigError(f"{what}={store_path!r} is a file; choose another path (a store is a folder)",
+                          field=what, value=store_path)
+    for parent in resolved.parents:
+        if parent.exists():
+            if not parent.is_dir():
+                raise ConfigError(f"{what}={store_path!r} lies inside the file {parent}; give a folder path",
+                                  field=what, value=store_path)
+            break
 
 
 def repair_remedy(path: str | os.PathLike[str], repairable: bool = True) -> str:

@@ -45,6 +45,7 @@ from sweepshell.errors import StoreMismatchError, StoreSchemaError
 from sweepshell.models.base import Status
 from sweepshell.store import layout
 from sweepshell.store.catalog import read_axis_order
+from sweepshell.store.integrity import check_store_path
 from sweepshell.store.layout import ATTR
 from sweepshell.store.reader import check_readable_store
 from sweepshell.store.writer import clean_stale_temporaries
@@ -276,6 +277,7 @@ def merge_stores(a: str | os.PathLike[str], b: str | os.PathLike[str], output: s
     import zarr
 
     a, b, out_path = str(a), str(b), Path(output)
+    check_store_path(str(output), "-o")  # a URL or system path is refused before anything is read or written
     if prefer not in (None, "a", "b"):
         raise StoreMismatchError(f"prefer={prefer!r}; use 'a' or 'b'", field="prefer", value=prefer)
     if out_path.exists() or out_path.is_symlink():
