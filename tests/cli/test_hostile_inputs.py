@@ -353,3 +353,19 @@ def test_leftovers_are_reported_and_cleaned(store_template, workdir, capsys):
     assert not tmp.exists() and (workdir / "results" / "m.zarr" / "zarr.json").is_file()
     assert main(["catalog", "results", "--no-index"]) == 0
     assert "left over" not in capsys.readouterr().out
+
+
+def test_the_console_entry_prints_no_traceback_either(store_template, workdir):
+    """The same refusals through ``python -m sweepshell`` (the real process, its exit code and stderr)."""
+    import subprocess
+    import sys
+
+    shutil.copytree(store_template, workdir / STORE)
+    _flip_byte(workdir)
+    (workdir / "bomb.yaml").write_text(ALIAS_BOMB)
+    for argv, fragment in ((["query", STORE], "critical_load block [1, 0] does not decode"),
+                           (["run", "bomb.yaml"], "anchors and aliases")):
+        done = subprocess.run([sys.executable, "-m", "sweepshell", *argv], capture_output=True, text=True,
+                              cwd=workdir, timeout=120)
+        assert done.returncode == 2 and "Traceback" not in done.stderr + done.stdout
+        assert len(done.stderr.strip().splitlines()) == 1 and fragment in done.stderr
