@@ -149,7 +149,7 @@ def test_reuse_never_copies_nan_at_a_trusted_point(store, reference, workdir, ca
 
 def test_disk_full_mid_run_is_one_line_exit_3_and_resumable(workdir, reference, monkeypatch, capsys):
     (workdir / "col.yaml").write_text(SWEEP)
-    import sweepshell.store.writer as writer
+    from sweepshell.store import writer
 
     real = writer.write_block
     calls = {"n": 0}
