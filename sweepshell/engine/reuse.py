@@ -10,7 +10,6 @@ what recomputing it would give.
 
 from __future__ import annotations
 
-import json
 import logging
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
@@ -19,12 +18,12 @@ from typing import Any
 
 import numpy as np
 
-from sweepshell.engine.plan import SweepPlan
 from sweepshell.errors import SweepshellError
 from sweepshell.models.base import TRUSTED_STATUSES, BatchResult, SweepModel
-from sweepshell.store import layout
+from sweepshell.plan import SweepPlan
+from sweepshell.store import metadata
 from sweepshell.store.integrity import find_blocks_missing_chunks
-from sweepshell.store.layout import ATTR
+from sweepshell.store.metadata import ATTR, canonical_json
 from sweepshell.store.reader import check_readable_store, read_ledger
 
 __all__ = ["Donor", "find_donors", "take_from_donors"]
@@ -60,7 +59,6 @@ def _canonical(value: Any) -> Any:
 def find_donors(plan: SweepPlan, model: SweepModel) -> list[Donor]:
     """Return the compatible stores beside the plan's store (never the store itself)."""
     from sweepshell.store.catalog import find_compatible_stores
-    from sweepshell.store.writer import canonical_json
 
     target = Path(plan.store_path).resolve()
     stores = find_compatible_stores(target.parent, plan.model, plan.model_version, canonical_json(model.settings))
@@ -70,13 +68,13 @@ def find_donors(plan: SweepPlan, model: SweepModel) -> list[Donor]:
             continue
         try:
             attrs = check_readable_store(store)  # a store with damaged metadata is never a source
-            axes: dict[str, list[Any]] = json.loads(attrs[ATTR.axes])
-            fixed: dict[str, Any] = json.loads(attrs[ATTR.fixed])
+            axes: dict[str, list[Any]] = metadata.read_record(attrs, ATTR.axes)
+            fixed: dict[str, Any] = metadata.read_record(attrs, ATTR.fixed)
             order = _axis_order(store, axes)
             block_shape = tuple(int(b) for b in attrs[ATTR.block_shape])
             # blocks that lost a chunk are never copied from (their trusted points would read as NaN)
             damaged = find_blocks_missing_chunks(store, read_ledger(store, block_shape), block_shape,
-                                                 [o.name for o in model.outputs] + [layout.REGIME_VAR])
+                                                 [o.name for o in model.outputs] + [metadata.REGIME_VAR])
         except (OSError, ValueError, KeyError, TypeError, SweepshellError):
             log.warning("skipping unreadable or damaged store %s as a reuse source", store)
             continue
@@ -89,9 +87,7 @@ def find_donors(plan: SweepPlan, model: SweepModel) -> list[Donor]:
 
 
 def _axis_order(store: Path, axes: Mapping[str, Any]) -> list[str]:
-    meta = json.loads((store / layout.STATUS_VAR / "zarr.json").read_text())
-    names = meta.get("dimension_names") or []
-    return [n for n in names if n in axes]
+    return [n for n in metadata.dimension_names(store, metadata.STATUS_VAR) if n in axes]
 
 
 def take_from_donors(donors: Sequence[Donor], model: SweepModel, inputs: Mapping[str, np.ndarray],
@@ -134,7 +130,7 @@ def take_from_donors(donors: Sequence[Donor], model: SweepModel, inputs: Mapping
         try:
             group = zarr.open_group(donor.path, mode="r", zarr_format=3)
             where = tuple(idx[name][ok] for name in donor.axis_names)
-            status = np.asarray(group[layout.STATUS_VAR].vindex[where])  # type: ignore[union-attr]
+            status = np.asarray(group[metadata.STATUS_VAR].vindex[where])  # type: ignore[union-attr]
             final = status != 0
             if not final.any():
                 continue
@@ -156,7 +152,7 @@ def take_from_donors(donors: Sequence[Donor], model: SweepModel, inputs: Mapping
                 copied[out.name] = got
                 if not out.nullable and got.dtype.kind == "f":
                     usable &= ~(trusted & np.isnan(got.reshape(rows.size, -1)).all(axis=-1))
-            regime = np.asarray(group[layout.REGIME_VAR].vindex[where])  # type: ignore[union-attr]
+            regime = np.asarray(group[metadata.REGIME_VAR].vindex[where])  # type: ignore[union-attr]
             usable &= ~(trusted & (regime < 0))
             if not usable.any():
                 continue

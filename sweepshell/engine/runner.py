@@ -12,7 +12,7 @@ import errno
 import logging
 import os
 import time
-from collections.abc import Callable, Iterator, Sequence
+from collections.abc import Callable, Iterator
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
@@ -21,20 +21,19 @@ import numpy as np
 
 from sweepshell.engine.claims import ClaimBook, remove_stale_claims
 from sweepshell.engine.observers import RunObserver, SilentObserver
-from sweepshell.engine.plan import Block, ExecutorSpec, SweepPlan, choose_block_shape, iter_blocks
 from sweepshell.engine.reuse import Donor, find_donors
 from sweepshell.engine.worker import compute_block
 from sweepshell.errors import ConfigError, RunStoppedError
 from sweepshell.models import make_model
 from sweepshell.models.base import Status, SweepModel
+from sweepshell.plan import Block, ExecutorSpec, SweepPlan, choose_block_shape, iter_blocks
 from sweepshell.store.integrity import check_store_metadata, find_blocks_missing_chunks
-from sweepshell.store.layout import REGIME_VAR, STATUS_VAR
+from sweepshell.store.metadata import REGIME_VAR, STATUS_VAR, has_node, is_store
 from sweepshell.store.reader import is_block_final, read_ledger
 from sweepshell.store.writer import (
     check_store_matches,
     clean_stale_temporaries,
     create_store,
-    is_store,
     store_block_shape,
 )
 
@@ -118,7 +117,7 @@ def prepare_store(plan: SweepPlan, model: SweepModel | None = None) -> tuple[tup
     model = model or make_model(plan.model, plan.settings)
     path = plan.store_path
     if Path(path).exists():
-        if (Path(path) / "zarr.json").is_file():
+        if has_node(path):
             check_store_metadata(path)  # a damaged store: one line naming the problem and `verify --repair`
         check_store_matches(path, plan, model)
         return store_block_shape(path), False
@@ -403,25 +402,12 @@ def _final_summary(plan: SweepPlan, block_shape: tuple[int, ...], tally: dict[st
                       extra={"by_other_runners": tally["by_others"], "damaged_blocks": tally["damaged"]})
 
 
-def run_sweep(sweep: str | SweepPlan, overrides: Sequence[str] = (), *, observer: RunObserver | None = None,
-              config_dir: str | None = None) -> RunSummary:
-    """Run a sweep by name, path or plan; running it again resumes it.
+def run_sweep(plan: SweepPlan, *, observer: RunObserver | None = None) -> RunSummary:
+    """Run a planned sweep, then the refinement it asks for; running it again resumes it.
 
-    Parameters
-    ----------
-    sweep
-        A sweep name in ``configs/sweep/``, a path to a sweep YAML file, or a :class:`SweepPlan`.
-    overrides
-        hydra-style overrides (``fixed.poisson_ratio=0.25``, ``axes.x=range(0,1,0.1)``).
-    observer
-        Progress observer; silent by default.
+    Loading a sweep by name or file is the config layer's job
+    (:func:`sweepshell.config.sweep.run_sweep`, also ``sweepshell.run_sweep``).
     """
-    if isinstance(sweep, SweepPlan):
-        plan = sweep
-    else:
-        from sweepshell.config.loader import load_plan
-
-        plan = load_plan(sweep, overrides, config_dir=config_dir)
     summary = run_plan(plan, observer=observer)
     if plan.refine and summary.complete:
         refine_plan_store(plan)

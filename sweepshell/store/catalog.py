@@ -39,8 +39,8 @@ import numpy as np
 
 from sweepshell.errors import StoreNotFoundError
 from sweepshell.models.base import Status
-from sweepshell.store import layout
-from sweepshell.store.layout import ATTR
+from sweepshell.store import metadata
+from sweepshell.store.metadata import ATTR
 
 __all__ = [
     "CATALOG_FILE",
@@ -152,14 +152,9 @@ class CatalogListing:
 
 
 def _is_sweepshell_store(folder: Path) -> bool:
-    meta = folder / "zarr.json"
-    if meta.is_symlink() or not meta.is_file():
+    if (folder / metadata.META_FILE).is_symlink():
         return False
-    try:
-        attrs = json.loads(meta.read_text()).get("attributes", {})
-    except (OSError, ValueError, AttributeError):
-        return False
-    return isinstance(attrs, dict) and ATTR.schema in attrs
+    return metadata.is_store(folder)
 
 
 #: the folder of block claims inside a store (see sweepshell.engine.claims)
@@ -203,7 +198,7 @@ def stale_claim_files(store: str | os.PathLike[str], ttl: float = 60.0) -> list[
 def leftover_temporaries(folder: str | os.PathLike[str]) -> list[Path]:
     """Return half-built stores (``NAME.sweepshell-tmp-PID``) in ``folder`` whose process is gone."""
     found = []
-    for sub in sorted(Path(folder).glob("*" + layout.TEMP_SUFFIX + "-*")):
+    for sub in sorted(Path(folder).glob("*" + metadata.TEMP_SUFFIX + "-*")):
         pid = sub.name.rsplit("-", 1)[-1]
         if sub.is_dir() and not sub.is_symlink() and _pid_gone(socket.gethostname(), pid):
             found.append(sub)
@@ -222,7 +217,7 @@ def iter_store_folders(results_dir: str | os.PathLike[str]) -> Iterator[Path]:
         keep = []
         for name in sorted(dirnames):
             sub = here / name
-            if name.startswith(".") or layout.TEMP_SUFFIX in name or sub.is_symlink():
+            if name.startswith(".") or metadata.TEMP_SUFFIX in name or sub.is_symlink():
                 continue
             if _is_sweepshell_store(sub):
                 yield sub
@@ -266,8 +261,7 @@ def read_axis_order(store: str | os.PathLike[str], axes_values: dict[str, Any]) 
     ``dimension_names``; if that is unreadable or disagrees, the record's order is used.
     """
     try:
-        meta = json.loads((Path(store) / layout.STATUS_VAR / "zarr.json").read_text())
-        names = [str(n) for n in meta.get("dimension_names") or []]
+        names = metadata.dimension_names(store, metadata.STATUS_VAR)
     except (OSError, ValueError, AttributeError):
         names = []
     return names if sorted(names) == sorted(axes_values) else list(axes_values)
@@ -296,7 +290,7 @@ def _read_entry(store: Path, rel: str, size: int, latest: float) -> CatalogEntry
     updated = _iso(latest)
     try:
         attrs = check_readable_store(store)
-        axes_values = json.loads(attrs[ATTR.axes])
+        axes_values = metadata.read_record(attrs, ATTR.axes)
         if not isinstance(axes_values, dict):
             raise ValueError("axes record is not a mapping")
         block_shape = tuple(int(b) for b in attrs[ATTR.block_shape])
@@ -398,8 +392,8 @@ def find_leftovers(results_dir: str | os.PathLike[str], *, clean: bool = False) 
     found: list[Path] = []
     for dirpath, dirnames, _files in os.walk(root, followlinks=False):
         found += leftover_temporaries(dirpath)
-        dirnames[:] = [d for d in dirnames if not d.startswith(".") and layout.TEMP_SUFFIX not in d
-                       and not (Path(dirpath) / d / "zarr.json").is_file()]
+        dirnames[:] = [d for d in dirnames if not d.startswith(".") and metadata.TEMP_SUFFIX not in d
+                       and not metadata.has_node(Path(dirpath) / d)]
     for store in iter_store_folders(root):
         found += stale_claim_files(store)
     if clean:
@@ -523,7 +517,7 @@ def find_compatible_stores(results_dir: str | os.PathLike[str], model: str, mode
             continue
         store = root / entry.path
         with contextlib.suppress(OSError, ValueError, AttributeError):
-            attrs = json.loads((store / "zarr.json").read_text()).get("attributes", {})
-            if all(attrs.get(k) == v for k, v in wanted.items()) and attrs.get(ATTR.schema) == layout.SCHEMA_VERSION:
+            attrs = metadata.read_attrs(store)
+            if all(attrs.get(k) == v for k, v in wanted.items()) and attrs.get(ATTR.schema) == metadata.SCHEMA_VERSION:
                 found.append(store)
     return found

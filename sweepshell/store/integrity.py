@@ -35,8 +35,8 @@ import numpy as np
 
 from sweepshell.errors import ConfigError, StoreDamagedError
 from sweepshell.models.base import TRUSTED_STATUSES
-from sweepshell.store import layout
-from sweepshell.store.layout import ATTR
+from sweepshell.store import metadata
+from sweepshell.store.metadata import ATTR
 
 __all__ = [
     "MetadataProblem",
@@ -50,7 +50,6 @@ __all__ = [
     "declared_outputs",
     "find_blocks_missing_chunks",
     "find_undecodable_chunk",
-    "list_chunk_indices",
     "read_root_metadata",
     "repair_metadata",
     "repair_remedy",
@@ -128,46 +127,6 @@ def repair_remedy(path: str | os.PathLike[str], repairable: bool = True) -> str:
             "(store.path=...)")
 
 
-def _parse_json_file(file: Path) -> tuple[Any, str | None]:
-    """Return ``(value, None)`` or ``(None, reason)`` for a JSON file."""
-    try:
-        text = file.read_text()
-    except FileNotFoundError:
-        return None, "is missing"
-    except (OSError, UnicodeDecodeError) as exc:
-        return None, f"cannot be read ({type(exc).__name__})"
-    try:
-        return json.loads(text, parse_constant=_refuse_constant), None
-    except ValueError as exc:
-        return None, f"does not parse as JSON ({str(exc).splitlines()[0]})"
-
-
-def _refuse_constant(name: str) -> Any:
-    # zarr writes NaN fill values as the string "NaN"; a bare NaN/Infinity token is not JSON
-    raise ValueError(f"non-standard constant {name}")
-
-
-def salvage_attributes(text: str) -> dict[str, Any] | None:
-    """Return the ``attributes`` object of a damaged (e.g. truncated) root ``zarr.json``, if it parses.
-
-    zarr writes ``attributes`` first, so a file cut anywhere after them still yields them.
-    """
-    key = text.find('"attributes"')
-    if key < 0:
-        return None
-    colon = text.find(":", key + len('"attributes"'))
-    if colon < 0:
-        return None
-    start = colon + 1
-    while start < len(text) and text[start].isspace():
-        start += 1
-    try:
-        value, _ = json.JSONDecoder().raw_decode(text, start)
-    except ValueError:
-        return None
-    return value if isinstance(value, dict) else None
-
-
 def read_root_metadata(path: str | os.PathLike[str]) -> dict[str, Any]:
     """Return the parsed root ``zarr.json`` of a store.
 
@@ -178,19 +137,18 @@ def read_root_metadata(path: str | os.PathLike[str]) -> dict[str, Any]:
     FileNotFoundError
         If there is no root ``zarr.json`` (the caller decides what that means).
     """
-    file = Path(path) / "zarr.json"
-    if not file.is_file():
-        raise FileNotFoundError(str(file))
-    size = file.stat().st_size
+    if not metadata.has_node(path):
+        raise FileNotFoundError(str(Path(path) / metadata.META_FILE))
+    size = metadata.node_size(path)
     if size > MAX_ROOT_METADATA_BYTES:
         raise StoreDamagedError(f"store {str(path)!r}: its root metadata zarr.json is {size} bytes, above "
                                 f"{MAX_ROOT_METADATA_BYTES} (a store's records take kilobytes); "
                                 + repair_remedy(path, False), field="store", value=str(path))
-    meta, reason = _parse_json_file(file)
+    meta, reason = metadata.read_node_or_reason(path)
     if reason is None and not isinstance(meta, dict):
         reason = "is not a JSON object"
     if reason is not None:
-        salvaged = salvage_attributes(file.read_text(errors="replace")) if file.is_file() else None
+        salvaged = metadata.salvage_attributes(path)
         ok = salvaged is not None and ATTR.schema in salvaged
         raise StoreDamagedError(f"store {str(path)!r}: its root metadata zarr.json {reason}; "
                                 + repair_remedy(path, ok), field="store", value=str(path))
@@ -210,7 +168,7 @@ def declared_outputs(attrs: Mapping[str, Any]) -> dict[str, Any] | None:
     if not isinstance(name, str) or name not in list_models():
         return None
     try:
-        settings = json.loads(attrs.get(ATTR.settings, "{}"), parse_constant=_refuse_constant)
+        settings = metadata.read_record(attrs, ATTR.settings, "{}")
         model = make_model(name, settings if isinstance(settings, dict) else {})
         return {out.name: out for out in model.outputs}
     except Exception:  # a store with settings this version rejects: its outputs are unknown, not fatal
@@ -218,7 +176,7 @@ def declared_outputs(attrs: Mapping[str, Any]) -> dict[str, Any] | None:
 
 
 def _expected_dtypes(attrs: Mapping[str, Any]) -> dict[str, str]:
-    expected = {layout.STATUS_VAR: "uint8", layout.REGIME_VAR: "int8"}
+    expected = {metadata.STATUS_VAR: "uint8", metadata.REGIME_VAR: "int8"}
     outputs = declared_outputs(attrs) or {}
     for name, spec in outputs.items():
         expected[name] = np.dtype(spec.dtype).name
@@ -250,14 +208,14 @@ def scan_metadata(path: str | os.PathLike[str], root_meta: Mapping[str, Any]) ->
 
 def _json_attr(attrs: Mapping[str, Any], key: str) -> dict[str, Any] | None:
     try:
-        value = json.loads(attrs[key], parse_constant=_refuse_constant)
+        value = metadata.read_record(attrs, key)
     except (KeyError, TypeError, ValueError):
         return None
     return value if isinstance(value, dict) else None
 
 
 def _scan_array(root: Path, name: str, copy: Any, dtype: str | None) -> list[MetadataProblem]:
-    own, reason = _parse_json_file(root / name / "zarr.json")
+    own, reason = metadata.read_node_or_reason(root / name)
     if reason is None and not (isinstance(own, dict) and own.get("node_type") == "array"):
         reason = "is not the metadata of an array"
     copy_ok = isinstance(copy, dict) and copy.get("node_type") == "array"
@@ -316,7 +274,7 @@ def check_record_shapes(path: str | os.PathLike[str], root_meta: Mapping[str, An
     (``Infinity``) is refused before anything is allocated.
     """
     attrs = root_meta.get("attributes") or {}
-    status_meta, _ = _parse_json_file(Path(path) / layout.STATUS_VAR / "zarr.json")
+    status_meta, _ = metadata.read_node_or_reason(Path(path) / metadata.STATUS_VAR)
     if not isinstance(status_meta, dict):
         return []  # reported by the metadata scan
     dims = [str(d) for d in status_meta.get("dimension_names") or []]
@@ -327,7 +285,7 @@ def check_record_shapes(path: str | os.PathLike[str], root_meta: Mapping[str, An
         chunks = []
     problems = []
     try:
-        axes = json.loads(attrs.get(ATTR.axes, ""), parse_constant=_refuse_constant)
+        axes = metadata.read_record(attrs, ATTR.axes, "")
     except (TypeError, ValueError) as exc:
         return [MetadataProblem(None, f"attribute {ATTR.axes} does not parse ({str(exc).splitlines()[0]})", False)]
     if not isinstance(axes, dict) or sorted(axes) != sorted(dims) or any(
@@ -375,76 +333,31 @@ def repair_metadata(path: str | os.PathLike[str]) -> list[str]:
     """
     root = Path(path)
     changes: list[str] = []
-    file = root / "zarr.json"
-    meta, reason = _parse_json_file(file)
+    meta, reason = metadata.read_node_or_reason(root)
     if reason is not None or not isinstance(meta, dict):
-        attrs = salvage_attributes(file.read_text(errors="replace")) if file.is_file() else None
+        attrs = metadata.salvage_attributes(root)
         if attrs is None or ATTR.schema not in attrs:
             return changes
         meta = {"attributes": attrs, "zarr_format": 3, "node_type": "group"}
         changes.append("root zarr.json rebuilt around its surviving attributes")
-    entries = ((meta.get("consolidated_metadata") or {}).get("metadata") or {})
+    entries = metadata.consolidated_entries(meta)
     expected = _expected_dtypes(meta.get("attributes") or {})
     for problem in scan_metadata(root, meta):
         name = problem.variable
         if name is None or not problem.repairable:
             continue
-        own, own_reason = _parse_json_file(root / name / "zarr.json")
+        own, own_reason = metadata.read_node_or_reason(root / name)
         copy = entries.get(name)
         dtype = expected.get(name)
         if own_reason is not None or not isinstance(own, dict) or (
                 isinstance(copy, dict) and dtype is not None and own.get("data_type") != dtype
                 and copy.get("data_type") == dtype):
-            (root / name).mkdir(exist_ok=True)
-            _write_json(root / name / "zarr.json", copy)
+            metadata.write_node(root / name, copy)
             changes.append(f"{name}/zarr.json rebuilt from the consolidated metadata")
-    _write_json(file, {k: v for k, v in meta.items() if k != "consolidated_metadata"})
-    import warnings
-
-    import zarr
-
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore")
-        zarr.consolidate_metadata(str(root), zarr_format=3)
+    metadata.write_node(root, {k: v for k, v in meta.items() if k != "consolidated_metadata"})
+    metadata.reconsolidate(root)
     changes.append("consolidated metadata rebuilt from the arrays")
     return changes
-
-
-def _write_json(file: Path, value: Any) -> None:
-    tmp = file.with_name(file.name + f".tmp-{os.getpid()}")
-    tmp.write_text(json.dumps(value, indent=2))
-    os.replace(tmp, file)
-
-
-def list_chunk_indices(array_dir: str | os.PathLike[str]) -> set[tuple[int, ...]] | None:
-    """Return the chunk grid indices that have a file, by listing the folder (no decoding).
-
-    Returns ``None`` when the array's chunk key encoding is not the default one (``c/i/j``
-    or ``c.i.j``) or its metadata cannot be read: then presence cannot be judged by listing.
-    """
-    folder = Path(array_dir)
-    meta, reason = _parse_json_file(folder / "zarr.json")
-    if reason is not None or not isinstance(meta, dict):
-        return set() if not folder.exists() else None
-    enc = meta.get("chunk_key_encoding") or {}
-    if enc.get("name") != "default":
-        return None
-    sep = (enc.get("configuration") or {}).get("separator", "/")
-    found: set[tuple[int, ...]] = set()
-    if sep == "/":
-        base = folder / "c"
-        for dirpath, _, files in os.walk(base):
-            rel = Path(dirpath).relative_to(base).parts
-            for f in files:
-                parts = (*rel, f)
-                if all(p.isdigit() for p in parts):
-                    found.add(tuple(int(p) for p in parts))
-        return found
-    for f in os.listdir(folder):
-        pieces = f.split(sep)
-        if pieces[0] == "c" and len(pieces) > 1 and all(p.isdigit() for p in pieces[1:]):
-            found.add(tuple(int(p) for p in pieces[1:]))
-    return found
 
 
 def find_blocks_missing_chunks(path: str | os.PathLike[str], ledger: np.ndarray, block_shape: tuple[int, ...],
@@ -462,7 +375,7 @@ def find_blocks_missing_chunks(path: str | os.PathLike[str], ledger: np.ndarray,
     variables
         The arrays to check (outputs and ``regime``); a missing array misses every chunk.
     """
-    from sweepshell.engine.plan import iter_blocks
+    from sweepshell.plan import iter_blocks
 
     root = Path(path)
     needy: list[tuple[int, ...]] = []
@@ -474,24 +387,14 @@ def find_blocks_missing_chunks(path: str | os.PathLike[str], ledger: np.ndarray,
         return {}
     missing: dict[tuple[int, ...], list[str]] = {}
     for name in variables:
-        present = list_chunk_indices(root / name)
+        present = metadata.list_chunk_indices(root / name)
         if present is None:
             continue
-        extra = _extra_chunk_counts(root / name, len(block_shape))
+        extra = metadata.extra_chunk_counts(root / name, len(block_shape))
         for index in needy:
             if any((*index, *rest) not in present for rest in itertools.product(*(range(c) for c in extra))):
                 missing.setdefault(index, []).append(name)
     return missing
-
-
-def _extra_chunk_counts(array_dir: Path, n_axes: int) -> tuple[int, ...]:
-    meta, _ = _parse_json_file(array_dir / "zarr.json")
-    try:
-        shape = meta["shape"][n_axes:]
-        chunks = meta["chunk_grid"]["configuration"]["chunk_shape"][n_axes:]
-        return tuple(math.ceil(s / c) for s, c in zip(shape, chunks, strict=True))
-    except (TypeError, KeyError, ZeroDivisionError, ValueError):
-        return ()
 
 
 def check_store_chunks(path: str | os.PathLike[str], attrs: Mapping[str, Any] | None = None) -> None:
@@ -508,7 +411,7 @@ def check_store_chunks(path: str | os.PathLike[str], attrs: Mapping[str, Any] | 
     except (KeyError, TypeError, ValueError):
         return  # reported by the attribute checks of verify
     outputs = declared_outputs(attrs)
-    names: list[str] = [*(outputs or consolidated_outputs(path)), layout.REGIME_VAR]
+    names: list[str] = [*(outputs or consolidated_outputs(path)), metadata.REGIME_VAR]
     lost = find_blocks_missing_chunks(path, read_ledger(path, block_shape), block_shape, names)
     if lost:
         index, variables = next(iter(sorted(lost.items())))
@@ -521,11 +424,11 @@ def check_store_chunks(path: str | os.PathLike[str], attrs: Mapping[str, Any] | 
 def consolidated_outputs(path: str | os.PathLike[str]) -> list[str]:
     """Return the data variables other than status and regime, from the consolidated metadata."""
     meta = read_root_metadata(path)
-    entries = ((meta.get("consolidated_metadata") or {}).get("metadata") or {})
-    status_dims = (entries.get(layout.STATUS_VAR) or {}).get("dimension_names") or []
+    entries = metadata.consolidated_entries(meta)
+    status_dims = (entries.get(metadata.STATUS_VAR) or {}).get("dimension_names") or []
     return [n for n, e in entries.items()
             if "/" not in n and isinstance(e, dict) and e.get("node_type") == "array"
-            and n not in (layout.STATUS_VAR, layout.REGIME_VAR)
+            and n not in (metadata.STATUS_VAR, metadata.REGIME_VAR)
             and (e.get("dimension_names") or [])[:len(status_dims)] == status_dims and len(status_dims) > 0]
 
 
@@ -562,10 +465,10 @@ def find_undecodable_chunk(path: str | os.PathLike[str]) -> tuple[str, tuple[int
         meta = read_root_metadata(root)
     except (FileNotFoundError, StoreDamagedError):
         return None
-    entries = ((meta.get("consolidated_metadata") or {}).get("metadata") or {})
-    status_dims = (entries.get(layout.STATUS_VAR) or {}).get("dimension_names") or []
+    entries = metadata.consolidated_entries(meta)
+    status_dims = (entries.get(metadata.STATUS_VAR) or {}).get("dimension_names") or []
     for name in sorted(n for n, e in entries.items() if isinstance(e, dict) and e.get("node_type") == "array"):
-        present = list_chunk_indices(root / name)
+        present = metadata.list_chunk_indices(root / name)
         if not present:
             continue
         try:

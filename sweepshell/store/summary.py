@@ -2,7 +2,6 @@
 
 from __future__ import annotations
 
-import json
 import os
 from pathlib import Path
 from typing import Any
@@ -10,7 +9,7 @@ from typing import Any
 import numpy as np
 
 from sweepshell.models.base import Status
-from sweepshell.store.layout import ATTR, STATUS_VAR
+from sweepshell.store.metadata import ATTR, STATUS_VAR, dimension_names, read_record
 from sweepshell.store.reader import check_readable_store, read_ledger
 
 __all__ = ["summarize_store"]
@@ -28,9 +27,8 @@ def summarize_store(path: str | os.PathLike[str]) -> dict[str, Any]:
     if unknown:
         counts["unknown"] = unknown
     total = int(ledger.size)
-    axes_values: dict[str, list[Any]] = json.loads(attrs[ATTR.axes])
-    meta = json.loads((Path(path) / STATUS_VAR / "zarr.json").read_text())
-    order = [d for d in meta.get("dimension_names") or [] if d in axes_values]  # plan order, not sorted keys
+    axes_values: dict[str, list[Any]] = read_record(attrs, ATTR.axes)
+    order = [d for d in dimension_names(path, STATUS_VAR) if d in axes_values]  # plan order, not sorted keys
     axes = []
     for name in order:
         values = axes_values[name]
@@ -55,8 +53,8 @@ def summarize_store(path: str | os.PathLike[str]) -> dict[str, Any]:
         "complete_fraction": (total - counts[Status.pending.name] - unknown) / total if total else 1.0,
         "off_grid_points": _count_off_grid(path),
         "blocks_missing_chunks": _count_lost_blocks(path, ledger, block_shape),
-        "settings": json.loads(attrs.get(ATTR.settings, "{}")),
-        "fixed": json.loads(attrs.get(ATTR.fixed, "{}")),
+        "settings": read_record(attrs, ATTR.settings, "{}"),
+        "fixed": read_record(attrs, ATTR.fixed, "{}"),
         "bytes_on_disk": size,
     }
 
@@ -84,7 +82,7 @@ def _count_off_grid(path: str | os.PathLike[str]) -> dict[str, int]:
 def _count_lost_blocks(path: str | os.PathLike[str], ledger: np.ndarray, block_shape: tuple[int, ...]) -> int:
     """Return how many final blocks lost an output or regime chunk (a listing; no model import, no decoding)."""
     from sweepshell.store.integrity import consolidated_outputs, find_blocks_missing_chunks
-    from sweepshell.store.layout import REGIME_VAR
+    from sweepshell.store.metadata import REGIME_VAR
 
     names = [*consolidated_outputs(path), REGIME_VAR]
     return len(find_blocks_missing_chunks(path, ledger, block_shape, names))

@@ -28,7 +28,7 @@ import numpy as np
 import pytest
 
 from sweepshell.cli.main import main
-from tests.store.test_catalog import make_column_store
+from tests.conftest import run_column_store
 
 ETA = [0.1, 1.0, 10.0, 100.0]
 LOAD = [0.5, 5.0, 40.0]
@@ -53,7 +53,7 @@ HANG_PEAK_BYTES = 64_000_000
 @pytest.fixture(scope="module")
 def store_template(tmp_path_factory) -> Path:
     path = tmp_path_factory.mktemp("hostile") / "column.zarr"
-    return make_column_store(path, ETA, LOAD, block_points=3)
+    return run_column_store(path, ETA, LOAD, block_points=3)
 
 
 @dataclass(frozen=True)

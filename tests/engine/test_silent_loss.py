@@ -17,7 +17,7 @@ import pytest
 import xarray as xr
 
 from sweepshell.cli.main import main
-from tests.store.test_catalog import make_column_store
+from tests.conftest import run_column_store
 
 pytestmark = pytest.mark.faults
 
@@ -43,7 +43,7 @@ OUTPUTS = ("critical_load", "mode_number", "margin", "load_path")
 @pytest.fixture(scope="module")
 def reference(tmp_path_factory) -> Path:
     path = tmp_path_factory.mktemp("loss") / "column.zarr"
-    return make_column_store(path, ETA, LOAD, block_points=3)
+    return run_column_store(path, ETA, LOAD, block_points=3)
 
 
 @pytest.fixture
