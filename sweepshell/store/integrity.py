@@ -438,13 +438,15 @@ def check_trusted_values(values: np.ndarray, status: np.ndarray, name: str, attr
 
     ``values`` and ``status`` are flat per point (extra dimensions, if any, trailing in ``values``).
     """
-    outputs = declared_outputs(attrs)
-    if outputs is None or name not in outputs or outputs[name].nullable:
-        return
     values = np.asarray(values)
     if values.dtype.kind != "f" or values.size == 0:
         return
     missing = np.isnan(values.reshape(status.shape[0], -1)).all(axis=-1) & np.isin(status, _TRUSTED)
+    if not missing.any():
+        return  # the model's output declarations are looked up only when they matter
+    outputs = declared_outputs(attrs)
+    if outputs is None or name not in outputs or outputs[name].nullable:
+        return
     if missing.any():
         where = f" {path}" if path is not None else " STORE"
         raise StoreDamagedError(f"store{'' if path is None else ' ' + repr(str(path))} holds {int(missing.sum())} "
