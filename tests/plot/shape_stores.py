@@ -2,7 +2,9 @@
 
 The cap store imitates ``cap_postbuckling`` (a ``shape`` field w/h over ``shape_radius`` ×
 ``shape_angle``), the strip store ``curved_strip`` (a ``section_shape`` over ``section_stage`` ×
-``section_xy`` × ``section_arc``). The fields are analytic, so the tests need no model run.
+``section_xy`` × ``section_arc``). The fields are analytic, so the tests need no model run. The
+stores name models that are not registered (``synthetic_cap`` …): a registered name would make
+the integrity checks expect every output of that model. Each store is one block (one chunk).
 """
 
 from __future__ import annotations
@@ -36,7 +38,8 @@ def _attrs(model: str, fixed: dict, axes: dict, regimes: tuple[str, ...]) -> dic
             ATTR.axes: json.dumps(axes, sort_keys=True), ATTR.sweep_name: f"synthetic_{model}",
             ATTR.sweep_yaml: f"name: synthetic_{model}\nmodel: {model}\n",
             ATTR.created: dt.datetime(2026, 12, 2, tzinfo=dt.UTC).isoformat(), ATTR.caution: CAUTION,
-            ATTR.block_shape: [1] * len(axes), ATTR.regimes: list(regimes), ATTR.conventions: "CF-1.10"}
+            ATTR.block_shape: [len(v) for v in axes.values()], ATTR.regimes: list(regimes),
+            ATTR.conventions: "CF-1.10"}
 
 
 def _write(path: Path, dims: tuple[str, ...], data_vars: dict, coords: dict, attrs: dict,
@@ -45,9 +48,14 @@ def _write(path: Path, dims: tuple[str, ...], data_vars: dict, coords: dict, att
     regime = data_vars.pop(metadata.REGIME_VAR)
     data_vars[metadata.STATUS_VAR] = xr.Variable(dims, status.astype(np.uint8), metadata.status_attrs())
     data_vars[metadata.REGIME_VAR] = xr.Variable(dims, regime.astype(np.int8), metadata.regime_attrs(regimes))
+    # one block, fill values as the store writer sets them (a chunk equal to its fill value is not written)
+    encoding = {name: {"chunks": np.shape(var.data), "fill_value": np.nan} for name, var in data_vars.items()}
+    encoding[metadata.STATUS_VAR]["fill_value"] = 0
+    encoding[metadata.REGIME_VAR]["fill_value"] = -1
     with warnings.catch_warnings():  # consolidated metadata, as the store writer makes it
         warnings.filterwarnings("ignore", message=".*[Cc]onsolidated metadata.*")
-        xr.Dataset(data_vars, coords=coords, attrs=attrs).to_zarr(path, mode="w-", zarr_format=3, consolidated=True)
+        xr.Dataset(data_vars, coords=coords, attrs=attrs).to_zarr(path, mode="w-", zarr_format=3, consolidated=True,
+                                                                   encoding=encoding)
     return path
 
 
@@ -92,7 +100,7 @@ def make_cap_store(folder: Path) -> Path:
         metadata.STATUS_VAR: status, metadata.REGIME_VAR: regime,
     }
     fixed = {"load": "apex_force", "edge": "clamped", "poisson_ratio": 0.3, "wave_number": 0}
-    attrs = _attrs("cap_postbuckling", fixed, {"shell_parameter": lam.tolist(), "max_indentation": depth.tolist()},
+    attrs = _attrs("synthetic_cap", fixed, {"shell_parameter": lam.tolist(), "max_indentation": depth.tolist()},
                    CAP_REGIMES)
     return _write(folder / "caps.zarr", dims, data_vars, coords, attrs, CAP_REGIMES)
 
@@ -136,7 +144,7 @@ def make_strip_store(folder: Path) -> Path:
     }
     fixed = {"thickness": 1.5e-4, "transverse_radius": radius, "youngs_modulus": 2.0e11, "poisson_ratio": 0.3,
              "length": 0.6}
-    attrs = _attrs("curved_strip", fixed, {"width": widths.tolist(), "load": loads.tolist()}, STRIP_REGIMES)
+    attrs = _attrs("synthetic_strip", fixed, {"width": widths.tolist(), "load": loads.tolist()}, STRIP_REGIMES)
     return _write(folder / "strips.zarr", dims, data_vars, coords, attrs, STRIP_REGIMES)
 
 
@@ -146,5 +154,5 @@ def make_plain_store(folder: Path) -> Path:
     coords = {"shell_parameter": xr.Variable(("shell_parameter",), lam, {"units": "1", "spacing": "linear"})}
     data_vars = {"critical_load": xr.Variable(("shell_parameter",), np.array([1.0, 0.8]), {"units": "1"}),
                  metadata.STATUS_VAR: np.ones(2), metadata.REGIME_VAR: np.zeros(2)}
-    attrs = _attrs("shallow_cap", {}, {"shell_parameter": lam.tolist()}, ("stable", "limit_point"))
+    attrs = _attrs("synthetic_plain", {}, {"shell_parameter": lam.tolist()}, ("stable", "limit_point"))
     return _write(folder / "plain.zarr", ("shell_parameter",), data_vars, coords, attrs, ("stable", "limit_point"))
