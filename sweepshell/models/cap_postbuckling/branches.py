@@ -177,8 +177,8 @@ def follow_cap(*, lam: float, nu: float, clamped: bool, immovable: bool, apex: b
     out = CapBranchResult()
     nodes, stretch = int(s["nodes_used"]), float(s["stretch_used"])
     contact = float(s["contact_width"])
-    common = dict(lam=lam, nu=nu, clamped=clamped, immovable=immovable, apex=apex, amplitude=amplitude,
-                  width=width, nodes=nodes, stretch=stretch, contact=contact)
+    common = {"lam": lam, "nu": nu, "clamped": clamped, "immovable": immovable, "apex": apex,
+              "amplitude": amplitude, "width": width, "nodes": nodes, "stretch": stretch, "contact": contact}
     n = int(wave_number)
     pb0 = HarmonicCapProblem(wave_number=max(n, 2), harmonics=0, **common)  # type: ignore[arg-type]
     pb1 = HarmonicCapProblem(wave_number=n, harmonics=1, **common) if n >= 2 else None  # type: ignore[arg-type]
@@ -204,11 +204,11 @@ def follow_cap(*, lam: float, nu: float, clamped: bool, immovable: bool, apex: b
                 if not apex:
                     done[i] = True
                     continue
-            if pb1 is not None and not (state["fold"] and not apex):
-                if block_det(zn)[0] != state["sign"]:
-                    state["flipped"] = True
-                    done[i] = True
-                    continue
+            watching = pb1 is not None and not (state["fold"] and not apex)
+            if watching and block_det(zn)[0] != state["sign"]:
+                state["flipped"] = True
+                done[i] = True
+                continue
             d = float(pb0.apex_deflection(zn))
             done[i] = d >= max_indentation or float(pb0.load(zn[-1])) > max_load or d < -max_indentation
         return done

@@ -105,8 +105,8 @@ class CapPostbucklingModel(SweepModel):
             OutputSpec("load_drop", "1", "lowest load on the bifurcated branch up to max_indentation over the "
                        "bifurcation load; NaN without a branch", nullable=True),
             OutputSpec("ridge_radius", "1", "radius of the ridge (most convex meridional curvature, mean over "
-                       "theta) at max_indentation over sqrt(R h); NaN without an inverted region or when max_indentation is not "
-                       "reached",
+                       "theta) at max_indentation over sqrt(R h); NaN without an inverted region or when "
+                       "max_indentation is not reached",
                        nullable=True),
             OutputSpec("ridges", "1", "number of corners of a polygonal ridge at max_indentation (0: round); NaN "
                        "when max_indentation is not reached", nullable=True),
@@ -205,7 +205,7 @@ class CapPostbucklingModel(SweepModel):
             except (np.linalg.LinAlgError, FloatingPointError, ZeroDivisionError):
                 res.status[i] = Status.not_converged
                 continue
-            _fill(res, i, branch, bool(apex[i]), s["path_samples"])
+            _fill(res, int(i), branch, bool(apex[i]), s["path_samples"])
         return res
 
     def _scan(self, inputs: Mapping[str, np.ndarray], rows: np.ndarray) -> np.ndarray:
