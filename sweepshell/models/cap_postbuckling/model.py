@@ -7,7 +7,7 @@ subspace (harmonics cos jnθ, j = 0 … K), followed from the unloaded cap throu
 range of validity and the validation record are in ``theory.md`` beside this module.
 
 The critical wave number comes from ``shallow_cap``'s asymmetric scan
-(:class:`sweepshell.models.shallow_cap.ShallowCapModel`, same parameters); the bifurcation on
+(:class:`sweepshell.models.shallow_cap.model.ShallowCapModel`, same parameters); the bifurcation on
 this model's own grid is then located and followed.
 """
 
@@ -22,7 +22,7 @@ import numpy as np
 from sweepshell.errors import ParameterError
 from sweepshell.models.base import BatchResult, OutputSpec, ParameterSpec, Status, SweepModel
 from sweepshell.models.cap_postbuckling.branches import SHAPE_ANGLES, SHAPE_RADII, CapBranchResult, follow_cap
-from sweepshell.models.shallow_cap import ShallowCapModel
+from sweepshell.models.shallow_cap.model import ShallowCapModel
 
 __all__ = ["CapPostbucklingModel", "choose_grid"]
 

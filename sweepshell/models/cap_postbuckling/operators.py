@@ -4,7 +4,7 @@ Notation of ``theory.md``: x = r/a, scaled unknowns ``W = ω/λ²`` and ``P = Φ
 Φ = F/D), ε = 1/λ², the stress-free surface ``ζ₀/λ² = −x²/2 − (2c δ_d/λ²) exp(−(λx/b)²)``.
 Each field is a cosine series in ``jnθ``, ``j = 0 … K``, with radial coefficients on the half
 grid of :mod:`sweepshell.numerics.radial_chebyshev`. Harmonic ``m = jn ≥ 2`` uses the
-substitution ``u = x² v`` of :func:`sweepshell.models.shallow_cap_modes.make_mode_operators`
+substitution ``u = x² v`` of :func:`sweepshell.models.shallow_cap.modes.make_mode_operators`
 (which excludes the non-smooth ``x⁰ cos 2θ``); harmonic 0 uses the even polynomial itself.
 The equations, multiplied by x², are collocated in ``x`` and projected on ``cos(lnθ)`` by a
 midpoint rule with ``Q > 3K/2`` points, which integrates the quadratic brackets exactly
@@ -24,7 +24,7 @@ from functools import lru_cache
 
 import numpy as np
 
-from sweepshell.models.shallow_cap_modes import make_mode_operators
+from sweepshell.models.shallow_cap.modes import make_mode_operators
 from sweepshell.numerics.radial_chebyshev import make_interpolation_matrix, make_radial_grid
 
 __all__ = ["HarmonicCapProblem", "RadialField", "make_radial_fields"]

@@ -12,7 +12,7 @@ from sweepshell.models import Status, get_model
 from sweepshell.models.cap_postbuckling.branches import follow_cap
 from sweepshell.models.cap_postbuckling.model import CapPostbucklingModel, choose_grid
 from sweepshell.models.cap_postbuckling.operators import HarmonicCapProblem
-from sweepshell.models.shallow_cap import ShallowCapModel
+from sweepshell.models.shallow_cap.model import ShallowCapModel
 
 SETTINGS = CapPostbucklingModel().settings
 POGORELOV = 1.6245  # F R (1-nu^2)^(3/4) / (E h^(5/2) delta^(1/2)), derived in theory.md (ridge boundary layer)
