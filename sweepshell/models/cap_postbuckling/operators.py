@@ -159,6 +159,13 @@ class HarmonicCapProblem:
         self.unknowns = 2 * self.block
         self._edge_w = self._deflection_edge_rows()
         self._edge_f = self._stress_edge_rows()
+        # the stress block of the Jacobian (∂R_Φ/∂P) is constant and block-diagonal by harmonic:
+        # inverted once, it is eliminated from every bordered solve (a Schur complement)
+        jac = self.evaluate(np.zeros(self.unknowns + 1))[1]
+        nb, m = self.block, self.size
+        stress = jac[nb:, nb:2 * nb]
+        self.stress_inverse = np.stack([np.linalg.inv(stress[j * m:(j + 1) * m, j * m:(j + 1) * m])
+                                        for j in range(self.k + 1)])
 
     # -- layout -----------------------------------------------------------------------------
     def split(self, z: np.ndarray) -> tuple[np.ndarray, np.ndarray, float]:
@@ -280,20 +287,19 @@ class HarmonicCapProblem:
                     jac[row, i * m:(i + 1) * m] = dnl[j, i] * self.fw.slope[i, 0]
         return np.concatenate([rw.ravel(), rf.ravel()]), jac
 
-    def linearize(self, z: np.ndarray, idx: np.ndarray) -> tuple[np.ndarray, DenseBordered]:
+    def linearize(self, z: np.ndarray, idx: np.ndarray) -> tuple[np.ndarray, SchurBordered]:
         """Residuals ``(k, N)`` and bordered solver of states ``z`` ``(k, N+1)`` (arclength protocol)."""
         res, jacs = [], []
         for row in z:
             r, j = self.evaluate(row)
             res.append(r)
             jacs.append(j)
-        return np.array(res), DenseBordered(np.array(jacs))
+        return np.array(res), SchurBordered(np.array(jacs), self.stress_inverse)
 
     def orientation(self, z: np.ndarray, row: np.ndarray, idx: np.ndarray) -> np.ndarray:
-        """Sign of ``det [∂R/∂z; row]`` of states ``z`` (arclength protocol)."""
+        """Sign of ``det [∂R/∂z; row]`` of states ``z`` up to this problem's constant sign (arclength protocol)."""
         _, lin = self.linearize(z, idx)
-        full = np.concatenate([lin.jac, row[:, None, :]], axis=1)
-        return np.linalg.slogdet(full)[0]
+        return lin.orientation(row)
 
     # -- fields on a polar grid ----------------------------------------------------------------
     def sample(self, z: np.ndarray, radius: np.ndarray) -> np.ndarray:
@@ -348,6 +354,60 @@ def _block_diag(blocks: np.ndarray) -> np.ndarray:
     for j in range(k1):
         out[j * m:(j + 1) * m, j * m:(j + 1) * m] = blocks[j]
     return out
+
+
+@dataclass(frozen=True)
+class SchurBordered:
+    """Jacobians ``(k, N, N+1)`` whose constant stress block is eliminated in the bordered solve.
+
+    With unknowns (W, P, μ) and rows (deflection, stress, border)::
+
+        [[A, B, a], [C, S, 0], [r_W, r_P, r_μ]]
+
+    P = S⁻¹(r₂ − C W) leaves a system of half the size,
+    ``[[A − B S⁻¹C, a], [r_W − r_P S⁻¹C, r_μ]]``; ``S⁻¹`` is applied block by block (harmonics).
+    """
+
+    jac: np.ndarray
+    stress_inverse: np.ndarray
+
+    def _apply_inverse(self, x: np.ndarray) -> np.ndarray:
+        """Return ``S⁻¹ x`` for ``x`` ``(k, nb, p)``."""
+        k1, m, _ = self.stress_inverse.shape
+        blocks = x.reshape(x.shape[0], k1, m, x.shape[-1])
+        return np.einsum("lab,klbp->klap", self.stress_inverse, blocks).reshape(x.shape)
+
+    def _reduced(self, row: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        nb = self.jac.shape[2] // 2
+        a, b = self.jac[:, :nb, :nb], self.jac[:, :nb, nb:2 * nb]
+        c = self.jac[:, nb:, :nb]
+        sc = self._apply_inverse(c)  # (k, nb, nb)
+        red = np.empty((self.jac.shape[0], nb + 1, nb + 1))
+        red[:, :nb, :nb] = a - b @ sc
+        red[:, :nb, nb] = self.jac[:, :nb, -1]
+        red[:, nb, :nb] = row[:, :nb] - np.einsum("kb,kbn->kn", row[:, nb:2 * nb], sc)
+        red[:, nb, nb] = row[:, -1]
+        return red, b, sc
+
+    def solve_bordered(self, row: np.ndarray, r: np.ndarray, c: np.ndarray) -> np.ndarray:
+        """Solve ``[J; row] d = [r; c]`` (``r`` ``(k, N)`` or ``(k, N, p)``, ``c`` ``(k,)`` or ``(k, p)``)."""
+        single = r.ndim == 2
+        if single:
+            r, c = r[:, :, None], c[:, None]
+        nb = self.jac.shape[2] // 2
+        red, b, sc = self._reduced(row)
+        s_r2 = self._apply_inverse(r[:, nb:])  # (k, nb, p)
+        rhs = np.empty((r.shape[0], nb + 1, r.shape[2]))
+        rhs[:, :nb] = r[:, :nb] - b @ s_r2
+        rhs[:, nb] = c - np.einsum("kb,kbp->kp", row[:, nb:2 * nb], s_r2)
+        dw = np.linalg.solve(red, rhs)  # (k, nb+1, p)
+        dp = s_r2 - sc @ dw[:, :nb]
+        out = np.concatenate([dw[:, :nb], dp, dw[:, nb:]], axis=1)
+        return out[:, :, 0] if single else out
+
+    def orientation(self, row: np.ndarray) -> np.ndarray:
+        """Sign of ``det [J; row]`` over the constant ``sign det S``."""
+        return np.linalg.slogdet(self._reduced(row)[0])[0]
 
 
 @dataclass(frozen=True)
