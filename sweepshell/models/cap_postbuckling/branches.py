@@ -29,7 +29,8 @@ __all__ = ["CapBranchResult", "follow_cap"]
 _FIRST_STEP, _MAX_STEP, _MIN_STEP = 0.1, 0.25, 1e-7
 _SWITCH_STEP = 1e-2  # arclength of the branch-switching predictor along the critical mode
 _SLOPE_STEPS = (2e-3, 4e-3)  # two short arcs on the new branch whose secant slopes give its initial slope
-_ASYM_ANGLES = 16  # angles in [0, π/n] at which path points' asymmetry is measured
+_ASYM_ANGLES = 16
+_RETURN_SHARE = 0.2  # a branch whose asymmetry falls below this share of its peak has turned back  # angles in [0, π/n] at which path points' asymmetry is measured
 SHAPE_RADII, SHAPE_ANGLES = 24, 72
 
 
@@ -301,9 +302,16 @@ def follow_cap(*, lam: float, nu: float, clamped: bool, immovable: bool, apex: b
     if float(pbk.apex_deflection(tc[0])) < 0.0 and float(pbk.apex_deflection(zc[0])) < out.bifurcation_deflection:
         tc = -tc
 
+    peak = [0.0]
+
     def finished_k(z_prev, z_new, t_new, rows):  # type: ignore[no-untyped-def]
         d = pbk.apex_deflection(z_new)
-        return (d >= max_indentation) | (d < -max_indentation)
+        # a branch that turns back to the axisymmetric path (the asymmetry falls from its peak towards
+        # zero) does not reach max_indentation: stop there rather than go round the loop again
+        amp = np.array([_asymmetry(pbk, zz) for zz in z_new])
+        peak[0] = max(peak[0], float(amp.max()))
+        back = (amp < _RETURN_SHARE * peak[0]) & (peak[0] > 0.05)
+        return (d >= max_indentation) | (d < -max_indentation) | back
 
     zk, _, _, count_k, state_k = _trace(pbk, zc[0], tc[0], s, finished_k, orientation=False)
     dk = pbk.apex_deflection(zk)

@@ -164,6 +164,7 @@ def test_failure_is_not_converged_with_the_reached_path_kept():
     assert np.isnan(res.outputs["bifurcation_load"][0])
 
 
+@pytest.mark.slow
 def test_shape_layout():
     model = CapPostbucklingModel()
     coords = model.extra_coords()
