@@ -29,8 +29,8 @@ __all__ = ["CapBranchResult", "follow_cap"]
 _FIRST_STEP, _MAX_STEP, _MIN_STEP = 0.1, 0.25, 1e-7
 _SWITCH_STEP = 1e-2  # arclength of the branch-switching predictor along the critical mode
 _SLOPE_STEPS = (2e-3, 4e-3)  # two short arcs on the new branch whose secant slopes give its initial slope
-_ASYM_ANGLES = 16
-_RETURN_SHARE = 0.2  # a branch whose asymmetry falls below this share of its peak has turned back  # angles in [0, π/n] at which path points' asymmetry is measured
+_ASYM_ANGLES = 16  # angles in [0, π/n] at which path points' asymmetry is measured
+_RETURN_SHARE = 0.2  # a branch whose asymmetry falls below this share of its peak has turned back
 SHAPE_RADII, SHAPE_ANGLES = 24, 72
 
 
@@ -259,8 +259,8 @@ def follow_cap(*, lam: float, nu: float, clamped: bool, immovable: bool, apex: b
     out.bifurcation_load = float(pb0.load(zb[-1]))
     out.bifurcation_deflection = float(pb0.apex_deflection(zb))
     pre_slope = _slope(pb0, tb)
-    keep = defl < out.bifurcation_deflection if tb[-1] >= 0 else np.arange(count) < count - 1
-    path = [np.concatenate([path[0][keep], [[out.bifurcation_load, out.bifurcation_deflection, 0.0]]])]
+    # the trace stopped at the first point past the sign change: the path ends at the bifurcation instead
+    path = [np.concatenate([path[0][:-1], [[out.bifurcation_load, out.bifurcation_deflection, 0.0]]])]
     # -- branch switching ------------------------------------------------------------------------
     pbk = HarmonicCapProblem(wave_number=n, harmonics=int(s["harmonics"]), **common)  # type: ignore[arg-type]
     block = _mode_block(pb1, _embed(zb, pb0, pb1))
