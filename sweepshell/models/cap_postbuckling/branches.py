@@ -298,19 +298,21 @@ def follow_cap(*, lam: float, nu: float, clamped: bool, immovable: bool, apex: b
     if not conv[0]:
         out.path = path[0]
         return out
-    # the branch is followed towards larger deflection
-    if float(pbk.apex_deflection(tc[0])) < 0.0 and float(pbk.apex_deflection(zc[0])) < out.bifurcation_deflection:
+    # the branch is followed away from the bifurcation point (growing critical-mode amplitude)
+    if float(np.sum(wk * tc[0] * mode)) < 0.0:
         tc = -tc
 
     peak = [0.0]
 
     def finished_k(z_prev, z_new, t_new, rows):  # type: ignore[no-untyped-def]
         d = pbk.apex_deflection(z_new)
-        # a branch that turns back to the axisymmetric path (the asymmetry falls from its peak towards
-        # zero) does not reach max_indentation: stop there rather than go round the loop again
+        # a branch that comes back to its bifurcation point (the asymmetry falls from its peak towards
+        # zero there) does not reach max_indentation: stop rather than go round the loop again
         amp = np.array([_asymmetry(pbk, zz) for zz in z_new])
         peak[0] = max(peak[0], float(amp.max()))
-        back = (amp < _RETURN_SHARE * peak[0]) & (peak[0] > 0.05)
+        near = (np.abs(d - out.bifurcation_deflection) < 0.02 * max(abs(out.bifurcation_deflection), 1.0)) & \
+            (np.abs(pbk.load(z_new[:, -1]) - out.bifurcation_load) < 0.02 * abs(out.bifurcation_load))
+        back = (amp < _RETURN_SHARE * peak[0]) & (peak[0] > 0.05) & near
         return (d >= max_indentation) | (d < -max_indentation) | back
 
     zk, _, _, count_k, state_k = _trace(pbk, zc[0], tc[0], s, finished_k, orientation=False)
