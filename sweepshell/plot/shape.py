@@ -235,8 +235,11 @@ def _panel_title(ds: xr.Dataset, point: ShapePoint) -> str:
 
 
 def _study_line(ds: xr.Dataset) -> str:
-    """Return the fixed parameters and single-valued axes that define the study, with units."""
-    fixed = _fixed_parameters(ds)
+    """Return the single-valued axes, then the fixed parameters, that define the study, with units.
+
+    The axes come first: a title elides what does not fit on two lines.
+    """
+    values: dict[str, Any] = {}
     units: dict[str, str] = {}
     try:
         from sweepshell.models import get_model
@@ -247,9 +250,10 @@ def _study_line(ds: xr.Dataset) -> str:
     for name in describe_fields(ds).axes:
         if ds.sizes[name] == 1:
             value = ds[name].values[0]
-            fixed[name] = value.item() if hasattr(value, "item") else value
+            values[name] = value.item() if hasattr(value, "item") else value
             units[name] = str(ds[name].attrs.get("units", ""))
-    return ", ".join(f"{k} = {format_value(v, units.get(k, ''))}" for k, v in fixed.items() if v is not None)
+    values.update({k: v for k, v in _fixed_parameters(ds).items() if k not in values})
+    return ", ".join(f"{k} = {format_value(v, units.get(k, ''))}" for k, v in values.items() if v is not None)
 
 
 def _section_scale(points: Sequence[ShapePoint], units: str) -> tuple[float, str]:
