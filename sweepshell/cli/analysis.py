@@ -167,8 +167,15 @@ def _register_map(subparsers: Any) -> None:
     m.add_argument("--contour", metavar="OUTPUT", help="labelled contour lines of a scalar output (map)")
     m.add_argument("--at", action="append", metavar="NAME=VALUE", help="fix another axis (repeatable)")
     m.add_argument("--show-points", action="store_true", help="mark the off-grid points (refinement, bisection)")
-    m.add_argument("--out", metavar="FILE", help="FILE.png or FILE.svg (default: <store>-<x>-<y>.png)")
+    m.add_argument("-o", "--out", metavar="FILE", help="FILE.png or FILE.svg (default: <store>-<x>-<y>.png)")
+    _add_no_caution(m)
     m.set_defaults(func=_cmd_map)
+
+
+def _add_no_caution(parser: Any) -> None:
+    parser.add_argument("--no-caution", action="store_true",
+                        help="leave the caution footer off the picture (for a figure in a paper); the caution "
+                             "stays in the file's metadata, and reports always show it")
 
 
 def _out_path(args: argparse.Namespace, suffix: str) -> str:
@@ -197,11 +204,11 @@ def _cmd_map(args: argparse.Namespace) -> int:
     info = describe_fields(ds)
     if args.y in info.axes:
         result = draw_regime_map(ds, args.x, args.y, color=args.color, contour=args.contour, at=at,
-                                 show_points=args.show_points)
+                                 show_points=args.show_points, caution=not args.no_caution)
     else:
         if args.contour:
             raise QueryError("--contour applies to regime maps (--y AXIS), not to line plots", field="contour")
-        result = draw_output_lines(ds, args.x, args.y, series=args.color, at=at)
+        result = draw_output_lines(ds, args.x, args.y, series=args.color, at=at, caution=not args.no_caution)
     return _save_and_tell(result.figure, out, [f"fixed {cut.describe()}" for cut in result.view.cuts]
                           + list(result.notes))
 
@@ -235,7 +242,7 @@ def _register_boundary(subparsers: Any) -> None:
                         "evaluations")
     b.add_argument("--no-record", action="store_true", help="do not add the new points to the store")
     b.add_argument("--format", choices=("csv", "json"), default="csv", help="output format (default csv)")
-    b.add_argument("--out", metavar="FILE", help="write to FILE instead of stdout")
+    b.add_argument("-o", "--out", metavar="FILE", help="write to FILE instead of stdout")
     b.set_defaults(func=_cmd_boundary)
 
 
@@ -305,7 +312,8 @@ def _register_path(subparsers: Any) -> None:
                    "other component)")
     p.add_argument("--x", metavar="OUTPUT[:COMPONENT]", help="path output along the horizontal (default: the "
                    "other component, or the sample index)")
-    p.add_argument("--out", metavar="FILE", help="FILE.png or FILE.svg (default: <store>-path.png)")
+    p.add_argument("-o", "--out", metavar="FILE", help="FILE.png or FILE.svg (default: <store>-path.png)")
+    _add_no_caution(p)
     p.set_defaults(func=_cmd_path)
 
 
@@ -315,7 +323,7 @@ def _cmd_path(args: argparse.Namespace) -> int:
     ds = _open(args.store)
     points = [parse_point(text) for text in args.at or []]
     out = _out_path(args, "path")
-    result = draw_load_paths(ds, points, y=args.y, x=args.x)
+    result = draw_load_paths(ds, points, y=args.y, x=args.x, caution=not args.no_caution)
     return _save_and_tell(result.figure, out, list(result.notes))
 
 
@@ -327,7 +335,7 @@ def _register_report(subparsers: Any) -> None:
                     "first with `sweepshell boundary` or `sweepshell refine`), the extreme points of every output "
                     "and the caution.")
     r.add_argument("store", metavar="STORE")
-    r.add_argument("--out", metavar="FILE.html", help="output file (default: <store>-report.html)")
+    r.add_argument("-o", "--out", metavar="FILE.html", help="output file (default: <store>-report.html)")
     r.set_defaults(func=_cmd_report)
 
 

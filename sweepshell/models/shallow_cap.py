@@ -272,6 +272,8 @@ class ShallowCapModel(SweepModel):
                       bounds=(0.0, math.inf), closed=(False, False), symbol="E"),
     )
     regimes: ClassVar[tuple[str, ...]] = ("stable", "limit_point", "bifurcation")
+    parameter_groups: ClassVar[Mapping[str, Mapping[str, tuple[str, ...]]]] = {
+        "load": {"mismatch": ("mismatch_strain", "mismatch_radius", "mismatch_region")}}
     # measured (one core, wall, benchmarks/bench_shallow_cap.py, λ = 3.5 … 20): ~1 ms axisymmetric, ~12 ms
     # with the scan, ~15 ms with bistability; apex-force points 0.1–0.3 s (λ 6–30) with the scan (its 3x
     # stability grid); sharp-edged mismatch points 45–100 ms with the scan

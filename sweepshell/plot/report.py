@@ -19,6 +19,7 @@ import numpy as np
 from sweepshell import CAUTION
 from sweepshell.query.boundary import find_boundary
 from sweepshell.query.table import describe_fields, select_points
+from sweepshell.store import layout
 from sweepshell.store.layout import ATTR
 
 if TYPE_CHECKING:
@@ -46,7 +47,7 @@ img { max-width: 100%; } pre { background: #f6f6f6; padding: 0.8em; overflow-x: 
 
 def _png(fig: Figure) -> str:
     buffer = io.BytesIO()
-    fig.savefig(buffer, format="png", dpi=110)
+    fig.savefig(buffer, format="png", dpi=110, metadata={"Description": CAUTION})
     return base64.b64encode(buffer.getvalue()).decode("ascii")
 
 
@@ -86,7 +87,12 @@ def _line_plots(ds: xr.Dataset, info: Any) -> str:
     if not numeric or not info.scalar_outputs:
         return "<p>The store has no numeric axis with several values; no figure.</p>"
     preferred = [o for o in ("critical_load", "knockdown") if o in info.scalar_outputs]
-    outputs = (preferred or list(info.scalar_outputs))[:2]
+    ordered = preferred + [o for o in info.scalar_outputs if o not in preferred]
+    # only outputs with values at trusted points make figures (a flexure store has no critical load)
+    codes = np.asarray(ds[layout.REGIME_VAR].values) >= 0
+    outputs = [o for o in ordered if np.isfinite(np.where(codes, np.asarray(ds[o].values, float), np.nan)).any()][:2]
+    if not outputs:
+        return "<p>No scalar output has a value at a trusted point; no figure.</p>"
     html_parts = ["<p class='muted'>One numeric axis: outputs drawn against it instead of a regime map.</p>"]
     for output in outputs:
         result = draw_output_lines(ds, numeric[0], output)
