@@ -87,10 +87,11 @@ def _line_plots(ds: xr.Dataset, info: Any) -> str:
     if not numeric or not info.scalar_outputs:
         return "<p>The store has no numeric axis with several values; no figure.</p>"
     preferred = [o for o in ("critical_load", "knockdown") if o in info.scalar_outputs]
-    ordered = preferred + [o for o in info.scalar_outputs if o not in preferred]
     # only outputs with values at trusted points make figures (a flexure store has no critical load)
     codes = np.asarray(ds[layout.REGIME_VAR].values) >= 0
-    outputs = [o for o in ordered if np.isfinite(np.where(codes, np.asarray(ds[o].values, float), np.nan)).any()][:2]
+    has_data = [o for o in info.scalar_outputs
+                if np.isfinite(np.where(codes, np.asarray(ds[o].values, float), np.nan)).any()]
+    outputs = ([o for o in preferred if o in has_data] or has_data)[:2]
     if not outputs:
         return "<p>No scalar output has a value at a trusted point; no figure.</p>"
     html_parts = ["<p class='muted'>One numeric axis: outputs drawn against it instead of a regime map.</p>"]
