@@ -61,6 +61,9 @@ def find_config_dir(explicit: str | os.PathLike[str] | None = None) -> Path:
 def resolve_sweep_file(sweep: str, config_dir: Path) -> Path:
     """Return the YAML file of ``sweep``: a path, or a name in ``configs/sweep/``."""
     p = Path(sweep)
+    if p.is_dir() and (p / "zarr.json").is_file():
+        raise ConfigError(f"{sweep!r} is a store, not a sweep file; `sweepshell run STORE` continues it from its "
+                          "recorded sweep", field="sweep", value=sweep)
     if p.suffix in (".yaml", ".yml") or os.sep in sweep or p.is_file():
         if p.is_file():
             return p
@@ -264,6 +267,9 @@ def build_plan(cfg: Mapping[str, Any], *, source: str = "<dict>") -> SweepPlan:
         if isinstance(value, (list, dict)):
             raise ConfigError(f"fixed.{pname}={value!r} is not a single value; move it to axes to sweep it",
                               field=f"fixed.{pname}", value=value)
+        if value is None and isinstance(param.default, float) and math.isnan(param.default):
+            fixed[pname] = param.default  # an optional parameter left unset (recorded plans write null)
+            continue
         param.check_values(value, where=f"fixed.{pname}")
         fixed[pname] = float(value) if not param.is_categorical else value
     for param in model_cls.parameters:
