@@ -18,6 +18,7 @@ from collections.abc import Sequence
 from typing import Any, NoReturn
 
 from sweepshell import CAUTION, __version__
+from sweepshell.cli.options import STORE_HELP, add_format_option
 from sweepshell.errors import SweepshellError
 
 __all__ = ["build_parser", "main"]
@@ -65,13 +66,13 @@ def build_parser() -> argparse.ArgumentParser:
 
     status = sub.add_parser("status", help="what a store holds and how complete it is",
                             description="Counts per status, model and version, axes, completeness.")
-    status.add_argument("store", metavar="STORE")
-    status.add_argument("--json", action="store_true", help="print JSON")
+    status.add_argument("store", metavar="STORE", help=STORE_HELP)
+    add_format_option(status)
     status.set_defaults(func=_cmd_status)
 
     models = sub.add_parser("models", help="the registered models",
                             description="List the registered models with parameters, outputs and regimes.")
-    models.add_argument("--json", action="store_true", help="print JSON")
+    add_format_option(models)
     models.set_defaults(func=_cmd_models)
 
     for module_name in _COMMAND_MODULES:
@@ -157,7 +158,7 @@ def _cmd_status(args: argparse.Namespace) -> int:
     from sweepshell.store.summary import summarize_store
 
     info = summarize_store(args.store)
-    if args.json:
+    if args.format == "json":
         print(json.dumps(info, indent=2))
         return EXIT_OK
     axes = ", ".join(f"{a['name']}[{a['size']}] {a['min']}..{a['max']}" for a in info["axes"])
@@ -173,7 +174,7 @@ def _cmd_models(args: argparse.Namespace) -> int:
     from sweepshell.models import list_models, make_model
 
     described = [make_model(name).describe() for name in list_models()]
-    if args.json:
+    if args.format == "json":
         print(json.dumps(described, indent=2))
         return EXIT_OK
     for d in described:
