@@ -14,6 +14,7 @@ import sys
 from typing import Any
 
 from sweepshell.cli.options import STORE_HELP, add_format_option, add_out_option
+
 __all__ = ["register"]
 
 EXIT_OK = 0

@@ -276,6 +276,14 @@ class SweepModel(abc.ABC):
         return None
 
     @classmethod
+    def kernels_to_compile(cls) -> bool:
+        """Whether the first batch in this installation compiles the model's kernels (seconds, once).
+
+        The progress display says so instead of extrapolating an ETA from the compile time.
+        """
+        return False
+
+    @classmethod
     def study_parameters(cls, fixed: Mapping[str, Any]) -> tuple[str, ...]:
         """Return the fixed parameters that define a study, in the order a figure title names them.
 

@@ -150,16 +150,16 @@ def _extent(artist: Any, renderer: RendererBase) -> Bbox:
 
 def _shrink_wide_titles(fig: Figure, renderer: RendererBase, width: float) -> bool:
     """Set titles that run past the right edge in smaller type (down to 6 pt); return whether any changed."""
-    titles = [t for ax in fig.axes for t in (ax.title, ax._left_title, ax._right_title)]
+    titles: list[Text] = [getattr(ax, name) for ax in fig.axes for name in ("title", "_left_title", "_right_title")]
     if getattr(fig, "_suptitle", None) is not None:
-        titles.append(fig._suptitle)
+        titles.append(fig._suptitle)  # type: ignore[attr-defined]
     changed = False
     for title in titles:
         if not title.get_text().strip():
             continue
         box = title.get_window_extent(renderer)
         room = width - _PAD - max(box.x0, _PAD)
-        if box.x1 > width - _PAD and box.width > 0 and title.get_fontsize() > 6.0:
+        if box.x1 > width - _PAD and box.width > 0 and float(title.get_fontsize()) > 6.0:
             title.set_fontsize(max(6.0, float(title.get_fontsize()) * room / box.width * 0.98))
             if box.x0 < _PAD:
                 title.set_x(title.get_position()[0] + (_PAD - box.x0) / width)
