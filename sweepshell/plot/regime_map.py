@@ -193,9 +193,10 @@ def draw_regime_map(ds: xr.Dataset, x: str, y: str, *, color: str | None = None,
             handles.append(Patch(facecolor=PENDING_COLOR, edgecolor="#777777", linewidth=0.5,
                                  label="not computed yet"))
 
+    boundary_lines: list[np.ndarray] = []
     if boundaries:
-        drawn = _draw_boundaries(ax, view, codes, regimes, known, x, y, xv, yv)
-        if drawn:
+        boundary_lines = _draw_boundaries(ax, view, codes, regimes, known, x, y, xv, yv)
+        if boundary_lines:
             handles.append(Line2D([], [], color=BOUNDARY_COLOR, linewidth=1.4, label="regime boundary"))
     if contour:
         values = np.where(codes >= 0, np.asarray(view.ds[contour].values, float), np.nan)
@@ -205,7 +206,9 @@ def draw_regime_map(ds: xr.Dataset, x: str, y: str, *, color: str | None = None,
             cs = ax.contour(cxv, cyv, values.T, levels=7, colors=CONTOUR_COLOR, linewidths=0.8,
                             linestyles="--")
             units = str(view.ds[contour].attrs.get("units", ""))
-            ax.clabel(cs, fontsize=7, fmt=lambda v: format_quantity(v, units), inline_spacing=3)
+            positions = _label_positions(cs, boundary_lines, view.log)
+            ax.clabel(cs, fontsize=7, fmt=lambda v: format_quantity(v, units), inline_spacing=3,
+                      manual=positions if positions else False)
             handles.append(Line2D([], [], color=CONTOUR_COLOR, linewidth=0.8, linestyle="--",
                                   label=f"{contour.replace('_', ' ')} (contours)"))
     handles += _draw_status_markers(ax, xv, yv, status, notes)
@@ -330,11 +333,12 @@ def _interpolate_classes(xu: np.ndarray, yu: np.ndarray, values: np.ndarray, kno
 
 def _draw_boundaries(ax: Axes, view: SweepSlice, codes: np.ndarray, regimes: tuple[str, ...],
                      known: Mapping[str, np.ndarray] | None, x: str, y: str, xv: np.ndarray,
-                     yv: np.ndarray) -> bool:
+                     yv: np.ndarray) -> list[np.ndarray]:
+    """Draw every boundary between two regimes present; return the drawn polylines (k × 2, data units)."""
     from matplotlib import patheffects
 
     halo = [patheffects.withStroke(linewidth=3.0, foreground="white", alpha=0.8)]  # readable on any fill
-    drawn = False
+    drawn: list[np.ndarray] = []
     present = [r for r in range(len(regimes)) if np.any(codes == r)]
     for i, a in enumerate(present):
         for b in present[i + 1:]:
@@ -343,8 +347,41 @@ def _draw_boundaries(ax: Axes, view: SweepSlice, codes: np.ndarray, regimes: tup
             for line in boundary.lines:
                 ax.plot(line.x, line.y, color=BOUNDARY_COLOR, linewidth=1.4, solid_capstyle="round", zorder=4,
                         path_effects=halo)
-                drawn = True
+                drawn.append(np.stack([np.asarray(line.x, float), np.asarray(line.y, float)], 1))
     return drawn
+
+
+def _label_positions(cs: Any, boundary_lines: Sequence[np.ndarray], log: tuple[bool, ...]) -> list[tuple[float, float]]:
+    """Return one label position per contour level: the vertex farthest from boundaries and the frame.
+
+    Measured in the evenly spaced units of the axes, scaled to the unit square, so labels never
+    sit on a regime boundary when the level has room elsewhere.
+    """
+    segments = [seg for level in cs.allsegs for seg in level if len(seg)]
+    if not segments:
+        return []
+    every = np.concatenate(segments)
+    ux, uy = to_unit(every[:, 0], log[0]), to_unit(every[:, 1], log[1])
+    lo = np.array([ux.min(), uy.min()])
+    span = np.maximum(np.array([ux.max(), uy.max()]) - lo, 1e-300)
+
+    def unit(points: np.ndarray) -> np.ndarray:
+        return (np.stack([to_unit(points[:, 0], log[0]), to_unit(points[:, 1], log[1])], 1) - lo) / span
+
+    avoid = unit(np.concatenate(boundary_lines)) if boundary_lines else np.empty((0, 2))
+    positions = []
+    for level in cs.allsegs:
+        if not any(len(seg) for seg in level):
+            continue
+        points = np.concatenate([seg for seg in level if len(seg)])
+        u = unit(points)
+        room = np.minimum.reduce([u[:, 0], 1 - u[:, 0], u[:, 1], 1 - u[:, 1]]) * 2.0  # keep off the frame
+        if len(avoid):
+            room = np.minimum(room, np.min(np.hypot(u[:, None, 0] - avoid[None, :, 0],
+                                                    u[:, None, 1] - avoid[None, :, 1]), axis=1))
+        k = int(np.argmax(room))
+        positions.append((float(points[k, 0]), float(points[k, 1])))
+    return positions
 
 
 def _draw_status_markers(ax: Axes, xv: np.ndarray, yv: np.ndarray, status: np.ndarray, notes: list[str]) -> list[Any]:

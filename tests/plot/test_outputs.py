@@ -104,3 +104,19 @@ def test_boundary_between_two_regimes_leaves_out_edges_to_a_third_and_repeats_no
     edges = sum({int(codes[i, j]), int(codes[i + 1, j])} == pairs for i in range(7) for j in range(8)) + sum(
         {int(codes[i, j]), int(codes[i, j + 1])} == pairs for i in range(8) for j in range(7))
     assert len(vertices) == edges  # every A/B grid edge once, nothing else
+
+
+def test_contour_labels_keep_off_the_regime_boundaries(column):
+    from sweepshell.plot.regime_map import draw_regime_map
+
+    result = draw_regime_map(open_sweep(column), "stiffness_ratio", "load_ratio", contour="margin",
+                             at={"end": "pinned"})
+    ax = result.figure.axes[0]
+    boundary = np.concatenate([np.stack([np.log10(line.get_xdata()) / 4, np.asarray(line.get_ydata()) / 39.5], 1)
+                               for line in ax.get_lines() if line.get_linewidth() == pytest.approx(1.4)])
+    labels = [t for t in ax.texts if t.get_text()]
+    assert labels
+    for label in labels:
+        x, y = label.get_position()
+        distance = np.min(np.hypot(boundary[:, 0] - np.log10(x) / 4, boundary[:, 1] - y / 39.5))
+        assert distance > 0.05, label.get_text()  # a twentieth of the frame away from any boundary
