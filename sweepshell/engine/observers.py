@@ -38,6 +38,11 @@ def _fmt_seconds(s: float) -> str:
     return f"{h}:{m:02d}:{sec:02d}" if h else f"{m}:{sec:02d}"
 
 
+def _fmt_rate(rate: float) -> str:
+    """``1,234/s``, ``12/s``, ``0.12/s`` (slow models still show a rate)."""
+    return f"{rate:,.0f}/s" if rate >= 10 else f"{rate:.2g}/s"
+
+
 class _Eta:
     """Remaining time from the rate since the first finished block.
 
@@ -90,7 +95,7 @@ class LineObserver:
         if now - self.last >= self.every or self.computed >= self.to_compute:
             self.last = now
             rate = self.eta.rate()
-            speed = f"{rate:.0f}/s, " if rate > 0 else ""
+            speed = f"{_fmt_rate(rate)}, " if rate > 0 else ""
             print(f"progress {self.done + self.computed}/{self.total} points ({speed}"
                   f"ETA {_fmt_seconds(self.eta.remaining())})", file=self.stream, flush=True)
 
@@ -125,7 +130,7 @@ class BarObserver:
     def advance(self, points: int) -> None:
         self.eta.advance(points)
         rate = self.eta.rate()
-        self._progress.update(self._task, advance=points, rate=f"{rate:,.0f}/s" if rate > 0 else "",
+        self._progress.update(self._task, advance=points, rate=_fmt_rate(rate) if rate > 0 else "",
                               eta=_fmt_seconds(self.eta.remaining()), note="")
 
     def close(self) -> None:
