@@ -55,6 +55,8 @@ _MAX_CELLS = 250_000      # above this many grid cells (or with off-grid points)
 _RASTER = 420             # raster size per axis (about the axes' size in pixels at 150 dpi / 1.5)
 _MAX_CONTOUR = 400        # contour lines of an output are drawn from at most this many points per axis
 _MAX_MARKERS = 20_000     # untrusted points drawn individually up to this many
+_CONFIDENCE = "pattern_confidence"  # an output some models give: share of starts that reach the chosen state
+_WEAK_CONFIDENCE = 0.5
 
 
 @dataclass(frozen=True)
@@ -212,6 +214,8 @@ def draw_regime_map(ds: xr.Dataset, x: str, y: str, *, color: str | None = None,
             handles.append(Line2D([], [], color=CONTOUR_COLOR, linewidth=0.8, linestyle="--",
                                   label=f"{contour.replace('_', ' ')} (contours)"))
     handles += _draw_status_markers(ax, xv, yv, status, notes)
+    if not continuous and _CONFIDENCE in view.ds:
+        handles += _draw_uncertain(ax, view, codes, xv, yv)
     if show_points and known is not None:
         ax.scatter(known["x"], known["y"], s=2.0, c="#000000", alpha=0.45, linewidths=0, zorder=3)
         handles.append(Line2D([], [], marker=".", linestyle="none", color="#000000", alpha=0.6,
@@ -263,6 +267,22 @@ def check_has_values(view: SweepSlice, output: str, values: np.ndarray, codes: n
     raise QueryError(f"{output} is NaN at all {trusted} trusted points of this view ({where})"
                      f"{'; it means: ' + meaning if meaning else ''}; choose another output or other --at values",
                      field="y", value=output)
+
+
+def _draw_uncertain(ax: Axes, view: SweepSlice, codes: np.ndarray, xv: np.ndarray, yv: np.ndarray) -> list[Any]:
+    """Mark points whose pattern most starts did not reach (several states compete there)."""
+    from matplotlib.lines import Line2D
+
+    confidence = np.asarray(view.ds[_CONFIDENCE].values, float)
+    weak = (codes >= 0) & (confidence < _WEAK_CONFIDENCE)
+    if not np.any(weak):
+        return []
+    ix, iy = np.nonzero(weak)
+    ax.scatter(xv[ix], yv[iy], marker="D", s=14, facecolors="none", edgecolors="#1A1A1A", linewidths=0.8,
+               zorder=5)
+    return [Line2D([], [], marker="D", linestyle="none", markersize=4.5, markerfacecolor="none",
+                   markeredgecolor="#1A1A1A", label=f"multistable ({int(weak.sum())}: under half\nof the starts "
+                                                    "reach this pattern)")]
 
 
 def _refined_only(known: Mapping[str, np.ndarray] | None) -> dict[str, np.ndarray] | None:

@@ -120,3 +120,15 @@ def test_contour_labels_keep_off_the_regime_boundaries(column):
         x, y = label.get_position()
         distance = np.min(np.hypot(boundary[:, 0] - np.log10(x) / 4, boundary[:, 1] - y / 39.5))
         assert distance > 0.05, label.get_text()  # a twentieth of the frame away from any boundary
+
+
+def test_points_most_starts_miss_are_marked_multistable(column):
+    from sweepshell.plot.regime_map import draw_regime_map
+
+    ds = open_sweep(column).copy()
+    confidence = np.ones(ds["critical_load"].shape)
+    confidence[2:5, 1:3, :] = 1 / 3
+    ds["pattern_confidence"] = (ds["critical_load"].dims, confidence, {"units": "1"})
+    fig = draw_regime_map(ds, "stiffness_ratio", "load_ratio", at={"end": "pinned"}).figure
+    labels = [t.get_text() for t in fig.axes[0].get_legend().get_texts()]
+    assert any(label.startswith("multistable (6:") for label in labels)
