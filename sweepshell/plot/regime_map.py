@@ -228,10 +228,13 @@ def draw_regime_map(ds: xr.Dataset, x: str, y: str, *, color: str | None = None,
     label_axes(ax, view, x, y, xv, yv)
     title = "Regime map" if not continuous else f"{str(color).replace('_', ' ')} with regime boundaries"
     ax.set_title(title_lines(dict(ds.attrs), title, study_subtitle(ds, view.cuts)), fontsize=9.5, loc="left")
-    if handles and continuous:  # right of the colour bar, moving with it
+    if handles and continuous:  # right of the colour bar and its labels, moving with it
         cax = fig.axes[-1]
-        cax.legend(handles=handles, loc="upper left", bbox_to_anchor=(7.5, 1.0), fontsize=8.5, frameon=False,
-                   borderaxespad=0.0)
+        box = cax.get_window_extent()
+        tight = cax.get_tightbbox(fig.canvas.get_renderer())  # type: ignore[attr-defined]
+        right = tight.x1 if tight is not None else box.x1
+        cax.legend(handles=handles, loc="upper left", bbox_to_anchor=((right - box.x0) / box.width + 1.0, 1.0),
+                   fontsize=8.5, frameon=False, borderaxespad=0.0)
     elif handles:
         ax.legend(handles=handles, loc="upper left", bbox_to_anchor=(1.02, 1.0), fontsize=8.5, frameon=False,
                   borderaxespad=0.0)
