@@ -180,7 +180,7 @@ def draw_regime_map(ds: xr.Dataset, x: str, y: str, *, color: str | None = None,
     else:
         cmap = ListedColormap(fill_colors)
         _draw_field(ax, xu, yu, codes.astype(float) + 2, view.log, known=_refined_only(known), cmap=cmap, vmin=-0.5,
-                    vmax=len(fill_colors) - 0.5)
+                    vmax=len(fill_colors) - 0.5, classes=True)
         present = set(np.unique(codes).tolist())
         if known is not None:
             present |= set(np.unique(known["regime"]).tolist())
@@ -311,9 +311,16 @@ def _cmap_with_bad() -> Any:
 
 def _draw_field(ax: Axes, xu: np.ndarray, yu: np.ndarray, values: np.ndarray, log: tuple[bool, ...], *,
                 known: Mapping[str, np.ndarray] | None, cmap: Any, vmin: float | None = None,
-                vmax: float | None = None, norm: Any = None) -> Any:
-    """Draw a field given on the grid (nx, ny); off-grid points refine it by nearest neighbour."""
-    if known is None and values.size <= _MAX_CELLS:
+                vmax: float | None = None, norm: Any = None, classes: bool = False) -> Any:
+    """Draw a field given on the grid (nx, ny); off-grid points refine it.
+
+    Regime classes (``classes``) on a grid of at least 2 × 2 are drawn from bilinear
+    interpolation of their indicators, so a region ends halfway between grid points of
+    different regime, where the boundary lines run (no staircase of cells); other fields are
+    drawn cell by cell.
+    """
+    smooth = classes and known is None and len(xu) > 1 and len(yu) > 1
+    if known is None and values.size <= _MAX_CELLS and not smooth:
         ex, ey = from_unit(_edges(xu), log[0]), from_unit(_edges(yu), log[1])
         return ax.pcolormesh(ex, ey, values.T, cmap=cmap, vmin=vmin, vmax=vmax, norm=norm,
                              shading="flat", rasterized=True, linewidth=0)
@@ -321,12 +328,34 @@ def _draw_field(ax: Axes, xu: np.ndarray, yu: np.ndarray, values: np.ndarray, lo
     rx = np.linspace(exu[0], exu[-1], _RASTER + 1)
     ry = np.linspace(eyu[0], eyu[-1], _RASTER + 1)
     cx, cy = 0.5 * (rx[1:] + rx[:-1]), 0.5 * (ry[1:] + ry[:-1])
-    if known is None:
+    if smooth:
+        raster = _bilinear_classes(xu, yu, values, cx, cy)
+    elif known is None:
         raster = values[_nearest_index(xu, cx)[:, None], _nearest_index(yu, cy)[None, :]]
     else:
         raster = _interpolate_classes(xu, yu, values, known, log, cx, cy)
     return ax.pcolormesh(from_unit(rx, log[0]), from_unit(ry, log[1]), raster.T, cmap=cmap, vmin=vmin, vmax=vmax,
                          norm=norm, shading="flat", rasterized=True, linewidth=0)
+
+
+def _bilinear_classes(xu: np.ndarray, yu: np.ndarray, values: np.ndarray, cx: np.ndarray,
+                      cy: np.ndarray) -> np.ndarray:
+    """Return the class on a raster: the largest bilinearly interpolated class indicator (grid only)."""
+    ix = np.clip(np.searchsorted(xu, cx) - 1, 0, len(xu) - 2)
+    iy = np.clip(np.searchsorted(yu, cy) - 1, 0, len(yu) - 2)
+    tx = np.clip((cx - xu[ix]) / (xu[ix + 1] - xu[ix]), 0.0, 1.0)[:, None]
+    ty = np.clip((cy - yu[iy]) / (yu[iy + 1] - yu[iy]), 0.0, 1.0)[None, :]
+    present = np.unique(values)
+    best = np.full((len(cx), len(cy)), -np.inf)
+    raster = np.zeros((len(cx), len(cy)))
+    for c in present:
+        ind = (values == c).astype(float)
+        weight = ((1 - tx) * (1 - ty) * ind[ix][:, iy] + tx * (1 - ty) * ind[ix + 1][:, iy]
+                  + (1 - tx) * ty * ind[ix][:, iy + 1] + tx * ty * ind[ix + 1][:, iy + 1])
+        better = weight > best
+        raster[better] = c
+        best[better] = weight[better]
+    return raster
 
 
 def _interpolate_classes(xu: np.ndarray, yu: np.ndarray, values: np.ndarray, known: Mapping[str, np.ndarray],
