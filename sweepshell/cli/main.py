@@ -17,7 +17,7 @@ import sys
 from collections.abc import Sequence
 from typing import Any, NoReturn
 
-from sweepshell import CAUTION, __version__
+from sweepshell.about import CAUTION, __version__
 from sweepshell.cli.options import STORE_HELP, add_format_option
 from sweepshell.errors import SweepshellError
 
@@ -138,7 +138,7 @@ def _load_run_plan(args: argparse.Namespace) -> Any:
     store = Path(args.sweep.rstrip("/"))
     if not (store.is_dir() and (store / "zarr.json").is_file()):
         return load_plan(args.sweep, args.overrides, config_dir=args.config_dir)
-    from sweepshell.store.layout import ATTR
+    from sweepshell.store.metadata import ATTR
     from sweepshell.store.reader import check_readable_store, read_attrs
 
     check_readable_store(str(store))

@@ -25,10 +25,10 @@ import numpy as np
 import yaml
 from omegaconf import DictConfig, ListConfig, OmegaConf
 
-from sweepshell.engine.plan import Axis, ExecutorSpec, SweepPlan
 from sweepshell.errors import ConfigError, ParameterError
 from sweepshell.models import get_model
 from sweepshell.models.base import SweepModel
+from sweepshell.plan import Axis, ExecutorSpec, SweepPlan
 
 log = logging.getLogger(__name__)
 

@@ -36,10 +36,10 @@ __all__ = [
 
 # name -> (module, class); a fixed table of our own code, never extended from input
 _REGISTRY: dict[str, tuple[str, str]] = {
-    "shallow_cap": ("sweepshell.models.shallow_cap", "ShallowCapModel"),
-    "foundation_strip": ("sweepshell.models.foundation_strip", "FoundationStripModel"),
-    "foundation_sheet": ("sweepshell.models.foundation_sheet", "FoundationSheetModel"),
-    "winkler_column": ("sweepshell.testing", "WinklerColumnModel"),
+    "shallow_cap": ("sweepshell.models.shallow_cap.model", "ShallowCapModel"),
+    "foundation_strip": ("sweepshell.models.foundation_strip.model", "FoundationStripModel"),
+    "foundation_sheet": ("sweepshell.models.foundation_sheet.model", "FoundationSheetModel"),
+    "winkler_column": ("sweepshell.models.winkler_column.model", "WinklerColumnModel"),
 }
 
 

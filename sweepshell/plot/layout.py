@@ -13,7 +13,7 @@ from __future__ import annotations
 import textwrap
 from typing import TYPE_CHECKING, Any
 
-from sweepshell import CAUTION
+from sweepshell.about import CAUTION
 
 if TYPE_CHECKING:
     from matplotlib.axis import Axis

@@ -20,7 +20,7 @@ from sweepshell.plot.style import OKABE_ITO, axis_label, describe_value, make_fi
 from sweepshell.plot.units import is_integer_valued, set_axis_format
 from sweepshell.query.slicing import slice_sweep
 from sweepshell.query.table import describe_fields, regime_names
-from sweepshell.store import layout
+from sweepshell.store import metadata
 
 if TYPE_CHECKING:
     import xarray as xr
@@ -127,14 +127,14 @@ def draw_load_paths(ds: xr.Dataset, points: Sequence[Mapping[str, str]], *, y: s
     ys: list[np.ndarray] = []
     for k, at in enumerate(points):
         view = slice_sweep(ds, [], at)
-        status = int(view.ds[layout.STATUS_VAR].values)
+        status = int(view.ds[metadata.STATUS_VAR].values)
         where = ", ".join(c.describe().split(" (")[0] for c in view.cuts) or "the only point"
         if status not in trusted:
             notes.append(f"no trusted path at {where} (status {Status(status).name})")
             continue
         yv = curve(view.ds, y_name, y_comp)
         xv = curve(view.ds, x_name, x_comp) if x_name else np.arange(yv.size, dtype=float)
-        regime = regimes[int(view.ds[layout.REGIME_VAR].values) + 1]
+        regime = regimes[int(view.ds[metadata.REGIME_VAR].values) + 1]
         label = ", ".join(describe_value(c.name, c.value, dict(ds[c.name].attrs)) for c in view.cuts
                           if ds.sizes[c.name] > 1)
         color = OKABE_ITO[(k + 5) % len(OKABE_ITO)]
@@ -244,13 +244,13 @@ def draw_fields(ds: xr.Dataset, points: Sequence[Mapping[str, str]], name: str, 
     view = None
     for at in points:
         view = slice_sweep(ds, [], at)
-        status = int(view.ds[layout.STATUS_VAR].values)
+        status = int(view.ds[metadata.STATUS_VAR].values)
         where = ", ".join(describe_value(c.name, c.value, dict(ds[c.name].attrs)) for c in view.cuts)
         notes.extend(f"fixed {c.describe()}" for c in view.cuts)
         if status not in trusted:
             notes.append(f"no trusted result at {where} (status {Status(status).name})")
             continue
-        regime = regimes[int(view.ds[layout.REGIME_VAR].values) + 1].replace("_", " ")
+        regime = regimes[int(view.ds[metadata.REGIME_VAR].values) + 1].replace("_", " ")
         images.append((np.asarray(view.ds[name].transpose(*dims).values, float), f"{where}\n{regime}"))
     if not images:
         raise QueryError("none of the chosen points has a trusted result; pick other points (see `sweepshell "

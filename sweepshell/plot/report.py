@@ -16,11 +16,11 @@ from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
-from sweepshell import CAUTION
+from sweepshell.about import CAUTION
 from sweepshell.query.boundary import find_boundary
 from sweepshell.query.table import describe_fields, select_points
-from sweepshell.store import layout
-from sweepshell.store.layout import ATTR
+from sweepshell.store import metadata
+from sweepshell.store.metadata import ATTR
 
 if TYPE_CHECKING:
     import xarray as xr
@@ -88,7 +88,7 @@ def _line_plots(ds: xr.Dataset, info: Any) -> str:
         return "<p>The store has no numeric axis with several values; no figure.</p>"
     preferred = [o for o in ("critical_load", "knockdown") if o in info.scalar_outputs]
     # only outputs with values at trusted points make figures (a flexure store has no critical load)
-    codes = np.asarray(ds[layout.REGIME_VAR].values) >= 0
+    codes = np.asarray(ds[metadata.REGIME_VAR].values) >= 0
     has_data = [o for o in info.scalar_outputs
                 if np.isfinite(np.where(codes, np.asarray(ds[o].values, float), np.nan)).any()]
     outputs = ([o for o in preferred if o in has_data] or has_data)[:2]
@@ -151,7 +151,7 @@ def write_report(ds: xr.Dataset, store_path: str) -> str:
                      f"src='data:image/png;base64,{_png(result.figure)}'><figcaption class='muted'>"
                      f"{html.escape(cut or 'all axes shown')}</figcaption></figure>")
         for a, b in itertools.combinations(info.regimes, 2):
-            boundary, _ = find_boundary(ds, x, y, (a, b), at=at, bisections=0, evaluate=False)
+            boundary, _ = find_boundary(ds, x, y, (a, b), at=at, bisections=0)
             if not boundary.lines:
                 continue
             rows = []

@@ -8,15 +8,14 @@ distinct black marker shapes, so they read without colour.
 
 from __future__ import annotations
 
-import json
 import re
 from typing import TYPE_CHECKING, Any
 
-from sweepshell import CAUTION, __version__
+from sweepshell.about import CAUTION, __version__
 from sweepshell.errors import SweepshellError
 from sweepshell.plot.layout import add_caution_footer
 from sweepshell.plot.units import format_quantity, pretty_units
-from sweepshell.store.layout import ATTR
+from sweepshell.store.metadata import ATTR, read_record
 
 if TYPE_CHECKING:
     import xarray as xr
@@ -145,7 +144,7 @@ def study_subtitle(ds: xr.Dataset, cuts: Any = ()) -> str:
     """
     parts = [describe_value(c.name, c.value, dict(ds[c.name].attrs)) for c in cuts]
     try:
-        fixed = json.loads(ds.attrs.get(ATTR.fixed, "{}"))
+        fixed = read_record(ds.attrs, ATTR.fixed, "{}")
     except ValueError:
         fixed = {}
     specs: dict[str, Any] = {}

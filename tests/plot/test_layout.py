@@ -10,7 +10,7 @@ from sweepshell.plot.layout import find_clipped_text, find_colliding_ticks, find
 from sweepshell.plot.paths import draw_fields, draw_load_paths
 from sweepshell.plot.regime_map import draw_output_lines, draw_regime_map
 from sweepshell.plot.style import make_figure
-from tests.query.stores import FAULTY_OVERRIDES, make_column_store
+from tests.conftest import FAULTY_OVERRIDES, compute_column_store
 
 NARROW = """\
 name: narrow
@@ -55,8 +55,8 @@ def stretched(ds):
 @pytest.fixture(scope="module")
 def stores(tmp_path_factory):
     folder = tmp_path_factory.mktemp("layout")
-    wide = make_column_store(folder, "wide", FAULTY_OVERRIDES, sweep_text=WIDE)
-    narrow = make_column_store(folder, "narrow", sweep_text=NARROW)
+    wide = compute_column_store(folder, "wide", FAULTY_OVERRIDES, sweep_text=WIDE)
+    narrow = compute_column_store(folder, "narrow", sweep_text=NARROW)
     return stretched(open_sweep(wide)), stretched(open_sweep(narrow)), wide
 
 

@@ -10,8 +10,8 @@ from sweepshell import CAUTION, open_sweep
 from sweepshell.cli.main import main
 from sweepshell.plot.paths import draw_load_paths
 from sweepshell.query.boundary import trace_boundary
+from tests.conftest import compute_column_store
 from tests.plot.test_layout import WIDE, stretched
-from tests.query.stores import make_column_store
 
 FLEXURE = """\
 name: flexure
@@ -25,12 +25,12 @@ axes:
 
 @pytest.fixture(scope="module")
 def flexure(tmp_path_factory):
-    return make_column_store(tmp_path_factory.mktemp("flex"), "flexure", sweep_text=FLEXURE)
+    return compute_column_store(tmp_path_factory.mktemp("flex"), "flexure", sweep_text=FLEXURE)
 
 
 @pytest.fixture(scope="module")
 def column(tmp_path_factory):
-    return make_column_store(tmp_path_factory.mktemp("col"), "wide", sweep_text=WIDE)
+    return compute_column_store(tmp_path_factory.mktemp("col"), "wide", sweep_text=WIDE)
 
 
 def test_an_all_nan_selection_is_an_error_naming_why(flexure, tmp_path, capsys):
@@ -77,9 +77,9 @@ def test_path_draws_a_field_as_images_not_a_zigzag(column):
 
 
 def test_path_marks_the_critical_point():
-    from sweepshell.plot.paths import _critical_point
-
     import xarray as xr
+
+    from sweepshell.plot.paths import _critical_point
 
     point = xr.Dataset({"critical_load": 0.8, "critical_deflection": 0.3})
     xv, yv = np.array([0.0, 0.2, 0.4]), np.array([0.0, 0.6, 1.0])
