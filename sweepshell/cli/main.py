@@ -134,9 +134,10 @@ def _load_run_plan(args: argparse.Namespace) -> Any:
     from pathlib import Path
 
     from sweepshell.config.loader import load_plan
+    from sweepshell.store.metadata import is_store
 
     store = Path(args.sweep.rstrip("/"))
-    if not (store.is_dir() and (store / "zarr.json").is_file()):
+    if not is_store(store):
         return load_plan(args.sweep, args.overrides, config_dir=args.config_dir)
     from sweepshell.store.metadata import ATTR
     from sweepshell.store.reader import check_readable_store, read_attrs

@@ -61,7 +61,9 @@ def find_config_dir(explicit: str | os.PathLike[str] | None = None) -> Path:
 def resolve_sweep_file(sweep: str, config_dir: Path) -> Path:
     """Return the YAML file of ``sweep``: a path, or a name in ``configs/sweep/``."""
     p = Path(sweep)
-    if p.is_dir() and (p / "zarr.json").is_file():
+    from sweepshell.store.metadata import is_store
+
+    if is_store(p):
         raise ConfigError(f"{sweep!r} is a store, not a sweep file; `sweepshell run STORE` continues it from its "
                           "recorded sweep", field="sweep", value=sweep)
     if p.suffix in (".yaml", ".yml") or os.sep in sweep or p.is_file():

@@ -109,7 +109,7 @@ def _same_axes(stored: Any, wanted: Any) -> bool:
     their values and still resume with the same sweep.
     """
     try:
-        a, b = json.loads(stored), json.loads(wanted)
+        a, b = metadata.load_record(stored), metadata.load_record(wanted)
     except (TypeError, ValueError):
         return False
     if list(a) != list(b):
