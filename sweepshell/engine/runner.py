@@ -155,9 +155,11 @@ def start_client(spec: ExecutorSpec) -> tuple[Any, Any]:
             cluster = LocalCluster(n_workers=1, threads_per_worker=spec.workers or 1, processes=False,
                                    dashboard_address=":0")
         else:
+            # worker processes ignore Ctrl-C (sweepshell.engine.worker_setup): the runner handles it
             cluster = LocalCluster(n_workers=spec.workers or (os.cpu_count() or 1), threads_per_worker=1,
                                    processes=True, dashboard_address=":0",
-                                   silence_logs=logging.CRITICAL if quiet else logging.ERROR)
+                                   silence_logs=logging.CRITICAL if quiet else logging.ERROR,
+                                   preload=["sweepshell.engine.worker_setup"])
     return Client(cluster), cluster
 
 
@@ -236,7 +238,9 @@ def run_plan(plan: SweepPlan, *, observer: RunObserver | None = None, claim_ttl:
             claims = ClaimBook(path, ttl=claim_ttl)
             donors = find_donors(plan, model) if plan.reuse else []
             client = get_client()
-            observer.start(plan.n_points, plan.n_points - to_compute, to_compute)
+            note = "compiling the model's kernels (once); the ETA follows the first computed blocks" \
+                if model.kernels_to_compile() else ""
+            observer.start(plan.n_points, plan.n_points - to_compute, to_compute, note=note)
             _drive(client, plan, pending, claims, observer, tally, donors)
     except KeyboardInterrupt:
         if claims is None or not block_shape:
