@@ -22,11 +22,12 @@ Numerics: a Ritz expansion of the section in even Legendre polynomials (``modes`
 :mod:`.section`). For fixed k the energy is a positive definite quadratic in the section,
 so each curvature has exactly one equilibrium section, found by one linear solve; the
 moment–curvature path is sampled on a geometric grid of ``curvature_samples`` curvatures
-up to k = ``curvature_range``·(c + 20), the limit point is bracketed by the sign change of
+from k = 0.05 to k = ``curvature_range``·(c + 20), the limit point is bracketed by the sign change of
 dm/dk and refined by bisection, the fold by the Maxwell construction (min Û/k past the
 limit point). Points sharing (c, ν, sense) share one path. Discretisation error: the same
-quantities on the leading 3/4 of the basis; a relative difference above ``tolerance`` is
-``not_converged``.
+quantities on the leading 3/4 of the basis; a relative difference above ``tolerance``, or a
+fold edge layer ℓ = [12(1−ν²)]^(−1/4)(h/κ)^(1/2) narrower than ``layer_resolution``·w/(2·modes)²
+(both bases would miss it alike), is ``not_converged``.
 
 Outputs and conventions
 -----------------------
@@ -88,6 +89,8 @@ _LOADS = ("bend_opposite", "bend_equal", "cantilever")
 _FLAT_RANGE = 20.0
 #: Gauss points along a cantilever for its tip deflection
 _CANTILEVER_GAUSS = 32
+#: first curvature k = κw²/h of the search grid
+_GRID_START = 0.05
 _NEWTON_STEPS = 30
 
 
@@ -112,6 +115,9 @@ class CurvedStripModel(SweepModel):
         Largest h/w (thin strip).
     max_tip_rotation
         Largest cantilever tip rotation in radians (small-slope theory).
+    layer_resolution
+        Smallest (fold edge-layer width / w)·(2·modes)²; 4 keeps the fold moment within about 10⁻⁴
+        (the modes ladders in ``theory.md``); 0 switches the check off.
     """
 
     name: ClassVar[str] = "curved_strip"
@@ -145,15 +151,18 @@ class CurvedStripModel(SweepModel):
     # measured with benchmarks/bench_curved_strip.py (one core, default settings): see theory.md
     cost_hint: ClassVar[float] = 0.01
 
-    def __init__(self, *, modes: int = 32, curvature_range: float = 2.5, curvature_samples: int = 160,
+    def __init__(self, *, modes: int = 24, curvature_range: float = 2.5, curvature_samples: int = 160,
                  path_samples: int = 64, tolerance: float = 1e-4, max_width_ratio: float = 1.0,
-                 max_thickness_ratio: float = 0.05, max_tip_rotation: float = 0.35) -> None:
+                 max_thickness_ratio: float = 0.05, max_tip_rotation: float = 0.35,
+                 layer_resolution: float = 4.0) -> None:
         super().__init__()
         if not 4 <= int(modes) <= 120:
             raise ValueError(f"settings.modes must be a whole number from 4 to 120; got {modes}")
         if not float(curvature_range) >= 1.2:
             raise ValueError(f"settings.curvature_range must be at least 1.2 (the fold sits near k = c); "
                              f"got {curvature_range}")
+        if not float(layer_resolution) >= 0.0:
+            raise ValueError(f"settings.layer_resolution must be 0 or positive; got {layer_resolution}")
         if int(curvature_samples) < 20 or int(path_samples) < 2:
             raise ValueError("settings.curvature_samples must be at least 20 and settings.path_samples at least 2")
         for key, value in (("tolerance", tolerance), ("max_width_ratio", max_width_ratio),
@@ -165,6 +174,7 @@ class CurvedStripModel(SweepModel):
             "curvature_samples": int(curvature_samples), "path_samples": int(path_samples),
             "tolerance": float(tolerance), "max_width_ratio": float(max_width_ratio),
             "max_thickness_ratio": float(max_thickness_ratio), "max_tip_rotation": float(max_tip_rotation),
+            "layer_resolution": float(layer_resolution),
         }
 
     @property
@@ -358,7 +368,8 @@ def _solve_paths(s: dict[str, Any], c: np.ndarray, nu: np.ndarray, p: np.ndarray
     ops = make_section_operators(s["modes"])
     m = c.size
     k_max = s["curvature_range"] * (c + _FLAT_RANGE)
-    grid = k_max[:, None] * np.geomspace(1e-3, 1.0, s["curvature_samples"])[None, :]
+    # geometric from k = 0.05: the limit point sits at k ≈ 4–6 whatever c, the fold near k = c
+    grid = np.exp(np.linspace(np.log(_GRID_START), np.log(k_max), s["curvature_samples"], axis=-1))
     cc, nn, pp = (v[:, None] for v in (c, nu, p))
     dense = solve_sections(ops, cc, nn, pp, grid)
     initial = solve_sections(ops, c, nu, p, np.zeros(m))
@@ -379,7 +390,10 @@ def _solve_paths(s: dict[str, Any], c: np.ndarray, nu: np.ndarray, p: np.ndarray
     with np.errstate(invalid="ignore", divide="ignore"):
         change = np.abs(coarse - full) / np.maximum(np.abs(full), 1e-300)
     change = np.where(probe > 0.0, change, 0.0)
-    converged = np.all(change <= s["tolerance"], axis=1)
+    # both bases miss an edge layer thinner than the basis can represent: require it resolved outright
+    layer = (12.0 * (1.0 - nu**2)) ** -0.25 / np.sqrt(np.maximum(np.maximum(nan_f, c), 1.0))
+    resolved = layer * (2.0 * s["modes"]) ** 2 >= s["layer_resolution"]
+    converged = np.all(change <= s["tolerance"], axis=1) & resolved
     # stored path: samples even in the arc length of (k/k_end, m/m_top), re-solved exactly
     k_end = np.where(np.isfinite(k_fold), np.minimum(2.0 * nan_f, k_max), k_max)
     knots = np.concatenate([np.zeros((m, 1)), grid], axis=1)

@@ -269,4 +269,6 @@ def trace_section_shapes(ops: SectionOperators, modal: np.ndarray, stations: int
     z_half = np.concatenate([zeros, np.cumsum(dz, axis=-1)], axis=-1)
     y = np.concatenate([-y_half[..., :0:-1], y_half], axis=-1)
     z = np.concatenate([z_half[..., :0:-1], z_half], axis=-1)
-    return np.stack([y, z], axis=-2)
+    shape = np.stack([y, z], axis=-2)
+    shape[np.isnan(modal).any(axis=-1)] = np.nan
+    return shape
