@@ -148,8 +148,9 @@ class CurvedStripModel(SweepModel):
                       bounds=(0.0, _INF), closed=(True, False), symbol="P"),
     )
     regimes: ClassVar[tuple[str, ...]] = ("stiff", "folded", "collapsed")
-    # measured with benchmarks/bench_curved_strip.py (one core, default settings): see theory.md
-    cost_hint: ClassVar[float] = 0.01
+    # measured (benchmarks/bench_curved_strip.py, one core, default settings): 1.2 ms per bending point and
+    # 1.8-2.7 ms per cantilever point in blocks of 400; 15 ms for a single-point call
+    cost_hint: ClassVar[float] = 0.002
 
     def __init__(self, *, modes: int = 24, curvature_range: float = 2.5, curvature_samples: int = 160,
                  path_samples: int = 64, tolerance: float = 1e-4, max_width_ratio: float = 1.0,
@@ -216,9 +217,9 @@ class CurvedStripModel(SweepModel):
                 "section_arc": np.linspace(-0.5, 0.5, _STATIONS)}
 
     def estimated_cost(self) -> float:
-        """Seconds per point on one core (sizes blocks); grows with the square of ``modes``."""
+        """Seconds per point on one core (sizes blocks); about linear in ``modes`` and the search samples."""
         s = self._settings
-        return float(self.cost_hint) * (s["modes"] / 32.0) ** 2 * (s["curvature_samples"] / 160.0)
+        return float(self.cost_hint) * (s["modes"] / 24.0) * (s["curvature_samples"] / 160.0)
 
     @classmethod
     def sample_inputs(cls) -> dict[str, np.ndarray]:

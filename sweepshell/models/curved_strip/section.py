@@ -172,28 +172,40 @@ def solve_sections(ops: SectionOperators, c: np.ndarray, nu: np.ndarray, p: np.n
     return SectionState(b, energy, moment, tangent)
 
 
-def _bisect(fun, lo: np.ndarray, hi: np.ndarray, iterations: int) -> np.ndarray:
-    """Return a root of ``fun`` in each bracket [lo, hi] (fun(lo) and fun(hi) of opposite signs), vectorised."""
-    f_lo = fun(lo)
+def _bracketed_root(fun, lo: np.ndarray, hi: np.ndarray, iterations: int) -> np.ndarray:
+    """Return a root of ``fun`` in each bracket [lo, hi] (signs differ at the ends), vectorised.
+
+    The Illinois variant of regula falsi: the bracket always holds the root and shrinks
+    superlinearly; rows stop moving once their bracket is below 10⁻¹³ relative.
+    """
+    f_lo, f_hi = fun(lo), fun(hi)
+    side = np.zeros(lo.shape, dtype=int)
     for _ in range(iterations):
-        mid = 0.5 * (lo + hi)
-        f_mid = fun(mid)
-        same = np.sign(f_mid) == np.sign(f_lo)
-        lo = np.where(same, mid, lo)
-        f_lo = np.where(same, f_mid, f_lo)
-        hi = np.where(same, hi, mid)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            x = (lo * f_hi - hi * f_lo) / (f_hi - f_lo)
+        x = np.where(np.isfinite(x) & (x > lo) & (x < hi), x, 0.5 * (lo + hi))
+        f_x = fun(x)
+        left = np.sign(f_x) == np.sign(f_lo)
+        lo, f_lo = np.where(left, x, lo), np.where(left, f_x, f_lo)
+        hi, f_hi = np.where(left, hi, x), np.where(left, f_hi, f_x)
+        # Illinois: halve the stale end's value when the same end is kept twice
+        f_hi = np.where(left & (side == 1), 0.5 * f_hi, f_hi)
+        f_lo = np.where(~left & (side == -1), 0.5 * f_lo, f_lo)
+        side = np.where(left, 1, -1)
+        if np.all(hi - lo <= 1e-13 * hi):
+            break
     return 0.5 * (lo + hi)
 
 
 def find_peak(ops: SectionOperators, c: np.ndarray, nu: np.ndarray, p: np.ndarray, grid: np.ndarray,
-              tangent: np.ndarray, iterations: int = 48) -> tuple[np.ndarray, np.ndarray]:
+              tangent: np.ndarray, iterations: int = 60) -> tuple[np.ndarray, np.ndarray]:
     """Return the curvature of the first moment maximum per point (NaN where the moment only rises).
 
     Parameters
     ----------
     grid, tangent
         Curvature samples (shape ``(n, K)``, increasing) and dm/dk there; the first sign change
-        of dm/dk from + to − brackets the limit point, refined by bisection on dm/dk.
+        of dm/dk from + to − brackets the limit point, refined by regula falsi on dm/dk.
 
     Returns
     -------
@@ -209,13 +221,13 @@ def find_peak(ops: SectionOperators, c: np.ndarray, nu: np.ndarray, p: np.ndarra
         sel = rows[found]
         lo, hi = grid[sel, first[sel]], grid[sel, first[sel] + 1]
         cs, ns, ps = c[sel], nu[sel], p[sel]
-        k_peak[sel] = _bisect(lambda kk: solve_sections(ops, cs, ns, ps, kk).tangent, lo, hi, iterations)
+        k_peak[sel] = _bracketed_root(lambda kk: solve_sections(ops, cs, ns, ps, kk).tangent, lo, hi, iterations)
     return k_peak, found
 
 
 def find_fold(ops: SectionOperators, c: np.ndarray, nu: np.ndarray, p: np.ndarray, grid: np.ndarray,
               moment: np.ndarray, energy: np.ndarray, k_peak: np.ndarray,
-              iterations: int = 48) -> tuple[np.ndarray, np.ndarray]:
+              iterations: int = 60) -> tuple[np.ndarray, np.ndarray]:
     """Return the curvature of the fully formed fold (NaN where no localised fold exists).
 
     A fold of total rotation θ made of material at curvature k costs Û(k)θ/k; the fold takes the
@@ -240,8 +252,19 @@ def find_fold(ops: SectionOperators, c: np.ndarray, nu: np.ndarray, p: np.ndarra
             st = solve_sections(ops, cs, ns, ps, kk)
             return kk * st.moment - st.energy
 
-        k_fold[sel] = _bisect(excess, lo, hi, iterations)
+        k_fold[sel] = _bracketed_root(excess, lo, hi, iterations)
     return k_fold, found
+
+
+@functools.lru_cache(maxsize=16)
+def _shape_quadrature(modes: int, stations: int) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Gauss nodes and weights between the stations of the half width, and the slope matrix there."""
+    half = np.linspace(0.0, 0.5, (stations + 1) // 2)
+    xg, wg = legendre.leggauss(_SHAPE_GAUSS)
+    left, right = half[:-1], half[1:]
+    nodes = (0.5 * (left + right))[:, None] + 0.5 * (right - left)[:, None] * xg[None, :]
+    weights = 0.5 * (right - left)[:, None] * wg[None, :]
+    return nodes, weights, make_section_operators(modes).slope_matrix(nodes.reshape(-1))
 
 
 def trace_section_shapes(ops: SectionOperators, modal: np.ndarray, stations: int,
@@ -253,13 +276,9 @@ def trace_section_shapes(ops: SectionOperators, modal: np.ndarray, stations: int
     z = ∫sin φ ds from the crown (η = 0, z = 0). The unloaded section is then the circular arc
     of radius R_t and arc length w. Returns shape ``(..., 2, stations)`` in units of w.
     """
-    eta = np.linspace(-0.5, 0.5, stations)
-    half = eta[eta >= 0.0]
-    xg, wg = legendre.leggauss(_SHAPE_GAUSS)
-    left, right = half[:-1], half[1:]
-    nodes = (0.5 * (left + right))[:, None] + 0.5 * (right - left)[:, None] * xg[None, :]
-    weights = 0.5 * (right - left)[:, None] * wg[None, :]
-    slope = ops.slope_matrix(nodes.reshape(-1))
+    if stations % 2 == 0:
+        raise ValueError(f"stations must be odd (the crown is a station); got {stations}")
+    nodes, weights, slope = _shape_quadrature(ops.modes, stations)
     phi = (modal @ slope.T) * np.asarray(slope_scale)[..., None]
     phi = phi.reshape(*phi.shape[:-1], *nodes.shape)
     dy = np.sum(np.cos(phi) * weights, axis=-1)
