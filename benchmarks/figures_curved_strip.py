@@ -75,7 +75,7 @@ def figure_fold(model):
     for load, color, published in (("bend_opposite", "#0072B2", 1 + NU), ("bend_equal", "#D55E00", -(1 - NU))):
         inp = inputs(cs, load)
         res = model.solve_batch(inp)
-        mu, ku = units(inp)
+        mu, _ = units(inp)
         d_w_r = mu * cs  # D w / R_t in units: (D h/w)·c
         axes[0].loglog(cs, np.abs(res.outputs["fold_moment"] / (published * d_w_r) - 1), "o-", color=color, ms=4,
                        label=f"{load.replace('_', ' ')}: |M_fold/({published:+.1f} D w/R_t) − 1|")
