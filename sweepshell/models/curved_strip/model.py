@@ -310,8 +310,9 @@ class CurvedStripModel(SweepModel):
         q = get("density") * get("gravity") * h * w
         tip = get("tip_load")
         m_peak = paths["m_peak"][at] * m_unit
+        # the positive root of qL²/2 + PL = M_peak, written without cancellation for large P
         with np.errstate(invalid="ignore"):
-            l_crit = (np.sqrt(tip**2 + 2.0 * q * m_peak) - tip) / q
+            l_crit = 2.0 * m_peak / (np.sqrt(tip**2 + 2.0 * q * m_peak) + tip)
         out["critical_length"][idx] = l_crit
         collapsed = length > l_crit  # False where l_crit is NaN (no limit point)
         regime[idx] = np.where(collapsed, 2, 0)
