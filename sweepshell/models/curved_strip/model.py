@@ -349,19 +349,21 @@ def _invert_moment(modes: int, c: np.ndarray, nu: np.ndarray, p: np.ndarray,
     lo = np.zeros(shape)
     hi = np.broadcast_to(k_top[:, None], shape).copy()
     k = np.minimum(clipped / stiffness0[:, None], hi)
+    active = np.ones(shape, dtype=bool)
     for _ in range(_NEWTON_STEPS):
         st = solve_sections(ops, cc, nn, pp, k)
         f = st.moment - clipped
-        lo = np.where(f < 0.0, k, lo)
-        hi = np.where(f >= 0.0, k, hi)
+        lo = np.where(active & (f < 0.0), k, lo)
+        hi = np.where(active & (f >= 0.0), k, hi)
         with np.errstate(divide="ignore", invalid="ignore"):
             step = k - f / st.tangent
         inside = (st.tangent > 0.0) & (step > lo) & (step < hi)
-        k_new = np.where(inside, step, 0.5 * (lo + hi))
-        if np.all(np.abs(k_new - k) <= 1e-13 * np.maximum(k, 1.0)):
-            k = k_new
-            break
+        k_new = np.where(active, np.where(inside, step, 0.5 * (lo + hi)), k)
+        # a converged entry stops moving, so its answer never depends on the batch
+        active &= np.abs(k_new - k) > 1e-13 * np.maximum(k, 1.0)
         k = k_new
+        if not active.any():
+            break
     return k
 
 

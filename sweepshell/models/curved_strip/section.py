@@ -181,19 +181,22 @@ def _bracketed_root(fun, lo: np.ndarray, hi: np.ndarray, iterations: int) -> np.
     f_lo, f_hi = fun(lo), fun(hi)
     side = np.zeros(lo.shape, dtype=int)
     for _ in range(iterations):
+        # a row stops once its bracket is below 10⁻¹³ relative, so its answer never depends on the batch
+        active = hi - lo > 1e-13 * hi
+        if not active.any():
+            break
         with np.errstate(divide="ignore", invalid="ignore"):
             x = (lo * f_hi - hi * f_lo) / (f_hi - f_lo)
         x = np.where(np.isfinite(x) & (x > lo) & (x < hi), x, 0.5 * (lo + hi))
         f_x = fun(x)
-        left = np.sign(f_x) == np.sign(f_lo)
+        left = active & (np.sign(f_x) == np.sign(f_lo))
+        right = active & ~left
         lo, f_lo = np.where(left, x, lo), np.where(left, f_x, f_lo)
-        hi, f_hi = np.where(left, hi, x), np.where(left, f_hi, f_x)
+        hi, f_hi = np.where(right, x, hi), np.where(right, f_x, f_hi)
         # Illinois: halve the stale end's value when the same end is kept twice
         f_hi = np.where(left & (side == 1), 0.5 * f_hi, f_hi)
-        f_lo = np.where(~left & (side == -1), 0.5 * f_lo, f_lo)
-        side = np.where(left, 1, -1)
-        if np.all(hi - lo <= 1e-13 * hi):
-            break
+        f_lo = np.where(right & (side == -1), 0.5 * f_lo, f_lo)
+        side = np.where(left, 1, np.where(right, -1, side))
     return 0.5 * (lo + hi)
 
 
