@@ -22,11 +22,13 @@ Numerics: a Ritz expansion of the section in even Legendre polynomials (``modes`
 :mod:`.section`). For fixed k the energy is a positive definite quadratic in the section,
 so each curvature has exactly one equilibrium section, found by one linear solve; the
 moment–curvature path is sampled on a geometric grid of ``curvature_samples`` curvatures
-from k = 0.05 to k = ``curvature_range``·(c + 20), the limit point is bracketed by the sign change of
-dm/dk and refined by bisection, the fold by the Maxwell construction (min Û/k past the
-limit point). Points sharing (c, ν, sense) share one path. Discretisation error: the same
-quantities on the leading 3/4 of the basis; a relative difference above ``tolerance``, or a
-fold edge layer ℓ = [12(1−ν²)]^(−1/4)(h/κ)^(1/2) narrower than ``layer_resolution``·w/(2·modes)²
+from k = 0.05 to k = ``curvature_range``·(c + 20), the limit point is bracketed by the sign
+change of dm/dk and refined by regula falsi, the fold by the Maxwell construction (min Û/k
+past the limit point; where m never falls below Û/k — c just above the limit-point
+threshold — the section snaps without a localised fold and the fold outputs are NaN).
+Points sharing (c, ν, sense) share one path. Discretisation error: the same quantities on
+the leading 3/4 of the basis; a relative difference above ``tolerance``, or a fold edge
+layer ℓ = [12(1−ν²)]^(−1/4)(h/κ)^(1/2) narrower than ``layer_resolution``·w/(2·modes)²
 (both bases would miss it alike), is ``not_converged``.
 
 Outputs and conventions
@@ -54,10 +56,11 @@ Validity: shallow section, w/R_t ≤ ``max_width_ratio``; thin, h/w ≤ ``max_th
 (else ``outside_validity``); linear elastic (metal strips may yield in the fold: the fold's
 surface strain is h/(2R_t)); uniform bending — end effects and three-dimensional modes are
 not modelled: equal-sense strips are observed to fail by flexural–torsional buckling below
-this section's limit point (Seffen & Pellegrino 1999), so the equal-sense ``peak_moment``
+this section's limit point (Seffen & Pellegrino 1999, from memory), so the equal-sense ``peak_moment``
 is an upper bound; cantilever slopes small (tip rotation ≤ ``max_tip_rotation``).
 
-References checked by the tests (``tests/models/curved_strip/``): beam theory of the arc
+References checked by the tests (``tests/models/curved_strip/``,
+``tests/reference/test_curved_strip_reference.py``): beam theory of the arc
 section (common practice); Seffen & Pellegrino (1999), *Proc. R. Soc. A* 455:1003, and
 Calladine (1988), *Proc. Instn Mech. Engrs* 202, for the fold radius R_t and the fold
 moments (1 + ν)D w/R_t and −(1 − ν)D w/R_t (values from memory).
