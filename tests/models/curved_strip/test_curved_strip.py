@@ -139,3 +139,20 @@ def test_settings_are_checked():
         CurvedStripModel(modes=2)
     with pytest.raises(ValueError, match=r"settings\.curvature_range"):
         CurvedStripModel(curvature_range=1.0)
+
+
+@pytest.mark.parametrize("load", ["bend_opposite", "bend_equal"])
+def test_moment_path_runs_from_rest_through_the_peak_to_the_fold(model, load):
+    res = model.solve_batch(make_inputs(1, thickness=thickness_for(400.0), load=load))
+    out = {k: v[0] for k, v in res.outputs.items()}
+    moment, kappa = out["moment_path"].T
+    sign = 1.0 if load == "bend_opposite" else -1.0
+    assert moment[0] == pytest.approx(0.0, abs=1e-12 * abs(out["peak_moment"])) and kappa[0] == 0.0
+    assert np.all(np.diff(sign * kappa) > 0) and np.all(sign * moment[1:] > 0)
+    # samples even in arc length resolve the spike: the path's largest moment is within 2 % of the limit point
+    assert np.max(sign * moment) == pytest.approx(sign * out["peak_moment"], rel=0.02)
+    assert np.max(sign * moment) <= sign * out["peak_moment"] * (1 + 1e-12)
+    # the path passes below the fold moment after the peak and ends beyond the fold curvature
+    after = sign * kappa > sign * out["peak_curvature"]
+    assert np.min(sign * moment[after]) < sign * out["fold_moment"]
+    assert sign * kappa[-1] > 1.5 / out["fold_radius"]
