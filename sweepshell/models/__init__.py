@@ -39,7 +39,7 @@ _REGISTRY: dict[str, tuple[str, str]] = {
     "shallow_cap": ("sweepshell.models.shallow_cap", "ShallowCapModel"),
     "foundation_strip": ("sweepshell.models.foundation_strip", "FoundationStripModel"),
     "foundation_sheet": ("sweepshell.models.foundation_sheet", "FoundationSheetModel"),
-    "curved_strip": ("sweepshell.models.curved_strip", "CurvedStripModel"),
+    "curved_strip": ("sweepshell.models.curved_strip.model", "CurvedStripModel"),
     "winkler_column": ("sweepshell.testing", "WinklerColumnModel"),
 }
 

@@ -59,8 +59,8 @@ not modelled: equal-sense strips are observed to fail by flexural–torsional bu
 this section's limit point (Seffen & Pellegrino 1999, from memory), so the equal-sense ``peak_moment``
 is an upper bound; cantilever slopes small (tip rotation ≤ ``max_tip_rotation``).
 
-References checked by the tests (``tests/models/curved_strip/``,
-``tests/reference/test_curved_strip_reference.py``): beam theory of the arc
+References checked by the tests (``tests/models/curved_strip/``, published values in its
+``test_reference.py``): beam theory of the arc
 section (common practice); Seffen & Pellegrino (1999), *Proc. R. Soc. A* 455:1003, and
 Calladine (1988), *Proc. Instn Mech. Engrs* 202, for the fold radius R_t and the fold
 moments (1 + ν)D w/R_t and −(1 − ν)D w/R_t (values from memory).

@@ -17,15 +17,9 @@ import numpy as np
 import pytest
 
 from sweepshell.models import Status
-from sweepshell.models.curved_strip import CurvedStripModel
 from tests.models.curved_strip.conftest import make_inputs, plate_modulus, thickness_for
 
 CURVATURE_PARAMETERS = np.array([400.0, 1600.0, 6400.0])
-
-
-@pytest.fixture(scope="module")
-def model() -> CurvedStripModel:
-    return CurvedStripModel()
 
 
 def _fold(model, load: str, nu: float):
