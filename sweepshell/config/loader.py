@@ -24,10 +24,10 @@ import numpy as np
 import yaml
 from omegaconf import DictConfig, ListConfig, OmegaConf
 
-from sweepshell.engine.plan import Axis, ExecutorSpec, SweepPlan
 from sweepshell.errors import ConfigError, ParameterError
 from sweepshell.models import get_model
 from sweepshell.models.base import SweepModel
+from sweepshell.plan import Axis, ExecutorSpec, SweepPlan
 
 __all__ = ["find_config_dir", "load_plan", "parse_overrides", "resolve_sweep_file"]
 

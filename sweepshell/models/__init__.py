@@ -36,11 +36,11 @@ __all__ = [
 
 # name -> (module, class); a fixed table of our own code, never extended from input
 _REGISTRY: dict[str, tuple[str, str]] = {
-    "shallow_cap": ("sweepshell.models.shallow_cap", "ShallowCapModel"),
-    "foundation_strip": ("sweepshell.models.foundation_strip", "FoundationStripModel"),
-    "foundation_sheet": ("sweepshell.models.foundation_sheet", "FoundationSheetModel"),
+    "shallow_cap": ("sweepshell.models.shallow_cap.model", "ShallowCapModel"),
+    "foundation_strip": ("sweepshell.models.foundation_strip.model", "FoundationStripModel"),
+    "foundation_sheet": ("sweepshell.models.foundation_sheet.model", "FoundationSheetModel"),
     "curved_strip": ("sweepshell.models.curved_strip.model", "CurvedStripModel"),
-    "winkler_column": ("sweepshell.testing", "WinklerColumnModel"),
+    "winkler_column": ("sweepshell.models.winkler_column.model", "WinklerColumnModel"),
 }
 
 

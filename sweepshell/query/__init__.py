@@ -1,4 +1,4 @@
-"""Questions to a store: selections, regimes, boundaries.
+"""Questions to a store, read only: selections, regimes, boundaries (new evaluations come from the caller).
 
 Importing this package registers the ``.sweep`` accessor on :class:`xarray.Dataset`.
 """

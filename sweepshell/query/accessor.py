@@ -18,7 +18,7 @@ import xarray as xr
 
 from sweepshell.models.base import TRUSTED_STATUSES
 from sweepshell.query.table import SweepFields, describe_fields, regime_names, select_points
-from sweepshell.store import layout
+from sweepshell.store import metadata
 
 if TYPE_CHECKING:
     import pandas as pd
@@ -47,12 +47,12 @@ class SweepAccessor:
     def trusted(self) -> xr.DataArray:
         """Whether each grid point has a trustworthy status (``ok`` or ``no_instability``)."""
         codes = sorted(int(s) for s in TRUSTED_STATUSES)
-        return self._ds[layout.STATUS_VAR].isin(codes)
+        return self._ds[metadata.STATUS_VAR].isin(codes)
 
     def regime_label(self) -> xr.DataArray:
         """Return the regime of every grid point as names (``none`` where untrusted)."""
         names = np.array(["none", *self.regime_names], dtype=object)
-        codes = self._ds[layout.REGIME_VAR]
+        codes = self._ds[metadata.REGIME_VAR]
         return xr.apply_ufunc(lambda c: names[np.asarray(c).astype(np.intp) + 1], codes, dask="allowed")
 
     def query(self, where: str | None = None, fields: Sequence[str] | None = None, *, sort: str | None = None,
