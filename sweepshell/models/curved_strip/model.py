@@ -132,7 +132,8 @@ class CurvedStripModel(SweepModel):
                       default=0.04, bounds=(0.0, _INF), closed=(False, False), symbol="w"),
         ParameterSpec("thickness", "m", "wall thickness h", default=1e-4, bounds=(0.0, _INF),
                       closed=(False, False), symbol="h"),
-        ParameterSpec("transverse_radius", "m", "natural radius R_t of the section (inf: flat strip)",
+        ParameterSpec("transverse_radius", "m", "natural radius R_t of the section (inf in Python: flat strip; "
+                      "sweep files take finite values, a large radius is flat to c = w^2/(R_t h))",
                       default=0.05, bounds=(0.0, _INF), closed=(False, True), symbol="R_t"),
         ParameterSpec("youngs_modulus", "Pa", "Young's modulus E", default=200e9, bounds=(0.0, _INF),
                       closed=(False, False), symbol="E"),

@@ -23,7 +23,7 @@ model: curved_strip
 fixed: {thickness: 1.0e-4, load: bend_opposite}
 axes:
   width: [0.02, 0.04]
-  transverse_radius: [0.05, .inf]
+  transverse_radius: [0.05, 0.5]
 """
 
 
