@@ -400,9 +400,9 @@ def build_plan(cfg: Mapping[str, Any], *, source: str = "<dict>") -> SweepPlan:
         if value is None and isinstance(param.default, float) and math.isnan(param.default):
             fixed[pname] = param.default  # an optional parameter left unset (recorded plans write null)
             continue
-        if isinstance(value, float) and not math.isfinite(value):
-            raise ConfigError(f"fixed.{pname}={value!r} is not a finite number; give a finite value",
-                              field=f"fixed.{pname}", value=value)
+        if isinstance(value, float) and not math.isfinite(value) and not param.admits_infinity:
+            raise ConfigError(f"fixed.{pname}={value!r} is not a finite number; give a finite value "
+                              f"({param.describe_allowed()})", field=f"fixed.{pname}", value=value)
         param.check_values(value, where=f"fixed.{pname}")
         fixed[pname] = float(value) if not param.is_categorical else value
     for param in model_cls.parameters:
@@ -639,3 +639,4 @@ def _make_executor(spec: Mapping[str, Any]) -> ExecutorSpec:
         raise ConfigError("executor=distributed needs an address; add executor.address=tcp://HOST:PORT",
                           field="executor.address")
     return ExecutorSpec(kind=kind, workers=workers, address=address)
+

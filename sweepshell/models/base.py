@@ -71,6 +71,10 @@ class ParameterSpec:
         For categorical parameters, the allowed names; ``bounds`` is then ignored.
     integer
         Whether only whole numbers are allowed.
+    admits_infinity
+        Whether an infinite bound, where ``closed``, is itself a value: some parameters mean
+        something at infinity (an inextensible strip, a flat section); for every other
+        parameter a non-finite value is refused.
     """
 
     name: str
@@ -81,6 +85,7 @@ class ParameterSpec:
     closed: tuple[bool, bool] = (True, True)
     choices: tuple[str, ...] | None = None
     integer: bool = False
+    admits_infinity: bool = False
     symbol: str = ""
 
     @property
@@ -92,8 +97,8 @@ class ParameterSpec:
         if self.choices is not None:
             return "one of " + ", ".join(self.choices)
         lo, hi = self.bounds
-        left = "[" if self.closed[0] and math.isfinite(lo) else "("
-        right = "]" if self.closed[1] and math.isfinite(hi) else ")"
+        left = "[" if self.closed[0] and (math.isfinite(lo) or self.admits_infinity) else "("
+        right = "]" if self.closed[1] and (math.isfinite(hi) or self.admits_infinity) else ")"
         text = f"{left}{_fmt(lo)}, {_fmt(hi)}{right}"
         return text + (" (whole numbers)" if self.integer else "")
 
@@ -125,7 +130,7 @@ class ParameterSpec:
                 field=where, value=v, allowed=self.describe_allowed())
         x = float(v)
         lo, hi = self.bounds
-        ok = math.isfinite(x) or x in (lo, hi)
+        ok = math.isfinite(x) or (self.admits_infinity and x in (lo, hi))
         ok = ok and (x > lo or (self.closed[0] and x == lo)) and (x < hi or (self.closed[1] and x == hi))
         if not ok:
             fix = _suggest_fix(self, x)

@@ -16,7 +16,7 @@ from tests.plot.test_layout import WIDE, stretched
 FLEXURE = """\
 name: flexure
 model: foundation_strip
-fixed: {problem: flexure, stretching_stiffness: 1.0e+9}  # finite: stores refuse to read back an inf record
+fixed: {problem: flexure}  # the default inextensible strip: an inf fixed value the store reads back
 axes:
   elastic_thickness: {logspace: [3.5, 4.5, 5]}
   plate: [broken, continuous]

@@ -132,9 +132,8 @@ class CurvedStripModel(SweepModel):
                       default=0.04, bounds=(0.0, _INF), closed=(False, False), symbol="w"),
         ParameterSpec("thickness", "m", "wall thickness h", default=1e-4, bounds=(0.0, _INF),
                       closed=(False, False), symbol="h"),
-        ParameterSpec("transverse_radius", "m", "natural radius R_t of the section (inf in Python: flat strip; "
-                      "sweep files take finite values, a large radius is flat to c = w^2/(R_t h))",
-                      default=0.05, bounds=(0.0, _INF), closed=(False, True), symbol="R_t"),
+        ParameterSpec("transverse_radius", "m", "natural radius R_t of the section (inf, .inf in YAML: a flat strip)",
+                      default=0.05, bounds=(0.0, _INF), closed=(False, True), admits_infinity=True, symbol="R_t"),
         ParameterSpec("youngs_modulus", "Pa", "Young's modulus E", default=200e9, bounds=(0.0, _INF),
                       closed=(False, False), symbol="E"),
         ParameterSpec("poisson_ratio", "1", "Poisson's ratio", default=0.3, bounds=(-1.0, 0.5),

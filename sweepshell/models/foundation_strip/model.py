@@ -128,7 +128,7 @@ class FoundationStripModel(SweepModel):
                       default=0.0, symbol="K3"),
         ParameterSpec("stretching_stiffness", "N m-1",
                       "axial stiffness A per unit width (inf: inextensible)",
-                      default=_INF, bounds=(0.0, _INF), closed=(False, True), symbol="A"),
+                      default=_INF, bounds=(0.0, _INF), closed=(False, True), admits_infinity=True, symbol="A"),
         ParameterSpec("confinement", "1", "imposed end-shortening per unit length",
                       default=0.02, bounds=(0.0, 0.5), symbol="c"),
         ParameterSpec("imperfection", "1",

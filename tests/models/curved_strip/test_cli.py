@@ -32,7 +32,7 @@ axes:
     ("fixed.thickness=-1e-4", "fixed.thickness=-0.0001 is outside (0, inf); use a value above 0"),
     ("+fixed.poisson_ratio=0.5", "fixed.poisson_ratio=0.5 is outside (-1, 0.5); use a value below 0.5"),
     ("axes.width=[0.02,0]", "axes.width=0 is outside (0, inf); use a value above 0"),
-    ("axes.transverse_radius=[0.05,-1]", "axes.transverse_radius=-1 is outside (0, inf); use a value above 0"),
+    ("axes.transverse_radius=[0.05,-1]", "axes.transverse_radius=-1 is outside (0, inf]; use a value above 0"),
     ("fixed.load=twist", "fixed.load='twist' is not allowed; use one of bend_opposite, bend_equal, cantilever"),
     ("+fixed.tip_load=-1", "fixed.tip_load=-1 is outside [0, inf); use a value at or above 0"),
     ("+settings.modes=2", "settings.modes must be a whole number from 4 to 120"),
