@@ -29,8 +29,9 @@ from typing import ClassVar
 import numpy as np
 
 from sweepshell.models.base import BatchResult, OutputSpec, ParameterSpec, Status, SweepModel
+from sweepshell.models.contract import ModelContractError, check_model
 
-__all__ = ["WinklerColumnModel", "winkler_column_critical"]
+__all__ = ["ModelContractError", "WinklerColumnModel", "check_model", "winkler_column_critical"]
 
 
 def winkler_column_critical(eta: np.ndarray, m_max: int = 200) -> tuple[np.ndarray, np.ndarray]:

@@ -28,6 +28,7 @@ import numpy as np
 from sweepshell import CAUTION, __version__
 from sweepshell.engine.plan import Block, SweepPlan
 from sweepshell.errors import StoreMismatchError, StoreSchemaError
+from sweepshell.models import get_model_origin
 from sweepshell.models.base import BatchResult, SweepModel
 from sweepshell.store import layout
 from sweepshell.store.layout import ATTR
@@ -65,11 +66,14 @@ def _read_attrs(path: str | os.PathLike[str]) -> dict[str, Any]:
 
 def plan_attrs(plan: SweepPlan, model: SweepModel, block_shape: Sequence[int]) -> dict[str, Any]:
     """Return the provenance attributes of a store made from ``plan``."""
+    origin = get_model_origin(plan.model)
     return {
         ATTR.tool: __version__,
         ATTR.schema: layout.SCHEMA_VERSION,
         ATTR.model: plan.model,
         ATTR.model_version: plan.model_version,
+        ATTR.model_package: origin.distribution,
+        ATTR.model_package_version: origin.version,
         ATTR.settings: canonical_json(model.settings),
         ATTR.fixed: canonical_json(plan.fixed),
         ATTR.axes: canonical_json({a.name: list(a.values) for a in plan.axes}),
