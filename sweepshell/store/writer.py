@@ -204,7 +204,9 @@ def create_store(plan: SweepPlan, model: SweepModel, block_shape: Sequence[int])
     coords: dict[str, Any] = {}
     for axis in plan.axes:
         param = model.get_parameter(axis.name)
-        attrs = {"units": param.units, "long_name": param.doc, "spacing": axis.spacing}
+        attrs = {"long_name": param.doc, "spacing": axis.spacing}
+        if not param.is_categorical:  # names carry no units
+            attrs["units"] = param.units
         if param.symbol:
             attrs["symbol"] = param.symbol
         coords[axis.name] = xr.Variable((axis.name,), axis.to_array(), attrs)
