@@ -70,7 +70,7 @@ def test_lowest_constraints_equal_the_declared_lower_bounds():
     assert not unpinned, f"lower bounds without a line in .ci/lowest-constraints.txt: {unpinned}"
     for name, version in pinned.items():
         assert name in declared, f"{name} is pinned in .ci/lowest-constraints.txt but not declared"
-        assert norm(version) == norm(declared[name]), f"{name}: lowest-constraints {version}, pyproject {declared[name]}"
+        assert norm(version) == norm(declared[name]), f"{name}: constraints {version}, pyproject {declared[name]}"
 
 
 def test_one_version_and_a_hydra_range():

@@ -81,5 +81,5 @@ def test_each_broken_rule_is_named(broken, says):
 
 
 def test_not_a_model_class():
-    with pytest.raises(ModelContractError, match="subclass of sweepshell.models.SweepModel"):
+    with pytest.raises(ModelContractError, match=r"subclass of sweepshell\.models\.SweepModel"):
         check_model(dict)  # type: ignore[arg-type]

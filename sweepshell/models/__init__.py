@@ -28,14 +28,14 @@ from sweepshell.models.base import (
 )
 
 __all__ = [
+    "ENTRY_POINT_GROUP",
     "FINAL_STATUSES",
     "TRUSTED_STATUSES",
     "BatchResult",
+    "ModelOrigin",
     "OutputSpec",
     "ParameterSpec",
     "Status",
-    "ENTRY_POINT_GROUP",
-    "ModelOrigin",
     "SweepModel",
     "find_plugin_models",
     "get_model",

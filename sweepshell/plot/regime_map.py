@@ -13,7 +13,7 @@ from __future__ import annotations
 import logging
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
-from typing import TYPE_CHECKING, Any
+from typing import TYPE_CHECKING, Any, cast
 
 import numpy as np
 
@@ -95,7 +95,7 @@ def _check_numeric(view: SweepSlice) -> None:
 
 def draw_regime_map(ds: xr.Dataset, x: str, y: str, *, color: str | None = None, contour: str | None = None,
                     at: Mapping[str, str] | None = None, show_points: bool = False,
-                    boundaries: bool = True) -> MapResult:
+                    boundaries: bool = True, ax: Axes | None = None) -> MapResult:
     """Draw the regime map of a store over axes ``x`` and ``y``.
 
     Parameters
@@ -115,6 +115,9 @@ def draw_regime_map(ds: xr.Dataset, x: str, y: str, *, color: str | None = None,
         Mark the off-grid points of the store's point list.
     boundaries
         Draw the boundaries between regimes.
+    ax
+        Draw into these matplotlib axes (the caller's figure: colour bar beside them, legend
+        to their right, no caution footer); a new figure of the house style when ``None``.
 
     Raises
     ------
@@ -142,9 +145,13 @@ def draw_regime_map(ds: xr.Dataset, x: str, y: str, *, color: str | None = None,
     status = np.asarray(view.ds[layout.STATUS_VAR].values)
     points = read_store_points(ds)
     known = known_points(points, view.fixed_values, x, y)
-    fig = make_figure()
     continuous = color not in (None, "regime")
-    ax = fig.add_axes(FIELD_AXES if continuous else MAIN_AXES)
+    own = ax is None
+    if ax is None:
+        fig = make_figure()
+        ax = fig.add_axes(FIELD_AXES if continuous else MAIN_AXES)
+    else:
+        fig = cast("Figure", ax.figure)
     handles: list[Any] = []
     notes: list[str] = []
 
@@ -165,7 +172,7 @@ def draw_regime_map(ds: xr.Dataset, x: str, y: str, *, color: str | None = None,
 
             norm = LogNorm(finite.min(), finite.max())  # values over decades read better on a log scale
         mesh = _draw_field(ax, xu, yu, field_values, view.log, known=None, cmap=cmap, norm=norm)
-        cbar = fig.colorbar(mesh, cax=fig.add_axes(COLORBAR_AXES))
+        cbar = fig.colorbar(mesh, cax=fig.add_axes(COLORBAR_AXES)) if own else fig.colorbar(mesh, ax=ax)
         cbar.set_label(axis_label(color, dict(view.ds[color].attrs)))
     else:
         cmap = ListedColormap(fill_colors)
@@ -214,13 +221,14 @@ def draw_regime_map(ds: xr.Dataset, x: str, y: str, *, color: str | None = None,
     ax.tick_params(direction="out", labelsize=9)
     title = "Regime map" if not continuous else f"{str(color).replace('_', ' ')} with regime boundaries"
     ax.set_title(title_lines(dict(ds.attrs), title, _subtitle(ds, view)), fontsize=9.5, loc="left")
-    if handles and continuous:  # right of the colour bar
+    if handles and continuous and own:  # right of the colour bar
         fig.legend(handles=handles, loc="upper left", bbox_to_anchor=(0.79, 0.88), fontsize=8.5, frameon=False,
                    borderaxespad=0.0)
     elif handles:
         ax.legend(handles=handles, loc="upper left", bbox_to_anchor=(1.02, 1.0), fontsize=8.5, frameon=False,
                   borderaxespad=0.0)
-    add_caution_footer(fig)
+    if own:
+        add_caution_footer(fig)
     return MapResult(fig, view, tuple(notes))
 
 

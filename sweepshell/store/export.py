@@ -203,7 +203,8 @@ def _write_parquet(store: Path, target: Path) -> None:
 
 
 def export_store(store: str | os.PathLike[str], fmt: str, output: str | os.PathLike[str] | None = None, *,
-                 overwrite: bool = False, stdout: IO[str] | None = None, engine: str | None = None) -> Path | None:
+                 overwrite: bool = False, stdout: IO[str] | None = None,
+                 engine: str | None = None) -> Path | None:
     """Write a store as netCDF, CSV or Parquet.
 
     Parameters
@@ -245,8 +246,8 @@ def export_store(store: str | os.PathLike[str], fmt: str, output: str | os.PathL
                           "with --format netcdf", field="engine", value=engine, allowed=", ".join(NETCDF_ENGINES))
     has_h5 = all(importlib.util.find_spec(m) is not None for m in ("h5netcdf", "h5py"))
     if engine == "h5netcdf" and not has_h5:
-        raise ExportError("engine h5netcdf needs the h5netcdf and h5py packages, which are not installed; run `pip install "
-                          "sweepshell[h5netcdf]` or use --engine scipy", field="engine", value=engine)
+        raise ExportError("engine h5netcdf needs the h5netcdf and h5py packages, which are not installed; run "
+                          "`pip install sweepshell[h5netcdf]` or use --engine scipy", field="engine", value=engine)
     nc_engine = engine or ("h5netcdf" if has_h5 else "scipy")
     if fmt == "parquet" and importlib.util.find_spec("pyarrow") is None:
         raise ExportError("parquet export needs the pyarrow package, which is not installed; run `pip install "
