@@ -55,7 +55,8 @@ def build_parser() -> argparse.ArgumentParser:
         epilog=_CAUTION_HELP)
     run.add_argument("sweep", metavar="SWEEP")
     run.add_argument("overrides", nargs="*", metavar="OVERRIDE")
-    run.add_argument("--config-dir", help="the configs/ folder (default: ./configs, else the demo configs packaged with sweepshell)")
+    run.add_argument("--config-dir",
+                     help="the configs/ folder (default: ./configs, else the demo configs packaged with sweepshell)")
     run.add_argument("--progress", choices=("auto", "bar", "lines", "none"), default="auto",
                      help="progress display (default: a bar on a terminal, periodic lines otherwise)")
     run.add_argument("--dry-run", action="store_true",
