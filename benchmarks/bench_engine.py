@@ -61,9 +61,9 @@ def bench_store(folder: Path) -> None:
     import xarray as xr
 
     from sweepshell.config.loader import load_plan
-    from sweepshell.engine.plan import choose_block_shape
     from sweepshell.engine.runner import run_plan
     from sweepshell.models import make_model
+    from sweepshell.plan import choose_block_shape
     from sweepshell.store.writer import create_store
 
     os.environ["SWEEPSHELL_CONFIG_DIR"] = str(REPO / "configs")

@@ -6,7 +6,7 @@ Two measurements, each printed with its agreement check:
    seeds) on three pattern points (uniaxial stripes, equibiaxial herringbone, equibiaxial
    labyrinth): seconds per point against the 2 s target;
 2. one minimisation per point, the fast solver (Airy-reduced energy, preconditioned
-   L-BFGS of our own) vs the reference in :mod:`sweepshell.numerics.sheet_reference`
+   L-BFGS of our own) vs the reference in :mod:`sweepshell.models.foundation_sheet.reference`
    (in-plane displacements kept as unknowns, collocation, no preconditioning,
    ``scipy.optimize`` L-BFGS-B) on a 32 × 32 grid from the same start: energy agreement
    and the time ratio. Points whose equilibrium is unique from any start (stripes, and
@@ -28,14 +28,14 @@ import time
 import numpy as np
 
 from sweepshell.models import make_model
-from sweepshell.models.foundation_sheet import compute_sheet_scales
-from sweepshell.numerics.sheet_energy import (
+from sweepshell.models.foundation_sheet.energy import (
     compute_height_field,
     make_sheet_problem,
     minimize_sheet_energy,
     project_field_to_modes,
 )
-from sweepshell.numerics.sheet_reference import minimize_reference_energy
+from sweepshell.models.foundation_sheet.model import compute_sheet_scales
+from sweepshell.models.foundation_sheet.reference import minimize_reference_energy
 
 
 def make_inputs(model, n, **columns):

@@ -25,9 +25,8 @@ from scipy.integrate import solve_bvp
 from scipy.optimize import root
 
 from sweepshell.models import make_model
-from sweepshell.models.foundation_strip_path import FoldWatch, compute_pinned_onset
-from sweepshell.numerics.strip_continuation import StripPath
-from sweepshell.numerics.strip_elastica import (
+from sweepshell.models.foundation_strip.continuation import StripPath
+from sweepshell.models.foundation_strip.elastica import (
     compute_crest_contrast,
     compute_gradient,
     compute_hessian,
@@ -35,6 +34,7 @@ from sweepshell.numerics.strip_elastica import (
     make_strip_grid,
     make_strip_problem,
 )
+from sweepshell.models.foundation_strip.path import FoldWatch, compute_pinned_onset
 
 TWO_PI = 2.0 * np.pi
 

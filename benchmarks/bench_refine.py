@@ -41,7 +41,7 @@ def boundary_errors(crossings: np.ndarray, du: float, dv: float) -> np.ndarray:
     """Distance of each crossing estimate to the closed-form boundary along its edge, in fine spacings."""
     from scipy.optimize import brentq
 
-    from sweepshell.testing import winkler_column_critical
+    from sweepshell.models.winkler_column.model import winkler_column_critical
 
     u, v = crossings[:, 0], crossings[:, 1]
     lattice_v = np.isclose((v - 0.5) / dv, np.round((v - 0.5) / dv), atol=1e-6)

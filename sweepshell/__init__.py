@@ -12,28 +12,30 @@ import importlib.util
 import sys
 from typing import Any
 
-__version__ = "0.1.0"
+from sweepshell.about import CAUTION, __version__
 
 __all__ = ["CAUTION", "__version__", "get_model", "open_sweep", "run_sweep"]
 
-#: the caution printed wherever critical loads are shown
-CAUTION = (
-    "Caution: sweepshell results come from reduced-order elastic models of perfect or "
-    "idealised structures. Real shells are highly imperfection-sensitive: measured buckling "
-    "loads can fall far below classical values, which is why design codes apply knock-down "
-    "factors. Design must follow the applicable codes and standards and licensed engineering "
-    "review; do not use these numbers alone to size a structure."
-)
+
+class _SweepAccessorOnFirstUse:
+    """Stands in for :class:`sweepshell.plot.accessor.SweepAccessor` until ``ds.sweep`` is first used.
+
+    Registering it needs nothing but xarray, so registration can happen while xarray itself is
+    being imported; the query and plot layers load on first use.
+    """
+
+    def __new__(cls, ds: Any) -> Any:
+        from sweepshell.plot.accessor import SweepAccessor
+
+        return SweepAccessor(ds)
 
 
 def _register_accessor() -> None:
-    """Register the ``.sweep`` accessor (imports the query layer; xarray is loaded by then)."""
-    try:
-        import sweepshell.query.accessor  # noqa: F401
-    except Exception:  # the accessor is a convenience: never break the caller's import of xarray
-        import logging
+    """Register the ``.sweep`` accessor on :class:`xarray.Dataset` (once; xarray is loaded by then)."""
+    import xarray as xr
 
-        logging.getLogger(__name__).warning("the .sweep accessor could not be registered", exc_info=True)
+    if not hasattr(xr.Dataset, "sweep"):
+        xr.register_dataset_accessor("sweep")(_SweepAccessorOnFirstUse)
 
 
 class _AccessorOnXarrayImport:
@@ -52,7 +54,12 @@ class _AccessorOnXarrayImport:
 
         def exec_module(module: Any) -> None:
             run(module)
-            _register_accessor()
+            try:
+                _register_accessor()
+            except Exception:  # a convenience: never break the caller's import of xarray
+                import logging
+
+                logging.getLogger(__name__).warning("the .sweep accessor could not be registered", exc_info=True)
 
         loader.exec_module = exec_module
         return spec
@@ -66,11 +73,12 @@ elif not any(isinstance(f, _AccessorOnXarrayImport) for f in sys.meta_path):
 
 def __getattr__(name: str) -> Any:
     if name == "open_sweep":
-        import sweepshell.query.accessor  # noqa: F401  (registers the ``ds.sweep`` accessor)
         from sweepshell.store.reader import open_sweep
+
+        _register_accessor()
         return open_sweep
     if name == "run_sweep":
-        from sweepshell.engine.runner import run_sweep
+        from sweepshell.config.sweep import run_sweep
         return run_sweep
     if name == "get_model":
         from sweepshell.models import get_model

@@ -1,4 +1,9 @@
-"""Shared fixtures: strict floating point, a seeded rng, Agg plots, sweeps in a temporary folder."""
+"""Shared fixtures and helpers: strict floating point, a seeded rng, Agg plots, sweeps in a temporary
+folder, small stores of the analytic ``winkler_column`` model, and model inputs with defaults filled in.
+
+Stores built by session-scoped fixtures are shared between test modules: tests must only read them
+(a test that writes into a store takes the function-scoped ``store`` fixture, a fresh copy).
+"""
 
 from __future__ import annotations
 
@@ -10,7 +15,9 @@ os.environ.setdefault("OPENBLAS_NUM_THREADS", "1")
 os.environ.setdefault("MPLBACKEND", "Agg")
 
 import textwrap
+from collections.abc import Sequence
 from pathlib import Path
+from typing import Any
 
 import numpy as np
 import pytest
@@ -56,6 +63,126 @@ axes:
 executor: {kind: threads, workers: 2}
 block: {points: 40}
 """
+
+#: a three-axis column sweep (one named axis): boundaries on a view, the report
+THREE_AXES = """\
+name: column3
+model: winkler_column
+axes:
+  stiffness_ratio: {logspace: [-1, 3, 13]}
+  load_ratio: {linspace: [0.5, 40, 11]}
+  end: [pinned, weak]
+"""
+
+#: the same three axes on a finer grid: regime maps and line plots
+THREE_AXES_FINE = """\
+name: column3
+model: winkler_column
+axes:
+  stiffness_ratio: {logspace: [-1, 3, 21]}
+  load_ratio: {linspace: [0.5, 40, 16]}
+  end: [pinned, weak]
+"""
+
+#: a few failed and outside-validity points (load_ratio == 0.5 fails; eta > 500 is outside)
+FAULTY_OVERRIDES = ("+settings.fail_at=0.5", "settings.validity_limit=500")
+
+
+def compute_column_store(folder: Path, name: str = "column", overrides: Sequence[str] = (),
+                         sweep_text: str = COLUMN_SWEEP) -> Path:
+    """Compute a small column sweep into ``folder/<name>.zarr`` in this process; return the store path.
+
+    Blocks are computed without a dask cluster, which keeps each store under a few tenths of a
+    second; the engine's own tests cover the cluster path.
+    """
+    from sweepshell.config.loader import load_plan
+    from sweepshell.engine.runner import prepare_store
+    from sweepshell.engine.worker import compute_block
+    from sweepshell.plan import iter_blocks
+
+    folder.mkdir(parents=True, exist_ok=True)
+    sweep = write_sweep(folder, sweep_text, name=f"{name}.yaml")
+    store = folder / f"{name}.zarr"
+    plan = load_plan(str(sweep), [f"store.path={store}", *overrides], config_dir=str(CONFIGS))
+    block_shape, _ = prepare_store(plan)
+    values = [a.to_array() for a in plan.axes]
+    for block in iter_blocks(plan.shape, block_shape):
+        compute_block(str(store), plan.model, plan.settings, plan.axis_names,
+                      [v[s] for v, s in zip(values, block.slices, strict=True)], plan.fixed, block)
+    return store
+
+
+def run_column_store(path: Path, stiffness_ratio: list[Any], load_ratio: list[Any], *,
+                     settings: dict[str, Any] | None = None, fixed: dict[str, Any] | None = None,
+                     block_points: int = 10, name: str = "column", reuse: bool = False) -> Path:
+    """Run the cheap winkler_column model over a grid into ``path`` (threads executor); return the path.
+
+    Used by the store tests (catalog, merge, verify) and the CLI tests. Reuse of points from
+    sibling stores is off by default, so every store is an independent computation (a
+    reference to compare a merge against must not be a copy of its sources).
+    """
+    from sweepshell import run_sweep
+    from sweepshell.config.loader import build_plan
+
+    plan = build_plan({"name": name, "model": "winkler_column", "settings": settings or {},
+                       "fixed": fixed if fixed is not None else {"end": "pinned"},
+                       "axes": {"stiffness_ratio": stiffness_ratio, "load_ratio": load_ratio},
+                       "store": {"path": str(path)}, "executor": {"kind": "threads", "workers": 1},
+                       "block": {"points": block_points}, "reuse": reuse})
+    summary = run_sweep(plan)
+    assert summary.complete and summary.computed == summary.total
+    return path
+
+
+@pytest.fixture
+def store(tmp_path: Path) -> Path:
+    """A fresh column store (``COLUMN_SWEEP``) that the test may write into."""
+    return compute_column_store(tmp_path)
+
+
+@pytest.fixture(scope="session")
+def column_store(tmp_path_factory: pytest.TempPathFactory) -> Path:
+    """The column store of ``COLUMN_SWEEP``, shared: read only."""
+    return compute_column_store(tmp_path_factory.mktemp("column"))
+
+
+@pytest.fixture(scope="session")
+def three_axis_store(tmp_path_factory: pytest.TempPathFactory) -> Path:
+    """``THREE_AXES`` with ``FAULTY_OVERRIDES``, shared: read only."""
+    return compute_column_store(tmp_path_factory.mktemp("three"), "column3", FAULTY_OVERRIDES,
+                                sweep_text=THREE_AXES)
+
+
+@pytest.fixture(scope="session")
+def three_axis_fine_store(tmp_path_factory: pytest.TempPathFactory) -> Path:
+    """``THREE_AXES_FINE`` with ``FAULTY_OVERRIDES``, shared: read only."""
+    return compute_column_store(tmp_path_factory.mktemp("three_fine"), "column3", FAULTY_OVERRIDES,
+                                sweep_text=THREE_AXES_FINE)
+
+
+def model_inputs(model: Any, **columns: Any) -> dict[str, np.ndarray]:
+    """Return ``solve_batch`` inputs of a model: every parameter at its default, then ``columns``.
+
+    Columns (arrays or scalars) broadcast to the longest one; categorical parameters come as
+    ``str`` arrays and the others as float64, as the engine passes them.
+    """
+    n = max([np.size(v) for v in columns.values()] + [1])
+    out = {}
+    for p in model.parameters:
+        value = columns.get(p.name, p.default)
+        if p.is_categorical:
+            out[p.name] = np.broadcast_to(np.asarray(value).astype(str), (n,)).copy()
+        else:
+            out[p.name] = np.broadcast_to(np.asarray(np.nan if value is None else value, dtype=np.float64),
+                                          (n,)).copy()
+    return out
+
+
+def cap_inputs(lam: Any, **columns: Any) -> dict[str, np.ndarray]:
+    """Return ``shallow_cap`` inputs at shell parameters ``lam``, the other parameters at their defaults."""
+    from sweepshell.models.shallow_cap.model import ShallowCapModel
+
+    return model_inputs(ShallowCapModel, shell_parameter=np.atleast_1d(np.asarray(lam, dtype=float)), **columns)
 
 
 EXAMPLES = REPO / "examples"

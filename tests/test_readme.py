@@ -30,7 +30,7 @@ def test_readme_sweep_runs_and_queries(workdir, capsys):
     regimes = ds.regime.attrs["flag_meanings"].split()[1:]
     got = [regimes[int(r)] for r in ds.regime.values[:, 0]]
     # clamped caps: snapping at λ = 4, asymmetric bifurcation first at λ = 8 (Huang 1964, value from memory;
-    # pinned down in tests/reference/test_shallow_cap_reference.py)
+    # pinned down in tests/models/shallow_cap/test_reference.py)
     assert got == ["limit_point", "bifurcation"]
     assert 0.5 < float(ds.critical_load.values[0, 0]) < 0.65
     capsys.readouterr()

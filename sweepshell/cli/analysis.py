@@ -16,7 +16,7 @@ import math
 import sys
 from typing import TYPE_CHECKING, Any
 
-from sweepshell import CAUTION
+from sweepshell.about import CAUTION
 from sweepshell.errors import QueryError
 
 if TYPE_CHECKING:
@@ -258,6 +258,7 @@ def _default_axes(ds: Any, x: str | None, y: str | None) -> tuple[str, str]:
 def _cmd_boundary(args: argparse.Namespace) -> int:
     from pathlib import Path
 
+    from sweepshell.engine.evaluate import store_evaluator
     from sweepshell.query.boundary import boundary_to_records, find_boundary
     from sweepshell.query.slicing import parse_at
 
@@ -265,8 +266,9 @@ def _cmd_boundary(args: argparse.Namespace) -> int:
     x, y = _default_axes(ds, args.x, args.y)
     if args.out and not Path(args.out).parent.exists():
         raise QueryError(f"--out {args.out!r}: folder does not exist", field="out", value=args.out)
+    evaluator = store_evaluator(ds, record=not args.no_record) if args.bisections > 0 else None
     boundary, view = find_boundary(ds, x, y, (args.between[0], args.between[1]), at=parse_at(args.at),
-                                   bisections=args.bisections, record=not args.no_record)
+                                   bisections=args.bisections, evaluator=evaluator)
     for cut in view.cuts:
         print(f"fixed {cut.describe()}", file=sys.stderr)
     print(f"{len(boundary.lines)} polyline(s), {boundary.n_vertices} vertices, {boundary.evaluations} model "

@@ -17,7 +17,7 @@ import sys
 from collections.abc import Sequence
 from typing import NoReturn
 
-from sweepshell import CAUTION, __version__
+from sweepshell.about import CAUTION, __version__
 from sweepshell.errors import SweepshellError
 
 __all__ = ["build_parser", "main"]

@@ -24,10 +24,10 @@ import numpy as np
 import yaml
 from omegaconf import DictConfig, ListConfig, OmegaConf
 
-from sweepshell.engine.plan import Axis, ExecutorSpec, SweepPlan
 from sweepshell.errors import ConfigError, ParameterError, SweepshellError, UnknownModelError
 from sweepshell.models import get_model
 from sweepshell.models.base import SweepModel
+from sweepshell.plan import Axis, ExecutorSpec, SweepPlan
 
 __all__ = [
     "PACKAGED_CONFIGS",
@@ -360,10 +360,10 @@ def build_plan(cfg: Mapping[str, Any], *, source: str = "<dict>") -> SweepPlan:
 
 def _check_missing_plugin(model_name: Any, store_path: str) -> None:
     """Raise naming the missing package when the sweep's store was made by a plug-in that is not installed."""
-    from sweepshell.store.layout import ATTR
+    from sweepshell.store.metadata import ATTR, has_node
     from sweepshell.store.reader import read_attrs
 
-    if not isinstance(model_name, str) or not Path(store_path, "zarr.json").is_file():
+    if not isinstance(model_name, str) or not has_node(store_path):
         return
     try:
         attrs = read_attrs(store_path)

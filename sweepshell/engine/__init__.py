@@ -1,1 +1,1 @@
-"""Orchestration: plans and blocks, the runner, workers and progress observers."""
+"""Orchestration: the runner, workers, claims, reuse, progress observers, new-point evaluation and refinement."""

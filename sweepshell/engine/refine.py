@@ -218,7 +218,7 @@ def refine_store(path: str | os.PathLike[str], *, x: str | None = None, y: str |
     StoreMismatchError
         If the store was written by another version of the model.
     """
-    from sweepshell.query.evaluate import PointEvaluator
+    from sweepshell.engine.evaluate import PointEvaluator
     from sweepshell.query.slicing import slice_sweep
     from sweepshell.query.table import describe_fields, read_store_points
     from sweepshell.store.reader import open_sweep

@@ -10,7 +10,6 @@ what recomputing it would give.
 
 from __future__ import annotations
 
-import json
 import logging
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
@@ -19,10 +18,10 @@ from typing import Any
 
 import numpy as np
 
-from sweepshell.engine.plan import SweepPlan
 from sweepshell.models.base import BatchResult, SweepModel
-from sweepshell.store import layout
-from sweepshell.store.layout import ATTR
+from sweepshell.plan import SweepPlan
+from sweepshell.store import metadata
+from sweepshell.store.metadata import ATTR, canonical_json
 
 __all__ = ["Donor", "find_donors", "take_from_donors"]
 
@@ -53,7 +52,6 @@ def _canonical(value: Any) -> Any:
 def find_donors(plan: SweepPlan, model: SweepModel) -> list[Donor]:
     """Return the compatible stores beside the plan's store (never the store itself)."""
     from sweepshell.store.catalog import find_compatible_stores
-    from sweepshell.store.writer import canonical_json
 
     target = Path(plan.store_path).resolve()
     stores = find_compatible_stores(target.parent, plan.model, plan.model_version, canonical_json(model.settings))
@@ -62,9 +60,9 @@ def find_donors(plan: SweepPlan, model: SweepModel) -> list[Donor]:
         if store.resolve() == target:
             continue
         try:
-            attrs = json.loads((store / "zarr.json").read_text())["attributes"]
-            axes: dict[str, list[Any]] = json.loads(attrs[ATTR.axes])
-            fixed: dict[str, Any] = json.loads(attrs[ATTR.fixed])
+            attrs = metadata.read_node(store)["attributes"]
+            axes: dict[str, list[Any]] = metadata.read_record(attrs, ATTR.axes)
+            fixed: dict[str, Any] = metadata.read_record(attrs, ATTR.fixed)
             order = _axis_order(store, axes)
         except (OSError, ValueError, KeyError, TypeError):
             log.warning("skipping unreadable store %s as a reuse source", store)
@@ -77,9 +75,7 @@ def find_donors(plan: SweepPlan, model: SweepModel) -> list[Donor]:
 
 
 def _axis_order(store: Path, axes: Mapping[str, Any]) -> list[str]:
-    meta = json.loads((store / layout.STATUS_VAR / "zarr.json").read_text())
-    names = meta.get("dimension_names") or []
-    return [n for n in names if n in axes]
+    return [n for n in metadata.dimension_names(store, metadata.STATUS_VAR) if n in axes]
 
 
 def take_from_donors(donors: Sequence[Donor], model: SweepModel, inputs: Mapping[str, np.ndarray],
@@ -118,7 +114,7 @@ def take_from_donors(donors: Sequence[Donor], model: SweepModel, inputs: Mapping
         try:
             group = zarr.open_group(donor.path, mode="r", zarr_format=3)
             where = tuple(idx[name][ok] for name in donor.axis_names)
-            status = np.asarray(group[layout.STATUS_VAR].vindex[where])  # type: ignore[union-attr]
+            status = np.asarray(group[metadata.STATUS_VAR].vindex[where])  # type: ignore[union-attr]
             final = status != 0
             if not final.any():
                 continue
@@ -133,7 +129,7 @@ def take_from_donors(donors: Sequence[Donor], model: SweepModel, inputs: Mapping
                     np.arange(k).reshape((1, *(k if j == i else 1 for j in range(len(extra)))))
                     for i, k in enumerate(extra))
                 result.outputs[out.name][rows] = np.asarray(group[out.name].vindex[sel])  # type: ignore[union-attr]
-            result.regime[rows] = np.asarray(group[layout.REGIME_VAR].vindex[where])  # type: ignore[union-attr]
+            result.regime[rows] = np.asarray(group[metadata.REGIME_VAR].vindex[where])  # type: ignore[union-attr]
             result.status[rows] = status[final]
             matched[rows] = True
         except Exception:  # an unreadable donor is skipped, never trusted

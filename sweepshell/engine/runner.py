@@ -11,7 +11,7 @@ import contextlib
 import logging
 import os
 import time
-from collections.abc import Callable, Iterator, Sequence
+from collections.abc import Callable, Iterator
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
@@ -20,17 +20,17 @@ import numpy as np
 
 from sweepshell.engine.claims import ClaimBook
 from sweepshell.engine.observers import RunObserver, SilentObserver
-from sweepshell.engine.plan import Block, ExecutorSpec, SweepPlan, choose_block_shape, iter_blocks
 from sweepshell.engine.reuse import Donor, find_donors
 from sweepshell.engine.worker import compute_block
 from sweepshell.models import make_model
 from sweepshell.models.base import Status, SweepModel
+from sweepshell.plan import Block, ExecutorSpec, SweepPlan, choose_block_shape, iter_blocks
+from sweepshell.store.metadata import is_store
 from sweepshell.store.reader import is_block_final, read_ledger
 from sweepshell.store.writer import (
     check_store_matches,
     clean_stale_temporaries,
     create_store,
-    is_store,
     store_block_shape,
 )
 
@@ -331,30 +331,13 @@ def _final_summary(plan: SweepPlan, block_shape: tuple[int, ...], tally: dict[st
                       extra={"by_other_runners": tally["by_others"]})
 
 
-def run_sweep(sweep: str | SweepPlan, overrides: Sequence[str] = (), *, observer: RunObserver | None = None,
-              config_dir: str | None = None, client: Any = None) -> RunSummary:
-    """Run a sweep by name, path or plan; running it again resumes it.
+def run_sweep(plan: SweepPlan, *, observer: RunObserver | None = None, client: Any = None) -> RunSummary:
+    """Run a planned sweep, then the refinement it asks for; running it again resumes it.
 
-    Parameters
-    ----------
-    sweep
-        A sweep name in ``configs/sweep/``, a path to a sweep YAML file, or a :class:`SweepPlan`.
-    overrides
-        hydra-style overrides (``fixed.poisson_ratio=0.25``, ``axes.x=range(0,1,0.1)``).
-    observer
-        Progress observer; silent by default.
-    config_dir
-        The ``configs/`` folder; ``./configs`` or the packaged one when ``None``.
-    client
-        An existing :class:`distributed.Client` to run on (left open); the sweep's executor
-        otherwise. Its workers must reach the store path.
+    Loading a sweep by name or file is the config layer's job
+    (:func:`sweepshell.config.sweep.run_sweep`, also ``sweepshell.run_sweep``). ``client`` is an existing
+    :class:`distributed.Client` to run on (left open); the plan's executor otherwise.
     """
-    if isinstance(sweep, SweepPlan):
-        plan = sweep
-    else:
-        from sweepshell.config.loader import load_plan
-
-        plan = load_plan(sweep, overrides, config_dir=config_dir)
     summary = run_plan(plan, observer=observer, client=client)
     if plan.refine and summary.complete:
         refine_plan_store(plan)

@@ -15,10 +15,10 @@ from typing import Any
 
 import numpy as np
 
-from sweepshell.engine.plan import Block
 from sweepshell.engine.reuse import Donor, take_from_donors
 from sweepshell.models import make_model
 from sweepshell.models.base import BatchResult, Status, SweepModel
+from sweepshell.plan import Block
 
 __all__ = ["compute_block", "make_block_inputs", "solve_points"]
 

@@ -51,10 +51,10 @@ ENTRY_POINT_GROUP = "sweepshell.models"
 
 # name -> (module, class); a fixed table of our own code, never extended from input
 _REGISTRY: dict[str, tuple[str, str]] = {
-    "shallow_cap": ("sweepshell.models.shallow_cap", "ShallowCapModel"),
-    "foundation_strip": ("sweepshell.models.foundation_strip", "FoundationStripModel"),
-    "foundation_sheet": ("sweepshell.models.foundation_sheet", "FoundationSheetModel"),
-    "winkler_column": ("sweepshell.testing", "WinklerColumnModel"),
+    "shallow_cap": ("sweepshell.models.shallow_cap.model", "ShallowCapModel"),
+    "foundation_strip": ("sweepshell.models.foundation_strip.model", "FoundationStripModel"),
+    "foundation_sheet": ("sweepshell.models.foundation_sheet.model", "FoundationSheetModel"),
+    "winkler_column": ("sweepshell.models.winkler_column.model", "WinklerColumnModel"),
 }
 
 
@@ -175,7 +175,7 @@ def get_model_origin(name: str) -> ModelOrigin:
     UnknownModelError
         If no model is registered under that name.
     """
-    from sweepshell import __version__
+    from sweepshell.about import __version__
 
     if name in _available():
         return ModelOrigin(name=name, distribution="sweepshell", version=__version__, builtin=True)

@@ -48,7 +48,7 @@ TRACE_STALLED = 2  # step length fell below its minimum: Newton kept failing
 TRACE_STEP_LIMIT = 3
 # steps are sized for this share of the turn limit at the extrapolated turning rate (chosen before the
 # orientation test, when 0.5 and 0.8 each jumped off the first fold at λ = 24.46; with the test 0.8
-# measured no faster: DEVELOPERS.md)
+# measured no faster: models/shallow_cap/theory.md)
 TURN_SAFETY = 0.6
 # a step that changes the path's orientation (see trace_paths) is accepted only when shorter
 CROSS_STEP = 4e-7

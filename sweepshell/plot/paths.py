@@ -13,7 +13,7 @@ from sweepshell.plot.regime_map import MapResult
 from sweepshell.plot.style import OKABE_ITO, add_caution_footer, axis_label, make_figure, title_lines
 from sweepshell.query.slicing import slice_sweep
 from sweepshell.query.table import describe_fields, regime_names
-from sweepshell.store import layout
+from sweepshell.store import metadata
 
 if TYPE_CHECKING:
     import xarray as xr
@@ -111,14 +111,14 @@ def draw_load_paths(ds: xr.Dataset, points: Sequence[Mapping[str, str]], *, y: s
     view = None
     for k, at in enumerate(points):
         view = slice_sweep(ds, [], at)
-        status = int(view.ds[layout.STATUS_VAR].values)
+        status = int(view.ds[metadata.STATUS_VAR].values)
         where = ", ".join(c.describe().split(" (")[0] for c in view.cuts) or "the only point"
         if status not in trusted:
             notes.append(f"no trusted path at {where} (status {Status(status).name})")
             continue
         yv = curve(view.ds, y_name, y_comp)
         xv = curve(view.ds, x_name, x_comp) if x_name else np.arange(yv.size, dtype=float)
-        regime = regimes[int(view.ds[layout.REGIME_VAR].values) + 1]
+        regime = regimes[int(view.ds[metadata.REGIME_VAR].values) + 1]
         label = ", ".join(f"{ds[c.name].attrs.get('symbol') or c.name} = {c.describe().split(' = ')[1].split(' (')[0]}"
                           for c in view.cuts)
         ax.plot(xv, yv, color=OKABE_ITO[(k + 5) % len(OKABE_ITO)], linewidth=1.6, marker="o", markersize=2.5,

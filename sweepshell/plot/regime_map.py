@@ -38,8 +38,8 @@ from sweepshell.plot.style import (
 from sweepshell.query.boundary import known_points, locate_boundary, slice_codes
 from sweepshell.query.slicing import SweepSlice, from_unit, slice_sweep, to_unit
 from sweepshell.query.table import describe_fields, read_store_points, regime_names
-from sweepshell.store import layout
-from sweepshell.store.layout import ATTR
+from sweepshell.store import metadata
+from sweepshell.store.metadata import ATTR
 
 if TYPE_CHECKING:
     import xarray as xr
@@ -82,7 +82,7 @@ def _nearest_index(unit: np.ndarray, where: np.ndarray) -> np.ndarray:
 def _fill_codes(view: xr.Dataset) -> np.ndarray:
     """Regime code where trusted, −1 untrusted, −2 pending; shape (nx, ny)."""
     codes = slice_codes(view)
-    status = np.asarray(view[layout.STATUS_VAR].values)
+    status = np.asarray(view[metadata.STATUS_VAR].values)
     return np.where(status == Status.pending, -2, codes)
 
 
@@ -142,7 +142,7 @@ def draw_regime_map(ds: xr.Dataset, x: str, y: str, *, color: str | None = None,
     yv = np.asarray(view.ds[y].values, float)
     xu, yu = to_unit(xv, view.log[0]), to_unit(yv, view.log[1])
     codes = _fill_codes(view.ds)
-    status = np.asarray(view.ds[layout.STATUS_VAR].values)
+    status = np.asarray(view.ds[metadata.STATUS_VAR].values)
     points = read_store_points(ds)
     known = known_points(points, view.fixed_values, x, y)
     continuous = color not in (None, "regime")
@@ -248,11 +248,9 @@ def _refined_only(known: Mapping[str, np.ndarray] | None) -> dict[str, np.ndarra
 
 
 def _subtitle(ds: xr.Dataset, view: SweepSlice) -> str:
-    import json
-
     parts = [c.describe().split(" (")[0] for c in view.cuts]
     try:
-        fixed = json.loads(ds.attrs.get(ATTR.fixed, "{}"))
+        fixed = metadata.read_record(ds.attrs, ATTR.fixed, "{}")
     except ValueError:
         fixed = {}
     defaults: dict[str, Any] = {}

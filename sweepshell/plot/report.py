@@ -16,10 +16,10 @@ from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
-from sweepshell import CAUTION
+from sweepshell.about import CAUTION
 from sweepshell.query.boundary import find_boundary
 from sweepshell.query.table import describe_fields, select_points
-from sweepshell.store.layout import ATTR
+from sweepshell.store.metadata import ATTR
 
 if TYPE_CHECKING:
     import xarray as xr
@@ -144,7 +144,7 @@ def write_report(ds: xr.Dataset, store_path: str) -> str:
                      f"src='data:image/png;base64,{_png(result.figure)}'><figcaption class='muted'>"
                      f"{html.escape(cut or 'all axes shown')}</figcaption></figure>")
         for a, b in itertools.combinations(info.regimes, 2):
-            boundary, _ = find_boundary(ds, x, y, (a, b), at=at, bisections=0, evaluate=False)
+            boundary, _ = find_boundary(ds, x, y, (a, b), at=at, bisections=0)
             if not boundary.lines:
                 continue
             rows = []

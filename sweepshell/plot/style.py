@@ -12,7 +12,7 @@ import re
 import textwrap
 from typing import TYPE_CHECKING, Any
 
-from sweepshell import CAUTION
+from sweepshell.about import CAUTION
 
 if TYPE_CHECKING:
     from matplotlib.figure import Figure

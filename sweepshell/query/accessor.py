@@ -1,8 +1,9 @@
-"""The ``.sweep`` accessor on xarray Datasets: the query layer from Python.
+"""The questions behind the ``.sweep`` accessor on xarray Datasets: the query layer from Python.
 
-``import sweepshell`` registers it (as soon as xarray is imported), so every Dataset opened
-from a store — with :func:`sweepshell.open_sweep`, plain ``xr.open_zarr`` or from an
-exported netCDF file — answers::
+:class:`SweepQueries` answers from a store Dataset; :class:`sweepshell.plot.accessor.SweepAccessor`
+adds the regime map. ``import sweepshell`` registers the accessor (as soon as xarray is imported),
+so every Dataset opened from a store — with :func:`sweepshell.open_sweep`, plain
+``xr.open_zarr`` or from an exported netCDF file — answers::
 
     ds = sweepshell.open_sweep("results/column.zarr")
     ds.sweep                       # a short text summary: model, axes, counts, regimes
@@ -23,19 +24,17 @@ import xarray as xr
 from sweepshell.errors import QueryError
 from sweepshell.models.base import TRUSTED_STATUSES, Status
 from sweepshell.query.table import SweepFields, describe_fields, regime_names, select_points
-from sweepshell.store import layout
-from sweepshell.store.layout import ATTR
+from sweepshell.store import metadata
+from sweepshell.store.metadata import ATTR
 
 if TYPE_CHECKING:
     import pandas as pd
-    from matplotlib.axes import Axes
 
-__all__ = ["SweepAccessor"]
+__all__ = ["SweepQueries"]
 
 
-@xr.register_dataset_accessor("sweep")
-class SweepAccessor:
-    """Questions to a sweep store Dataset (``ds.sweep``)."""
+class SweepQueries:
+    """Questions to a sweep store Dataset (the read-only part of ``ds.sweep``)."""
 
     def __init__(self, ds: xr.Dataset) -> None:
         self._ds = ds
@@ -54,12 +53,12 @@ class SweepAccessor:
     def trusted(self) -> xr.DataArray:
         """Whether each grid point has a trustworthy status (``ok`` or ``no_instability``)."""
         codes = sorted(int(s) for s in TRUSTED_STATUSES)
-        return self._ds[layout.STATUS_VAR].isin(codes)
+        return self._ds[metadata.STATUS_VAR].isin(codes)
 
     def regime_label(self) -> xr.DataArray:
         """Return the regime of every grid point as names (``none`` where untrusted)."""
         names = np.array(["none", *self.regime_names], dtype=object)
-        codes = self._ds[layout.REGIME_VAR]
+        codes = self._ds[metadata.REGIME_VAR]
         return xr.apply_ufunc(lambda c: names[np.asarray(c).astype(np.intp) + 1], codes, dask="allowed")
 
     def query(self, where: str | None = None, fields: Sequence[str] | None = None, *, sort: str | None = None,
@@ -71,30 +70,6 @@ class SweepAccessor:
         """
         return select_points(self._ds, where, fields, sort=sort, limit=limit, trusted_only=not all_points,
                              include_points=include_points)
-
-    def map(self, x: str | None = None, y: str | None = None, *, ax: Axes | None = None, color: str | None = None,
-            contour: str | None = None, at: Mapping[str, str] | None = None, show_points: bool = False) -> Axes:
-        """Draw the regime map over axes ``x`` and ``y`` (the first two numeric axes by default); return the axes.
-
-        Parameters
-        ----------
-        x, y
-            Axes of the map; any other axis is fixed by ``at`` (nearest value) or at its first value.
-        ax
-            matplotlib axes to draw into; a new figure in the house style (with the caution
-            footer) when ``None``.
-        color, contour, at, show_points
-            As for ``sweepshell map``: an output as colour field, an output as contour lines,
-            ``name → value`` text fixing other axes, off-grid points marked.
-        """
-        from sweepshell.plot.regime_map import draw_regime_map
-
-        x, y = self._default_axes(x, y)
-        result = draw_regime_map(self._ds, x, y, color=color, contour=contour, at=at, show_points=show_points, ax=ax)
-        if ax is not None:
-            return ax
-        drawn: Axes = result.figure.axes[0]
-        return drawn
 
     def boundary(self, between: tuple[str, str] | None = None, *, x: str | None = None, y: str | None = None,
                  at: Mapping[str, str] | None = None) -> pd.DataFrame:
@@ -120,7 +95,7 @@ class SweepAccessor:
         x, y = self._default_axes(x, y)
         if between is None:
             between = self._two_regimes()
-        found, _ = find_boundary(self._ds, x, y, (between[0], between[1]), at=at, bisections=0, evaluate=False)
+        found, _ = find_boundary(self._ds, x, y, (between[0], between[1]), at=at, bisections=0)
         rows = []
         for i, line in enumerate(found.lines):
             for k in range(len(line.x)):
@@ -136,11 +111,11 @@ class SweepAccessor:
         package = attrs.get(ATTR.model_package)
         origin = f" from {package} {attrs.get(ATTR.model_package_version)}" if package and package != "sweepshell" \
             else ""
-        status = np.asarray(ds[layout.STATUS_VAR].values)
-        axes = " x ".join(f"{d}[{ds.sizes[d]}]" for d in ds[layout.STATUS_VAR].dims)
+        status = np.asarray(ds[metadata.STATUS_VAR].values)
+        axes = " x ".join(f"{d}[{ds.sizes[d]}]" for d in ds[metadata.STATUS_VAR].dims)
         counts = np.bincount(status.reshape(-1).astype(np.int64), minlength=len(Status))
         by_status = ", ".join(f"{int(counts[s])} {s.name}" for s in Status if counts[s])
-        codes = np.asarray(ds[layout.REGIME_VAR].values).reshape(-1).astype(np.int64)
+        codes = np.asarray(ds[metadata.REGIME_VAR].values).reshape(-1).astype(np.int64)
         names = self.regime_names
         by_regime = ", ".join(f"{int((codes == i).sum())} {n}" for i, n in enumerate(names) if (codes == i).any())
         lines = [f"sweep {attrs.get(ATTR.sweep_name, '?')}: model {attrs.get(ATTR.model, '?')} "
@@ -171,7 +146,7 @@ class SweepAccessor:
         return x, y
 
     def _two_regimes(self) -> tuple[str, str]:
-        codes = np.unique(np.asarray(self._ds[layout.REGIME_VAR].values))
+        codes = np.unique(np.asarray(self._ds[metadata.REGIME_VAR].values))
         present = [self.regime_names[int(c)] for c in codes if 0 <= c < len(self.regime_names)]
         if len(present) != 2:
             raise QueryError(f"between=None needs exactly two regimes in the store; it holds {', '.join(present)}; "

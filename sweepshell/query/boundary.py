@@ -23,10 +23,15 @@ import numpy as np
 
 from sweepshell.errors import QueryError
 
-__all__ = ["Boundary", "BoundaryLine", "locate_boundary", "trace_boundary"]
+__all__ = ["Boundary", "BoundaryLine", "EvaluatorFactory", "RegimeEvaluator", "find_boundary", "locate_boundary",
+           "trace_boundary"]
 
 #: evaluates the regime (code, −1 when untrusted) at points given by their two axis values
 RegimeEvaluator = Callable[[np.ndarray, np.ndarray], np.ndarray]
+
+#: builds the regime evaluator of one view from the fixed values of its other axes and the two axis names;
+#: the caller supplies it (the engine runs models, this layer only reads)
+EvaluatorFactory = Callable[[Mapping[str, Any], str, str], RegimeEvaluator]
 
 
 @dataclass(frozen=True)
@@ -255,10 +260,10 @@ def boundary_to_records(boundary: Boundary, extra: Mapping[str, Any] | None = No
 def slice_codes(view: Any) -> np.ndarray:
     """Return the regime codes of a (sliced) store Dataset, −1 where the status is not trustworthy."""
     from sweepshell.models.base import TRUSTED_STATUSES
-    from sweepshell.store import layout
+    from sweepshell.store import metadata
 
-    status = np.asarray(view[layout.STATUS_VAR].values)
-    regime = np.asarray(view[layout.REGIME_VAR].values).astype(np.int64)
+    status = np.asarray(view[metadata.STATUS_VAR].values)
+    regime = np.asarray(view[metadata.REGIME_VAR].values).astype(np.int64)
     return np.where(np.isin(status, sorted(int(s) for s in TRUSTED_STATUSES)), regime, -1)
 
 
@@ -267,24 +272,28 @@ def known_points(points: Mapping[str, np.ndarray] | None, fixed: Mapping[str, An
     """Return the trusted point-list entries of a slice as ``x``, ``y``, ``regime`` arrays."""
     from sweepshell.models.base import TRUSTED_STATUSES
     from sweepshell.query.slicing import points_in_slice
-    from sweepshell.store import layout
+    from sweepshell.store import metadata
 
     idx = points_in_slice(points, fixed)
     if points is None or idx is None or idx.size == 0:
         return None
-    status = np.asarray(points[layout.STATUS_VAR])[idx]
+    status = np.asarray(points[metadata.STATUS_VAR])[idx]
     ok = np.isin(status, sorted(int(s) for s in TRUSTED_STATUSES))
     out = {"x": np.asarray(points[x_axis], float)[idx][ok], "y": np.asarray(points[y_axis], float)[idx][ok],
-           "regime": np.asarray(points[layout.REGIME_VAR]).astype(np.int64)[idx][ok]}
+           "regime": np.asarray(points[metadata.REGIME_VAR]).astype(np.int64)[idx][ok]}
     if "level" in points:
         out["level"] = np.asarray(points["level"]).astype(np.int64)[idx][ok]
     return out
 
 
 def find_boundary(ds: Any, x_axis: str, y_axis: str, between: tuple[str, str], *,
-                  at: Mapping[str, str] | None = None, bisections: int = 6, evaluate: bool = True,
-                  record: bool = True) -> tuple[Boundary, Any]:
+                  at: Mapping[str, str] | None = None, bisections: int = 6,
+                  evaluator: EvaluatorFactory | None = None) -> tuple[Boundary, Any]:
     """Return the boundary between two regimes of a store on the view (x_axis, y_axis).
+
+    The query layer never runs a model: new evaluations come only from an ``evaluator`` its
+    caller passes in (:func:`sweepshell.engine.evaluate.store_evaluator`). Without one the
+    boundary uses the grid and the stored off-grid points only.
 
     Parameters
     ----------
@@ -297,11 +306,11 @@ def find_boundary(ds: Any, x_axis: str, y_axis: str, between: tuple[str, str], *
     at
         ``name → value`` text for the fixed axes.
     bisections
-        Rounds of bisection with new model evaluations (0: use only stored points).
-    evaluate
-        Whether new model evaluations are allowed.
-    record
-        Whether new evaluations are appended to the store's point list.
+        Rounds of bisection with new model evaluations (0: use only stored points); used only with an
+        ``evaluator``.
+    evaluator
+        Builds the view's evaluator from the fixed values of the other axes and the two axis names
+        (see :data:`EvaluatorFactory`); ``None`` allows no new evaluations.
 
     Returns
     -------
@@ -319,17 +328,11 @@ def find_boundary(ds: Any, x_axis: str, y_axis: str, between: tuple[str, str], *
             raise QueryError(f"axis {name!r} holds names, not numbers; a boundary needs two numeric axes",
                              field="axis", value=name)
     known = known_points(read_store_points(ds), view.fixed_values, x_axis, y_axis)
-    evaluator = None
-    if evaluate and bisections > 0:
-        from sweepshell.query.evaluate import PointEvaluator
-
-        source = ds.encoding.get("source")
-        if not source:
-            raise QueryError("the Dataset has no store path to record new points in; open it with "
-                             "sweepshell.open_sweep or pass evaluate=False", field="store")
-        evaluator = PointEvaluator(source, ds.attrs, view.fixed_values, record=record).regimes_at(x_axis, y_axis)
+    evaluate = None
+    if evaluator is not None and bisections > 0:
+        evaluate = evaluator(view.fixed_values, x_axis, y_axis)
     boundary = locate_boundary(x_axis, y_axis, np.asarray(view.ds[x_axis].values, float),
                                np.asarray(view.ds[y_axis].values, float), (view.log[0], view.log[1]),
-                               slice_codes(view.ds), regime_names(ds), between, known=known, evaluate=evaluator,
-                               bisections=bisections if evaluator is not None else 0)
+                               slice_codes(view.ds), regime_names(ds), between, known=known, evaluate=evaluate,
+                               bisections=bisections if evaluate is not None else 0)
     return boundary, view

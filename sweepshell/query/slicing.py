@@ -15,7 +15,7 @@ from typing import TYPE_CHECKING, Any
 import numpy as np
 
 from sweepshell.errors import QueryError
-from sweepshell.store import layout
+from sweepshell.store import metadata
 
 if TYPE_CHECKING:
     import xarray as xr
@@ -148,7 +148,7 @@ def slice_sweep(ds: xr.Dataset, keep: Sequence[str], at: Mapping[str, str] | Non
     QueryError
         For an unknown axis, an axis both kept and fixed, or a value not on the axis.
     """
-    axes = [str(d) for d in ds[layout.STATUS_VAR].dims]
+    axes = [str(d) for d in ds[metadata.STATUS_VAR].dims]
     at = dict(at or {})
     for name in [*keep, *at]:
         if name not in axes:
@@ -185,7 +185,7 @@ def points_in_slice(points: Mapping[str, np.ndarray] | None, fixed: Mapping[str,
     """Return the indices of point-list entries lying in the slice (every fixed axis equal), or ``None``."""
     if points is None:
         return None
-    n = np.asarray(points[layout.STATUS_VAR]).shape[0]
+    n = np.asarray(points[metadata.STATUS_VAR]).shape[0]
     mask = np.ones(n, dtype=bool)
     for name, value in fixed.items():
         column = np.asarray(points[name])

@@ -7,7 +7,6 @@ grid along regime boundaries). Only the columns a question needs are read.
 
 from __future__ import annotations
 
-import json
 from collections.abc import Iterable, Mapping, Sequence
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -17,8 +16,8 @@ import numpy as np
 
 from sweepshell.errors import QueryError
 from sweepshell.models.base import TRUSTED_STATUSES, Status
-from sweepshell.store import layout
-from sweepshell.store.layout import ATTR
+from sweepshell.store import metadata
+from sweepshell.store.metadata import ATTR
 
 if TYPE_CHECKING:
     import pandas as pd
@@ -69,7 +68,7 @@ class SweepFields:
     @property
     def columns(self) -> tuple[str, ...]:
         """Every name a where-expression may use."""
-        return (*self.axes, *self.scalar_outputs, layout.REGIME_VAR, layout.STATUS_VAR, SOURCE_COLUMN)
+        return (*self.axes, *self.scalar_outputs, metadata.REGIME_VAR, metadata.STATUS_VAR, SOURCE_COLUMN)
 
 
 def regime_names(ds: xr.Dataset) -> tuple[str, ...]:
@@ -79,20 +78,20 @@ def regime_names(ds: xr.Dataset) -> tuple[str, ...]:
         regimes = regimes.split()
     if regimes is not None and len(regimes):
         return tuple(str(r) for r in regimes)
-    meanings = str(ds[layout.REGIME_VAR].attrs.get("flag_meanings", "")).split()
+    meanings = str(ds[metadata.REGIME_VAR].attrs.get("flag_meanings", "")).split()
     return tuple(meanings[1:])
 
 
 def describe_fields(ds: xr.Dataset) -> SweepFields:
     """Return the axes, outputs, regimes and named values of a store Dataset."""
-    axes = tuple(str(d) for d in ds[layout.STATUS_VAR].dims)
-    special = {layout.STATUS_VAR, layout.REGIME_VAR}
+    axes = tuple(str(d) for d in ds[metadata.STATUS_VAR].dims)
+    special = {metadata.STATUS_VAR, metadata.REGIME_VAR}
     scalar = tuple(str(n) for n, v in ds.data_vars.items() if n not in special and v.dims == axes)
     paths = tuple(str(n) for n, v in ds.data_vars.items() if n not in special and v.dims != axes)
     regimes = regime_names(ds)
     categories: dict[str, list[str]] = {
-        layout.REGIME_VAR: [NO_REGIME, *regimes],
-        layout.STATUS_VAR: [s.name for s in Status],
+        metadata.REGIME_VAR: [NO_REGIME, *regimes],
+        metadata.STATUS_VAR: [s.name for s in Status],
         SOURCE_COLUMN: list(SOURCES),
     }
     for a in axes:
@@ -110,7 +109,7 @@ def read_store_points(ds: xr.Dataset) -> dict[str, np.ndarray] | None:
     if not source or not Path(source).exists():
         return None
     points = read_points(source)
-    if points is None or points[layout.STATUS_VAR].size == 0:
+    if points is None or points[metadata.STATUS_VAR].size == 0:
         return None
     return points
 
@@ -157,7 +156,7 @@ def load_table(ds: xr.Dataset, columns: Iterable[str], *, trusted_only: bool = T
 
     info = describe_fields(ds)
     wanted = [c for c in dict.fromkeys(columns) if c not in info.axes]
-    status = np.asarray(ds[layout.STATUS_VAR].values).reshape(-1)
+    status = np.asarray(ds[metadata.STATUS_VAR].values).reshape(-1)
     trusted_codes = np.array(sorted(int(s) for s in TRUSTED_STATUSES))
     keep = np.isin(status, trusted_codes) if trusted_only else status != Status.pending
     index = np.flatnonzero(keep)
@@ -168,7 +167,7 @@ def load_table(ds: xr.Dataset, columns: Iterable[str], *, trusted_only: bool = T
         data[a] = np.asarray(ds[a].values)[grid_index[i]]
     regime_offset = 1  # code -1 (none) is category 0
     for c in wanted:
-        if c == layout.STATUS_VAR:
+        if c == metadata.STATUS_VAR:
             data[c] = status[index]
         elif c == SOURCE_COLUMN:
             data[c] = np.zeros(index.size, dtype=np.int64)
@@ -176,7 +175,7 @@ def load_table(ds: xr.Dataset, columns: Iterable[str], *, trusted_only: bool = T
             data[c] = np.asarray(ds[c].values).reshape(-1)[index]
     extra = (points if points is not None else read_store_points(ds)) if include_points else None
     if extra is not None:
-        pstatus = np.asarray(extra[layout.STATUS_VAR])
+        pstatus = np.asarray(extra[metadata.STATUS_VAR])
         pkeep = np.isin(pstatus, trusted_codes) if trusted_only else pstatus != Status.pending
         for a in info.axes:
             data[a] = np.concatenate([data[a], np.asarray(extra[a])[pkeep]])
@@ -184,9 +183,9 @@ def load_table(ds: xr.Dataset, columns: Iterable[str], *, trusted_only: bool = T
             add = np.ones(int(pkeep.sum()), dtype=np.int64) if c == SOURCE_COLUMN else np.asarray(extra[c])[pkeep]
             data[c] = np.concatenate([data[c], add])
     for c in wanted:
-        if c == layout.REGIME_VAR:
+        if c == metadata.REGIME_VAR:
             data[c] = _categorical(np.asarray(data[c]).astype(np.int64) + regime_offset, [NO_REGIME, *info.regimes])
-        elif c == layout.STATUS_VAR:
+        elif c == metadata.STATUS_VAR:
             data[c] = _categorical(np.asarray(data[c]), [s.name for s in Status])
         elif c == SOURCE_COLUMN:
             data[c] = _categorical(np.asarray(data[c]), SOURCES)
@@ -225,7 +224,7 @@ def select_points(ds: xr.Dataset, where: str | None = None, fields: Sequence[str
 
     info = describe_fields(ds)
     if fields is None:
-        fields = [*info.scalar_outputs, layout.REGIME_VAR] + ([] if trusted_only else [layout.STATUS_VAR])
+        fields = [*info.scalar_outputs, metadata.REGIME_VAR] + ([] if trusted_only else [metadata.STATUS_VAR])
     fields = [f for f in check_fields(fields, info) if f not in info.axes] if fields else []
     needed = list(fields)
     expr = None
@@ -275,7 +274,7 @@ def describe_provenance(ds: xr.Dataset) -> dict[str, Any]:
     """Return model, version, settings and fixed parameters recorded in a store Dataset."""
     def loads(key: str) -> Any:
         try:
-            return json.loads(ds.attrs.get(key, "{}"))
+            return metadata.read_record(ds.attrs, key, "{}")
         except ValueError:
             return {}
 

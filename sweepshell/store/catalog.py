@@ -37,8 +37,8 @@ import numpy as np
 
 from sweepshell.errors import StoreNotFoundError
 from sweepshell.models.base import Status
-from sweepshell.store import layout
-from sweepshell.store.layout import ATTR
+from sweepshell.store import metadata
+from sweepshell.store.metadata import ATTR
 
 __all__ = [
     "CATALOG_FILE",
@@ -144,14 +144,9 @@ class CatalogListing:
 
 
 def _is_sweepshell_store(folder: Path) -> bool:
-    meta = folder / "zarr.json"
-    if meta.is_symlink() or not meta.is_file():
+    if (folder / metadata.META_FILE).is_symlink():
         return False
-    try:
-        attrs = json.loads(meta.read_text()).get("attributes", {})
-    except (OSError, ValueError, AttributeError):
-        return False
-    return isinstance(attrs, dict) and ATTR.schema in attrs
+    return metadata.is_store(folder)
 
 
 def iter_store_folders(results_dir: str | os.PathLike[str]) -> Iterator[Path]:
@@ -166,7 +161,7 @@ def iter_store_folders(results_dir: str | os.PathLike[str]) -> Iterator[Path]:
         keep = []
         for name in sorted(dirnames):
             sub = here / name
-            if name.startswith(".") or layout.TEMP_SUFFIX in name or sub.is_symlink():
+            if name.startswith(".") or metadata.TEMP_SUFFIX in name or sub.is_symlink():
                 continue
             if _is_sweepshell_store(sub):
                 yield sub
@@ -210,8 +205,7 @@ def read_axis_order(store: str | os.PathLike[str], axes_values: dict[str, Any]) 
     ``dimension_names``; if that is unreadable or disagrees, the record's order is used.
     """
     try:
-        meta = json.loads((Path(store) / layout.STATUS_VAR / "zarr.json").read_text())
-        names = [str(n) for n in meta.get("dimension_names") or []]
+        names = metadata.dimension_names(store, metadata.STATUS_VAR)
     except (OSError, ValueError, AttributeError):
         names = []
     return names if sorted(names) == sorted(axes_values) else list(axes_values)
@@ -240,7 +234,7 @@ def _read_entry(store: Path, rel: str, size: int, latest: float) -> CatalogEntry
     updated = _iso(latest)
     try:
         attrs = check_readable_store(store)
-        axes_values = json.loads(attrs[ATTR.axes])
+        axes_values = metadata.read_record(attrs, ATTR.axes)
         if not isinstance(axes_values, dict):
             raise ValueError("axes record is not a mapping")
         block_shape = tuple(int(b) for b in attrs[ATTR.block_shape])
@@ -440,7 +434,7 @@ def find_compatible_stores(results_dir: str | os.PathLike[str], model: str, mode
             continue
         store = root / entry.path
         with contextlib.suppress(OSError, ValueError, AttributeError):
-            attrs = json.loads((store / "zarr.json").read_text()).get("attributes", {})
-            if all(attrs.get(k) == v for k, v in wanted.items()) and attrs.get(ATTR.schema) == layout.SCHEMA_VERSION:
+            attrs = metadata.read_attrs(store)
+            if all(attrs.get(k) == v for k, v in wanted.items()) and attrs.get(ATTR.schema) == metadata.SCHEMA_VERSION:
                 found.append(store)
     return found

@@ -37,9 +37,9 @@ import numpy as np
 
 from sweepshell.errors import SweepshellError
 from sweepshell.models.base import Status
-from sweepshell.store import layout
+from sweepshell.store import metadata
 from sweepshell.store.catalog import read_axis_order
-from sweepshell.store.layout import ATTR
+from sweepshell.store.metadata import ATTR
 from sweepshell.store.reader import check_readable_store
 
 __all__ = [
@@ -73,13 +73,13 @@ def point_columns(store: str | os.PathLike[str]) -> tuple[list[str], list[str]]:
     import zarr
 
     attrs = check_readable_store(store)
-    axes = json.loads(attrs[ATTR.axes])
+    axes = metadata.read_record(attrs, ATTR.axes)
     names = read_axis_order(store, axes)
     group = zarr.open_group(str(store), mode="r", zarr_format=3)
     scalars = []
     for name, arr in sorted(group.arrays()):
         dims = tuple(getattr(arr.metadata, "dimension_names", None) or ())
-        if name in (layout.STATUS_VAR, layout.REGIME_VAR) or name in names:
+        if name in (metadata.STATUS_VAR, metadata.REGIME_VAR) or name in names:
             continue
         if dims == tuple(names) and arr.dtype.kind in "fiu":
             scalars.append(name)
@@ -96,7 +96,7 @@ def iter_point_rows(store: str | os.PathLike[str]) -> Iterator[dict[str, np.ndar
 
     attrs = check_readable_store(store)
     names, scalars = point_columns(store)
-    axes = json.loads(attrs[ATTR.axes])
+    axes = metadata.read_record(attrs, ATTR.axes)
     regimes = ["none", *(str(r) for r in attrs.get(ATTR.regimes, []))]
     status_names = np.array([s.name for s in Status], dtype=object)
     regime_names = np.array(regimes, dtype=object)
@@ -111,13 +111,13 @@ def iter_point_rows(store: str | os.PathLike[str]) -> Iterator[dict[str, np.ndar
         cols: dict[str, np.ndarray] = {n: g.reshape(-1) for n, g in zip(names, grids, strict=True)}
         for name in scalars:
             cols[name] = np.asarray(group[name][start:stop]).reshape(-1)
-        regime = np.asarray(group[layout.REGIME_VAR][start:stop]).reshape(-1).astype(np.int64)
-        status = np.asarray(group[layout.STATUS_VAR][start:stop]).reshape(-1).astype(np.int64)
+        regime = np.asarray(group[metadata.REGIME_VAR][start:stop]).reshape(-1).astype(np.int64)
+        status = np.asarray(group[metadata.STATUS_VAR][start:stop]).reshape(-1).astype(np.int64)
         ok_regime = (regime >= -1) & (regime < len(regimes) - 1)
         ok_status = status < len(status_names)
-        cols[layout.REGIME_VAR] = np.where(ok_regime, regime_names[np.clip(regime + 1, 0, len(regimes) - 1)],
+        cols[metadata.REGIME_VAR] = np.where(ok_regime, regime_names[np.clip(regime + 1, 0, len(regimes) - 1)],
                                            regime.astype(str).astype(object))
-        cols[layout.STATUS_VAR] = np.where(ok_status, status_names[np.clip(status, 0, len(status_names) - 1)],
+        cols[metadata.STATUS_VAR] = np.where(ok_status, status_names[np.clip(status, 0, len(status_names) - 1)],
                                            status.astype(str).astype(object))
         yield cols
 
@@ -161,7 +161,7 @@ def _write_netcdf(store: Path, target: Path, engine: str) -> str:
     ds = open_sweep(store)
     if engine == "scipy":
         # netCDF3 has no unsigned types; status codes are small, so int8 holds them exactly
-        ds[layout.STATUS_VAR] = ds[layout.STATUS_VAR].astype(np.int8)
+        ds[metadata.STATUS_VAR] = ds[metadata.STATUS_VAR].astype(np.int8)
     for var in ds.variables.values():
         var.encoding = {}
         attrs = {k: _netcdf_attr(v) for k, v in var.attrs.items()}
@@ -187,7 +187,7 @@ def _write_parquet(store: Path, target: Path) -> None:
 
     frames = [pd.DataFrame(cols) for cols in iter_point_rows(store)]
     table = pd.concat(frames, ignore_index=True)
-    for name in (layout.REGIME_VAR, layout.STATUS_VAR):
+    for name in (metadata.REGIME_VAR, metadata.STATUS_VAR):
         table[name] = table[name].astype("category")
     ds = open_sweep(store)
     arrow = pa.Table.from_pandas(table, preserve_index=False)

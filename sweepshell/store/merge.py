@@ -39,13 +39,13 @@ from typing import Any
 
 import numpy as np
 
-from sweepshell import __version__
-from sweepshell.engine.plan import iter_blocks
+from sweepshell.about import __version__
 from sweepshell.errors import StoreMismatchError, StoreSchemaError
 from sweepshell.models.base import Status
-from sweepshell.store import layout
+from sweepshell.plan import iter_blocks
+from sweepshell.store import metadata
 from sweepshell.store.catalog import read_axis_order
-from sweepshell.store.layout import ATTR
+from sweepshell.store.metadata import ATTR
 from sweepshell.store.reader import check_readable_store
 
 __all__ = ["MERGED_FROM_ATTR", "MergeConflictError", "MergeReport", "merge_stores", "union_axis_values"]
@@ -56,7 +56,6 @@ log = logging.getLogger(__name__)
 MERGED_FROM_ATTR = "merged_from_json"
 #: relative distance below which two numeric axis values are the same value
 _SAME_VALUE_RTOL = 1e-12
-_POINTS_GROUP = "points"
 
 
 class MergeConflictError(StoreMismatchError):
@@ -149,7 +148,7 @@ def _check_same_definition(a: str, b: str, attrs_a: dict[str, Any], attrs_b: dic
 
 def _difference(va: Any, vb: Any) -> str:
     try:
-        da, db = json.loads(va), json.loads(vb)
+        da, db = metadata.load_record(va), metadata.load_record(vb)
     except (TypeError, ValueError):
         da, db = None, None
     if isinstance(da, dict) and isinstance(db, dict):
@@ -161,7 +160,7 @@ def _difference(va: Any, vb: Any) -> str:
 
 def _parse_axes(path: str, attrs: dict[str, Any]) -> tuple[list[str], dict[str, list[Any]]]:
     try:
-        values = json.loads(attrs[ATTR.axes])
+        values = metadata.read_record(attrs, ATTR.axes)
         if not isinstance(values, dict) or not all(isinstance(v, list) for v in values.values()):
             raise ValueError
     except (KeyError, TypeError, ValueError):
@@ -316,7 +315,7 @@ def merge_stores(a: str | os.PathLike[str], b: str | os.PathLike[str], output: s
                 raise StoreMismatchError(f"extra dimension {d} differs between {a!r} and {b!r} "
                                          f"({ds_a.sizes[d]} vs {ds_b.sizes[d]} values); they are not one sweep",
                                          field=d)
-    outputs = [v for v in data_vars if v not in (layout.STATUS_VAR, layout.REGIME_VAR)]
+    outputs = [v for v in data_vars if v not in (metadata.STATUS_VAR, metadata.REGIME_VAR)]
     block_shape = tuple(int(x) for x in attrs_a[ATTR.block_shape])
     if len(block_shape) != len(names):
         raise StoreSchemaError(f"store {a!r} has a block shape {block_shape} for {len(names)} axes",
@@ -351,7 +350,7 @@ def merge_stores(a: str | os.PathLike[str], b: str | os.PathLike[str], output: s
         sa, sb = ds_a[n].attrs.get("spacing"), ds_b[n].attrs.get("spacing")
         spacing[n] = str(sa) if sa == sb and sa is not None else "list"
 
-    tmp = out_path.with_name(out_path.name + layout.TEMP_SUFFIX + f"-{os.getpid()}")
+    tmp = out_path.with_name(out_path.name + metadata.TEMP_SUFFIX + f"-{os.getpid()}")
     out_path.parent.mkdir(parents=True, exist_ok=True)
     if tmp.exists():
         shutil.rmtree(tmp)
@@ -366,7 +365,7 @@ def merge_stores(a: str | os.PathLike[str], b: str | os.PathLike[str], output: s
     except BaseException:
         shutil.rmtree(tmp, ignore_errors=True)
         raise
-    skipped = tuple(p for p in (a, b) if (Path(p) / _POINTS_GROUP / "zarr.json").is_file())
+    skipped = tuple(p for p in (a, b) if metadata.has_node(Path(p) / metadata.POINTS_GROUP))
     if skipped:
         log.warning("off-grid points of %s were not carried over into %s", ", ".join(skipped), out_path)
     return MergeReport(output=str(out_path), total=int(np.prod([len(union[n]) for n in names])),
@@ -383,7 +382,7 @@ def _fill(tmp: Path, a: str, b: str, group_a: Any, group_b: Any, names: list[str
     shape = tuple(len(union[n]) for n in names)
     counts = {"from_a": 0, "from_b": 0, "agreeing": 0, "conflicts": 0, "pending": 0}
     examples: list[str] = []
-    value_vars = [*outputs, layout.REGIME_VAR]
+    value_vars = [*outputs, metadata.REGIME_VAR]
     for block in iter_blocks(shape, block_shape):
         idx = [np.arange(s.start, s.stop) for s in block.slices]
         pa = [p[i] for p, i in zip(pos_a, idx, strict=True)]
@@ -391,8 +390,8 @@ def _fill(tmp: Path, a: str, b: str, group_a: Any, group_b: Any, names: list[str
         ma = [p >= 0 for p in pa]
         mb = [p >= 0 for p in pb]
         bshape = block.shape
-        status_a = _read_source(group_a[layout.STATUS_VAR], pa, ma, bshape, Status.pending, a, layout.STATUS_VAR)
-        status_b = _read_source(group_b[layout.STATUS_VAR], pb, mb, bshape, Status.pending, b, layout.STATUS_VAR)
+        status_a = _read_source(group_a[metadata.STATUS_VAR], pa, ma, bshape, Status.pending, a, metadata.STATUS_VAR)
+        status_b = _read_source(group_b[metadata.STATUS_VAR], pb, mb, bshape, Status.pending, b, metadata.STATUS_VAR)
         final_a = status_a != Status.pending
         final_b = status_b != Status.pending
         if not (final_a.any() or final_b.any()):
@@ -435,7 +434,7 @@ def _fill(tmp: Path, a: str, b: str, group_a: Any, group_b: Any, names: list[str
             merged[use_b] = values_b[v][use_b]
             arr[block.slices + (slice(None),) * (merged.ndim - len(bshape))] = merged
         status = np.where(use_a, status_a, np.where(use_b, status_b, Status.pending)).astype(np.uint8)
-        ledger: Any = target[layout.STATUS_VAR]
+        ledger: Any = target[metadata.STATUS_VAR]
         ledger[block.slices] = status
     if counts["conflicts"] and prefer is None:
         raise MergeConflictError(

@@ -22,9 +22,7 @@ grid) and ``xr.open_zarr(store, group="points")`` stay in step without warnings.
 from __future__ import annotations
 
 import datetime as _dt
-import json
 import os
-import warnings
 from collections.abc import Mapping, Sequence
 from pathlib import Path
 from typing import Any
@@ -32,12 +30,11 @@ from typing import Any
 import numpy as np
 
 from sweepshell.models.base import Status
-from sweepshell.store import layout
-from sweepshell.store.layout import ATTR
+from sweepshell.store import metadata
+from sweepshell.store.metadata import ATTR, POINTS_GROUP
 
 __all__ = ["ORIGINS", "POINTS_DIM", "POINTS_GROUP", "append_points", "has_points", "read_count", "read_points"]
 
-POINTS_GROUP = "points"
 POINTS_DIM = "point"
 LEVEL_VAR = "level"
 ORIGIN_VAR = "origin"
@@ -52,12 +49,7 @@ def _array(group: Any, name: str) -> Any:
 
 def has_points(path: str | os.PathLike[str]) -> bool:
     """Return whether the store has a point list (possibly empty)."""
-    return (Path(path) / POINTS_GROUP / "zarr.json").is_file()
-
-
-def _root_attrs(path: str | os.PathLike[str]) -> dict[str, Any]:
-    attrs: dict[str, Any] = json.loads((Path(path) / "zarr.json").read_text()).get("attributes", {})
-    return attrs
+    return metadata.has_node(Path(path) / POINTS_GROUP)
 
 
 def read_points(path: str | os.PathLike[str], *, final_only: bool = True) -> dict[str, np.ndarray] | None:
@@ -71,7 +63,7 @@ def read_points(path: str | os.PathLike[str], *, final_only: bool = True) -> dic
     if not has_points(path):
         return None
     group = zarr.open_group(str(Path(path) / POINTS_GROUP), mode="r", zarr_format=3)
-    status = np.asarray(_array(group, layout.STATUS_VAR)[...])
+    status = np.asarray(_array(group, metadata.STATUS_VAR)[...])
     keep = status != Status.pending if final_only else np.ones(status.shape, dtype=bool)
     out: dict[str, np.ndarray] = {}
     for name, arr in group.arrays():
@@ -98,7 +90,7 @@ def _create_group(path: Path, grid_attrs: Mapping[str, Any], axes: Mapping[str, 
     }
     group = root.create_group(POINTS_GROUP, attributes=attrs)
     dims = (POINTS_DIM,)
-    axis_values: dict[str, list[Any]] = json.loads(grid_attrs[ATTR.axes])
+    axis_values: dict[str, list[Any]] = metadata.read_record(grid_attrs, ATTR.axes)
     for name in axes:
         values = axis_values[name]
         # the grid coordinate's description and units (a categorical axis has names, no units)
@@ -116,10 +108,10 @@ def _create_group(path: Path, grid_attrs: Mapping[str, Any], axes: Mapping[str, 
         group.create_array(name, shape=(0, *extra_shape), chunks=(_CHUNK, *extra_shape), dtype="float64",
                            fill_value=np.nan, dimension_names=dims + extra_dims,
                            attributes={k: v for k, v in out_attrs.items() if k != "_dims"})
-    group.create_array(layout.REGIME_VAR, shape=(0,), chunks=(_CHUNK,), dtype="int8", fill_value=-1,
+    group.create_array(metadata.REGIME_VAR, shape=(0,), chunks=(_CHUNK,), dtype="int8", fill_value=-1,
                        dimension_names=dims, attributes=dict(grid_attrs.get("_regime_attrs", {})))
-    group.create_array(layout.STATUS_VAR, shape=(0,), chunks=(_CHUNK,), dtype="uint8", fill_value=0,
-                       dimension_names=dims, attributes=dict(layout.status_attrs()))  # type: ignore[arg-type]
+    group.create_array(metadata.STATUS_VAR, shape=(0,), chunks=(_CHUNK,), dtype="uint8", fill_value=0,
+                       dimension_names=dims, attributes=dict(metadata.status_attrs()))  # type: ignore[arg-type]
     group.create_array(LEVEL_VAR, shape=(0,), chunks=(_CHUNK,), dtype="int16", fill_value=-1,
                        dimension_names=dims, attributes={"long_name": "refinement level (0: bisection)"})
     group.create_array(ORIGIN_VAR, shape=(0,), chunks=(_CHUNK,), dtype="int8", fill_value=-1,
@@ -155,7 +147,7 @@ def append_points(path: str | os.PathLike[str], axes: Mapping[str, np.ndarray], 
     import zarr
 
     p = Path(path)
-    grid_attrs = _root_attrs(p)
+    grid_attrs = metadata.read_attrs(p)
     n = int(np.asarray(status).shape[0])
     if n == 0:
         return int(read_count(p))
@@ -168,14 +160,14 @@ def append_points(path: str | os.PathLike[str], axes: Mapping[str, np.ndarray], 
             if stored.get(key) != grid_attrs.get(key):
                 raise ValueError(f"point list of {p} was made with other {key}; refusing to mix")
     else:
-        regime_attrs = layout.regime_attrs(tuple(grid_attrs.get(ATTR.regimes, ())))
+        regime_attrs = metadata.regime_attrs(tuple(grid_attrs.get(ATTR.regimes, ())))
         spec = {name: (tuple(np.asarray(v).shape[1:]),
                        {**dict((output_attrs or {}).get(name, {})), "_dims": list((output_dims or {}).get(name, ()))})
                 for name, v in outputs.items()}
         group = _create_group(p, {**grid_attrs, "_regime_attrs": regime_attrs}, axes, spec)
-    start = int(_array(group, layout.STATUS_VAR).shape[0])
+    start = int(_array(group, metadata.STATUS_VAR).shape[0])
     stop = start + n
-    names = [*axes, *outputs, layout.REGIME_VAR, LEVEL_VAR, ORIGIN_VAR, layout.STATUS_VAR]
+    names = [*axes, *outputs, metadata.REGIME_VAR, LEVEL_VAR, ORIGIN_VAR, metadata.STATUS_VAR]
     for name in names:
         arr: Any = group[name]
         arr.resize((stop, *arr.shape[1:]))
@@ -189,11 +181,11 @@ def append_points(path: str | os.PathLike[str], axes: Mapping[str, np.ndarray], 
         arr[start:stop] = np.asarray(values)
     for name, values in outputs.items():
         _array(group, name)[start:stop] = np.asarray(values, dtype=np.float64)
-    _array(group, layout.REGIME_VAR)[start:stop] = np.asarray(regime, dtype=np.int8)
+    _array(group, metadata.REGIME_VAR)[start:stop] = np.asarray(regime, dtype=np.int8)
     _array(group, LEVEL_VAR)[start:stop] = np.broadcast_to(np.asarray(level, dtype=np.int16), (n,))
     _array(group, ORIGIN_VAR)[start:stop] = np.full(n, ORIGINS.index(origin), dtype=np.int8)
-    _array(group, layout.STATUS_VAR)[start:stop] = np.asarray(status, dtype=np.uint8)
-    _reconsolidate(p)
+    _array(group, metadata.STATUS_VAR)[start:stop] = np.asarray(status, dtype=np.uint8)
+    metadata.reconsolidate(p)
     return stop
 
 
@@ -204,17 +196,4 @@ def read_count(path: str | os.PathLike[str]) -> int:
     if not has_points(path):
         return 0
     group = zarr.open_group(str(Path(path) / POINTS_GROUP), mode="r", zarr_format=3)
-    return int(_array(group, layout.STATUS_VAR).shape[0])
-
-
-def _reconsolidate(path: Path) -> None:
-    import zarr
-
-    with warnings.catch_warnings():
-        # the store already relies on consolidated metadata (see store/writer.py); adding or resizing
-        # arrays makes it stale, so it is rewritten after every append
-        warnings.filterwarnings("ignore", message=".*[Cc]onsolidated metadata.*")
-        # re-serialising the grid's existing arrays repeats zarr's warning about fixed-length string
-        # coordinates (written at creation); it says nothing about the points added here
-        warnings.filterwarnings("ignore", message=".*does not have a Zarr V3 specification.*")
-        zarr.consolidate_metadata(str(path), zarr_format=3)
+    return int(_array(group, metadata.STATUS_VAR).shape[0])

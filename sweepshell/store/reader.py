@@ -2,7 +2,6 @@
 
 from __future__ import annotations
 
-import json
 import logging
 import os
 from pathlib import Path
@@ -11,13 +10,13 @@ from typing import TYPE_CHECKING, Any
 import numpy as np
 
 from sweepshell.errors import StoreNotFoundError, StoreSchemaError
-from sweepshell.store import layout
-from sweepshell.store.layout import ATTR
+from sweepshell.store import metadata
+from sweepshell.store.metadata import ATTR
 
 if TYPE_CHECKING:
     import xarray as xr
 
-    from sweepshell.engine.plan import Block
+    from sweepshell.plan import Block
 
 __all__ = ["check_readable_store", "is_block_final", "open_sweep", "read_attrs", "read_ledger"]
 
@@ -27,12 +26,11 @@ log = logging.getLogger(__name__)
 def check_readable_store(path: str | os.PathLike[str]) -> dict[str, Any]:
     """Return the store's attributes, or raise a clear error if it is not a store we can read."""
     p = Path(path)
-    meta = p / "zarr.json"
     if not p.exists():
         raise StoreNotFoundError(f"no store at {str(p)!r}; check the path (stores are folders ending in .zarr)",
                                  field="store", value=str(p))
     try:
-        attrs: dict[str, Any] = json.loads(meta.read_text()).get("attributes", {})
+        attrs = metadata.read_attrs(p)
     except (OSError, ValueError):
         raise StoreSchemaError(f"{str(p)!r} is not a zarr store written by sweepshell; give a store folder",
                                field="store", value=str(p)) from None
@@ -40,9 +38,9 @@ def check_readable_store(path: str | os.PathLike[str]) -> dict[str, Any]:
     if schema is None:
         raise StoreSchemaError(f"{str(p)!r} is a zarr group but not a sweepshell store (no {ATTR.schema} "
                                "attribute); open it with xarray directly", field="store", value=str(p))
-    if schema != layout.SCHEMA_VERSION:
+    if schema != metadata.SCHEMA_VERSION:
         raise StoreSchemaError(f"store {str(p)!r} has schema version {schema!r}; this sweepshell reads version "
-                               f"{layout.SCHEMA_VERSION}; upgrade sweepshell", field="store", value=str(p))
+                               f"{metadata.SCHEMA_VERSION}; upgrade sweepshell", field="store", value=str(p))
     return attrs
 
 
@@ -82,12 +80,12 @@ def read_ledger(path: str | os.PathLike[str], block_shape: tuple[int, ...] | Non
     """
     import zarr
 
-    arr = zarr.open_array(str(Path(path) / layout.STATUS_VAR), mode="r", zarr_format=3)
+    arr = zarr.open_array(str(Path(path) / metadata.STATUS_VAR), mode="r", zarr_format=3)
     try:
         return np.asarray(arr[...])
     except Exception:  # a torn chunk: fall back to reading chunk by chunk
         log.warning("ledger of %s has unreadable chunks; they will be recomputed", path)
-    from sweepshell.engine.plan import iter_blocks
+    from sweepshell.plan import iter_blocks
 
     out = np.zeros(arr.shape, dtype=np.uint8)
     chunks = block_shape or tuple(arr.chunks)
@@ -103,7 +101,7 @@ def is_block_final(path: str | os.PathLike[str], block: Block) -> bool:
     """Return whether every point of ``block`` has a final status (an unreadable chunk is not final)."""
     import zarr
 
-    arr = zarr.open_array(str(Path(path) / layout.STATUS_VAR), mode="r", zarr_format=3)
+    arr = zarr.open_array(str(Path(path) / metadata.STATUS_VAR), mode="r", zarr_format=3)
     try:
         return bool(np.all(np.asarray(arr[block.slices]) != 0))
     except Exception:

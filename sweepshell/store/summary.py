@@ -2,7 +2,6 @@
 
 from __future__ import annotations
 
-import json
 import os
 from pathlib import Path
 from typing import Any
@@ -10,7 +9,7 @@ from typing import Any
 import numpy as np
 
 from sweepshell.models.base import Status
-from sweepshell.store.layout import ATTR, STATUS_VAR
+from sweepshell.store.metadata import ATTR, STATUS_VAR, dimension_names, read_record
 from sweepshell.store.reader import check_readable_store, read_ledger
 
 __all__ = ["summarize_store"]
@@ -24,9 +23,8 @@ def summarize_store(path: str | os.PathLike[str]) -> dict[str, Any]:
     raw = np.bincount(ledger.reshape(-1), minlength=len(Status))
     counts = {s.name: int(raw[s.value]) for s in Status}
     total = int(ledger.size)
-    axes_values: dict[str, list[Any]] = json.loads(attrs[ATTR.axes])
-    meta = json.loads((Path(path) / STATUS_VAR / "zarr.json").read_text())
-    order = [d for d in meta.get("dimension_names") or [] if d in axes_values]  # plan order, not sorted keys
+    axes_values: dict[str, list[Any]] = read_record(attrs, ATTR.axes)
+    order = [d for d in dimension_names(path, STATUS_VAR) if d in axes_values]  # plan order, not sorted keys
     axes = []
     for name in order:
         values = axes_values[name]
@@ -51,7 +49,7 @@ def summarize_store(path: str | os.PathLike[str]) -> dict[str, Any]:
         "counts": counts,
         "complete": counts[Status.pending.name] == 0,
         "complete_fraction": (total - counts[Status.pending.name]) / total if total else 1.0,
-        "settings": json.loads(attrs.get(ATTR.settings, "{}")),
-        "fixed": json.loads(attrs.get(ATTR.fixed, "{}")),
+        "settings": read_record(attrs, ATTR.settings, "{}"),
+        "fixed": read_record(attrs, ATTR.fixed, "{}"),
         "bytes_on_disk": size,
     }

@@ -35,7 +35,6 @@ decoded by zarr with the store's declared numeric dtypes.
 from __future__ import annotations
 
 import datetime as _dt
-import json
 import os
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -43,12 +42,12 @@ from typing import Any
 
 import numpy as np
 
-from sweepshell.engine.plan import iter_blocks
 from sweepshell.errors import StoreNotFoundError, StoreSchemaError
 from sweepshell.models.base import TRUSTED_STATUSES, Status
-from sweepshell.store import layout
+from sweepshell.plan import iter_blocks
+from sweepshell.store import metadata
 from sweepshell.store.catalog import read_axis_order
-from sweepshell.store.layout import ATTR
+from sweepshell.store.metadata import ATTR
 
 __all__ = ["VerifyProblem", "VerifyReport", "verify_store"]
 
@@ -165,11 +164,9 @@ class VerifyReport:
 
 def _check_metadata_files(root: Path) -> list[VerifyProblem]:
     problems = []
-    for meta in sorted(root.rglob("zarr.json")):
+    for meta in sorted(root.rglob(metadata.META_FILE)):
         try:
-            data = json.loads(meta.read_text())
-            if not isinstance(data, dict):
-                raise ValueError("not an object")
+            metadata.read_node(meta.parent)
         except (OSError, ValueError) as exc:
             rel = meta.relative_to(root).as_posix()
             problems.append(VerifyProblem("metadata", f"{rel} does not parse ({exc})"))
@@ -182,7 +179,7 @@ def _check_attributes(attrs: dict[str, Any]) -> tuple[list[VerifyProblem], dict[
     parsed: dict[str, Any] = {}
     for key in (ATTR.settings, ATTR.fixed, ATTR.axes):
         try:
-            value = json.loads(attrs[key])
+            value = metadata.read_record(attrs, key)
             if not isinstance(value, dict):
                 raise ValueError("not an object")
             parsed[key] = value
@@ -223,10 +220,10 @@ def _open_arrays(root: Path, names: list[str], axes: dict[str, list[Any]]) -> tu
     problems: list[VerifyProblem] = []
     arrays: dict[str, Any] = {}
     shape = tuple(len(axes[n]) for n in names)
-    for sub in sorted(p for p in root.iterdir() if p.is_dir() and (p / "zarr.json").is_file()):
+    for sub in metadata.child_nodes(root):
         name = sub.name
         try:
-            meta = json.loads((sub / "zarr.json").read_text())
+            meta = metadata.read_node(sub)
         except (OSError, ValueError):
             continue  # reported by the metadata check
         if meta.get("node_type") != "array":
@@ -261,7 +258,7 @@ def _open_arrays(root: Path, names: list[str], axes: dict[str, list[Any]]) -> tu
                                                     f"{list(shape)}", variable=name))
             continue
         arrays[name] = arr
-    for required in (layout.STATUS_VAR, layout.REGIME_VAR):
+    for required in (metadata.STATUS_VAR, metadata.REGIME_VAR):
         if required not in arrays and not any(p.variable == required for p in problems):
             problems.append(VerifyProblem("layout", f"variable {required} is missing", variable=required))
     return problems, arrays
@@ -291,21 +288,20 @@ def verify_store(path: str | os.PathLike[str], *, repair: bool = False) -> Verif
         If it is not a sweepshell store, or of an unknown schema version.
     """
     root = Path(path)
-    meta_file = root / "zarr.json"
-    if not root.is_dir() or not meta_file.is_file():
+    if not root.is_dir() or not metadata.has_node(root):
         raise StoreNotFoundError(f"no store at {str(root)!r}; give a store folder (ending in .zarr)",
                                  field="store", value=str(root))
     problems = _check_metadata_files(root)
     try:
-        attrs = json.loads(meta_file.read_text()).get("attributes", {})
-    except (OSError, ValueError, AttributeError):
+        attrs = metadata.read_node(root).get("attributes", {})
+    except (OSError, ValueError):
         return VerifyReport(path=str(root), problems=tuple(problems))
     if not isinstance(attrs, dict) or ATTR.schema not in attrs:
         raise StoreSchemaError(f"{str(root)!r} is not a sweepshell store (no {ATTR.schema} attribute)",
                                field="store", value=str(root))
-    if attrs[ATTR.schema] != layout.SCHEMA_VERSION:
+    if attrs[ATTR.schema] != metadata.SCHEMA_VERSION:
         raise StoreSchemaError(f"store {str(root)!r} has schema version {attrs[ATTR.schema]!r}; this sweepshell "
-                               f"checks version {layout.SCHEMA_VERSION}", field="store", value=str(root))
+                               f"checks version {metadata.SCHEMA_VERSION}", field="store", value=str(root))
     attr_problems, axes, block_shape, regimes = _check_attributes(attrs)
     problems += attr_problems
     if axes is None or block_shape is None:
@@ -314,10 +310,10 @@ def verify_store(path: str | os.PathLike[str], *, repair: bool = False) -> Verif
     layout_problems, arrays = _open_arrays(root, names, axes)
     problems += layout_problems
     shape = tuple(len(axes[n]) for n in names)
-    if layout.STATUS_VAR not in arrays:
+    if metadata.STATUS_VAR not in arrays:
         return VerifyReport(path=str(root), total=int(np.prod(shape)), block_shape=block_shape,
                             problems=tuple(problems))
-    outputs = [n for n in arrays if n not in (layout.STATUS_VAR, layout.REGIME_VAR)]
+    outputs = [n for n in arrays if n not in (metadata.STATUS_VAR, metadata.REGIME_VAR)]
     counts = np.zeros(256, dtype=np.int64)
     recompute: list[tuple[int, ...]] = []
     recompute_points = 0
@@ -327,14 +323,14 @@ def verify_store(path: str | os.PathLike[str], *, repair: bool = False) -> Verif
         n_blocks += 1
         block_problems: list[VerifyProblem] = []
         try:
-            status = np.asarray(arrays[layout.STATUS_VAR][block.slices])
+            status = np.asarray(arrays[metadata.STATUS_VAR][block.slices])
             status_readable = True
         except Exception as exc:
             status = np.zeros(block.shape, dtype=np.uint8)
             status_readable = False
             block_problems.append(VerifyProblem(
                 "chunk", f"status block {list(block.index)} does not decode ({_reason(exc)}); a run recomputes it",
-                variable=layout.STATUS_VAR, block=block.index, points=block.n_points, recomputed=True))
+                variable=metadata.STATUS_VAR, block=block.index, points=block.n_points, recomputed=True))
         counts += np.bincount(status.reshape(-1), minlength=256)
         pending = status == Status.pending
         will_recompute = bool(pending.any())
@@ -342,7 +338,7 @@ def verify_store(path: str | os.PathLike[str], *, repair: bool = False) -> Verif
             recompute.append(block.index)
             recompute_points += block.n_points
         values: dict[str, np.ndarray] = {}
-        for name in [layout.REGIME_VAR, *outputs]:
+        for name in [metadata.REGIME_VAR, *outputs]:
             if name not in arrays:
                 continue
             try:
@@ -362,7 +358,7 @@ def verify_store(path: str | os.PathLike[str], *, repair: bool = False) -> Verif
     if to_repair:
         import zarr
 
-        ledger: Any = zarr.open_array(str(root / layout.STATUS_VAR), mode="r+", zarr_format=3)
+        ledger: Any = zarr.open_array(str(root / metadata.STATUS_VAR), mode="r+", zarr_format=3)
         for block in to_repair:
             ledger[block.slices] = np.zeros(block.shape, dtype=np.uint8)
             repaired.append(block.index)
@@ -393,21 +389,21 @@ def _check_ledger(block: Any, status: np.ndarray, values: dict[str, np.ndarray],
     if unknown.any():
         problems.append(VerifyProblem("ledger", f"{where}: {int(unknown.sum())} points have unknown status codes "
                                                 f"{sorted(set(status[unknown].tolist()))[:5]}",
-                                      variable=layout.STATUS_VAR, block=block.index, points=int(unknown.sum()),
+                                      variable=metadata.STATUS_VAR, block=block.index, points=int(unknown.sum()),
                                       recomputed=will_recompute))
     untrusted = np.isin(status, _UNTRUSTED_FINAL)
     trusted = np.isin(status, _TRUSTED)
-    regime = values.get(layout.REGIME_VAR)
+    regime = values.get(metadata.REGIME_VAR)
     if regime is not None:
         bad = untrusted & (regime != -1)
         if bad.any():
             problems.append(VerifyProblem("ledger", f"{where}: {int(bad.sum())} points with an untrusted status "
-                                                    "have a regime other than -1", variable=layout.REGIME_VAR,
+                                                    "have a regime other than -1", variable=metadata.REGIME_VAR,
                                           block=block.index, points=int(bad.sum()), recomputed=will_recompute))
         bad = trusted & ((regime < 0) | (regime >= n_regimes))
         if bad.any():
             problems.append(VerifyProblem("ledger", f"{where}: {int(bad.sum())} points with a trusted status have "
-                                                    f"no regime in 0..{n_regimes - 1}", variable=layout.REGIME_VAR,
+                                                    f"no regime in 0..{n_regimes - 1}", variable=metadata.REGIME_VAR,
                                           block=block.index, points=int(bad.sum()), recomputed=will_recompute))
     for name in outputs:
         arr = values.get(name)
@@ -422,7 +418,6 @@ def _check_ledger(block: Any, status: np.ndarray, values: dict[str, np.ndarray],
     return problems
 
 
-_POINTS_GROUP = "points"
 _POINT_BOOKKEEPING = ("level", "origin")
 
 
@@ -430,29 +425,29 @@ def _check_point_list(root: Path, axis_names: list[str], n_regimes: int) -> list
     """Check the off-grid point list: chunks decode, final points obey the ledger rules."""
     import zarr
 
-    folder = root / _POINTS_GROUP
-    if not (folder / "zarr.json").is_file():
+    folder = root / metadata.POINTS_GROUP
+    if not metadata.has_node(folder):
         return []
     problems: list[VerifyProblem] = []
     values: dict[str, np.ndarray] = {}
-    for sub in sorted(p for p in folder.iterdir() if p.is_dir() and (p / "zarr.json").is_file()):
-        name = f"{_POINTS_GROUP}/{sub.name}"
+    for sub in metadata.child_nodes(folder):
+        name = f"{metadata.POINTS_GROUP}/{sub.name}"
         try:
             values[sub.name] = np.asarray(zarr.open_array(str(sub), mode="r", zarr_format=3)[...])
         except Exception as exc:
             problems.append(VerifyProblem("chunk", f"{name} does not decode ({_reason(exc)})", variable=name))
-    status = values.get(layout.STATUS_VAR)
+    status = values.get(metadata.STATUS_VAR)
     if status is None:
-        if not any(p.variable == f"{_POINTS_GROUP}/{layout.STATUS_VAR}" for p in problems):
+        if not any(p.variable == f"{metadata.POINTS_GROUP}/{metadata.STATUS_VAR}" for p in problems):
             problems.append(VerifyProblem("layout", "the point list has no status array",
-                                          variable=f"{_POINTS_GROUP}/{layout.STATUS_VAR}"))
+                                          variable=f"{metadata.POINTS_GROUP}/{metadata.STATUS_VAR}"))
         return problems
-    skip = {*axis_names, layout.STATUS_VAR, layout.REGIME_VAR, *_POINT_BOOKKEEPING}
+    skip = {*axis_names, metadata.STATUS_VAR, metadata.REGIME_VAR, *_POINT_BOOKKEEPING}
     outputs = [n for n in values if n not in skip]
     clipped = {n: v[: status.shape[0]] for n, v in values.items()}
     found = _check_ledger(_PointListBlock(), status, clipped, outputs, n_regimes, False)
     return problems + [VerifyProblem(p.kind, p.message.replace("block []", "point list"),
-                                     variable=f"{_POINTS_GROUP}/{p.variable}", points=p.points) for p in found]
+                                     variable=f"{metadata.POINTS_GROUP}/{p.variable}", points=p.points) for p in found]
 
 
 @dataclass(frozen=True)

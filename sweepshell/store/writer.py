@@ -15,7 +15,6 @@ from __future__ import annotations
 import datetime as _dt
 import json
 import logging
-import math
 import os
 import shutil
 import warnings
@@ -25,19 +24,18 @@ from typing import Any
 
 import numpy as np
 
-from sweepshell import CAUTION, __version__
-from sweepshell.engine.plan import Block, SweepPlan
+from sweepshell.about import CAUTION, __version__
 from sweepshell.errors import StoreMismatchError, StoreSchemaError
 from sweepshell.models import get_model_origin
 from sweepshell.models.base import BatchResult, SweepModel
-from sweepshell.store import layout
-from sweepshell.store.layout import ATTR
+from sweepshell.plan import Block, SweepPlan
+from sweepshell.store import metadata
+from sweepshell.store.metadata import ATTR, canonical_json, is_store
 
 __all__ = [
     "check_store_matches",
     "clean_stale_temporaries",
     "create_store",
-    "is_store",
     "plan_attrs",
     "store_block_shape",
     "write_block",
@@ -46,30 +44,12 @@ __all__ = [
 log = logging.getLogger(__name__)
 
 
-def is_store(path: str | os.PathLike[str]) -> bool:
-    """Return whether ``path`` is a folder holding a sweepshell store (any schema)."""
-    meta = Path(path) / "zarr.json"
-    if not meta.is_file():
-        return False
-    try:
-        attrs = json.loads(meta.read_text()).get("attributes", {})
-    except (OSError, ValueError):
-        return False
-    return ATTR.schema in attrs
-
-
-def _read_attrs(path: str | os.PathLike[str]) -> dict[str, Any]:
-    meta = Path(path) / "zarr.json"
-    attrs: dict[str, Any] = json.loads(meta.read_text()).get("attributes", {})
-    return attrs
-
-
 def plan_attrs(plan: SweepPlan, model: SweepModel, block_shape: Sequence[int]) -> dict[str, Any]:
     """Return the provenance attributes of a store made from ``plan``."""
     origin = get_model_origin(plan.model)
     return {
         ATTR.tool: __version__,
-        ATTR.schema: layout.SCHEMA_VERSION,
+        ATTR.schema: metadata.SCHEMA_VERSION,
         ATTR.model: plan.model,
         ATTR.model_version: plan.model_version,
         ATTR.model_package: origin.distribution,
@@ -86,21 +66,6 @@ def plan_attrs(plan: SweepPlan, model: SweepModel, block_shape: Sequence[int]) -
         ATTR.conventions: "CF-1.10",
     }
 
-
-def canonical_json(obj: Any) -> str:
-    """Return the JSON record of settings, fixed parameters or axes as stored (sorted keys, NaN as null)."""
-    def fix(v: Any) -> Any:
-        if isinstance(v, float) and math.isnan(v):
-            return None
-        if isinstance(v, dict):
-            return {str(k): fix(x) for k, x in v.items()}
-        if isinstance(v, (list, tuple)):
-            return [fix(x) for x in v]
-        if isinstance(v, np.generic):
-            return v.item()
-        return v
-
-    return json.dumps(fix(obj), sort_keys=True)
 
 
 def check_store_matches(path: str | os.PathLike[str], plan: SweepPlan, model: SweepModel) -> None:
@@ -120,10 +85,10 @@ def check_store_matches(path: str | os.PathLike[str], plan: SweepPlan, model: Sw
         raise StoreSchemaError(f"store.path={str(p)!r} is {what}; choose another path "
                                f"(e.g. store.path={p.with_name(p.stem + '-2.zarr')})",
                                field="store.path", value=str(p))
-    attrs = _read_attrs(p)
-    if attrs.get(ATTR.schema) != layout.SCHEMA_VERSION:
+    attrs = metadata.read_attrs(p)
+    if attrs.get(ATTR.schema) != metadata.SCHEMA_VERSION:
         raise StoreSchemaError(f"store {str(p)!r} has schema version {attrs.get(ATTR.schema)!r}; this sweepshell "
-                               f"reads version {layout.SCHEMA_VERSION}; use a matching sweepshell or a new path",
+                               f"reads version {metadata.SCHEMA_VERSION}; use a matching sweepshell or a new path",
                                field="store.path", value=str(p))
     new = f"store.path={p.with_name(p.stem + '-2.zarr')}"
     checks = [
@@ -145,7 +110,7 @@ def _describe_difference(what: str, stored: Any, wanted: Any) -> str:
     if what in ("model", "model version"):
         return f"store has {stored!r}, this sweep {wanted!r}"
     try:
-        a, b = json.loads(stored), json.loads(wanted)
+        a, b = metadata.load_record(stored), metadata.load_record(wanted)
     except (TypeError, ValueError):
         return "unreadable record in the store"
     keys = sorted(set(a) | set(b))
@@ -163,13 +128,13 @@ def _short(v: Any) -> str:
 
 def store_block_shape(path: str | os.PathLike[str]) -> tuple[int, ...]:
     """Return the block (= chunk) shape recorded in an existing store."""
-    return tuple(int(b) for b in _read_attrs(path)[ATTR.block_shape])
+    return tuple(int(b) for b in metadata.read_attrs(path)[ATTR.block_shape])
 
 
 def clean_stale_temporaries(path: str | os.PathLike[str]) -> None:
     """Remove half-built templates left by runs that were killed while creating the store."""
     p = Path(path)
-    for tmp in p.parent.glob(p.name + layout.TEMP_SUFFIX + "-*"):
+    for tmp in p.parent.glob(p.name + metadata.TEMP_SUFFIX + "-*"):
         pid_text = tmp.name.rsplit("-", 1)[-1]
         if pid_text.isdigit() and _pid_alive(int(pid_text)):
             continue
@@ -194,7 +159,7 @@ def create_store(plan: SweepPlan, model: SweepModel, block_shape: Sequence[int])
 
     target = Path(plan.store_path)
     target.parent.mkdir(parents=True, exist_ok=True)
-    tmp = target.with_name(target.name + layout.TEMP_SUFFIX + f"-{os.getpid()}")
+    tmp = target.with_name(target.name + metadata.TEMP_SUFFIX + f"-{os.getpid()}")
     if tmp.exists():
         shutil.rmtree(tmp)
     block_shape = tuple(int(b) for b in block_shape)
@@ -228,12 +193,12 @@ def create_store(plan: SweepPlan, model: SweepModel, block_shape: Sequence[int])
         data_vars[out.name] = xr.Variable(out_dims, da.full(out_shape, np.nan, dtype=out.dtype, chunks=chunks),
                                           attrs)
         encoding[out.name] = {"chunks": chunks, "fill_value": np.nan, "compressors": compressors}
-    data_vars[layout.REGIME_VAR] = xr.Variable(
-        dims, da.full(shape, -1, dtype=np.int8, chunks=block_shape), layout.regime_attrs(model.regimes))
-    encoding[layout.REGIME_VAR] = {"chunks": block_shape, "fill_value": -1, "compressors": compressors}
-    data_vars[layout.STATUS_VAR] = xr.Variable(
-        dims, da.zeros(shape, dtype=np.uint8, chunks=block_shape), layout.status_attrs())
-    encoding[layout.STATUS_VAR] = {"chunks": block_shape, "fill_value": 0, "compressors": compressors}
+    data_vars[metadata.REGIME_VAR] = xr.Variable(
+        dims, da.full(shape, -1, dtype=np.int8, chunks=block_shape), metadata.regime_attrs(model.regimes))
+    encoding[metadata.REGIME_VAR] = {"chunks": block_shape, "fill_value": -1, "compressors": compressors}
+    data_vars[metadata.STATUS_VAR] = xr.Variable(
+        dims, da.zeros(shape, dtype=np.uint8, chunks=block_shape), metadata.status_attrs())
+    encoding[metadata.STATUS_VAR] = {"chunks": block_shape, "fill_value": 0, "compressors": compressors}
     ds = xr.Dataset(data_vars, coords=coords, attrs=plan_attrs(plan, model, block_shape))
     with warnings.catch_warnings():
         # consolidated metadata lets plain xr.open_zarr(path) open the store quietly and fast; zarr warns
@@ -265,7 +230,7 @@ async def _write_block(path: str, block: Block, result: BatchResult, output_name
 
     group = await open_group(path, mode="r+", zarr_format=3)
     arrays: list[Any] = await asyncio.gather(
-        *(group.getitem(n) for n in [*output_names, layout.REGIME_VAR, layout.STATUS_VAR]))
+        *(group.getitem(n) for n in [*output_names, metadata.REGIME_VAR, metadata.STATUS_VAR]))
     shape = block.shape
     writes = []
     for name, arr in zip(output_names, arrays, strict=False):

@@ -8,7 +8,7 @@ import subprocess
 import sys
 
 from sweepshell.cli.main import main
-from tests.store.test_catalog import make_column_store
+from tests.conftest import run_column_store
 
 
 def test_commands_are_listed_and_help_imports_no_heavy_library():
@@ -23,8 +23,8 @@ def test_commands_are_listed_and_help_imports_no_heavy_library():
 
 def test_merge_then_catalog_verify_and_export(tmp_path, capsys):
     results = tmp_path / "results"
-    make_column_store(results / "alice.zarr", [0.1, 1.0, 10.0], [0.5, 5.0, 40.0])
-    make_column_store(results / "bob.zarr", [10.0, 100.0], [0.5, 1.0, 40.0])
+    run_column_store(results / "alice.zarr", [0.1, 1.0, 10.0], [0.5, 5.0, 40.0])
+    run_column_store(results / "bob.zarr", [10.0, 100.0], [0.5, 1.0, 40.0])
     merged = results / "team.zarr"
     assert main(["merge", str(results / "alice.zarr"), str(results / "bob.zarr"), "-o", str(merged)]) == 0
     line = capsys.readouterr().out

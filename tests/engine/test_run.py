@@ -12,9 +12,9 @@ import xarray as xr
 from sweepshell import open_sweep, run_sweep
 from sweepshell.cli.main import main
 from sweepshell.config.loader import load_plan
-from sweepshell.engine.plan import choose_block_shape, iter_blocks
 from sweepshell.models.base import Status
-from sweepshell.testing import winkler_column_critical
+from sweepshell.models.winkler_column.model import winkler_column_critical
+from sweepshell.plan import choose_block_shape, iter_blocks
 from tests.conftest import COLUMN_SWEEP, write_sweep
 
 
@@ -107,7 +107,7 @@ def test_failed_and_outside_validity_points_are_recorded_not_raised(workdir):
 
 
 def test_model_that_raises_marks_points_failed(workdir, monkeypatch):
-    from sweepshell import testing
+    from sweepshell.models.winkler_column import model as testing
 
     original = testing.WinklerColumnModel.solve_batch
 

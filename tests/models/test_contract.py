@@ -23,7 +23,7 @@ def test_every_registered_model_keeps_the_contract(model):
 
 @pytest.mark.parametrize("name", list_models())
 def test_models_import_no_xarray_zarr_dask_or_hydra(name):
-    module = {"winkler_column": "sweepshell.testing"}.get(name, f"sweepshell.models.{name}")
+    module = f"sweepshell.models.{name}.model"
     code = (f"import sys, {module}; bad = [m for m in ('xarray', 'zarr', 'dask', 'hydra', 'omegaconf') "
             "if m in sys.modules]; print(bad); sys.exit(1 if bad else 0)")
     proc = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, timeout=120, check=False)

@@ -11,21 +11,6 @@ import pytest
 from sweepshell import open_sweep
 from sweepshell.cli.main import main
 from sweepshell.plot.regime_map import draw_output_lines, draw_regime_map
-from tests.query.stores import FAULTY_OVERRIDES, make_column_store
-
-THREE_AXES = """\
-name: column3
-model: winkler_column
-axes:
-  stiffness_ratio: {logspace: [-1, 3, 21]}
-  load_ratio: {linspace: [0.5, 40, 16]}
-  end: [pinned, weak]
-"""
-
-
-@pytest.fixture(scope="module")
-def store(tmp_path_factory):
-    return make_column_store(tmp_path_factory.mktemp("m"), "column3", FAULTY_OVERRIDES, sweep_text=THREE_AXES)
 
 
 def legend_labels(fig):
@@ -38,9 +23,9 @@ def legend_labels(fig):
     return labels
 
 
-def test_map_png_decodes_and_reports_the_cut(store, tmp_path, capsys):
+def test_map_png_decodes_and_reports_the_cut(three_axis_fine_store, tmp_path, capsys):
     out = tmp_path / "map.png"
-    code = main(["map", str(store), "--x", "stiffness_ratio", "--y", "load_ratio", "--at", "end=weak",
+    code = main(["map", str(three_axis_fine_store), "--x", "stiffness_ratio", "--y", "load_ratio", "--at", "end=weak",
                  "--contour", "critical_load", "--out", str(out)])
     assert code == 0
     assert capsys.readouterr().err.strip() == "fixed end = weak"
@@ -49,8 +34,8 @@ def test_map_png_decodes_and_reports_the_cut(store, tmp_path, capsys):
     assert np.std(image[..., :3]) > 0.05  # not blank
 
 
-def test_map_content_regimes_statuses_scales_labels(store):
-    result = draw_regime_map(open_sweep(store), "stiffness_ratio", "load_ratio", at={"end": "pinned"})
+def test_map_content_regimes_statuses_scales_labels(three_axis_fine_store):
+    result = draw_regime_map(open_sweep(three_axis_fine_store), "stiffness_ratio", "load_ratio", at={"end": "pinned"})
     fig = result.figure
     ax = fig.axes[0]
     labels = legend_labels(fig)
@@ -64,7 +49,7 @@ def test_map_content_regimes_statuses_scales_labels(store):
     # every boundary vertex sits halfway along a grid edge that the closed-form boundary crosses, so it is
     # within half an edge of that curve (Timoshenko & Gere 1961 for the curve; distances in axis units
     # scaled to the plot: log10 η over 4 decades, load over 39.5)
-    from sweepshell.testing import winkler_column_critical
+    from sweepshell.models.winkler_column.model import winkler_column_critical
 
     eta = np.logspace(-1, np.log10(500), 200_001)
     curve = np.stack([np.log10(eta) / 4, winkler_column_critical(eta)[0] / 39.5], 1)
@@ -77,20 +62,21 @@ def test_map_content_regimes_statuses_scales_labels(store):
             assert np.min(np.hypot(curve[:, 0] - u, curve[:, 1] - v)) <= half_edge * (1 + 1e-6)
 
 
-def test_map_at_nearest_value_and_svg(store, tmp_path, capsys):
+def test_map_at_nearest_value_and_svg(three_axis_fine_store, tmp_path, capsys):
     out = tmp_path / "map.svg"
-    assert main(["map", str(store), "--x", "stiffness_ratio", "--y", "end", "--at", "load_ratio=3", "--out",
-                 str(out)]) == 2  # a categorical axis cannot be a map axis
+    assert main(["map", str(three_axis_fine_store), "--x", "stiffness_ratio", "--y", "end", "--at", "load_ratio=3",
+                 "--out", str(out)]) == 2  # a categorical axis cannot be a map axis
     capsys.readouterr()
-    assert main(["map", str(store), "--x", "end", "--y", "stiffness_ratio", "--out", str(out)]) == 2
+    assert main(["map", str(three_axis_fine_store), "--x", "end", "--y", "stiffness_ratio", "--out", str(out)]) == 2
     capsys.readouterr()
-    assert main(["map", str(store), "--x", "load_ratio", "--y", "stiffness_ratio", "--color", "margin",
+    assert main(["map", str(three_axis_fine_store), "--x", "load_ratio", "--y", "stiffness_ratio", "--color", "margin",
                  "--at", "end=pinned", "--out", str(out)]) == 0
     assert out.read_text().lstrip().startswith("<?xml") and "<svg" in out.read_text()[:1000]
 
 
-def test_line_plot_one_line_per_value_of_the_third_axis(store, tmp_path, capsys):
-    result = draw_output_lines(open_sweep(store), "stiffness_ratio", "critical_load", at={"load_ratio": "3"})
+def test_line_plot_one_line_per_value_of_the_third_axis(three_axis_fine_store, tmp_path, capsys):
+    result = draw_output_lines(open_sweep(three_axis_fine_store), "stiffness_ratio", "critical_load",
+                               at={"load_ratio": "3"})
     ax = result.figure.axes[0]
     data_lines = [line for line in ax.get_lines() if line.get_label() in ("pinned", "weak")]
     assert len(data_lines) == 2
@@ -100,8 +86,8 @@ def test_line_plot_one_line_per_value_of_the_third_axis(store, tmp_path, capsys)
     np.testing.assert_allclose(weak.get_ydata()[both], 0.5 * pinned.get_ydata()[both])  # 'weak' halves P_cr
     assert result.view.cuts[0].describe() == "load_ratio = 3.13333 (nearest to 3)"
     out = tmp_path / "lines.png"
-    assert main(["map", str(store), "--x", "stiffness_ratio", "--y", "critical_load", "--at", "load_ratio=3",
-                 "--out", str(out)]) == 0
+    assert main(["map", str(three_axis_fine_store), "--x", "stiffness_ratio", "--y", "critical_load", "--at",
+                 "load_ratio=3", "--out", str(out)]) == 0
     assert mpimg.imread(str(out)).ndim == 3
 
 
@@ -114,9 +100,9 @@ def test_line_plot_one_line_per_value_of_the_third_axis(store, tmp_path, capsys)
     ["--x", "stiffness_ratio", "--y", "load_ratio", "--at", "end"],
     ["--x", "stiffness_ratio", "--y", "critical_load", "--contour", "margin"],
 ])
-def test_bad_map_requests_exit_2_and_write_nothing(store, tmp_path, capsys, argv, monkeypatch):
+def test_bad_map_requests_exit_2_and_write_nothing(three_axis_fine_store, tmp_path, capsys, argv, monkeypatch):
     monkeypatch.chdir(tmp_path)
-    assert main(["map", str(store), *argv]) == 2
+    assert main(["map", str(three_axis_fine_store), *argv]) == 2
     out, err = capsys.readouterr()
     assert out == "" and err.count("\n") == 1
     assert not list(tmp_path.glob("*.png"))

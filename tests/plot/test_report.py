@@ -12,7 +12,7 @@ import pytest
 
 from sweepshell import CAUTION
 from sweepshell.cli.main import main
-from tests.query.stores import FAULTY_OVERRIDES, THREE_AXES, make_column_store
+from tests.conftest import compute_column_store
 
 
 class Collector(HTMLParser):
@@ -34,14 +34,9 @@ class Collector(HTMLParser):
             self.cells.append(data)
 
 
-@pytest.fixture(scope="module")
-def store(tmp_path_factory):
-    return make_column_store(tmp_path_factory.mktemp("r"), "column3", FAULTY_OVERRIDES, sweep_text=THREE_AXES)
-
-
-def test_report_is_self_contained_and_says_what_was_computed(store, tmp_path, capsys):
+def test_report_is_self_contained_and_says_what_was_computed(three_axis_store, tmp_path, capsys):
     out = tmp_path / "report.html"
-    assert main(["report", str(store), "--out", str(out)]) == 0
+    assert main(["report", str(three_axis_store), "--out", str(out)]) == 0
     parser = Collector()
     parser.feed(out.read_text(encoding="utf-8"))
     parser.close()
@@ -64,15 +59,15 @@ def test_report_is_self_contained_and_says_what_was_computed(store, tmp_path, ca
     assert i >= 0
 
 
-def test_report_refuses_a_bad_out_path(store, tmp_path, capsys):
-    assert main(["report", str(store), "--out", str(tmp_path / "r.pdf")]) == 2
-    assert main(["report", str(store), "--out", str(tmp_path / "missing" / "r.html")]) == 2
+def test_report_refuses_a_bad_out_path(three_axis_store, tmp_path, capsys):
+    assert main(["report", str(three_axis_store), "--out", str(tmp_path / "r.pdf")]) == 2
+    assert main(["report", str(three_axis_store), "--out", str(tmp_path / "missing" / "r.html")]) == 2
     assert not list(tmp_path.rglob("*.html"))
 
 
-def test_path_overlays_chosen_points_and_skips_untrusted_ones(store, tmp_path, capsys):
+def test_path_overlays_chosen_points_and_skips_untrusted_ones(three_axis_store, tmp_path, capsys):
     out = tmp_path / "paths.png"
-    code = main(["path", str(store), "--at", "stiffness_ratio=10,load_ratio=20,end=pinned",
+    code = main(["path", str(three_axis_store), "--at", "stiffness_ratio=10,load_ratio=20,end=pinned",
                  "--at", "stiffness_ratio=100,load_ratio=0.5", "--at", "stiffness_ratio=1,end=weak,load_ratio=4",
                  "--out", str(out)])
     captured = capsys.readouterr()
@@ -83,16 +78,17 @@ def test_path_overlays_chosen_points_and_skips_untrusted_ones(store, tmp_path, c
     from sweepshell import open_sweep
     from sweepshell.plot.paths import draw_load_paths
 
-    result = draw_load_paths(open_sweep(store), [{"stiffness_ratio": "10", "load_ratio": "20", "end": "pinned"}])
+    result = draw_load_paths(open_sweep(three_axis_store),
+                             [{"stiffness_ratio": "10", "load_ratio": "20", "end": "pinned"}])
     line = result.figure.axes[0].get_lines()[0]
     # the sampled path runs from zero to the critical load, P_cr(η = 10) = 6.5 (Timoshenko & Gere 1961)
     assert line.get_ydata()[0] == 0 and line.get_ydata()[-1] == pytest.approx(6.5)
     assert "(buckled)" in line.get_label()
 
 
-def test_path_errors_are_one_line(store, capsys):
+def test_path_errors_are_one_line(three_axis_store, capsys):
     for argv in (["--y", "critical_load"], ["--at", "nope=1"], ["--at", "stiffness_ratio=100,load_ratio=0.5"]):
-        assert main(["path", str(store), *argv]) == 2, argv
+        assert main(["path", str(three_axis_store), *argv]) == 2, argv
         out, err = capsys.readouterr()
         assert out == "" and err.count("\n") == 1
 
@@ -107,7 +103,7 @@ axes:
 
 
 def test_report_of_a_one_axis_store_draws_outputs_against_the_axis(tmp_path, capsys):
-    store = make_column_store(tmp_path, "column1", sweep_text=ONE_AXIS)
+    store = compute_column_store(tmp_path, "column1", sweep_text=ONE_AXIS)
     out = tmp_path / "one.html"
     assert main(["report", str(store), "--out", str(out)]) == 0
     parser = Collector()

@@ -8,24 +8,19 @@ import json
 import warnings
 
 import numpy as np
-import pytest
 import xarray as xr
 
 import sweepshell.query  # noqa: F401  (registers the .sweep accessor)
 from sweepshell import open_sweep
 from sweepshell.cli.main import main
+from sweepshell.engine.evaluate import store_evaluator
+from sweepshell.models.winkler_column.model import WinklerColumnModel, winkler_column_critical
 from sweepshell.query.boundary import find_boundary
 from sweepshell.store.points import read_points
-from sweepshell.testing import WinklerColumnModel, winkler_column_critical
-from tests.query.stores import THREE_AXES, make_column_store
+from tests.conftest import THREE_AXES, compute_column_store
 
 # The stable/buckled boundary of the column is load_ratio = P_cr(η) L²/(π²B) = min_m (m² + η/m²)
 # (Timoshenko & Gere 1961, pinned beam on a Winkler foundation), increasing in η.
-
-
-@pytest.fixture
-def store(tmp_path):
-    return make_column_store(tmp_path)
 
 
 def exact(eta):
@@ -55,10 +50,18 @@ def test_grid_boundary_is_within_half_a_spacing_and_costs_nothing(store):
     assert view.log == (True, False)
 
 
+def test_without_an_evaluator_the_query_layer_neither_evaluates_nor_writes(store):
+    boundary, _ = find_boundary(open_sweep(store), "stiffness_ratio", "load_ratio", ("stable", "buckled"),
+                                bisections=5)
+    assert boundary.evaluations == 0 and boundary.bisections == 0
+    assert read_points(store) is None
+
+
 def test_bisection_narrows_each_crossing_and_records_its_points(store):
     ds = open_sweep(store)
     k = 7
-    boundary, _ = find_boundary(ds, "stiffness_ratio", "load_ratio", ("stable", "buckled"), bisections=k)
+    boundary, _ = find_boundary(ds, "stiffness_ratio", "load_ratio", ("stable", "buckled"), bisections=k,
+                                evaluator=store_evaluator(ds, record=True))
     load_step = float(np.diff(ds.load_ratio.values)[0])
     check_vertices(boundary, load_step, 4 / 19, k)
     assert boundary.evaluations == k * boundary.n_vertices
@@ -110,10 +113,10 @@ def test_bad_requests_and_other_model_versions_are_refused(store, capsys, monkey
 
 
 def test_boundary_on_a_view_with_a_named_axis_fixed(tmp_path):
-    store = make_column_store(tmp_path, "column3", sweep_text=THREE_AXES)
+    store = compute_column_store(tmp_path, "column3", sweep_text=THREE_AXES)
     ds = open_sweep(store)
     boundary, view = find_boundary(ds, "stiffness_ratio", "load_ratio", ("stable", "buckled"),
-                                   at={"end": "weak"}, bisections=8)
+                                   at={"end": "weak"}, bisections=8, evaluator=store_evaluator(ds, record=True))
     assert view.fixed_values == {"end": "weak"}
     line = boundary.lines[0]
     along_load = line.along == 1

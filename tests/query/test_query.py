@@ -14,19 +14,14 @@ from sweepshell import CAUTION, open_sweep
 from sweepshell.cli.main import main
 from sweepshell.errors import QueryError
 from sweepshell.models.base import Status
+from sweepshell.models.winkler_column.model import winkler_column_critical
 from sweepshell.query.expression import check_expression
-from sweepshell.testing import winkler_column_critical
-from tests.query.stores import FAULTY_OVERRIDES, make_column_store
-
-
-@pytest.fixture(scope="module")
-def store(tmp_path_factory):
-    return make_column_store(tmp_path_factory.mktemp("q"))
+from tests.conftest import FAULTY_OVERRIDES, compute_column_store
 
 
 @pytest.fixture(scope="module")
 def faulty_store(tmp_path_factory):
-    return make_column_store(tmp_path_factory.mktemp("qf"), "faulty", FAULTY_OVERRIDES)
+    return compute_column_store(tmp_path_factory.mktemp("qf"), "faulty", FAULTY_OVERRIDES)
 
 
 def run_cli(capsys, *argv):
@@ -35,8 +30,8 @@ def run_cli(capsys, *argv):
     return code, out, err
 
 
-def test_json_lists_points_with_axes_fields_and_regime_names(store, capsys):
-    code, out, err = run_cli(capsys, "query", str(store), "--where", "stiffness_ratio > 900", "--fields",
+def test_json_lists_points_with_axes_fields_and_regime_names(column_store, capsys):
+    code, out, err = run_cli(capsys, "query", str(column_store), "--where", "stiffness_ratio > 900", "--fields",
                              "critical_load,regime", "--format", "json")
     assert code == 0
     rows = json.loads(out)
@@ -48,8 +43,8 @@ def test_json_lists_points_with_axes_fields_and_regime_names(store, capsys):
     assert CAUTION in err and CAUTION not in out
 
 
-def test_regime_at_a_known_point_matches_the_closed_form(store):
-    ds = open_sweep(store)
+def test_regime_at_a_known_point_matches_the_closed_form(column_store):
+    ds = open_sweep(column_store)
     table = ds.sweep.query("regime == 'buckled'", fields=["critical_load"])
     expected, _ = winkler_column_critical(table.stiffness_ratio.to_numpy())
     assert len(table) > 0
@@ -60,8 +55,8 @@ def test_regime_at_a_known_point_matches_the_closed_form(store):
     assert len(table) == int(np.sum(load >= winkler_column_critical(eta)[0]))
 
 
-def test_csv_round_trips_full_precision(store, capsys):
-    code, out, _ = run_cli(capsys, "query", str(store), "--where", 'regime == "stable" and load_ratio < 1',
+def test_csv_round_trips_full_precision(column_store, capsys):
+    code, out, _ = run_cli(capsys, "query", str(column_store), "--where", 'regime == "stable" and load_ratio < 1',
                            "--format", "csv", "--sort=-critical_load", "--limit", "3")
     assert code == 0
     rows = list(csv.DictReader(io.StringIO(out)))
@@ -70,12 +65,12 @@ def test_csv_round_trips_full_precision(store, capsys):
     assert values == sorted(values, reverse=True)
     assert float(rows[0]["stiffness_ratio"]) == 1000.0
     assert rows[0]["regime"] == "stable"
-    ds = open_sweep(store)
+    ds = open_sweep(column_store)
     assert float(rows[0]["load_ratio"]) == ds.load_ratio.values[0]  # repr keeps every digit
 
 
-def test_table_is_aligned_and_the_caution_goes_to_stderr(store, capsys):
-    code, out, err = run_cli(capsys, "query", str(store), "--fields", "critical_load", "--limit", "4")
+def test_table_is_aligned_and_the_caution_goes_to_stderr(column_store, capsys):
+    code, out, err = run_cli(capsys, "query", str(column_store), "--fields", "critical_load", "--limit", "4")
     assert code == 0
     lines = out.splitlines()
     assert lines[0].split() == ["stiffness_ratio", "load_ratio", "critical_load"]
@@ -119,8 +114,8 @@ def test_only_trusted_points_unless_all(faulty_store, capsys):
     "regime == \"nonexistent\"",
     "unknown_field > 1",
 ])
-def test_unsafe_or_bad_expressions_are_refused_with_exit_2(store, capsys, expr):
-    code, out, err = run_cli(capsys, "query", str(store), "--where", expr)
+def test_unsafe_or_bad_expressions_are_refused_with_exit_2(column_store, capsys, expr):
+    code, out, err = run_cli(capsys, "query", str(column_store), "--where", expr)
     assert code == 2
     assert out == ""
     assert err.startswith("sweepshell: error: --where") and err.count("\n") == 1
@@ -135,19 +130,19 @@ def test_checker_accepts_the_documented_grammar():
         check_expression("z > 1", columns)
 
 
-def test_bad_fields_sort_and_missing_store_are_one_line_errors(store, tmp_path, capsys):
+def test_bad_fields_sort_and_missing_store_are_one_line_errors(column_store, tmp_path, capsys):
     for argv in (["--fields", "nope"], ["--fields", "load_path"], ["--sort", "nope"], ["--fields", " , "],
                  ["--limit", "-1"]):
-        code, out, err = run_cli(capsys, "query", str(store), *argv)
+        code, out, err = run_cli(capsys, "query", str(column_store), *argv)
         assert code == 2 and out == "" and err.count("\n") == 1, argv
     code, out, err = run_cli(capsys, "query", str(tmp_path / "missing.zarr"))
     assert code == 2 and "no store" in err
 
 
-def test_accessor_and_cli_agree(store, capsys):
-    ds = open_sweep(store)
+def test_accessor_and_cli_agree(column_store, capsys):
+    ds = open_sweep(column_store)
     table = ds.sweep.query("load_ratio > 30", fields=["margin", "regime"], sort="margin")
-    _, out, _ = run_cli(capsys, "query", str(store), "--where", "load_ratio > 30", "--fields", "margin,regime",
+    _, out, _ = run_cli(capsys, "query", str(column_store), "--where", "load_ratio > 30", "--fields", "margin,regime",
                         "--sort", "margin", "--format", "json")
     rows = json.loads(out)
     assert len(rows) == len(table)

@@ -7,47 +7,26 @@ import os
 import shutil
 import sqlite3
 from pathlib import Path
-from typing import Any
 
 import numpy as np
 import pytest
 
-from sweepshell import run_sweep
 from sweepshell.cli.main import main
-from sweepshell.config.loader import build_plan
 from sweepshell.models.base import Status
 from sweepshell.store.catalog import CATALOG_FILE, find_compatible_stores, read_catalog
+from tests.conftest import run_column_store
 
 ETA = [0.1, 1.0, 10.0, 100.0]
 LOAD = [0.5, 1.0, 5.0, 20.0, 40.0]
-
-
-def make_column_store(path: Path, stiffness_ratio: list[Any], load_ratio: list[Any], *,
-                      settings: dict[str, Any] | None = None, fixed: dict[str, Any] | None = None,
-                      block_points: int = 10, name: str = "column", reuse: bool = False) -> Path:
-    """Run the cheap winkler_column model over a grid into ``path`` (threads executor); return the path.
-
-    Shared by the store tests (catalog, merge, verify, export) and the CLI tests. Reuse of
-    points from sibling stores is off by default, so every store is an independent computation
-    (a reference to compare a merge against must not be a copy of its sources).
-    """
-    plan = build_plan({"name": name, "model": "winkler_column", "settings": settings or {},
-                       "fixed": fixed if fixed is not None else {"end": "pinned"},
-                       "axes": {"stiffness_ratio": stiffness_ratio, "load_ratio": load_ratio},
-                       "store": {"path": str(path)}, "executor": {"kind": "threads", "workers": 1},
-                       "block": {"points": block_points}, "reuse": reuse})
-    summary = run_sweep(plan)
-    assert summary.complete and summary.computed == summary.total
-    return path
 
 
 @pytest.fixture(scope="module")
 def results_template(tmp_path_factory) -> Path:
     """A results folder with three stores: two of one model version/settings, one with other settings."""
     root = tmp_path_factory.mktemp("catalog") / "results"
-    make_column_store(root / "a.zarr", ETA, LOAD)
-    make_column_store(root / "team" / "b.zarr", [1000.0, 2000.0], LOAD)
-    make_column_store(root / "c.zarr", ETA, [1.0, 2.0], settings={"path_samples": 4})
+    run_column_store(root / "a.zarr", ETA, LOAD)
+    run_column_store(root / "team" / "b.zarr", [1000.0, 2000.0], LOAD)
+    run_column_store(root / "c.zarr", ETA, [1.0, 2.0], settings={"path_samples": 4})
     return root
 
 

@@ -17,7 +17,7 @@ from sweepshell.errors import StoreMismatchError
 from sweepshell.models.base import Status
 from sweepshell.store.merge import MergeConflictError, merge_stores, union_axis_values
 from sweepshell.store.summary import summarize_store
-from tests.store.test_catalog import make_column_store
+from tests.conftest import run_column_store
 
 ETA = [0.1, 1.0, 10.0, 100.0, 1000.0]
 LOAD = [0.5, 1.0, 5.0, 20.0, 40.0]
@@ -29,10 +29,10 @@ def stores(tmp_path_factory) -> dict[str, Path]:
     root = tmp_path_factory.mktemp("merge")
     return {
         # B is given in reverse order: the merged axis is sorted all the same
-        "a": make_column_store(root / "a.zarr", ETA[:3], LOAD),
-        "b": make_column_store(root / "b.zarr", ETA[:1:-1], LOAD),
-        "b2": make_column_store(root / "b2.zarr", ETA[2:], LOAD[:3]),
-        "u": make_column_store(root / "u.zarr", ETA, LOAD),
+        "a": run_column_store(root / "a.zarr", ETA[:3], LOAD),
+        "b": run_column_store(root / "b.zarr", ETA[:1:-1], LOAD),
+        "b2": run_column_store(root / "b2.zarr", ETA[2:], LOAD[:3]),
+        "u": run_column_store(root / "u.zarr", ETA, LOAD),
     }
 
 

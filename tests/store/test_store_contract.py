@@ -11,7 +11,7 @@ import xarray as xr
 
 from sweepshell import CAUTION, __version__, open_sweep, run_sweep
 from sweepshell.errors import StoreSchemaError
-from sweepshell.store import layout
+from sweepshell.store import metadata
 from tests.conftest import COLUMN_SWEEP, write_sweep
 
 
@@ -38,7 +38,7 @@ def test_plain_xarray_sees_labelled_axes_outputs_ledger_and_provenance(store):
                                                         "outside_validity", "failed"]
     assert ds.regime.attrs["flag_meanings"].split() == ["none", "stable", "buckled"]
     a = ds.attrs
-    assert a["sweepshell_version"] == __version__ and a["sweepshell_schema"] == layout.SCHEMA_VERSION
+    assert a["sweepshell_version"] == __version__ and a["sweepshell_schema"] == metadata.SCHEMA_VERSION
     assert a["model"] == "winkler_column" and a["model_version"] == "1.0"
     assert json.loads(a["model_settings_json"])["path_samples"] == 8
     assert json.loads(a["fixed_parameters_json"]) == {"end": "pinned"}

@@ -16,7 +16,7 @@ from sweepshell.cli.main import main
 from sweepshell.config.loader import build_plan
 from sweepshell.models.base import Status
 from sweepshell.store.verify import verify_store
-from tests.store.test_catalog import make_column_store
+from tests.conftest import run_column_store
 
 ETA = [0.1, 1.0, 10.0, 100.0, 1000.0]
 LOAD = [0.5, 1.0, 5.0, 20.0, 40.0]
@@ -24,7 +24,7 @@ LOAD = [0.5, 1.0, 5.0, 20.0, 40.0]
 
 @pytest.fixture(scope="module")
 def clean_store(tmp_path_factory) -> Path:
-    return make_column_store(tmp_path_factory.mktemp("verify") / "v.zarr", ETA, LOAD)
+    return run_column_store(tmp_path_factory.mktemp("verify") / "v.zarr", ETA, LOAD)
 
 
 @pytest.fixture

@@ -1,0 +1,359 @@
+"""Linear stability of axisymmetric cap states against ``cos nθ`` modes (shallow-cap model).
+
+Notation of :mod:`sweepshell.models.shallow_cap.model`. About an axisymmetric state with slope and
+curvature ``ζ'``, ``ζ''`` of the deformed surface and compressive stress-function slope
+``f = −Φ₀'``, the perturbation ``w(x) cos nθ``, ``Φ(x) cos nθ`` satisfies (times x²)::
+
+    x²(∇⁴w − [Φ₀, w] − [Φ, ζ]) = 0,      x²(∇⁴Φ + [ζ, w]) = 0,
+
+with two edge conditions per field (``w = 0``, clamped ``w' = 0`` or pinned ``M_r = 0``;
+immovable ``u_r = u_θ = 0`` or sliding ``N_r = N_rθ = 0``). The collocated matrix is
+
+    [[A(z), B(z)], [C(z), S]],
+
+and its stress block ``S`` (in-plane bilaplacian with its edge rows) does not depend on the
+state. So ``det = det S · det(A − B S⁻¹ C)`` and the state-dependent factor, an ``M``-square
+determinant instead of a ``2M``-square one, carries every sign change along a path. ``S⁻¹`` is
+folded into two fixed matrices per wave number, Poisson's ratio and in-plane edge.
+
+Apex-force states: the stability grid is finer than the state's
+-----------------------------------------------------------------
+Under a point load the surface curvature ``ζ''`` (and ``ζ'/x``) of the state grows like
+``log x`` at the apex. Collocating the operator with that curvature sampled at the nodes, or
+with the interpolant of the state on its own grid, is not a convergent discretisation. With
+the log sampled, the eigenvalues' rate of change with the force at zero force grows like the
+node count (λ = 10, n = 2, over λ⁴ per unit force P: −70, −109, −159, −213 for 24, 34, 48, 64
+nodes; on the refined grid below +0.082 at all four), so n = 2, 3 determinants change sign at
+the first loaded step. With the state's interpolant on its own grid, at λ = 10 and δ ≈ h, the n = 3
+operator has an eigenvalue of −22, −75, −232, −604 λ⁴ (24 … 64 nodes; its eigenvector sits on
+the innermost nodes) and n = 4 converges to a value 14 % too high. The continuous operator is
+well posed: in displacement form its quadratic form depends on the slope ``ζ'`` (bounded,
+``x log x``) and the prestress (bounded) only, so its eigenvalues depend continuously on ``ζ'``
+in the maximum norm. Apex-force states are therefore analysed as the polynomial interpolant of
+the discrete state (slope ``ζ'`` and stress slope ``f`` on the state's ``M`` nodes, degree
+``2M − 1``; ``ζ''`` and ``f'`` its exact derivatives) on a grid of
+``APEX_STABILITY_REFINEMENT·M`` nodes that resolves that polynomial. The interpolant
+converges uniformly to the state as ``M`` grows, and for a fixed interpolant the eigenvalues
+converge with the stability grid: at λ = 10, δ ≈ h the lowest eigenvalues of n = 2, 3, 4 over
+λ⁴ are 1.3724, 1.4645, 1.6489 on 3M and 4M nodes for M = 24, 34, 48 (within 4·10⁻⁴). A 2M grid
+is enough at λ = 10 but not at λ = 20 (spurious modes again), hence 3M; this costs about
+8× the scan of a pressure point.
+Pressure and mismatch states keep the state's grid (a sharp-edged mismatch strain's kink is
+handled by that grid's node on the edge, see :mod:`sweepshell.numerics.radial_chebyshev`).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from functools import lru_cache
+
+import numpy as np
+
+from sweepshell.models.shallow_cap.compiled import assemble_reduced_stability
+from sweepshell.models.shallow_cap.kernels import CapPathProblem
+from sweepshell.numerics.radial_chebyshev import make_interpolation_matrix, make_radial_grid, to_chebyshev_coordinate
+
+__all__ = [
+    "APEX_STABILITY_REFINEMENT",
+    "ModeCoefficients",
+    "build_mode_matrices",
+    "compute_mode_coefficients",
+    "compute_mode_determinants",
+    "count_unstable_modes",
+    "make_mode_operators",
+    "select_stability_nodes",
+]
+
+APEX_STABILITY_REFINEMENT = 3
+
+
+@dataclass(frozen=True)
+class FieldOperators:
+    """Values and derivatives of ``x^m v`` (rows: nodes, columns: half-grid values of ``v``)."""
+
+    w0: np.ndarray
+    w1: np.ndarray
+    w2: np.ndarray
+    w3_edge: np.ndarray
+    bilaplacian: np.ndarray  # x² ∇⁴_n (x^m v)
+    bracket: np.ndarray  # x (x^m v)' − n² x^m v, the radial part of x² [ζ₀-like, ·]
+
+
+@dataclass(frozen=True)
+class ModeOperators:
+    """State-independent pieces of the stability matrix of circumferential wave number n.
+
+    The deflection is ``w = x^m v`` with ``m = min(n, 2)``, so the polynomial ``v`` excludes the
+    non-smooth ``x^0 cos 2θ``; the stress function is ``Φ = x^m φ`` with ``m = 3`` for n = 1,
+    which removes the stress-free gauge ``Φ = x cos θ`` (a linear function, zero stress).
+    """
+
+    n: int
+    deflection: FieldOperators
+    stress: FieldOperators
+
+
+def _field_operators(size: int, n: int, m: int, stretch: float, centre: float) -> FieldOperators:
+    g = make_radial_grid(size, stretch, centre)
+    x = g.x
+    pv = 1 if (n - m) % 2 == 0 else -1
+    pn = 1 if n % 2 == 0 else -1
+    d1, d2, d3 = g.d1[pv], g.d2[pv], g.d3[pv]
+    xm = x**m
+    eye = np.eye(size)
+    w0 = np.diag(xm)
+    w1 = np.diag(m * x ** (m - 1)) + xm[:, None] * d1
+    w2 = np.diag(m * (m - 1) * x ** (m - 2)) + (2 * m * x ** (m - 1))[:, None] * d1 + xm[:, None] * d2
+    w3_edge = m * (m - 1) * (m - 2) * eye[0] + 3 * m * (m - 1) * d1[0] + 3 * m * d2[0] + d3[0]
+    lap = (x ** (m - 2))[:, None] * ((x**2)[:, None] * d2 + ((2 * m + 1) * x)[:, None] * d1 + (m * m - n * n) * eye)
+    outer = (x**2)[:, None] * g.d2[pn] + x[:, None] * g.d1[pn] - n * n * eye
+    return FieldOperators(w0=w0, w1=w1, w2=w2, w3_edge=w3_edge, bilaplacian=outer @ lap,
+                          bracket=x[:, None] * w1 - n * n * w0)
+
+
+@lru_cache(maxsize=512)
+def make_mode_operators(size: int, n: int, stretch: float = 0.0, centre: float = 0.0) -> ModeOperators:
+    """Return the operators of wave number ``n ≥ 1`` on a half grid of ``size`` nodes (cached).
+
+    ``stretch`` and ``centre`` choose the grid map (see
+    :func:`~sweepshell.numerics.radial_chebyshev.make_radial_grid`).
+    """
+    return ModeOperators(n=n, deflection=_field_operators(size, n, 1 if n == 1 else 2, stretch, centre),
+                         stress=_field_operators(size, n, 3 if n == 1 else 2, stretch, centre))
+
+
+def _stress_edge_rows(ops: ModeOperators, nu: float, immovable: bool) -> tuple[np.ndarray, np.ndarray]:
+    """Return the two edge rows of the stress block (``u_r = u_θ = 0`` or ``N_r = N_rθ = 0``)."""
+    so = ops.stress
+    f0, f1, f2, f3 = so.w0[0], so.w1[0], so.w2[0], so.w3_edge
+    if not immovable:
+        if ops.n == 1:
+            # N_r and N_rθ of cos θ both reduce to F' − F: one condition; the other row keeps the
+            # interior equation at the second node (see _sliding_n1)
+            return f1 - f0, so.bilaplacian[1]
+        return f0, f1
+    n2 = ops.n * ops.n
+    # immovable: ε_θ = 0 and ∂_r(r ε_θ) − ε_r − ∂_θ γ + ζ' w' = 0 (u_r = u_θ = 0 along the edge);
+    # the ζ' w' part couples to the deflection and sits in the C block
+    e_theta = f2 - nu * (f1 - n2 * f0)
+    de_theta = f3 - nu * (f2 - f1 - n2 * f1 + 2 * n2 * f0)
+    e_r = (f1 - n2 * f0) - nu * f2
+    shear = 2.0 * (1.0 + nu) * n2 * (f1 - f0)
+    return e_theta, de_theta - e_r - shear
+
+
+@lru_cache(maxsize=2048)
+def _make_stress_reduction(size: int, n: int, nu: float, immovable: bool, stretch: float = 0.0,
+                           centre: float = 0.0) -> np.ndarray:
+    """Return ``[P₁; P₂] S⁻¹`` (``2M × M``), the fixed part of ``B S⁻¹`` (cached).
+
+    ``B = −(diag(ζ'') P₁ + diag(x ζ') P₂)`` with ``P₁ = x φ' − n² φ``, ``P₂ = φ''`` operators on
+    the stress function, zero on the two edge rows.
+    """
+    ops = make_mode_operators(size, n, stretch, centre)
+    so = ops.stress
+    s = so.bilaplacian.copy()
+    s[0], s[1] = _stress_edge_rows(ops, nu, immovable)
+    p = np.concatenate([so.bracket, so.w2], axis=0)
+    k = np.linalg.solve(s.T, p.T).T
+    k[[0, 1, size, size + 1]] = 0.0
+    k.setflags(write=False)
+    return k
+
+
+@dataclass(frozen=True)
+class ModeCoefficients:
+    """State-dependent coefficients of the stability operators, ``(k, M)`` each.
+
+    ``f``, ``df``: compressive stress-function slope ``−Φ₀'`` and its derivative; ``zeta1``,
+    ``zeta2``: slope and curvature of the deformed surface; plus the point's ``nu``,
+    ``clamped`` and ``immovable`` flags ``(k,)``.
+    """
+
+    f: np.ndarray
+    df: np.ndarray
+    zeta1: np.ndarray
+    zeta2: np.ndarray
+    nu: np.ndarray
+    clamped: np.ndarray
+    immovable: np.ndarray
+
+
+def select_stability_nodes(problem: CapPathProblem, idx: np.ndarray) -> np.ndarray:
+    """Return the node count of each state's stability grid, ``(k,)``.
+
+    ``APEX_STABILITY_REFINEMENT`` times the state's nodes for apex-force states (see the module
+    docstring), the state's own nodes otherwise.
+    """
+    return np.where(problem.apex[idx], APEX_STABILITY_REFINEMENT * problem.size, problem.size)
+
+
+@lru_cache(maxsize=32)
+def _make_refinement(size: int, nodes: int, stretch: float = 0.0,
+                     centre: float = 0.0) -> tuple[np.ndarray, np.ndarray]:
+    """Return ``(E, D E)``: values and slopes at the ``nodes`` grid of the odd interpolant on ``size`` nodes.
+
+    The interpolation runs in the Chebyshev coordinate ξ of the ``size`` grid. The cubic map of
+    ``stretch`` is the same for every node count, so there the fine grid's ξ are its unstretched
+    nodes; the clustered map of ``centre`` depends on the node count, so its ξ are computed.
+    """
+    fine = make_radial_grid(nodes, stretch, centre)
+    xi = make_radial_grid(nodes).x if centre == 0.0 else to_chebyshev_coordinate(fine.x, size, stretch, centre)
+    e = make_interpolation_matrix(size, -1, xi)
+    de = fine.d1[-1] @ e
+    e.setflags(write=False)
+    de.setflags(write=False)
+    return e, de
+
+
+def compute_mode_coefficients(problem: CapPathProblem, z: np.ndarray, idx: np.ndarray,
+                              nodes: int | None = None) -> ModeCoefficients:
+    """Return the stability coefficients of axisymmetric states ``z`` ``(k, 2M+1)``.
+
+    Parameters
+    ----------
+    nodes
+        Node count of the stability grid (default: the state's ``M``). On another grid the
+        coefficients are those of the polynomial interpolant of the state's slope ``ζ'`` and
+        stress slope ``f`` (their derivatives exact), which is how apex-force states are
+        analysed (:func:`select_stability_nodes`); that path ignores the mismatch strain's
+        exact stress slope, so it is meant for pressure and apex-force states.
+    """
+    g = problem.grid
+    x = g.x
+    lam2 = problem.lam[idx] ** 2
+    y, _, _, p = problem.split(z, idx)
+    fs, dfs_eigen = problem.total_stress(z, idx)
+    kap = problem.kappa[idx]
+    ybar = y + (kap * p)[:, None] * problem.sigma[None, :]
+    imp = problem.imperfection[idx]
+    if nodes is not None and nodes != g.size:
+        e, de = _make_refinement(g.size, int(nodes), g.stretch, g.centre)
+        slope = ybar - (x[None, :] - imp)
+        return ModeCoefficients(
+            f=lam2[:, None] * (fs @ e.T), df=lam2[:, None] * (fs @ de.T),
+            zeta1=lam2[:, None] * (slope @ e.T), zeta2=lam2[:, None] * (slope @ de.T),
+            nu=problem.nu[idx], clamped=problem.clamped[idx], immovable=problem.immovable[idx])
+    # the mismatch strain's stress F_p is kinked at the region's edge: its slope is exact, not
+    # a derivative of the interpolant
+    dfs = (z[:, g.size:2 * g.size] @ g.d1[-1].T) + dfs_eigen
+    d1t = g.d1[-1].T
+    dybar = y @ d1t + (kap * p)[:, None] * problem.dsigma[None, :]
+    dimp = imp @ d1t
+    return ModeCoefficients(
+        f=lam2[:, None] * fs, df=lam2[:, None] * dfs,
+        zeta1=lam2[:, None] * (-(x[None, :] - imp) + ybar),
+        zeta2=lam2[:, None] * (-(1.0 - dimp) + dybar),
+        nu=problem.nu[idx], clamped=problem.clamped[idx], immovable=problem.immovable[idx])
+
+
+def _deflection_blocks(ops: ModeOperators, x: np.ndarray, co: ModeCoefficients) -> tuple[np.ndarray, np.ndarray]:
+    """Return the ``A`` and ``C`` blocks ``(k, M, M)`` with their edge rows."""
+    wo = ops.deflection
+    a = wo.bilaplacian + co.df[:, :, None] * wo.bracket + (x * co.f)[:, :, None] * wo.w2
+    a[:, 0] = wo.w0[0]
+    a[:, 1] = np.where(co.clamped[:, None], wo.w1[0][None, :], wo.w2[0][None, :] + co.nu[:, None] * wo.w1[0][None, :])
+    c = co.zeta2[:, :, None] * wo.bracket + (x * co.zeta1)[:, :, None] * wo.w2
+    c[:, 0] = 0.0
+    # sliding n = 1 has a single in-plane edge condition: row 1 stays the interior equation
+    keep = ~co.immovable if ops.n == 1 else np.zeros_like(co.immovable)
+    c[:, 1] = np.where(co.immovable[:, None], co.zeta1[:, :1] * wo.w1[0][None, :],
+                       np.where(keep[:, None], c[:, 1], 0.0))
+    return a, c
+
+
+def build_mode_matrices(ops: ModeOperators, x: np.ndarray, co: ModeCoefficients) -> np.ndarray:
+    """Return the full ``(k, 2M, 2M)`` stability matrices of wave number ``ops.n`` (for tests)."""
+    k, m = co.f.shape
+    so = ops.stress
+    out = np.zeros((k, 2 * m, 2 * m))
+    out[:, :m, :m], out[:, m:, :m] = _deflection_blocks(ops, x, co)
+    out[:, :m, m:] = -(co.zeta2[:, :, None] * so.bracket + (x * co.zeta1)[:, :, None] * so.w2)
+    out[:, :2, m:] = 0.0
+    out[:, m:, m:] = so.bilaplacian
+    for i in range(k):
+        out[i, m, m:], out[i, m + 1, m:] = _stress_edge_rows(ops, float(co.nu[i]), bool(co.immovable[i]))
+    return out
+
+
+def _reduced_matrices(problem: CapPathProblem, co: ModeCoefficients, modes: np.ndarray):  # type: ignore[no-untyped-def]
+    """Yield ``(j, n, A − B S⁻¹ C)`` ``(k, M, M)`` for each wave number of ``modes`` (on the grid of ``co``)."""
+    stretch, centre = problem.grid.stretch, problem.grid.centre
+    m = co.f.shape[1]
+    x = problem.grid.x if m == problem.size else make_radial_grid(m, stretch, centre).x
+    keys = list(zip(co.nu.tolist(), co.immovable.tolist(), strict=True))
+    unique = sorted(set(keys))
+    group = np.array([unique.index(key) for key in keys], dtype=np.int64) if len(unique) > 1 \
+        else np.zeros(len(keys), dtype=np.int64)
+    f, df, zeta1, zeta2 = (np.ascontiguousarray(v) for v in (co.f, co.df, co.zeta1, co.zeta2))
+    for j, n in enumerate(modes):
+        ops = make_mode_operators(m, int(n), stretch, centre)
+        wo = ops.deflection
+        reduction = np.stack([_make_stress_reduction(m, int(n), nu, im, stretch, centre) for nu, im in unique])
+        a = assemble_reduced_stability(wo.bilaplacian, wo.bracket, wo.w2, wo.w0[0].copy(), wo.w1[0].copy(),
+                                       wo.w2[0].copy(), x, reduction, group, f, df, zeta1, zeta2,
+                                       co.nu.astype(float), co.clamped.astype(bool), co.immovable.astype(bool),
+                                       int(n) == 1)
+        yield j, int(n), a
+
+
+def compute_mode_determinants(problem: CapPathProblem, z: np.ndarray, idx: np.ndarray, modes: np.ndarray,
+                              coefficients: ModeCoefficients | None = None) -> tuple[np.ndarray, np.ndarray]:
+    """Return ``(sign, log|det|)`` of the reduced stability matrices, shape ``(k, len(modes))``.
+
+    The determinant is that of ``A − B S⁻¹ C``: the full one divided by the state-independent
+    ``det S``, so its sign changes and log-differences along a path are those of the full one.
+    Each state is analysed on its :func:`select_stability_nodes` grid (fixed per cap, so
+    determinants of one cap's states stay comparable).
+
+    Parameters
+    ----------
+    z
+        ``(k, 2M+1)`` axisymmetric states.
+    idx
+        ``(k,)`` problem indices of the states.
+    modes
+        Wave numbers ``n ≥ 1``.
+    coefficients
+        Precomputed :func:`compute_mode_coefficients` of the same states, if at hand (their
+        grid is used for every state).
+    """
+    sign = np.empty((z.shape[0], len(modes)))
+    logdet = np.empty_like(sign)
+    for rows, co in _group_coefficients(problem, z, idx, coefficients):
+        for j, _, a in _reduced_matrices(problem, co, modes):
+            sign[rows, j], logdet[rows, j] = np.linalg.slogdet(a)
+    return sign, logdet
+
+
+def _group_coefficients(problem: CapPathProblem, z: np.ndarray, idx: np.ndarray,
+                        coefficients: ModeCoefficients | None = None):  # type: ignore[no-untyped-def]
+    """Yield ``(rows, coefficients)`` per stability grid of the states."""
+    if coefficients is not None:
+        yield np.arange(z.shape[0]), coefficients
+        return
+    nodes = select_stability_nodes(problem, idx)
+    for size in np.unique(nodes):
+        rows = np.nonzero(nodes == size)[0]
+        yield rows, compute_mode_coefficients(problem, z[rows], idx[rows], int(size))
+
+
+def count_unstable_modes(problem: CapPathProblem, z: np.ndarray, idx: np.ndarray, modes: np.ndarray) -> np.ndarray:
+    """Return how many eigenvalues of each ``cos nθ`` stability operator are negative, ``(k, len(modes))``.
+
+    The eigenproblem is ``x²(L_n w) = σ x² w`` with ``L_n`` the linearised operator (stress
+    function eliminated); its two edge rows are eliminated exactly, which leaves a standard
+    eigenproblem on the interior nodes. A count, unlike a determinant's sign, also sees two
+    eigenvalues of one wave number that became negative together. Each state is analysed on
+    its :func:`select_stability_nodes` grid.
+    """
+    out = np.zeros((z.shape[0], len(modes)), dtype=int)
+    for rows, co in _group_coefficients(problem, z, idx):
+        x = make_radial_grid(co.f.shape[1], problem.grid.stretch, problem.grid.centre).x
+        for j, n, a in _reduced_matrices(problem, co, modes):
+            edge, edge_in = a[:, :2, :2], a[:, :2, 2:]
+            inner = a[:, 2:, 2:] - a[:, 2:, :2] @ np.linalg.solve(edge, edge_in)
+            mass = x[2:] ** ((1 if n == 1 else 2) + 2)
+            sigma = np.linalg.eigvals(inner / mass[None, :, None])
+            out[rows, j] = np.count_nonzero(sigma.real < 0.0, axis=1)
+    return out
