@@ -28,6 +28,7 @@ from sweepshell.errors import ConfigError, ParameterError, SweepshellError, Unkn
 from sweepshell.models import get_model
 from sweepshell.models.base import SweepModel
 from sweepshell.plan import Axis, ExecutorSpec, SweepPlan
+from sweepshell.store.integrity import check_model_limits, check_store_path
 
 __all__ = [
     "PACKAGED_CONFIGS",
@@ -41,6 +42,8 @@ __all__ = [
 SWEEP_KEYS = ("name", "model", "settings", "fixed", "axes", "store", "executor", "block", "limits",
               "description", "reuse", "refine")
 EXECUTOR_KINDS = ("local", "threads", "distributed")
+DEFAULT_MAX_POINTS = 20_000_000
+MAX_WORKERS = 512
 _NAME_RE = re.compile(r"^[A-Za-z0-9][A-Za-z0-9_.-]*$")
 
 
@@ -113,6 +116,9 @@ def parse_overrides(overrides: Sequence[str]) -> list[Any]:
     parser = OverridesParser.create()
     parsed = []
     for text in overrides:
+        if "${" in text:
+            raise ConfigError(f"override {text!r} uses ${{...}} interpolation, which sweeps do not support; "
+                              "write the value itself", field="override", value=text)
         try:
             parsed.append(parser.parse_override(text))
         except HydraException as exc:
@@ -145,8 +151,44 @@ def _compose_base(config_dir: Path, group_overrides: list[str]) -> DictConfig:
     return cfg
 
 
+#: largest sweep file read, bytes (a sweep is a few hundred bytes; this bounds what a loader ever builds)
+MAX_SWEEP_FILE_BYTES = 256_000
+
+
+class _YamlRefused(yaml.YAMLError):
+    """A construct sweep files may not use (anchors, aliases, duplicate keys)."""
+
+    def __init__(self, what: str, line: int | None) -> None:
+        super().__init__(what)
+        self.what = what
+        self.line = line
+
+
 class _SweepYamlLoader(yaml.SafeLoader):
-    """Safe YAML that also reads ``70.0e9`` and ``1e-3`` as numbers (YAML 1.1 wants a dot and a sign)."""
+    """Safe YAML that also reads ``70.0e9`` and ``1e-3`` as numbers (YAML 1.1 wants a dot and a sign).
+
+    Anchors and aliases are refused as they are met, before any node is built from them, so an
+    alias bomb costs nothing; a key given twice in one mapping is refused instead of silently
+    keeping the last value.
+    """
+
+    def compose_node(self, parent: Any, index: Any) -> Any:
+        event = self.peek_event()
+        if isinstance(event, yaml.AliasEvent) or getattr(event, "anchor", None) is not None:
+            raise _YamlRefused("anchors and aliases (& and *) are not allowed; write the values out",
+                               event.start_mark.line if event.start_mark else None)
+        return super().compose_node(parent, index)
+
+    def construct_mapping(self, node: Any, deep: bool = False) -> Any:
+        if isinstance(node, yaml.MappingNode):
+            seen: set[Any] = set()
+            for key_node, _ in node.value:
+                key = self.construct_object(key_node, deep=True)
+                if isinstance(key, (str, int, float, bool)) and key in seen:
+                    raise _YamlRefused(f"key {key!r} is given twice; keep one",
+                                       key_node.start_mark.line if key_node.start_mark else None)
+                seen.add(key)
+        return super().construct_mapping(node, deep=deep)
 
 
 _SweepYamlLoader.add_implicit_resolver(
@@ -157,8 +199,26 @@ _SweepYamlLoader.add_implicit_resolver(
 
 def _load_sweep_yaml(path: Path) -> DictConfig:
     try:
+        size = path.stat().st_size
+    except OSError as exc:
+        raise ConfigError(f"sweep file {path} cannot be read ({exc.strerror}); check the path",
+                          field="sweep", value=str(path)) from None
+    if size > MAX_SWEEP_FILE_BYTES:
+        raise ConfigError(f"sweep file {path} is {size} bytes, above {MAX_SWEEP_FILE_BYTES}; a sweep file names "
+                          "axes by their form (linspace, logspace, range), not by listing huge value tables",
+                          field="sweep", value=str(path))
+    try:
         text = path.read_text()
         data = yaml.load(text, Loader=_SweepYamlLoader)  # a SafeLoader subclass: builds plain data only
+    except UnicodeDecodeError:
+        raise ConfigError(f"sweep file {path} is not UTF-8 text; save it as UTF-8", field="sweep",
+                          value=str(path)) from None
+    except _YamlRefused as exc:
+        where = f" at line {exc.line + 1}" if exc.line is not None else ""
+        raise ConfigError(f"sweep file {path}{where}: {exc.what}", field="sweep", value=str(path)) from None
+    except RecursionError:
+        raise ConfigError(f"sweep file {path} is nested too deeply; a sweep is a few flat mappings",
+                          field="sweep", value=str(path)) from None
     except yaml.YAMLError as exc:
         line = getattr(getattr(exc, "problem_mark", None), "line", None)
         where = f" at line {line + 1}" if line is not None else ""
@@ -173,7 +233,26 @@ def _load_sweep_yaml(path: Path) -> DictConfig:
                           f"{', '.join(SWEEP_KEYS)}", field=unknown[0], value=unknown)
     if "name" not in data:
         data["name"] = path.stem
+    _check_no_interpolation(data, f"sweep file {path}")
     return OmegaConf.create(data)
+
+
+def _check_no_interpolation(value: Any, where: str, key: str = "") -> None:
+    """Refuse ``${...}`` anywhere: nothing in a sweep is resolved from the environment or other keys.
+
+    The recorded sweep is then exactly what was written, and no resolver (``oc.env``, loops, missing
+    keys) ever runs on user input.
+    """
+    if isinstance(value, str) and "${" in value:
+        raise ConfigError(f"{where}: {key or 'a value'}={value[:60]!r} uses ${{...}} interpolation, which sweeps "
+                          "do not support; write the value itself", field=key or None, value=value[:60])
+    if isinstance(value, dict):
+        for k, v in value.items():
+            _check_no_interpolation(str(k), where, key)
+            _check_no_interpolation(v, where, f"{key}.{k}" if key else str(k))
+    elif isinstance(value, (list, tuple)):
+        for v in value:
+            _check_no_interpolation(v, where, key)
 
 
 def load_plan(sweep: str, overrides: Sequence[str] = (), *, config_dir: str | os.PathLike[str] | None = None,
@@ -199,6 +278,11 @@ def load_plan(sweep: str, overrides: Sequence[str] = (), *, config_dir: str | os
     parsed = parse_overrides(overrides)
     group = [f"executor={o.value()}" for o in parsed
              if o.key_or_group == "executor" and isinstance(o.value(), str) and not o.is_sweep_override()]
+    presets = sorted(f.stem for f in (cdir / "executor").glob("*.yaml"))
+    for choice in group:
+        if choice.split("=", 1)[1] not in presets:  # a preset name, never a path (executor=../sweep/x)
+            raise ConfigError(f"{choice} is not an executor preset; executor presets are {', '.join(presets)} "
+                              "(or set executor.kind/workers/address directly)", field="executor", value=choice)
     base = _compose_base(cdir, group)
     OmegaConf.set_struct(base, False)
     cfg = OmegaConf.merge(base, _load_sweep_yaml(path))
@@ -221,6 +305,7 @@ def load_plan(sweep: str, overrides: Sequence[str] = (), *, config_dir: str | os
                 raise ConfigError(f"override {o.input_line!r} sweeps a value outside axes; only axes.NAME "
                                   "takes several values (a list or range(...))", field=key,
                                   value=o.input_line)
+            _check_sweep_size(o, max_points_of(cfg))
             try:
                 values = list(o.sweep_iterator())
             except Exception:
@@ -242,6 +327,36 @@ def load_plan(sweep: str, overrides: Sequence[str] = (), *, config_dir: str | os
         raise ConfigError("executor=distributed needs an address; add executor.address=tcp://HOST:PORT",
                           field="executor.address")
     return build_plan({str(k): v for k, v in container.items()}, source=str(path))
+
+
+def max_points_of(cfg: Any) -> int:
+    """Return the sweep's point limit (``limits.max_points``) before the plan is validated."""
+    try:
+        value = OmegaConf.select(cfg, "limits.max_points", default=None)
+    except Exception:
+        value = None
+    if isinstance(value, (int, float)) and not isinstance(value, bool) and math.isfinite(value) and value >= 1:
+        return int(value)
+    return DEFAULT_MAX_POINTS
+
+
+def _check_sweep_size(override: Any, max_points: int) -> None:
+    """Refuse a ``range(...)`` override with more values than the grid may hold, before expanding it."""
+    from hydra.core.override_parser.types import RangeSweep
+
+    value = override.value()
+    if not isinstance(value, RangeSweep):
+        return
+    start, stop, step = value.start, value.stop, value.step if value.step is not None else 1
+    if not (isinstance(start, (int, float)) and isinstance(stop, (int, float)) and isinstance(step, (int, float))
+            and all(math.isfinite(v) for v in (start, stop, step)) and step != 0):
+        raise ConfigError(f"override {override.input_line!r}: range(start, stop, step) needs finite numbers and a "
+                          "non-zero step", field=override.key_or_group, value=override.input_line)
+    count = max(0, math.ceil((stop - start) / step))
+    if count > max_points:
+        raise ConfigError(f"override {override.input_line!r} gives {count:.3g} values, above limits.max_points="
+                          f"{max_points}; use a larger step", field=override.key_or_group,
+                          value=override.input_line)
 
 
 def _delete_key(cfg: DictConfig, key: str) -> None:
@@ -286,6 +401,19 @@ def build_plan(cfg: Mapping[str, Any], *, source: str = "<dict>") -> SweepPlan:
     if not axes_in:
         raise ConfigError("the sweep has no axes; add at least one under axes: (e.g. "
                           "shell_parameter: {linspace: [3, 12, 10]})", field="axes")
+    if not isinstance(axes_in, dict):
+        raise ConfigError("axes must be a mapping of parameter name to values", field="axes", value=axes_in)
+    limits = cfg.get("limits") or {}
+    if not isinstance(limits, dict):
+        raise ConfigError("limits must be a mapping (limits: {max_points: N})", field="limits", value=limits)
+    max_points = _positive_int(limits.get("max_points", DEFAULT_MAX_POINTS), "limits.max_points")
+    # the grid size comes from the axis forms, before any axis is expanded into values
+    lengths = {pname: _axis_length(f"axes.{pname}", spec) for pname, spec in axes_in.items()}
+    if math.prod(lengths.values()) > max_points:
+        shape = " x ".join(str(n) for n in lengths.values())
+        raise ConfigError(f"the grid has {math.prod(lengths.values())} points ({shape}), above "
+                          f"limits.max_points={max_points}; use fewer axis values or raise limits.max_points",
+                          field="axes", value=math.prod(lengths.values()))
     axes: list[Axis] = []
     for pname, spec in axes_in.items():
         param = model_cls.get_parameter(pname)
@@ -301,6 +429,9 @@ def build_plan(cfg: Mapping[str, Any], *, source: str = "<dict>") -> SweepPlan:
         if isinstance(value, (list, dict)):
             raise ConfigError(f"fixed.{pname}={value!r} is not a single value; move it to axes to sweep it",
                               field=f"fixed.{pname}", value=value)
+        if isinstance(value, float) and not math.isfinite(value):
+            raise ConfigError(f"fixed.{pname}={value!r} is not a finite number; give a finite value",
+                              field=f"fixed.{pname}", value=value)
         param.check_values(value, where=f"fixed.{pname}")
         fixed[pname] = float(value) if not param.is_categorical else value
     for param in model_cls.parameters:
@@ -312,13 +443,7 @@ def build_plan(cfg: Mapping[str, Any], *, source: str = "<dict>") -> SweepPlan:
         fixed[param.name] = param.default
     model_cls.check_combination(fixed, {a.name: a.to_array() for a in axes})
 
-    limits = cfg.get("limits") or {}
-    max_points = _positive_int(limits.get("max_points", 20_000_000), "limits.max_points")
     n_points = math.prod(len(a) for a in axes)
-    if n_points > max_points:
-        shape = " x ".join(str(len(a)) for a in axes)
-        raise ConfigError(f"the grid has {n_points} points ({shape}), above limits.max_points={max_points}; "
-                          "use fewer axis values or raise limits.max_points", field="axes", value=n_points)
     executor = _make_executor(cfg.get("executor") or {})
     block = cfg.get("block") or {}
     if block.get("points") is not None:
@@ -337,7 +462,10 @@ def build_plan(cfg: Mapping[str, Any], *, source: str = "<dict>") -> SweepPlan:
         raise ConfigError(f"reuse={reuse!r} must be true or false", field="reuse", value=reuse)
     refine = _make_refine(cfg.get("refine"), [a.name for a in axes])
     store = cfg.get("store") or {}
+    if not isinstance(store, dict):
+        raise ConfigError("store must be a mapping (store: {path: results/NAME.zarr})", field="store", value=store)
     store_path = store.get("path") or os.path.join("results", f"{name}.zarr")
+    check_store_path(store_path)
     resolved = {
         "name": name,
         "model": model_name,
@@ -384,8 +512,27 @@ def _plain(v: Any) -> Any:
     return v
 
 
+def _axis_length(where: str, spec: Any) -> int:
+    """Return how many values an axis form gives, without expanding it (0 when malformed: checked later)."""
+    if isinstance(spec, (DictConfig, ListConfig)):
+        spec = OmegaConf.to_container(spec)
+    if isinstance(spec, (list, tuple)):
+        return len(spec)
+    if not (isinstance(spec, dict) and len(spec) == 1):
+        return 0
+    form, args = next(iter(spec.items()))
+    if not (isinstance(args, (list, tuple)) and len(args) == 3 and all(
+            isinstance(a, (int, float)) and not isinstance(a, bool) and math.isfinite(a) for a in args)):
+        return 0
+    a, b, c = (float(x) for x in args)
+    if form == "range":
+        return max(0, math.ceil((b - a) / c - 1e-9)) if c != 0 else 0
+    return int(c) if form in ("linspace", "logspace") and c >= 1 else 0
+
+
 def _positive_int(value: Any, where: str) -> int:
-    if isinstance(value, bool) or not isinstance(value, (int, float)) or value != int(value) or value < 1:
+    if isinstance(value, bool) or not isinstance(value, (int, float)) or not math.isfinite(value) \
+            or value != int(value) or value < 1:
         raise ConfigError(f"{where}={value!r} must be a whole number ≥ 1", field=where, value=value)
     return int(value)
 
@@ -402,9 +549,10 @@ def _make_checked_model(model_cls: type[SweepModel], settings: Any) -> SweepMode
                               f"{', '.join(allowed) or '(none)'}", field=f"settings.{key}", value=key)
     try:
         model = model_cls(**settings)
-    except (TypeError, ValueError) as exc:
+    except (TypeError, ValueError, OverflowError) as exc:
         raise ConfigError(f"settings {json.dumps(settings)} rejected by model {model_cls.name!r}: {exc}",
                           field="settings", value=settings) from None
+    check_model_limits(model, "settings", ConfigError)
     return model
 
 
@@ -441,6 +589,9 @@ def _make_axis(name: str, spec: Any) -> Axis:
         for v in values:
             if isinstance(v, bool) or not isinstance(v, (int, float)):
                 raise ConfigError(f"{where} value {v!r} is neither a number nor a name", field=where, value=v)
+            if not math.isfinite(v):
+                raise ConfigError(f"{where} value {v!r} is not a finite number; give finite values",
+                                  field=where, value=v)
         values = [float(v) for v in values]
     seen: set[Any] = set()
     dupes = [v for v in values if v in seen or seen.add(v)]  # type: ignore[func-returns-value]
@@ -452,7 +603,7 @@ def _make_axis(name: str, spec: Any) -> Axis:
 
 def _expand_form(where: str, form: str, args: Any) -> list[float]:
     if not isinstance(args, (list, tuple)) or len(args) != 3 or not all(
-            isinstance(a, (int, float)) and not isinstance(a, bool) for a in args):
+            isinstance(a, (int, float)) and not isinstance(a, bool) and math.isfinite(a) for a in args):
         raise ConfigError(f"{where}: {form} takes three numbers [start, stop, {'step' if form == 'range' else 'count'}]"
                           f", got {args!r}", field=where, value=args)
     a, b, c = (float(x) for x in args)
@@ -502,6 +653,10 @@ def _make_executor(spec: Mapping[str, Any]) -> ExecutorSpec:
     workers = spec.get("workers")
     if workers is not None:
         workers = _positive_int(workers, "executor.workers")
+        if workers > MAX_WORKERS:
+            raise ConfigError(f"executor.workers={workers} is more than {MAX_WORKERS} worker processes on one "
+                              "machine; use executor=distributed for a cluster", field="executor.workers",
+                              value=workers)
     address = spec.get("address")
     if kind == "distributed" and not address:
         raise ConfigError("executor=distributed needs an address; add executor.address=tcp://HOST:PORT",

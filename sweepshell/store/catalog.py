@@ -27,7 +27,9 @@ import hashlib
 import json
 import logging
 import os
+import socket
 import sqlite3
+import time
 from collections.abc import Iterator
 from dataclasses import asdict, dataclass, field
 from pathlib import Path
@@ -45,6 +47,7 @@ __all__ = [
     "CatalogEntry",
     "CatalogListing",
     "find_compatible_stores",
+    "find_leftovers",
     "iter_store_folders",
     "read_axis_order",
     "read_catalog",
@@ -130,6 +133,9 @@ class CatalogListing:
         Number of stores read from disk this time (new or changed); the others came from the index.
     rebuilt
         Whether the index file was missing, corrupted or foreign and was created afresh.
+    leftovers
+        Paths (relative to the results folder) of what killed processes left behind: half-built
+        stores (``*.sweepshell-tmp-PID``) and stale block claims; ``clean=True`` removed them.
     """
 
     results_dir: str
@@ -137,16 +143,66 @@ class CatalogListing:
     index_path: str | None
     reread: int
     rebuilt: bool
+    leftovers: tuple[str, ...] = ()
 
     def to_dict(self) -> dict[str, Any]:
         return {"results_dir": self.results_dir, "index": self.index_path, "reread": self.reread,
-                "rebuilt": self.rebuilt, "stores": [e.to_dict() for e in self.entries]}
+                "rebuilt": self.rebuilt, "stores": [e.to_dict() for e in self.entries],
+                "leftovers": list(self.leftovers)}
 
 
 def _is_sweepshell_store(folder: Path) -> bool:
     if (folder / metadata.META_FILE).is_symlink():
         return False
     return metadata.is_store(folder)
+
+
+#: the folder of block claims inside a store (see sweepshell.engine.claims)
+CLAIMS_DIR = ".claims"
+
+
+def _pid_gone(host: str, pid: str) -> bool:
+    if host != socket.gethostname() or not pid.isdigit():
+        return False
+    try:
+        os.kill(int(pid), 0)
+    except ProcessLookupError:
+        return True
+    except (PermissionError, OverflowError):
+        return False
+    return False
+
+
+def stale_claim_files(store: str | os.PathLike[str], ttl: float = 60.0) -> list[Path]:
+    """Return the claim files of a store left by runners that are gone.
+
+    A claim is stale when its runner's process no longer exists on this host, or when it has
+    not been refreshed for ``ttl`` seconds (a runner on another host refreshes every ``ttl/4``).
+    """
+    folder = Path(store) / CLAIMS_DIR
+    if not folder.is_dir():
+        return []
+    stale = []
+    now = time.time()
+    for claim in sorted(folder.iterdir()):
+        try:
+            age = now - claim.stat().st_mtime
+            host, pid, _ = json.loads(claim.read_text())["runner"].rsplit(":", 2)
+        except (OSError, ValueError, KeyError, TypeError, AttributeError):
+            host, pid, age = "", "", now - claim.stat().st_mtime if claim.exists() else 0.0
+        if age > ttl or _pid_gone(host, pid) or ".stale-" in claim.name:
+            stale.append(claim)
+    return stale
+
+
+def leftover_temporaries(folder: str | os.PathLike[str]) -> list[Path]:
+    """Return half-built stores (``NAME.sweepshell-tmp-PID``) in ``folder`` whose process is gone."""
+    found = []
+    for sub in sorted(Path(folder).glob("*" + metadata.TEMP_SUFFIX + "-*")):
+        pid = sub.name.rsplit("-", 1)[-1]
+        if sub.is_dir() and not sub.is_symlink() and _pid_gone(socket.gethostname(), pid):
+            found.append(sub)
+    return found
 
 
 def iter_store_folders(results_dir: str | os.PathLike[str]) -> Iterator[Path]:
@@ -328,7 +384,31 @@ def _connect_index(path: Path) -> tuple[sqlite3.Connection | None, bool]:
     return None, False
 
 
-def read_catalog(results_dir: str | os.PathLike[str] = "results", *, use_index: bool = True) -> CatalogListing:
+def find_leftovers(results_dir: str | os.PathLike[str], *, clean: bool = False) -> list[str]:
+    """Return (and with ``clean`` remove) leftovers of killed processes under a results folder."""
+    import shutil
+
+    root = Path(results_dir)
+    found: list[Path] = []
+    for dirpath, dirnames, _files in os.walk(root, followlinks=False):
+        found += leftover_temporaries(dirpath)
+        dirnames[:] = [d for d in dirnames if not d.startswith(".") and metadata.TEMP_SUFFIX not in d
+                       and not metadata.has_node(Path(dirpath) / d)]
+    for store in iter_store_folders(root):
+        found += stale_claim_files(store)
+    if clean:
+        for path in found:
+            if path.is_dir():
+                shutil.rmtree(path, ignore_errors=True)
+            else:
+                path.unlink(missing_ok=True)
+                with contextlib.suppress(OSError):
+                    path.parent.rmdir()
+    return [p.relative_to(root).as_posix() for p in found]
+
+
+def read_catalog(results_dir: str | os.PathLike[str] = "results", *, use_index: bool = True,
+                 clean: bool = False) -> CatalogListing:
     """List the stores under ``results_dir``, reading only the stores that changed since the last call.
 
     Parameters
@@ -337,6 +417,8 @@ def read_catalog(results_dir: str | os.PathLike[str] = "results", *, use_index: 
         The results folder (searched recursively; symbolic links are not followed).
     use_index
         Keep and use the index file; without it every store is read.
+    clean
+        Remove the leftovers of killed processes (see :func:`find_leftovers`).
 
     Raises
     ------
@@ -360,6 +442,7 @@ def read_catalog(results_dir: str | os.PathLike[str] = "results", *, use_index: 
             cached = {r[0]: (r[1], r[2]) for r in con.execute("SELECT path, fingerprint, record FROM stores")}
         except sqlite3.Error:
             cached = {}
+    leftovers = find_leftovers(root, clean=clean)
     root_real = root.resolve()
     entries: list[CatalogEntry] = []
     fresh: list[tuple[str, str, str]] = []
@@ -390,7 +473,7 @@ def read_catalog(results_dir: str | os.PathLike[str] = "results", *, use_index: 
             con.close()
     return CatalogListing(results_dir=str(root), entries=tuple(sorted(entries, key=lambda e: e.path)),
                           index_path=str(index_path) if con is not None else None, reread=len(fresh),
-                          rebuilt=rebuilt)
+                          rebuilt=rebuilt, leftovers=tuple(leftovers))
 
 
 def find_compatible_stores(results_dir: str | os.PathLike[str], model: str, model_version: str,

@@ -72,7 +72,7 @@ def point_columns(store: str | os.PathLike[str]) -> tuple[list[str], list[str]]:
     """Return ``(axis names in dimension order, scalar output names)`` of a store's point table."""
     import zarr
 
-    attrs = check_readable_store(store)
+    attrs = check_readable_store(store, chunks=True)
     axes = metadata.read_record(attrs, ATTR.axes)
     names = read_axis_order(store, axes)
     group = zarr.open_group(str(store), mode="r", zarr_format=3)
@@ -94,7 +94,7 @@ def iter_point_rows(store: str | os.PathLike[str]) -> Iterator[dict[str, np.ndar
     """
     import zarr
 
-    attrs = check_readable_store(store)
+    attrs = check_readable_store(store, chunks=True)
     names, scalars = point_columns(store)
     axes = metadata.read_record(attrs, ATTR.axes)
     regimes = ["none", *(str(r) for r in attrs.get(ATTR.regimes, []))]
@@ -240,7 +240,7 @@ def export_store(store: str | os.PathLike[str], fmt: str, output: str | os.PathL
         raise ExportError(f"format={fmt!r} is not supported; use one of {', '.join(EXPORT_FORMATS)}",
                           field="format", value=fmt, allowed=", ".join(EXPORT_FORMATS))
     source = Path(store)
-    check_readable_store(source)
+    check_readable_store(source, chunks=True)
     if engine is not None and (fmt != "netcdf" or engine not in NETCDF_ENGINES):
         raise ExportError(f"engine={engine!r} is not a netCDF engine; use one of {', '.join(NETCDF_ENGINES)} "
                           "with --format netcdf", field="engine", value=engine, allowed=", ".join(NETCDF_ENGINES))
