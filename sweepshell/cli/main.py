@@ -67,7 +67,8 @@ def build_parser() -> argparse.ArgumentParser:
         epilog=EXIT_CODES_HELP + ". " + _CAUTION_HELP)
     run.add_argument("sweep", metavar="SWEEP", help="sweep name, sweep YAML file, or store to continue")
     run.add_argument("overrides", nargs="*", metavar="OVERRIDE", help="key=value in hydra's grammar (see above)")
-    run.add_argument("--config-dir", help="the configs/ folder (default: ./configs)")
+    run.add_argument("--config-dir",
+                     help="the configs/ folder (default: ./configs, else the demo configs packaged with sweepshell)")
     run.add_argument("--progress", choices=("auto", "bar", "lines", "none"), default="auto",
                      help="progress display (default: a bar on a terminal, periodic lines otherwise)")
     run.add_argument("--dry-run", action="store_true",
@@ -174,7 +175,9 @@ def _cmd_status(args: argparse.Namespace) -> int:
         return EXIT_OK
     axes = ", ".join(f"{a['name']}[{a['size']}] {a['min']}..{a['max']}" for a in info["axes"])
     counts = ", ".join(f"{v} {k}" for k, v in info["counts"].items() if v)
-    print(f"store {info['path']}: sweep {info['sweep']}, model {info['model']} {info['model_version']}")
+    package = info.get("model_package")
+    origin = f" from {package} {info.get('model_package_version')}" if package and package != "sweepshell" else ""
+    print(f"store {info['path']}: sweep {info['sweep']}, model {info['model']} {info['model_version']}{origin}")
     print(f"  axes: {axes}")
     print(f"  {info['total']} points: {counts}; {info['complete_fraction']:.1%} final"
           + ("" if info["complete"] else " (run the sweep again to continue)"))
@@ -192,14 +195,20 @@ def _cmd_status(args: argparse.Namespace) -> int:
 
 
 def _cmd_models(args: argparse.Namespace) -> int:
-    from sweepshell.models import list_models, make_model
+    from sweepshell.models import get_model_origin, list_models, make_model
 
-    described = [make_model(name).describe() for name in list_models()]
+    described = []
+    for name in list_models():
+        origin = get_model_origin(name)
+        d = make_model(name).describe()
+        d["origin"] = {"builtin": origin.builtin, "distribution": origin.distribution, "version": origin.version,
+                       "label": origin.label}
+        described.append(d)
     if args.format == "json":
         print(json.dumps(described, indent=2))
         return EXIT_OK
     for d in described:
-        print(f"{d['name']} {d['version']}: {d['summary']}")
+        print(f"{d['name']} {d['version']} ({d['origin']['label']}): {d['summary']}")
         for p in d["parameters"]:
             print(f"  parameter {p['name']} [{p['units']}] {p['allowed']}, default {p['default']}: {p['doc']}")
         for o in d["outputs"]:

@@ -25,7 +25,7 @@ import numpy as np
 import yaml
 from omegaconf import DictConfig, ListConfig, OmegaConf
 
-from sweepshell.errors import ConfigError, ParameterError
+from sweepshell.errors import ConfigError, ParameterError, SweepshellError, UnknownModelError
 from sweepshell.models import get_model
 from sweepshell.models.base import SweepModel
 from sweepshell.plan import Axis, ExecutorSpec, SweepPlan
@@ -33,7 +33,14 @@ from sweepshell.store.integrity import check_model_limits, check_store_path
 
 log = logging.getLogger(__name__)
 
-__all__ = ["find_config_dir", "load_plan", "parse_overrides", "resolve_sweep_file"]
+__all__ = [
+    "PACKAGED_CONFIGS",
+    "find_config_dir",
+    "is_packaged_config_dir",
+    "load_plan",
+    "parse_overrides",
+    "resolve_sweep_file",
+]
 
 SWEEP_KEYS = ("name", "model", "settings", "fixed", "axes", "store", "executor", "block", "limits",
               "description", "reuse", "refine")
@@ -43,8 +50,16 @@ MAX_WORKERS = 512
 _NAME_RE = re.compile(r"^[A-Za-z0-9][A-Za-z0-9_.-]*$")
 
 
+#: the packaged copy of ``configs/`` (hydra search path ``pkg://sweepshell._configs``)
+PACKAGED_CONFIGS = "sweepshell._configs"
+
+
 def find_config_dir(explicit: str | os.PathLike[str] | None = None) -> Path:
-    """Return the ``configs/`` folder: the explicit one, ``./configs``, or the checkout's."""
+    """Return the ``configs/`` folder: the explicit one, ``$SWEEPSHELL_CONFIG_DIR``, ``./configs`` or the packaged one.
+
+    The packaged folder (:data:`PACKAGED_CONFIGS`) ships inside the wheel, so an installed sweepshell runs its
+    demo sweeps from any folder; :func:`is_packaged_config_dir` tells it apart.
+    """
     candidates = []
     if explicit is not None:
         candidates.append(Path(explicit))
@@ -52,13 +67,31 @@ def find_config_dir(explicit: str | os.PathLike[str] | None = None) -> Path:
     if env:
         candidates.append(Path(env))
     candidates.append(Path.cwd() / "configs")
-    candidates.append(Path(__file__).resolve().parents[2] / "configs")
     for c in candidates:
         if (c / "config.yaml").is_file():
             return c.resolve()
+    packaged = _packaged_config_dir()
+    if explicit is None and packaged is not None:
+        return packaged
     raise ConfigError(
         "no configs/config.yaml found (looked in " + ", ".join(str(c) for c in candidates)
         + "); run from the project folder or pass --config-dir", field="config_dir")
+
+
+def _packaged_config_dir() -> Path | None:
+    import importlib.resources
+
+    try:
+        root = Path(str(importlib.resources.files(PACKAGED_CONFIGS)))
+    except (ModuleNotFoundError, TypeError):
+        return None
+    return root if (root / "config.yaml").is_file() else None
+
+
+def is_packaged_config_dir(config_dir: Path) -> bool:
+    """Return whether ``config_dir`` is the packaged copy of ``configs/`` (composed through ``pkg://``)."""
+    packaged = _packaged_config_dir()
+    return packaged is not None and packaged == config_dir
 
 
 def resolve_sweep_file(sweep: str, config_dir: Path) -> Path:
@@ -105,14 +138,16 @@ def parse_overrides(overrides: Sequence[str]) -> list[Any]:
 
 
 def _compose_base(config_dir: Path, group_overrides: list[str]) -> DictConfig:
-    from hydra import compose, initialize_config_dir
+    from hydra import compose, initialize_config_dir, initialize_config_module
     from hydra.core.global_hydra import GlobalHydra
     from hydra.errors import HydraException
     from omegaconf.errors import OmegaConfBaseException
 
     GlobalHydra.instance().clear()
+    packaged = is_packaged_config_dir(config_dir)
     try:
-        with initialize_config_dir(config_dir=str(config_dir), version_base=None):
+        with (initialize_config_module(PACKAGED_CONFIGS, version_base=None) if packaged
+              else initialize_config_dir(config_dir=str(config_dir), version_base=None)):
             cfg = compose(config_name="config", overrides=group_overrides)
     except (HydraException, OmegaConfBaseException) as exc:
         presets = sorted(f.stem for f in (config_dir / "executor").glob("*.yaml"))
@@ -359,7 +394,12 @@ def build_plan(cfg: Mapping[str, Any], *, source: str = "<dict>") -> SweepPlan:
     if model_name is None:
         raise ConfigError(f"{source} names no model; add model: NAME (see `sweepshell models`)",
                           field="model")
-    model_cls = get_model(model_name)
+    try:
+        model_cls = get_model(model_name)
+    except UnknownModelError:
+        store_cfg = cfg.get("store") or {}
+        _check_missing_plugin(model_name, store_cfg.get("path") or os.path.join("results", f"{name}.zarr"))
+        raise
     model = _make_checked_model(model_cls, cfg.get("settings") or {})
     settings = model.settings
     fixed_in = cfg.get("fixed") or {}
@@ -455,6 +495,26 @@ def build_plan(cfg: Mapping[str, Any], *, source: str = "<dict>") -> SweepPlan:
         axes=tuple(axes), store_path=str(store_path), executor=executor, block_points=block_points,
         resolved_yaml=yaml.safe_dump(resolved, sort_keys=False), reuse=reuse, refine=refine,
     )
+
+
+def _check_missing_plugin(model_name: Any, store_path: str) -> None:
+    """Raise naming the missing package when the sweep's store was made by a plug-in that is not installed."""
+    from sweepshell.store.metadata import ATTR, has_node
+    from sweepshell.store.reader import read_attrs
+
+    if not isinstance(model_name, str) or not has_node(store_path):
+        return
+    try:
+        attrs = read_attrs(store_path)
+    except SweepshellError:
+        return
+    package = attrs.get(ATTR.model_package)
+    if attrs.get(ATTR.model) != model_name or not package or package == "sweepshell":
+        return
+    raise UnknownModelError(
+        f"model {model_name!r} comes from package {package!r} (version {attrs.get(ATTR.model_package_version)}, "
+        f"recorded in {store_path}), which is not installed; install it (pip install {package}) to run this sweep",
+        field="model", value=model_name, allowed=f"package {package}")
 
 
 def _plain(v: Any) -> Any:

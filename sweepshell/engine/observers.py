@@ -1,4 +1,7 @@
-"""Progress observers: a bar with rate and ETA on a terminal, plain periodic lines elsewhere."""
+"""Progress observers: a bar with rate and ETA on a terminal, plain periodic lines elsewhere.
+
+Both print the address of the dask dashboard of the run's cluster (its plots need ``bokeh``).
+"""
 
 from __future__ import annotations
 
@@ -11,6 +14,7 @@ __all__ = ["BarObserver", "LineObserver", "RunObserver", "SilentObserver", "make
 
 
 class RunObserver(Protocol):
+    def connected(self, dashboard: str | None) -> None: ...
     def start(self, total: int, done: int, to_compute: int, note: str = "") -> None: ...
     def advance(self, points: int) -> None: ...
     def close(self) -> None: ...
@@ -18,6 +22,9 @@ class RunObserver(Protocol):
 
 class SilentObserver:
     """Reports nothing (library use, tests)."""
+
+    def connected(self, dashboard: str | None) -> None:
+        return None
 
     def start(self, total: int, done: int, to_compute: int, note: str = "") -> None:
         return None
@@ -81,6 +88,10 @@ class LineObserver:
         self.stream = stream or sys.stderr
         self.every = every
 
+    def connected(self, dashboard: str | None) -> None:
+        if dashboard:
+            print(f"dask dashboard: {dashboard}", file=self.stream, flush=True)
+
     def start(self, total: int, done: int, to_compute: int, note: str = "") -> None:
         self.total, self.done, self.to_compute, self.computed = total, done, to_compute, 0
         self.t0 = self.last = time.monotonic()
@@ -120,6 +131,10 @@ class BarObserver:
             TextColumn("{task.fields[rate]}"), TimeElapsedColumn(), TextColumn("ETA {task.fields[eta]}"),
             TextColumn("{task.fields[note]}"), transient=False)
         self._task: Any = None
+
+    def connected(self, dashboard: str | None) -> None:
+        if dashboard:
+            print(f"dask dashboard: {dashboard}", file=sys.stderr, flush=True)
 
     def start(self, total: int, done: int, to_compute: int, note: str = "") -> None:
         self.eta = _Eta(to_compute)

@@ -40,6 +40,7 @@ from sweepshell.store.writer import (
 __all__ = [
     "RunSummary",
     "SweepInterrupted",
+    "dashboard_link",
     "open_client",
     "prepare_store",
     "refine_plan_store",
@@ -163,14 +164,29 @@ def start_client(spec: ExecutorSpec) -> tuple[Any, Any]:
     return Client(cluster), cluster
 
 
+def dashboard_link(client: Any) -> str | None:
+    """Return the address of the dask dashboard of ``client``'s scheduler, or ``None`` when it serves none."""
+    try:
+        if "dashboard" not in client.scheduler_info().get("services", {}):
+            return None
+        return str(client.dashboard_link)
+    except Exception:  # a dashboard is a convenience: never fail a run over it
+        return None
+
+
 @contextlib.contextmanager
-def _client_started_early(plan: SweepPlan) -> Iterator[Callable[[], Any]]:
+def _client_started_early(plan: SweepPlan, given: Any = None) -> Iterator[Callable[[], Any]]:
     """Start the workers in the background while a new store's template is written.
 
     Yields a function returning the client (waiting for it); whatever was started is closed on exit. For an
-    existing store nothing starts early: it may well be complete, and then no workers are needed.
+    existing store nothing starts early: it may well be complete, and then no workers are needed. A ``given``
+    client (the caller's) is used as it is and left open.
     """
     from concurrent.futures import ThreadPoolExecutor
+
+    if given is not None:
+        yield lambda: given
+        return
 
     pool = ThreadPoolExecutor(1, thread_name_prefix="sweepshell-start")
     early = None if Path(plan.store_path).exists() else pool.submit(start_client, plan.executor)
@@ -199,9 +215,12 @@ def _counts(ledger: np.ndarray) -> dict[str, int]:
     return {s.name: int(raw[s.value]) for s in Status}
 
 
-def run_plan(plan: SweepPlan, *, observer: RunObserver | None = None, claim_ttl: float = 60.0) -> RunSummary:
+def run_plan(plan: SweepPlan, *, observer: RunObserver | None = None, claim_ttl: float = 60.0,
+             client: Any = None) -> RunSummary:
     """Compute every unfinished block of ``plan`` and return a summary.
 
+    ``client`` is an existing :class:`distributed.Client` to compute on (its workers must
+    reach the store's path); by default the plan's executor starts one, closed at the end.
     Several runners may work on one store at once: each block is claimed before it is
     submitted (see :mod:`sweepshell.engine.claims`), and blocks claimed by a live runner
     are left to it and picked up from the ledger when they are done.
@@ -223,7 +242,7 @@ def run_plan(plan: SweepPlan, *, observer: RunObserver | None = None, claim_ttl:
     tally = {"model_seconds": 0.0, "computed": 0, "blocks": 0, "by_others": 0, "reused": 0, "damaged": 0}
     claims: ClaimBook | None = None
     try:
-        with _client_started_early(plan) as get_client:
+        with _client_started_early(plan, client) as get_client:
             if not existing:
                 block_shape, _ = prepare_store(plan, model)
             ledger = read_ledger(path, block_shape)
@@ -237,11 +256,15 @@ def run_plan(plan: SweepPlan, *, observer: RunObserver | None = None, claim_ttl:
             to_compute = sum(b.n_points for b in pending)
             claims = ClaimBook(path, ttl=claim_ttl)
             donors = find_donors(plan, model) if plan.reuse else []
-            client = get_client()
+            active = get_client()
+            link = dashboard_link(active)
+            if link:
+                log.info("dask dashboard: %s", link)
+            observer.connected(link)
             note = "compiling the model's kernels (once); the ETA follows the first computed blocks" \
                 if model.kernels_to_compile() else ""
             observer.start(plan.n_points, plan.n_points - to_compute, to_compute, note=note)
-            _drive(client, plan, pending, claims, observer, tally, donors)
+            _drive(active, plan, pending, claims, observer, tally, donors)
     except KeyboardInterrupt:
         if claims is None or not block_shape:
             raise
@@ -406,13 +429,14 @@ def _final_summary(plan: SweepPlan, block_shape: tuple[int, ...], tally: dict[st
                       extra={"by_other_runners": tally["by_others"], "damaged_blocks": tally["damaged"]})
 
 
-def run_sweep(plan: SweepPlan, *, observer: RunObserver | None = None) -> RunSummary:
+def run_sweep(plan: SweepPlan, *, observer: RunObserver | None = None, client: Any = None) -> RunSummary:
     """Run a planned sweep, then the refinement it asks for; running it again resumes it.
 
     Loading a sweep by name or file is the config layer's job
-    (:func:`sweepshell.config.sweep.run_sweep`, also ``sweepshell.run_sweep``).
+    (:func:`sweepshell.config.sweep.run_sweep`, also ``sweepshell.run_sweep``). ``client`` is an existing
+    :class:`distributed.Client` to run on (left open); the plan's executor otherwise.
     """
-    summary = run_plan(plan, observer=observer)
+    summary = run_plan(plan, observer=observer, client=client)
     if plan.refine and summary.complete:
         refine_plan_store(plan)
     return summary

@@ -62,8 +62,17 @@ def read_attrs(path: str | os.PathLike[str]) -> dict[str, Any]:
     return check_readable_store(path)
 
 
-def open_sweep(path: str | os.PathLike[str]) -> xr.Dataset:
+def open_sweep(path: str | os.PathLike[str], *, chunks: Any = "auto") -> xr.Dataset:
     """Open a sweep store as a lazy :class:`xarray.Dataset`.
+
+    Parameters
+    ----------
+    path
+        The store folder.
+    chunks
+        dask chunking, as for :func:`xarray.open_zarr`: ``"auto"`` (the store's blocks,
+        merged up to dask's preferred size), ``{}`` (exactly the store's blocks), a mapping
+        of dimension → size, or ``None`` (no dask: numpy arrays loaded on access).
 
     Raises
     ------
@@ -73,7 +82,7 @@ def open_sweep(path: str | os.PathLike[str]) -> xr.Dataset:
     import xarray as xr
 
     check_readable_store(path, chunks=True)
-    return xr.open_zarr(str(path), consolidated=True, zarr_format=3)
+    return xr.open_zarr(str(path), consolidated=True, zarr_format=3, chunks=chunks)
 
 
 def read_ledger(path: str | os.PathLike[str], block_shape: tuple[int, ...] | None = None) -> np.ndarray:

@@ -43,6 +43,8 @@ def summarize_store(path: str | os.PathLike[str]) -> dict[str, Any]:
         "sweep": attrs.get(ATTR.sweep_name),
         "model": attrs.get(ATTR.model),
         "model_version": attrs.get(ATTR.model_version),
+        "model_package": attrs.get(ATTR.model_package),
+        "model_package_version": attrs.get(ATTR.model_package_version),
         "sweepshell_version": attrs.get(ATTR.tool),
         "created": attrs.get(ATTR.created),
         "axes": axes,
