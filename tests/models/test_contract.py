@@ -11,11 +11,7 @@ from sweepshell.models import get_model, list_models
 from sweepshell.testing import check_model
 
 #: known contract breaks, each named; strict, so a fix makes the test say so
-_KNOWN_BREAKS = {
-    # output and parameter share the name: a sweep with axes.wave_number cannot build its store (xarray refuses a
-    # data variable named like a coordinate)
-    "cap_postbuckling": "output 'wave_number' clashes with the parameter of that name",
-}
+_KNOWN_BREAKS: dict[str, str] = {}
 
 
 @pytest.fixture(params=[pytest.param(name, marks=pytest.mark.xfail(reason=_KNOWN_BREAKS[name], strict=True))
