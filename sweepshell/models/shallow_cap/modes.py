@@ -49,7 +49,7 @@ from functools import lru_cache
 
 import numpy as np
 
-from sweepshell.models.shallow_cap.compiled import assemble_reduced_stability
+from sweepshell.models.shallow_cap.compiled_modes import assemble_reduced_stability
 from sweepshell.models.shallow_cap.kernels import CapPathProblem
 from sweepshell.numerics.radial_chebyshev import make_interpolation_matrix, make_radial_grid, to_chebyshev_coordinate
 
