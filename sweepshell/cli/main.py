@@ -95,11 +95,11 @@ def _cmd_run(args: argparse.Namespace) -> int:
               f"store {plan.store_path}, executor {plan.executor.kind}")
         print(plan.resolved_yaml, end="")
         return EXIT_OK
-    from sweepshell.engine.observers import make_observer
+    from sweepshell.engine.observers import get_observer
     from sweepshell.engine.runner import SweepInterrupted, refine_plan_store, run_plan
 
     kind = {"lines": "lines", "bar": "bar", "none": "none"}.get(args.progress, "auto")
-    observer = make_observer(kind)
+    observer = get_observer(kind)
     try:
         summary = run_plan(plan, observer=observer)
     except SweepInterrupted as stop:

@@ -59,11 +59,11 @@ __all__ = [
     "SUBSTRATE_KINDS",
     "SheetMinimum",
     "SheetProblem",
+    "build_sheet_problem",
     "compute_height_field",
     "compute_substrate_stiffness",
     "compute_variable_of_height",
     "evaluate_sheet_energy",
-    "make_sheet_problem",
     "minimize_sheet_energy",
     "project_field_to_modes",
 ]
@@ -185,7 +185,7 @@ def compute_substrate_stiffness(k: np.ndarray, substrate: str) -> np.ndarray:
     raise ValueError(f"substrate={substrate!r}; use one of {SUBSTRATE_KINDS}")
 
 
-def make_sheet_problem(n: int, cells: int, substrate: str, poisson_ratio: float,
+def build_sheet_problem(n: int, cells: int, substrate: str, poisson_ratio: float,
                        overstrain: tuple[float, float]) -> SheetProblem:
     """Build the grid operators of one scaled cell problem.
 

@@ -84,8 +84,8 @@ from sweepshell.errors import ParameterError
 from sweepshell.models.base import BatchResult, OutputSpec, ParameterSpec, Status, SweepModel
 from sweepshell.models.foundation_sheet.energy import (
     SheetMinimum,
+    build_sheet_problem,
     compute_height_field,
-    make_sheet_problem,
     minimize_sheet_energy,
     project_field_to_modes,
 )
@@ -316,7 +316,7 @@ class FoundationSheetModel(SweepModel):
             b, ratio = scales["height_scale"][i], scales["height_scale"][i] / h[i]
             try:
                 with np.errstate(all="raise", under="ignore"):
-                    problem = make_sheet_problem(int(modes[i]), int(cells[i]), str(substrate[i]),
+                    problem = build_sheet_problem(int(modes[i]), int(cells[i]), str(substrate[i]),
                                                  float(nu[i]), (float(s1[i]), float(s2[i])))
                     if problem.linear_stability_margin() >= 0.0:
                         field = np.zeros((problem.n, problem.n))

@@ -43,7 +43,7 @@ def get_mismatch_nodes(settings: Mapping[str, Any], lam: np.ndarray) -> np.ndarr
 
 
 def choose_grid_centres(settings: Mapping[str, Any], eigen: np.ndarray, radius: np.ndarray) -> np.ndarray:
-    """Return each point's clustering centre ρ of the radial grid (0: none; see ``make_radial_grid``).
+    """Return each point's clustering centre ρ of the radial grid (0: none; see ``build_radial_grid``).
 
     Mismatch points with a sharp edge inside the cap (``mismatch_step_width`` 0, ρ < 1) get the
     grid clustered around x = ±ρ with a node on ρ: their response has a kink there (a jump of
@@ -56,7 +56,7 @@ def choose_grid_centres(settings: Mapping[str, Any], eigen: np.ndarray, radius: 
 
 def choose_grids(settings: Mapping[str, Any], lam: np.ndarray, apex: np.ndarray, eigen: np.ndarray,
                  amplitude: np.ndarray, width: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-    """Return each point's radial grid: node count and stretch β (see ``make_radial_grid``).
+    """Return each point's radial grid: node count and stretch β (see ``build_radial_grid``).
 
     With ``nodes`` 0 (automatic) the count follows the measured need for 3·10⁻⁷ relative
     accuracy of the critical load (tests/models/shallow_cap/test_resolution.py; theory.md).

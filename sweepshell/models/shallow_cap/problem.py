@@ -9,7 +9,7 @@ from typing import Any
 import numpy as np
 
 from sweepshell.models.shallow_cap.kernels import CapPathProblem, eigenstrain_stress
-from sweepshell.numerics.radial_chebyshev import make_radial_grid
+from sweepshell.numerics.radial_chebyshev import build_radial_grid
 
 __all__ = ["CapInputs", "build_batch_problem", "build_problem"]
 
@@ -66,10 +66,10 @@ def build_problem(lam: np.ndarray, nu: np.ndarray, clamped: np.ndarray, immovabl
     (``step_width`` 0) or smoothed over ``step_width`` (over a; 0.1 here for direct callers, the
     model's default is the sharp edge). ``nodes``, ``stretch`` and
     ``centre`` choose the radial grid (see
-    :func:`~sweepshell.numerics.radial_chebyshev.make_radial_grid`; a sharp edge wants
+    :func:`~sweepshell.numerics.radial_chebyshev.build_radial_grid`; a sharp edge wants
     ``centre`` = its radius, which puts a node on it).
     """
-    grid = make_radial_grid(nodes, stretch, centre)
+    grid = build_radial_grid(nodes, stretch, centre)
     x = grid.x
     n = lam.shape[0]
     c = np.sqrt(3.0 * (1.0 - nu**2))

@@ -39,10 +39,10 @@ def trace_apex_paths(lam, clamped, immovable, nodes, max_deflection):  # type: i
 
 def lowest_eigenvalues(pb, z, idx, modes, nodes):  # type: ignore[no-untyped-def]
     """Return the lowest real part of the eigenvalues of each ``cos nθ`` operator on a ``nodes`` grid."""
-    from sweepshell.numerics.radial_chebyshev import make_radial_grid
+    from sweepshell.numerics.radial_chebyshev import build_radial_grid
 
     co = compute_mode_coefficients(pb, z, idx, nodes)
-    x = make_radial_grid(nodes).x
+    x = build_radial_grid(nodes).x
     out = np.empty((z.shape[0], len(modes)))
     for j, n, a in _reduced_matrices(pb, co, modes):
         inner = a[:, 2:, 2:] - a[:, 2:, :2] @ np.linalg.solve(a[:, :2, :2], a[:, :2, 2:])

@@ -101,8 +101,8 @@ def test_compiled_reduced_stability_matrix_is_the_schur_complement_of_the_full_m
     from sweepshell.models.shallow_cap.modes import (
         _reduced_matrices,
         build_mode_matrices,
+        build_mode_operators,
         compute_mode_coefficients,
-        make_mode_operators,
     )
 
     k, m = 6, 24
@@ -116,7 +116,7 @@ def test_compiled_reduced_stability_matrix_is_the_schur_complement_of_the_full_m
     co = compute_mode_coefficients(pb, z, idx)
     modes = np.array([1, 2, 5])
     for j, n, got in _reduced_matrices(pb, co, modes):
-        full = build_mode_matrices(make_mode_operators(m, n), pb.grid.x, co)
+        full = build_mode_matrices(build_mode_operators(m, n), pb.grid.x, co)
         a, b, c, s = full[:, :m, :m], full[:, :m, m:], full[:, m:, :m], full[:, m:, m:]
         want = a - b @ np.linalg.solve(s, c)
         scale = np.abs(want).max(axis=(1, 2), keepdims=True)
