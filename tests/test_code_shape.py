@@ -24,8 +24,6 @@ ALLOWED: dict[str, int] = {
     "sweepshell/models/foundation_strip/continuation.py": 494,
     "sweepshell/models/foundation_strip/continuation.py:follow_confinement_path": 117,
     "sweepshell/models/foundation_strip/flexure.py:compute_flexure": 83,
-    "sweepshell/numerics/arclength.py:refine_on_arc": 100,
-    "sweepshell/numerics/arclength.py:trace_paths": 122,
     "sweepshell/plot/paths.py:draw_load_paths": 100,
     "sweepshell/plot/regime_map.py": 428,
     "sweepshell/plot/regime_map.py:draw_regime_map": 129,

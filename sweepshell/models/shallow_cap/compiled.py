@@ -2,7 +2,7 @@
 
 Same algorithm as :func:`sweepshell.numerics.arclength.trace_paths` with the stopping rule of
 :func:`sweepshell.models.shallow_cap.solver.solve_caps`, and as
-:func:`sweepshell.numerics.arclength.refine_on_arc` for the measures ``t_μ`` and ``μ``, written
+:func:`sweepshell.numerics.arc_refine.refine_on_arc` for the measures ``t_μ`` and ``μ``, written
 for one cap at a time so that a cap's whole axisymmetric path runs in compiled code. The numpy
 versions stay the specification (and serve the tests that compare both); results agree to
 rounding. The Newton corrector and the packed per-cap parameters are in
@@ -344,7 +344,7 @@ def refine_caps_on_arc(pb: CapPathProblem, anchor: np.ndarray, tangent: np.ndarr
                        g_lo: np.ndarray, g_hi: np.ndarray, idx: np.ndarray, w: np.ndarray, *, use_load: bool,
                        tol: float, max_iter: int, iterations: int, s_tol: float,
                        ) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
-    """Compiled :func:`sweepshell.numerics.arclength.refine_on_arc` for the measures ``t_μ`` and ``μ``.
+    """Compiled :func:`sweepshell.numerics.arc_refine.refine_on_arc` for the measures ``t_μ`` and ``μ``.
 
     ``use_load`` False refines a limit point (zero of the tangent's load component), True a
     return to zero load. Same results as the numpy function with that measure.

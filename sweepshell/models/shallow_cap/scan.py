@@ -14,7 +14,8 @@ import numpy as np
 from sweepshell.models.shallow_cap.compiled import correct_caps_on_arc
 from sweepshell.models.shallow_cap.kernels import CapPathProblem
 from sweepshell.models.shallow_cap.modes import compute_mode_determinants, select_stability_nodes
-from sweepshell.numerics.arclength import PathHistory, refine_on_arc
+from sweepshell.numerics.arc_refine import refine_on_arc
+from sweepshell.numerics.arclength import PathHistory
 
 __all__ = ["ModeCrossings", "refine_bifurcations", "scan_modes"]
 

@@ -126,7 +126,7 @@ def test_compiled_reduced_stability_matrix_is_the_schur_complement_of_the_full_m
 
 def test_compiled_fold_refinement_matches_refine_on_arc():
     from sweepshell.models.shallow_cap.compiled import refine_caps_on_arc
-    from sweepshell.numerics.arclength import refine_on_arc
+    from sweepshell.numerics.arc_refine import refine_on_arc
 
     pb, w, idx, z0, t0 = make_mixed_problem()
     zh, th, sh, _, _, _ = trace_cap_paths(pb, z0, t0, w, first_step=0.1, max_step=0.25, min_step=1e-7,
