@@ -31,9 +31,9 @@ from sweepshell.models import make_model
 from sweepshell.models.foundation_sheet.energy import (
     build_sheet_problem,
     compute_height_field,
-    minimize_sheet_energy,
     project_field_to_modes,
 )
+from sweepshell.models.foundation_sheet.minimize import minimize_sheet_energy
 from sweepshell.models.foundation_sheet.model import compute_sheet_scales
 from sweepshell.models.foundation_sheet.reference import minimize_reference_energy
 

@@ -83,12 +83,11 @@ import numpy as np
 from sweepshell.errors import ParameterError
 from sweepshell.models.base import BatchResult, OutputSpec, ParameterSpec, Status, SweepModel
 from sweepshell.models.foundation_sheet.energy import (
-    SheetMinimum,
     build_sheet_problem,
     compute_height_field,
-    minimize_sheet_energy,
     project_field_to_modes,
 )
+from sweepshell.models.foundation_sheet.minimize import SheetMinimum, minimize_sheet_energy
 from sweepshell.models.foundation_sheet.patterns import (
     PATTERN_NAMES,
     classify_pattern,

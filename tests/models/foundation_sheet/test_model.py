@@ -19,9 +19,9 @@ from sweepshell.models.foundation_sheet.energy import (
     compute_height_field,
     compute_variable_of_height,
     evaluate_sheet_energy,
-    minimize_sheet_energy,
     project_field_to_modes,
 )
+from sweepshell.models.foundation_sheet.minimize import minimize_sheet_energy
 from sweepshell.models.foundation_sheet.model import FoundationSheetModel, compute_sheet_scales
 from tests.conftest import model_inputs
 

@@ -17,8 +17,8 @@ from sweepshell.models import Status
 from sweepshell.models.foundation_sheet.energy import (
     build_sheet_problem,
     compute_variable_of_height,
-    minimize_sheet_energy,
 )
+from sweepshell.models.foundation_sheet.minimize import minimize_sheet_energy
 from sweepshell.models.foundation_sheet.model import FoundationSheetModel
 from tests.models.foundation_sheet.test_model import sheet_inputs
 
