@@ -23,7 +23,6 @@ ALLOWED: dict[str, int] = {
     "sweepshell/plot/regime_map.py": 428,
     "sweepshell/plot/regime_map.py:draw_regime_map": 129,
     "sweepshell/plot/report.py:write_report": 85,
-    "sweepshell/store/catalog.py": 440,
     "sweepshell/store/merge.py": 463,
     "sweepshell/store/merge.py:merge_stores": 131,
     "sweepshell/store/verify.py": 457,

@@ -27,7 +27,6 @@ import hashlib
 import json
 import logging
 import os
-import sqlite3
 from collections.abc import Iterator
 from dataclasses import asdict, dataclass, field
 from pathlib import Path
@@ -38,6 +37,7 @@ import numpy as np
 from sweepshell.errors import StoreNotFoundError
 from sweepshell.models.base import Status
 from sweepshell.store import metadata
+from sweepshell.store.catalog_index import open_index, parse_record, read_cached, update_index
 from sweepshell.store.metadata import ATTR
 
 __all__ = [
@@ -54,12 +54,6 @@ log = logging.getLogger(__name__)
 
 #: name of the index file inside a results folder
 CATALOG_FILE = ".sweepshell-catalog.sqlite"
-#: marks the SQLite file as ours ("SWPC"); anything else is rebuilt
-_APPLICATION_ID = 0x53575043
-#: version of the index tables below; another version is rebuilt
-_INDEX_VERSION = 1
-#: how long to wait for another process holding the index, s
-_LOCK_TIMEOUT_SECONDS = 10.0
 
 
 @dataclass(frozen=True)
@@ -259,75 +253,6 @@ def _str_or_none(v: Any) -> str | None:
     return v if isinstance(v, str) else None
 
 
-_ENTRY_TYPES: dict[str, tuple[type, ...]] = {
-    "path": (str,), "sweep": (str, type(None)), "model": (str, type(None)), "model_version": (str, type(None)),
-    "settings_json": (str, type(None)), "fixed_json": (str, type(None)), "axes": (list,), "total": (int,),
-    "counts": (dict,), "bytes_on_disk": (int,), "created": (str, type(None)), "updated": (str, type(None)),
-    "problem": (str, type(None)),
-}
-
-
-def _entry_from_record(text: str, rel: str) -> CatalogEntry | None:
-    """Parse a cached record; ``None`` unless it is plain JSON of exactly the expected shape."""
-    try:
-        data = json.loads(text)
-    except (TypeError, ValueError):
-        return None
-    if not isinstance(data, dict) or set(data) != set(_ENTRY_TYPES) or data.get("path") != rel:
-        return None
-    for key, types in _ENTRY_TYPES.items():
-        if not isinstance(data[key], types) or isinstance(data[key], bool):
-            return None
-    if not all(isinstance(k, str) and isinstance(v, int) for k, v in data["counts"].items()):
-        return None
-    if not all(isinstance(a, dict) for a in data["axes"]):
-        return None
-    return CatalogEntry(**data)
-
-
-def _connect_index(path: Path) -> tuple[sqlite3.Connection | None, bool]:
-    """Open (or create) the index; delete and recreate anything that is not our index."""
-    existed = path.exists()
-    for attempt in range(2):
-        try:
-            con = sqlite3.connect(str(path), timeout=_LOCK_TIMEOUT_SECONDS)
-            app_id = con.execute("PRAGMA application_id").fetchone()[0]
-            version = con.execute("PRAGMA user_version").fetchone()[0]
-            tables = {r[0] for r in con.execute("SELECT name FROM sqlite_master WHERE type='table'")}
-            if app_id == _APPLICATION_ID and version == _INDEX_VERSION and tables == {"stores"}:
-                return con, False
-            if app_id == 0 and version == 0 and not tables:  # a fresh, empty database
-                with con:
-                    con.execute(f"PRAGMA application_id={_APPLICATION_ID}")
-                    con.execute(f"PRAGMA user_version={_INDEX_VERSION}")
-                    con.execute("CREATE TABLE stores (path TEXT PRIMARY KEY, fingerprint TEXT NOT NULL, "
-                                "record TEXT NOT NULL)")
-                return con, existed
-            con.close()
-            reason = "foreign or outdated"
-        except sqlite3.OperationalError as exc:
-            # locked by another process, or not openable here: use no index rather than delete a good one
-            log.warning("catalog index %s is busy or cannot be opened (%s); listing without it", path, exc)
-            return None, False
-        except sqlite3.DatabaseError as exc:  # "file is not a database": garbage in our file name
-            reason = f"unreadable ({exc})"
-        except OSError as exc:
-            log.warning("catalog index %s cannot be opened (%s); listing without an index", path, exc)
-            return None, False
-        if attempt:
-            break
-        log.warning("catalog index %s is %s; rebuilding it from the stores", path, reason)
-        try:
-            path.unlink()
-        except FileNotFoundError:
-            pass
-        except OSError as exc:
-            log.warning("cannot remove %s (%s); listing without an index", path, exc)
-            return None, False
-        existed = True
-    return None, False
-
-
 def read_catalog(results_dir: str | os.PathLike[str] = "results", *, use_index: bool = True) -> CatalogListing:
     """List the stores under ``results_dir``, reading only the stores that changed since the last call.
 
@@ -350,16 +275,8 @@ def read_catalog(results_dir: str | os.PathLike[str] = "results", *, use_index: 
     index_path = root / CATALOG_FILE
     con, rebuilt = (None, False)
     if use_index:
-        try:
-            con, rebuilt = _connect_index(index_path)
-        except sqlite3.Error as exc:
-            log.warning("catalog index %s unusable (%s); listing without it", index_path, exc)
-    cached: dict[str, tuple[str, str]] = {}
-    if con is not None:
-        try:
-            cached = {r[0]: (r[1], r[2]) for r in con.execute("SELECT path, fingerprint, record FROM stores")}
-        except sqlite3.Error:
-            cached = {}
+        con, rebuilt = open_index(index_path)
+    cached = read_cached(con)
     root_real = root.resolve()
     entries: list[CatalogEntry] = []
     fresh: list[tuple[str, str, str]] = []
@@ -373,21 +290,14 @@ def read_catalog(results_dir: str | os.PathLike[str] = "results", *, use_index: 
                                         problem="the store holds symbolic links; not read"))
             continue
         hit = cached.get(rel)
-        entry = _entry_from_record(hit[1], rel) if hit is not None and hit[0] == fingerprint else None
+        record = parse_record(hit[1], rel) if hit is not None and hit[0] == fingerprint else None
+        entry = None if record is None else CatalogEntry(**record)
         if entry is None:
             entry = _read_entry(store, rel, size, latest)
             fresh.append((rel, fingerprint, json.dumps(asdict(entry))))
         entries.append(entry)
     if con is not None:
-        try:
-            with con:
-                con.executemany("INSERT OR REPLACE INTO stores (path, fingerprint, record) VALUES (?, ?, ?)", fresh)
-                gone = set(cached) - {e.path for e in entries}
-                con.executemany("DELETE FROM stores WHERE path = ?", [(g,) for g in sorted(gone)])
-        except sqlite3.Error as exc:
-            log.warning("could not update catalog index %s (%s)", index_path, exc)
-        finally:
-            con.close()
+        update_index(con, index_path, fresh, set(cached) - {e.path for e in entries})
     return CatalogListing(results_dir=str(root), entries=tuple(sorted(entries, key=lambda e: e.path)),
                           index_path=str(index_path) if con is not None else None, reread=len(fresh),
                           rebuilt=rebuilt)
