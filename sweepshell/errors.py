@@ -12,6 +12,8 @@ __all__ = [
     "ConfigError",
     "ParameterError",
     "QueryError",
+    "RunStoppedError",
+    "StoreDamagedError",
     "StoreMismatchError",
     "StoreNotFoundError",
     "StoreSchemaError",
@@ -66,6 +68,20 @@ class StoreMismatchError(SweepshellError, ValueError):
 
 class StoreSchemaError(SweepshellError, ValueError):
     """A folder is not a sweepshell store, or its schema version is unknown."""
+
+
+class StoreDamagedError(SweepshellError, ValueError):
+    """A store's metadata or chunks are damaged; the message names what and the remedy."""
+
+
+class RunStoppedError(SweepshellError, RuntimeError):
+    """A run stopped on a fault outside the input (disk full, file-size limit, scheduler lost).
+
+    The store stays consistent and the claims are released: running the same command again
+    continues. Exit code 3.
+    """
+
+    exit_code = 3
 
 
 class StoreNotFoundError(SweepshellError, FileNotFoundError):

@@ -70,7 +70,7 @@ def _open(store: str) -> Any:
 
     from sweepshell.store.reader import check_readable_store
 
-    check_readable_store(store)
+    check_readable_store(store, chunks=True)
     return xr.open_zarr(store, chunks=None, consolidated=True, zarr_format=3)
 
 
@@ -90,7 +90,13 @@ def _cmd_query(args: argparse.Namespace) -> int:
     if args.format == "json":
         from sweepshell.query.table import to_records
 
-        _emit(json.dumps(to_records(table), indent=1, allow_nan=False) + "\n")
+        # streamed in slices: memory stays that of the table, not of one Python object per value
+        _emit("[")
+        for start in range(0, len(table), _JSON_SLICE):
+            rows = to_records(table.iloc[start:start + _JSON_SLICE])
+            _emit(("\n" if start == 0 else ",\n")
+                  + ",\n".join(json.dumps(r, allow_nan=False, separators=(", ", ": ")) for r in rows))
+        _emit("\n]\n")
     elif args.format == "csv":
         buffer = io.StringIO()
         _write_csv(table, buffer)
@@ -104,6 +110,9 @@ def _cmd_query(args: argparse.Namespace) -> int:
     if shows_outputs and len(table):
         print(CAUTION, file=sys.stderr)
     return 0
+
+
+_JSON_SLICE = 2000
 
 
 def _emit(text: str) -> None:

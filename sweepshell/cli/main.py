@@ -1,13 +1,17 @@
 """``sweepshell`` command line: parse arguments, call the library, print, exit.
 
-Exit codes: 0 done, 2 bad input (one clear line on stderr, nothing written), 130
-interrupted (the run resumes where it stopped). Heavy libraries are imported inside the
-commands that need them so that ``--help`` and ``status`` answer quickly.
+Exit codes (:data:`EXIT_CODES_HELP`): 0 done; 1 the command failed (``verify`` found problems,
+or an unexpected error); 2 bad input or a damaged store (one clear line on stderr, nothing
+written); 3 a run stopped on an outside fault (disk full, file-size limit, scheduler lost —
+run the same command again to continue); 130 interrupted (resumable). Every failure is one
+line on stderr, never a traceback (``-v`` logs the details). Heavy libraries are imported
+inside the commands that need them so that ``--help`` and ``status`` answer quickly.
 """
 
 from __future__ import annotations
 
 import argparse
+import errno
 import importlib
 import importlib.util
 import json
@@ -23,10 +27,16 @@ from sweepshell.errors import SweepshellError
 __all__ = ["build_parser", "main"]
 
 EXIT_OK = 0
+EXIT_FAILED = 1
 EXIT_BAD_INPUT = 2
+EXIT_STOPPED = 3
 EXIT_INTERRUPTED = 130
 
 _CAUTION_HELP = "CAUTION: " + CAUTION.removeprefix("Caution: ")
+EXIT_CODES_HELP = ("exit codes: 0 done; 1 failed (verify found problems, or an unexpected error); 2 bad input or a "
+                   "damaged store (one line on stderr, nothing written); 3 a run stopped on an outside fault (disk "
+                   "full, file-size limit, scheduler lost: run the same command again to continue); 130 interrupted "
+                   "(resumable)")
 
 
 class _Parser(argparse.ArgumentParser):
@@ -41,7 +51,7 @@ def build_parser() -> argparse.ArgumentParser:
         prog="sweepshell",
         description="Sweep validated reduced-order buckling models of thin shells and sheets over parameter "
                     "grids; keep every result in a labelled zarr store; query and map it.",
-        epilog=_CAUTION_HELP, formatter_class=argparse.RawDescriptionHelpFormatter)
+        epilog=EXIT_CODES_HELP + "\n\n" + _CAUTION_HELP, formatter_class=argparse.RawDescriptionHelpFormatter)
     parser.add_argument("--version", action="version", version=f"sweepshell {__version__}")
     parser.add_argument("-v", "--verbose", action="store_true", help="log what the library does")
     sub = parser.add_subparsers(dest="command", metavar="COMMAND", parser_class=_Parser)
@@ -52,7 +62,7 @@ def build_parser() -> argparse.ArgumentParser:
                     "continues where it stopped. Overrides use hydra's grammar, e.g. fixed.poisson_ratio=0.25 "
                     "axes.shell_parameter=range(3,12,0.5) axes.edge=clamped,pinned store.path=scratch/x.zarr "
                     "executor=threads executor.workers=1.",
-        epilog=_CAUTION_HELP)
+        epilog=EXIT_CODES_HELP + ". " + _CAUTION_HELP)
     run.add_argument("sweep", metavar="SWEEP")
     run.add_argument("overrides", nargs="*", metavar="OVERRIDE")
     run.add_argument("--config-dir", help="the configs/ folder (default: ./configs)")
@@ -125,6 +135,16 @@ def _cmd_status(args: argparse.Namespace) -> int:
     print(f"  axes: {axes}")
     print(f"  {info['total']} points: {counts}; {info['complete_fraction']:.1%} final"
           + ("" if info["complete"] else " (run the sweep again to continue)"))
+    if info["counts"].get("unknown"):
+        print(f"  {info['counts']['unknown']} points hold status codes this sweepshell does not know; "
+              f"`sweepshell verify {info['path']}` names the blocks")
+    if info.get("blocks_missing_chunks"):
+        print(f"  {info['blocks_missing_chunks']} final blocks lost chunks (their values are gone); "
+              f"`sweepshell run` recomputes them, `sweepshell verify {info['path']}` names them")
+    off = info.get("off_grid_points") or {}
+    if off:
+        print(f"  off-grid points (refine, boundary): {sum(off.values())} "
+              f"({', '.join(f'{v} {k}' for k, v in off.items())})")
     return EXIT_OK
 
 
@@ -169,7 +189,40 @@ def main(argv: Sequence[str] | None = None) -> int:
     except KeyboardInterrupt:
         print("interrupted; run the same command again to continue", file=sys.stderr)
         return EXIT_INTERRUPTED
+    except Exception as exc:  # no traceback for any input or fault: explain it in one line
+        message, failed_code = _explain_failure(args, exc)
+        print(f"sweepshell: error: {message}", file=sys.stderr)
+        logging.getLogger("sweepshell").info("details of the error above", exc_info=True)
+        return failed_code
     return code
+
+
+def _explain_failure(args: argparse.Namespace, exc: Exception) -> tuple[str, int]:
+    """Return one line and the exit code for an unexpected exception (a damaged chunk if that is the cause)."""
+    from sweepshell.store.integrity import find_undecodable_chunk
+
+    for attr in ("store", "a", "b"):
+        store = getattr(args, attr, None)
+        if not isinstance(store, str) or not os.path.isdir(store):
+            continue
+        try:
+            found = find_undecodable_chunk(store)
+        except Exception:
+            found = None
+        if found is not None:
+            name, index = found
+            return (f"store {store!r}: {name} block {list(index)} does not decode (checksum or format error: the "
+                    f"chunk is damaged); run `sweepshell verify --repair {store}`, then run the sweep again",
+                    EXIT_BAD_INPUT)
+    if isinstance(exc, OSError):
+        if exc.errno in (errno.ENOSPC, errno.EFBIG, errno.EDQUOT):
+            return (f"{exc.strerror} ({exc.filename or ''}); free space or raise the limit, then run the same "
+                    "command again", EXIT_STOPPED)
+        return (f"{exc.strerror or type(exc).__name__} ({exc.filename or ''}); check the path and its permissions",
+                EXIT_BAD_INPUT)
+    first = str(exc).splitlines()[0] if str(exc) else ""
+    return (f"unexpected {type(exc).__name__}: {first[:200]}; this is a bug in sweepshell — rerun with -v for the "
+            "details and report them", EXIT_FAILED)
 
 
 def entry() -> None:

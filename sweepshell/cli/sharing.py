@@ -30,6 +30,8 @@ def register(subparsers: Any) -> None:
     cat.add_argument("dir", metavar="DIR", nargs="?", default="results", help="results folder (default results/)")
     cat.add_argument("--json", action="store_true", help="print JSON")
     cat.add_argument("--no-index", action="store_true", help="read every store; neither read nor write the index")
+    cat.add_argument("--clean", action="store_true",
+                     help="remove leftovers of killed processes (half-built stores, stale block claims)")
     cat.set_defaults(func=_cmd_catalog)
 
     merge = subparsers.add_parser(
@@ -93,10 +95,14 @@ def _format_axis(axis: dict[str, Any]) -> str:
 def _cmd_catalog(args: argparse.Namespace) -> int:
     from sweepshell.store.catalog import read_catalog
 
-    listing = read_catalog(args.dir, use_index=not args.no_index)
+    listing = read_catalog(args.dir, use_index=not args.no_index, clean=args.clean)
     if args.json:
         print(json.dumps(listing.to_dict(), indent=2))
         return EXIT_OK
+    for left in listing.leftovers:
+        print(f"{left}: {'removed' if args.clean else 'left over by a killed process'}")
+    if listing.leftovers and not args.clean:
+        print(f"{len(listing.leftovers)} leftovers; `sweepshell catalog {args.dir} --clean` removes them")
     if not listing.entries:
         print(f"no stores under {listing.results_dir}")
         return EXIT_OK

@@ -11,6 +11,7 @@ and every value is plain data.
 
 from __future__ import annotations
 
+import math
 import os
 import re
 from collections.abc import Sequence
@@ -20,11 +21,13 @@ from typing import Any
 import yaml
 from omegaconf import DictConfig, OmegaConf
 
-from sweepshell.config.plan_builder import SWEEP_KEYS, build_plan
+from sweepshell.config.plan_builder import DEFAULT_MAX_POINTS, SWEEP_KEYS, build_plan
 from sweepshell.errors import ConfigError
 from sweepshell.plan import SweepPlan
 
 __all__ = ["build_plan", "find_config_dir", "load_plan", "parse_overrides", "resolve_sweep_file"]
+
+
 
 def find_config_dir(explicit: str | os.PathLike[str] | None = None) -> Path:
     """Return the ``configs/`` folder: the explicit one, ``./configs``, or the checkout's."""
@@ -69,6 +72,9 @@ def parse_overrides(overrides: Sequence[str]) -> list[Any]:
     parser = OverridesParser.create()
     parsed = []
     for text in overrides:
+        if "${" in text:
+            raise ConfigError(f"override {text!r} uses ${{...}} interpolation, which sweeps do not support; "
+                              "write the value itself", field="override", value=text)
         try:
             parsed.append(parser.parse_override(text))
         except HydraException as exc:
@@ -99,8 +105,44 @@ def _compose_base(config_dir: Path, group_overrides: list[str]) -> DictConfig:
     return cfg
 
 
+#: largest sweep file read, bytes (a sweep is a few hundred bytes; this bounds what a loader ever builds)
+MAX_SWEEP_FILE_BYTES = 256_000
+
+
+class _YamlRefused(yaml.YAMLError):
+    """A construct sweep files may not use (anchors, aliases, duplicate keys)."""
+
+    def __init__(self, what: str, line: int | None) -> None:
+        super().__init__(what)
+        self.what = what
+        self.line = line
+
+
 class _SweepYamlLoader(yaml.SafeLoader):
-    """Safe YAML that also reads ``70.0e9`` and ``1e-3`` as numbers (YAML 1.1 wants a dot and a sign)."""
+    """Safe YAML that also reads ``70.0e9`` and ``1e-3`` as numbers (YAML 1.1 wants a dot and a sign).
+
+    Anchors and aliases are refused as they are met, before any node is built from them, so an
+    alias bomb costs nothing; a key given twice in one mapping is refused instead of silently
+    keeping the last value.
+    """
+
+    def compose_node(self, parent: Any, index: Any) -> Any:
+        event = self.peek_event()
+        if isinstance(event, yaml.AliasEvent) or getattr(event, "anchor", None) is not None:
+            raise _YamlRefused("anchors and aliases (& and *) are not allowed; write the values out",
+                               event.start_mark.line if event.start_mark else None)
+        return super().compose_node(parent, index)
+
+    def construct_mapping(self, node: Any, deep: bool = False) -> Any:
+        if isinstance(node, yaml.MappingNode):
+            seen: set[Any] = set()
+            for key_node, _ in node.value:
+                key = self.construct_object(key_node, deep=True)
+                if isinstance(key, (str, int, float, bool)) and key in seen:
+                    raise _YamlRefused(f"key {key!r} is given twice; keep one",
+                                       key_node.start_mark.line if key_node.start_mark else None)
+                seen.add(key)
+        return super().construct_mapping(node, deep=deep)
 
 
 _SweepYamlLoader.add_implicit_resolver(
@@ -111,8 +153,26 @@ _SweepYamlLoader.add_implicit_resolver(
 
 def _load_sweep_yaml(path: Path) -> DictConfig:
     try:
+        size = path.stat().st_size
+    except OSError as exc:
+        raise ConfigError(f"sweep file {path} cannot be read ({exc.strerror}); check the path",
+                          field="sweep", value=str(path)) from None
+    if size > MAX_SWEEP_FILE_BYTES:
+        raise ConfigError(f"sweep file {path} is {size} bytes, above {MAX_SWEEP_FILE_BYTES}; a sweep file names "
+                          "axes by their form (linspace, logspace, range), not by listing huge value tables",
+                          field="sweep", value=str(path))
+    try:
         text = path.read_text()
         data = yaml.load(text, Loader=_SweepYamlLoader)  # a SafeLoader subclass: builds plain data only
+    except UnicodeDecodeError:
+        raise ConfigError(f"sweep file {path} is not UTF-8 text; save it as UTF-8", field="sweep",
+                          value=str(path)) from None
+    except _YamlRefused as exc:
+        where = f" at line {exc.line + 1}" if exc.line is not None else ""
+        raise ConfigError(f"sweep file {path}{where}: {exc.what}", field="sweep", value=str(path)) from None
+    except RecursionError:
+        raise ConfigError(f"sweep file {path} is nested too deeply; a sweep is a few flat mappings",
+                          field="sweep", value=str(path)) from None
     except yaml.YAMLError as exc:
         line = getattr(getattr(exc, "problem_mark", None), "line", None)
         where = f" at line {line + 1}" if line is not None else ""
@@ -127,7 +187,26 @@ def _load_sweep_yaml(path: Path) -> DictConfig:
                           f"{', '.join(SWEEP_KEYS)}", field=unknown[0], value=unknown)
     if "name" not in data:
         data["name"] = path.stem
+    _check_no_interpolation(data, f"sweep file {path}")
     return OmegaConf.create(data)
+
+
+def _check_no_interpolation(value: Any, where: str, key: str = "") -> None:
+    """Refuse ``${...}`` anywhere: nothing in a sweep is resolved from the environment or other keys.
+
+    The recorded sweep is then exactly what was written, and no resolver (``oc.env``, loops, missing
+    keys) ever runs on user input.
+    """
+    if isinstance(value, str) and "${" in value:
+        raise ConfigError(f"{where}: {key or 'a value'}={value[:60]!r} uses ${{...}} interpolation, which sweeps "
+                          "do not support; write the value itself", field=key or None, value=value[:60])
+    if isinstance(value, dict):
+        for k, v in value.items():
+            _check_no_interpolation(str(k), where, key)
+            _check_no_interpolation(v, where, f"{key}.{k}" if key else str(k))
+    elif isinstance(value, (list, tuple)):
+        for v in value:
+            _check_no_interpolation(v, where, key)
 
 
 def load_plan(sweep: str, overrides: Sequence[str] = (), *, config_dir: str | os.PathLike[str] | None = None,
@@ -153,6 +232,11 @@ def load_plan(sweep: str, overrides: Sequence[str] = (), *, config_dir: str | os
     parsed = parse_overrides(overrides)
     group = [f"executor={o.value()}" for o in parsed
              if o.key_or_group == "executor" and isinstance(o.value(), str) and not o.is_sweep_override()]
+    presets = sorted(f.stem for f in (cdir / "executor").glob("*.yaml"))
+    for choice in group:
+        if choice.split("=", 1)[1] not in presets:  # a preset name, never a path (executor=../sweep/x)
+            raise ConfigError(f"{choice} is not an executor preset; executor presets are {', '.join(presets)} "
+                              "(or set executor.kind/workers/address directly)", field="executor", value=choice)
     base = _compose_base(cdir, group)
     OmegaConf.set_struct(base, False)
     cfg = OmegaConf.merge(base, _load_sweep_yaml(path))
@@ -175,6 +259,7 @@ def load_plan(sweep: str, overrides: Sequence[str] = (), *, config_dir: str | os
                 raise ConfigError(f"override {o.input_line!r} sweeps a value outside axes; only axes.NAME "
                                   "takes several values (a list or range(...))", field=key,
                                   value=o.input_line)
+            _check_sweep_size(o, max_points_of(cfg))
             try:
                 values = list(o.sweep_iterator())
             except Exception:
@@ -196,6 +281,36 @@ def load_plan(sweep: str, overrides: Sequence[str] = (), *, config_dir: str | os
         raise ConfigError("executor=distributed needs an address; add executor.address=tcp://HOST:PORT",
                           field="executor.address")
     return build_plan({str(k): v for k, v in container.items()}, source=str(path))
+
+
+def max_points_of(cfg: Any) -> int:
+    """Return the sweep's point limit (``limits.max_points``) before the plan is validated."""
+    try:
+        value = OmegaConf.select(cfg, "limits.max_points", default=None)
+    except Exception:
+        value = None
+    if isinstance(value, (int, float)) and not isinstance(value, bool) and math.isfinite(value) and value >= 1:
+        return int(value)
+    return DEFAULT_MAX_POINTS
+
+
+def _check_sweep_size(override: Any, max_points: int) -> None:
+    """Refuse a ``range(...)`` override with more values than the grid may hold, before expanding it."""
+    from hydra.core.override_parser.types import RangeSweep
+
+    value = override.value()
+    if not isinstance(value, RangeSweep):
+        return
+    start, stop, step = value.start, value.stop, value.step if value.step is not None else 1
+    if not (isinstance(start, (int, float)) and isinstance(stop, (int, float)) and isinstance(step, (int, float))
+            and all(math.isfinite(v) for v in (start, stop, step)) and step != 0):
+        raise ConfigError(f"override {override.input_line!r}: range(start, stop, step) needs finite numbers and a "
+                          "non-zero step", field=override.key_or_group, value=override.input_line)
+    count = max(0, math.ceil((stop - start) / step))
+    if count > max_points:
+        raise ConfigError(f"override {override.input_line!r} gives {count:.3g} values, above limits.max_points="
+                          f"{max_points}; use a larger step", field=override.key_or_group,
+                          value=override.input_line)
 
 
 def _delete_key(cfg: DictConfig, key: str) -> None:

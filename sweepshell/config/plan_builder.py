@@ -26,14 +26,16 @@ from sweepshell.errors import ConfigError, ParameterError
 from sweepshell.models import get_model
 from sweepshell.models.base import SweepModel
 from sweepshell.plan import Axis, ExecutorSpec, SweepPlan
+from sweepshell.store.integrity import check_model_limits, check_store_path
 
-__all__ = ["EXECUTOR_KINDS", "SWEEP_KEYS", "build_plan"]
+__all__ = ["DEFAULT_MAX_POINTS", "EXECUTOR_KINDS", "MAX_WORKERS", "SWEEP_KEYS", "build_plan"]
 
 SWEEP_KEYS = ("name", "model", "settings", "fixed", "axes", "store", "executor", "block", "limits",
               "description", "reuse", "refine")
 EXECUTOR_KINDS = ("local", "threads", "distributed")
+DEFAULT_MAX_POINTS = 20_000_000
+MAX_WORKERS = 512
 _NAME_RE = re.compile(r"^[A-Za-z0-9][A-Za-z0-9_.-]*$")
-
 
 
 def build_plan(cfg: Mapping[str, Any], *, source: str = "<dict>") -> SweepPlan:
@@ -50,14 +52,9 @@ def build_plan(cfg: Mapping[str, Any], *, source: str = "<dict>") -> SweepPlan:
     model_cls = get_model(model_name)
     model = _build_checked_model(model_cls, cfg.get("settings") or {})
     settings = model.settings
-    axes, fixed = _build_parameters(model_cls, cfg.get("fixed") or {}, cfg.get("axes") or {})
-    limits = cfg.get("limits") or {}
-    max_points = _positive_int(limits.get("max_points", 20_000_000), "limits.max_points")
+    fixed_in, axes_in, max_points = _check_grid_request(cfg)
+    axes, fixed = _build_parameters(model_cls, fixed_in, axes_in)
     n_points = math.prod(len(a) for a in axes)
-    if n_points > max_points:
-        shape = " x ".join(str(len(a)) for a in axes)
-        raise ConfigError(f"the grid has {n_points} points ({shape}), above limits.max_points={max_points}; "
-                          "use fewer axis values or raise limits.max_points", field="axes", value=n_points)
     executor = _build_executor(cfg.get("executor") or {})
     block_points = _choose_block_points(cfg.get("block") or {}, model, executor, n_points)
     reuse = cfg.get("reuse", True)
@@ -65,7 +62,10 @@ def build_plan(cfg: Mapping[str, Any], *, source: str = "<dict>") -> SweepPlan:
         raise ConfigError(f"reuse={reuse!r} must be true or false", field="reuse", value=reuse)
     refine = _build_refine(cfg.get("refine"), [a.name for a in axes])
     store = cfg.get("store") or {}
+    if not isinstance(store, dict):
+        raise ConfigError("store must be a mapping (store: {path: results/NAME.zarr})", field="store", value=store)
     store_path = store.get("path") or os.path.join("results", f"{name}.zarr")
+    check_store_path(store_path)
     resolved = {
         "name": name,
         "model": model_name,
@@ -99,14 +99,36 @@ def _check_keys_and_name(cfg: Mapping[str, Any], source: str) -> str:
     return name
 
 
-def _build_parameters(model_cls: type[SweepModel], fixed_in: Any,
-                      axes_in: Any) -> tuple[list[Axis], dict[str, Any]]:
-    """Return the checked axes and fixed values (defaults filled in) of a sweep."""
+def _check_grid_request(cfg: Mapping[str, Any]) -> tuple[dict[str, Any], dict[str, Any], int]:
+    """Return the fixed and axes mappings and the point limit, the grid size checked from the axis forms.
+
+    The size comes from the forms, before any axis is expanded into values.
+    """
+    fixed_in = cfg.get("fixed") or {}
+    axes_in = cfg.get("axes") or {}
     if not isinstance(fixed_in, dict):
         raise ConfigError("fixed must be a mapping of parameter name to value", field="fixed", value=fixed_in)
     if not axes_in:
         raise ConfigError("the sweep has no axes; add at least one under axes: (e.g. "
                           "shell_parameter: {linspace: [3, 12, 10]})", field="axes")
+    if not isinstance(axes_in, dict):
+        raise ConfigError("axes must be a mapping of parameter name to values", field="axes", value=axes_in)
+    limits = cfg.get("limits") or {}
+    if not isinstance(limits, dict):
+        raise ConfigError("limits must be a mapping (limits: {max_points: N})", field="limits", value=limits)
+    max_points = _positive_int(limits.get("max_points", DEFAULT_MAX_POINTS), "limits.max_points")
+    lengths = {pname: _axis_length(f"axes.{pname}", spec) for pname, spec in axes_in.items()}
+    if math.prod(lengths.values()) > max_points:
+        shape = " x ".join(str(n) for n in lengths.values())
+        raise ConfigError(f"the grid has {math.prod(lengths.values())} points ({shape}), above "
+                          f"limits.max_points={max_points}; use fewer axis values or raise limits.max_points",
+                          field="axes", value=math.prod(lengths.values()))
+    return fixed_in, axes_in, max_points
+
+
+def _build_parameters(model_cls: type[SweepModel], fixed_in: Mapping[str, Any],
+                      axes_in: Mapping[str, Any]) -> tuple[list[Axis], dict[str, Any]]:
+    """Return the checked axes and fixed values (defaults filled in) of a sweep."""
     axes: list[Axis] = []
     for pname, spec in axes_in.items():
         param = model_cls.get_parameter(pname)
@@ -121,6 +143,9 @@ def _build_parameters(model_cls: type[SweepModel], fixed_in: Any,
                               field=pname)
         if isinstance(value, (list, dict)):
             raise ConfigError(f"fixed.{pname}={value!r} is not a single value; move it to axes to sweep it",
+                              field=f"fixed.{pname}", value=value)
+        if isinstance(value, float) and not math.isfinite(value):
+            raise ConfigError(f"fixed.{pname}={value!r} is not a finite number; give a finite value",
                               field=f"fixed.{pname}", value=value)
         param.check_values(value, where=f"fixed.{pname}")
         fixed[pname] = float(value) if not param.is_categorical else value
@@ -155,8 +180,27 @@ def _plain(v: Any) -> Any:
     return v
 
 
+def _axis_length(where: str, spec: Any) -> int:
+    """Return how many values an axis form gives, without expanding it (0 when malformed: checked later)."""
+    if isinstance(spec, (DictConfig, ListConfig)):
+        spec = OmegaConf.to_container(spec)
+    if isinstance(spec, (list, tuple)):
+        return len(spec)
+    if not (isinstance(spec, dict) and len(spec) == 1):
+        return 0
+    form, args = next(iter(spec.items()))
+    if not (isinstance(args, (list, tuple)) and len(args) == 3 and all(
+            isinstance(a, (int, float)) and not isinstance(a, bool) and math.isfinite(a) for a in args)):
+        return 0
+    a, b, c = (float(x) for x in args)
+    if form == "range":
+        return max(0, math.ceil((b - a) / c - 1e-9)) if c != 0 else 0
+    return int(c) if form in ("linspace", "logspace") and c >= 1 else 0
+
+
 def _positive_int(value: Any, where: str) -> int:
-    if isinstance(value, bool) or not isinstance(value, (int, float)) or value != int(value) or value < 1:
+    if isinstance(value, bool) or not isinstance(value, (int, float)) or not math.isfinite(value) \
+            or value != int(value) or value < 1:
         raise ConfigError(f"{where}={value!r} must be a whole number ≥ 1", field=where, value=value)
     return int(value)
 
@@ -173,9 +217,10 @@ def _build_checked_model(model_cls: type[SweepModel], settings: Any) -> SweepMod
                               f"{', '.join(allowed) or '(none)'}", field=f"settings.{key}", value=key)
     try:
         model = model_cls(**settings)
-    except (TypeError, ValueError) as exc:
+    except (TypeError, ValueError, OverflowError) as exc:
         raise ConfigError(f"settings {json.dumps(settings)} rejected by model {model_cls.name!r}: {exc}",
                           field="settings", value=settings) from None
+    check_model_limits(model, "settings", ConfigError)
     return model
 
 
@@ -212,6 +257,9 @@ def _build_axis(name: str, spec: Any) -> Axis:
         for v in values:
             if isinstance(v, bool) or not isinstance(v, (int, float)):
                 raise ConfigError(f"{where} value {v!r} is neither a number nor a name", field=where, value=v)
+            if not math.isfinite(v):
+                raise ConfigError(f"{where} value {v!r} is not a finite number; give finite values",
+                                  field=where, value=v)
         values = [float(v) for v in values]
     seen: set[Any] = set()
     dupes = [v for v in values if v in seen or seen.add(v)]  # type: ignore[func-returns-value]
@@ -223,7 +271,7 @@ def _build_axis(name: str, spec: Any) -> Axis:
 
 def _expand_form(where: str, form: str, args: Any) -> list[float]:
     if not isinstance(args, (list, tuple)) or len(args) != 3 or not all(
-            isinstance(a, (int, float)) and not isinstance(a, bool) for a in args):
+            isinstance(a, (int, float)) and not isinstance(a, bool) and math.isfinite(a) for a in args):
         raise ConfigError(f"{where}: {form} takes three numbers [start, stop, {'step' if form == 'range' else 'count'}]"
                           f", got {args!r}", field=where, value=args)
     a, b, c = (float(x) for x in args)
@@ -273,6 +321,10 @@ def _build_executor(spec: Mapping[str, Any]) -> ExecutorSpec:
     workers = spec.get("workers")
     if workers is not None:
         workers = _positive_int(workers, "executor.workers")
+        if workers > MAX_WORKERS:
+            raise ConfigError(f"executor.workers={workers} is more than {MAX_WORKERS} worker processes on one "
+                              "machine; use executor=distributed for a cluster", field="executor.workers",
+                              value=workers)
     address = spec.get("address")
     if kind == "distributed" and not address:
         raise ConfigError("executor=distributed needs an address; add executor.address=tcp://HOST:PORT",

@@ -21,7 +21,7 @@ import time
 import uuid
 from pathlib import Path
 
-__all__ = ["CLAIMS_DIR", "ClaimBook"]
+__all__ = ["CLAIMS_DIR", "ClaimBook", "remove_stale_claims"]
 
 CLAIMS_DIR = ".claims"
 
@@ -124,3 +124,19 @@ class ClaimBook:
             self.release(index)
         with contextlib.suppress(OSError):
             self.folder.rmdir()
+
+
+def remove_stale_claims(store_path: str | os.PathLike[str], ttl: float = 60.0) -> int:
+    """Remove claims of runners that are gone (and the folder when empty); return how many.
+
+    A killed runner leaves its claims behind; once the store is complete nobody takes them over,
+    and zarr would warn about the folder on every open.
+    """
+    from sweepshell.store.leftovers import stale_claim_files
+
+    stale = stale_claim_files(store_path, ttl)
+    for claim in stale:
+        claim.unlink(missing_ok=True)
+    with contextlib.suppress(OSError):
+        (Path(store_path) / CLAIMS_DIR).rmdir()
+    return len(stale)

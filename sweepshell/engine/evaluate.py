@@ -22,6 +22,7 @@ from sweepshell.models import make_model
 from sweepshell.models.base import TRUSTED_STATUSES, BatchResult, SweepModel
 from sweepshell.query.boundary import EvaluatorFactory, RegimeEvaluator
 from sweepshell.store import metadata
+from sweepshell.store.integrity import check_model_limits
 from sweepshell.store.metadata import ATTR
 
 __all__ = ["PointEvaluator", "build_store_model", "store_evaluator"]
@@ -47,6 +48,7 @@ def build_store_model(attrs: Mapping[str, Any]) -> SweepModel:
     """
     name = attrs.get(ATTR.model)
     model = make_model(str(name), _settings_from_json(attrs.get(ATTR.settings)))
+    check_model_limits(model, f"the store's recorded {ATTR.settings}")  # store records are input too
     stored = attrs.get(ATTR.model_version)
     if model.version != stored:
         raise StoreMismatchError(

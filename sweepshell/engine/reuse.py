@@ -18,14 +18,19 @@ from typing import Any
 
 import numpy as np
 
-from sweepshell.models.base import BatchResult, SweepModel
+from sweepshell.errors import SweepshellError
+from sweepshell.models.base import TRUSTED_STATUSES, BatchResult, SweepModel
 from sweepshell.plan import SweepPlan
 from sweepshell.store import metadata
+from sweepshell.store.integrity import find_blocks_missing_chunks
 from sweepshell.store.metadata import ATTR, canonical_json
+from sweepshell.store.reader import check_readable_store, read_ledger
 
 __all__ = ["Donor", "find_donors", "take_from_donors"]
 
 log = logging.getLogger(__name__)
+
+_TRUSTED = np.array(sorted(int(s) for s in TRUSTED_STATUSES))
 
 
 @dataclass(frozen=True)
@@ -36,6 +41,8 @@ class Donor:
     axis_names: tuple[str, ...]
     axis_index: tuple[tuple[str, tuple[tuple[Any, int], ...]], ...]
     fixed: tuple[tuple[str, Any], ...]
+    block_shape: tuple[int, ...] = ()
+    damaged_blocks: frozenset[tuple[int, ...]] = frozenset()
 
     def lookup(self) -> tuple[dict[str, dict[Any, int]], dict[str, Any]]:
         return ({name: dict(pairs) for name, pairs in self.axis_index}, dict(self.fixed))
@@ -60,17 +67,22 @@ def find_donors(plan: SweepPlan, model: SweepModel) -> list[Donor]:
         if store.resolve() == target:
             continue
         try:
-            attrs = metadata.read_node(store)["attributes"]
+            attrs = check_readable_store(store)  # a store with damaged metadata is never a source
             axes: dict[str, list[Any]] = metadata.read_record(attrs, ATTR.axes)
             fixed: dict[str, Any] = metadata.read_record(attrs, ATTR.fixed)
             order = _axis_order(store, axes)
-        except (OSError, ValueError, KeyError, TypeError):
-            log.warning("skipping unreadable store %s as a reuse source", store)
+            block_shape = tuple(int(b) for b in attrs[ATTR.block_shape])
+            # blocks that lost a chunk are never copied from (their trusted points would read as NaN)
+            damaged = find_blocks_missing_chunks(store, read_ledger(store, block_shape), block_shape,
+                                                 [o.name for o in model.outputs] + [metadata.REGIME_VAR])
+        except (OSError, ValueError, KeyError, TypeError, SweepshellError):
+            log.warning("skipping unreadable or damaged store %s as a reuse source", store)
             continue
         donors.append(Donor(
             path=str(store), axis_names=tuple(order),
             axis_index=tuple((name, tuple((_canonical(v), i) for i, v in enumerate(axes[name]))) for name in order),
-            fixed=tuple((k, _canonical(v)) for k, v in fixed.items())))
+            fixed=tuple((k, _canonical(v)) for k, v in fixed.items()), block_shape=block_shape,
+            damaged_blocks=frozenset(damaged)))
     return donors
 
 
@@ -109,6 +121,10 @@ def take_from_donors(donors: Sequence[Donor], model: SweepModel, inputs: Mapping
                 ok &= np.array([v == fixed[p.name] for v in values], dtype=bool)
             else:
                 ok &= False
+        if ok.any() and donor.damaged_blocks and len(donor.block_shape) == len(donor.axis_names):
+            blocks = zip(*(idx[name] // b for name, b in zip(donor.axis_names, donor.block_shape, strict=True)),
+                         strict=True)
+            ok &= ~np.array([tuple(int(i) for i in blk) in donor.damaged_blocks for blk in blocks], dtype=bool)
         if not ok.any():
             continue
         try:
@@ -120,19 +136,36 @@ def take_from_donors(donors: Sequence[Donor], model: SweepModel, inputs: Mapping
                 continue
             rows = np.flatnonzero(ok)[final]
             where = tuple(w[final] for w in where)
+            status = status[final]
+            copied: dict[str, np.ndarray] = {}
+            # a trusted point whose non-nullable output reads NaN lost its value: never copied
+            usable = np.ones(rows.size, dtype=bool)
+            trusted = np.isin(status, _TRUSTED)
+            for out in model.outputs:
+                extra = model.extra_dims
+                extra_shape = tuple(extra[d] for d in out.dims)
+                # broadcast the point coordinates against the whole of any extra dimensions
+                sel = tuple(w.reshape((-1,) + (1,) * len(extra_shape)) for w in where) + tuple(
+                    np.arange(k).reshape((1, *(k if j == i else 1 for j in range(len(extra_shape)))))
+                    for i, k in enumerate(extra_shape))
+                got = np.asarray(group[out.name].vindex[sel])  # type: ignore[union-attr]
+                copied[out.name] = got
+                if not out.nullable and got.dtype.kind == "f":
+                    usable &= ~(trusted & np.isnan(got.reshape(rows.size, -1)).all(axis=-1))
+            regime = np.asarray(group[metadata.REGIME_VAR].vindex[where])  # type: ignore[union-attr]
+            usable &= ~(trusted & (regime < 0))
+            if not usable.any():
+                continue
             if result is None:
                 result = model.empty_result(n)
-            for out in model.outputs:
-                extra = result.outputs[out.name].shape[1:]
-                # broadcast the point coordinates against the whole of any extra dimensions
-                sel = tuple(w.reshape((-1,) + (1,) * len(extra)) for w in where) + tuple(
-                    np.arange(k).reshape((1, *(k if j == i else 1 for j in range(len(extra)))))
-                    for i, k in enumerate(extra))
-                result.outputs[out.name][rows] = np.asarray(group[out.name].vindex[sel])  # type: ignore[union-attr]
-            result.regime[rows] = np.asarray(group[metadata.REGIME_VAR].vindex[where])  # type: ignore[union-attr]
-            result.status[rows] = status[final]
+            rows = rows[usable]
+            for name, got in copied.items():
+                result.outputs[name][rows] = got[usable]
+            result.regime[rows] = regime[usable]
+            result.status[rows] = status[usable]
             matched[rows] = True
-        except Exception:  # an unreadable donor is skipped, never trusted
-            log.warning("could not read reuse source %s; computing instead", donor.path, exc_info=True)
+        except Exception as exc:  # an unreadable donor is skipped, never trusted
+            log.warning("could not read reuse source %s (%s); computing instead", donor.path, type(exc).__name__)
+            log.info("reuse source %s failed", donor.path, exc_info=True)
     return matched, result
 

@@ -8,6 +8,7 @@ written are simply recomputed by the next run.
 from __future__ import annotations
 
 import contextlib
+import errno
 import logging
 import os
 import time
@@ -18,14 +19,16 @@ from typing import Any
 
 import numpy as np
 
-from sweepshell.engine.claims import ClaimBook
+from sweepshell.engine.claims import ClaimBook, remove_stale_claims
 from sweepshell.engine.observers import RunObserver, SilentObserver
 from sweepshell.engine.reuse import Donor, find_donors
 from sweepshell.engine.worker import compute_block
+from sweepshell.errors import ConfigError, RunStoppedError
 from sweepshell.models import make_model
 from sweepshell.models.base import Status, SweepModel
 from sweepshell.plan import Block, ExecutorSpec, SweepPlan, choose_block_shape, iter_blocks
-from sweepshell.store.metadata import is_store
+from sweepshell.store.integrity import check_store_metadata, find_blocks_missing_chunks
+from sweepshell.store.metadata import REGIME_VAR, STATUS_VAR, has_node, is_store
 from sweepshell.store.reader import is_block_final, read_ledger
 from sweepshell.store.writer import (
     check_store_matches,
@@ -104,6 +107,8 @@ class RunSummary:
             f"computed {self.computed} points in {self.wall_seconds:.1f} s"
         if self.reused:
             done += f" ({self.reused} reused from other stores)"
+        if self.extra.get("damaged_blocks"):
+            done += f" ({self.extra['damaged_blocks']} blocks recomputed because chunks were missing)"
         return f"{done}: {self.total} points ({', '.join(parts) or 'none'}) -> {self.store_path}"
 
 
@@ -112,6 +117,8 @@ def prepare_store(plan: SweepPlan, model: SweepModel | None = None) -> tuple[tup
     model = model or make_model(plan.model, plan.settings)
     path = plan.store_path
     if Path(path).exists():
+        if has_node(path):
+            check_store_metadata(path)  # a damaged store: one line naming the problem and `verify --repair`
         check_store_matches(path, plan, model)
         return store_block_shape(path), False
     clean_stale_temporaries(path)
@@ -137,17 +144,20 @@ def start_client(spec: ExecutorSpec) -> tuple[Any, Any]:
     import dask
     from distributed import Client, LocalCluster
 
+    # a failed block is reported by the runner in one line; dask's own error log would add a traceback
+    quiet = not log.isEnabledFor(logging.INFO)
+    if quiet:
+        logging.getLogger("distributed").setLevel(logging.CRITICAL)
     if spec.kind == "distributed":
         return Client(spec.address, timeout="20s"), None
-    if not log.isEnabledFor(logging.INFO):
-        logging.getLogger("distributed").setLevel(logging.ERROR)
-    with dask.config.set({"logging.distributed": "error"}):
+    with dask.config.set({"logging.distributed": "critical" if quiet else "error"}):
         if spec.kind == "threads":
             cluster = LocalCluster(n_workers=1, threads_per_worker=spec.workers or 1, processes=False,
                                    dashboard_address=":0")
         else:
             cluster = LocalCluster(n_workers=spec.workers or (os.cpu_count() or 1), threads_per_worker=1,
-                                   processes=True, dashboard_address=":0", silence_logs=logging.ERROR)
+                                   processes=True, dashboard_address=":0",
+                                   silence_logs=logging.CRITICAL if quiet else logging.ERROR)
     return Client(cluster), cluster
 
 
@@ -203,19 +213,23 @@ def run_plan(plan: SweepPlan, *, observer: RunObserver | None = None, claim_ttl:
     t0 = time.perf_counter()
     path = plan.store_path
     model = make_model(plan.model, plan.settings)
+    if plan.executor.kind == "distributed":
+        check_scheduler_reachable(plan.executor.address)  # before anything is written
     existing = Path(path).exists()
     # an existing store is checked (a store of another sweep is refused) before anything starts
     block_shape: tuple[int, ...] = prepare_store(plan, model)[0] if existing else ()
-    tally = {"model_seconds": 0.0, "computed": 0, "blocks": 0, "by_others": 0, "reused": 0}
+    tally = {"model_seconds": 0.0, "computed": 0, "blocks": 0, "by_others": 0, "reused": 0, "damaged": 0}
     claims: ClaimBook | None = None
     try:
         with _client_started_early(plan) as get_client:
             if not existing:
                 block_shape, _ = prepare_store(plan, model)
             ledger = read_ledger(path, block_shape)
+            tally["damaged"] = _reset_blocks_missing_chunks(path, ledger, block_shape, model)
             pending = [b for b in iter_blocks(plan.shape, block_shape)
                        if np.any(ledger[b.slices] == Status.pending)]
             if not pending:
+                remove_stale_claims(path, claim_ttl)  # a complete store keeps no claims of dead runners
                 return RunSummary(store_path=path, total=plan.n_points, counts=_counts(ledger), computed=0,
                                   blocks=0, wall_seconds=time.perf_counter() - t0)
             to_compute = sum(b.n_points for b in pending)
@@ -232,10 +246,90 @@ def run_plan(plan: SweepPlan, *, observer: RunObserver | None = None, claim_ttl:
         observer.close()
         summary = _final_summary(plan, block_shape, tally, t0)
         raise SweepInterrupted(summary) from None
+    except Exception as exc:
+        cause = describe_outside_fault(exc)
+        if cause is None:
+            raise
+        if claims is not None:
+            claims.release_all()
+        observer.close()
+        raise RunStoppedError(f"the run stopped: {cause}; the store is consistent, run the same command again to "
+                              "continue", field="store", value=path) from None
     assert claims is not None
     claims.release_all()
+    remove_stale_claims(path, claim_ttl)
     observer.close()
     return _final_summary(plan, block_shape, tally, t0)
+
+
+_FULL_ERRNOS = {errno.ENOSPC: "the disk is full", errno.EFBIG: "a file reached the file-size limit",
+                errno.EDQUOT: "the disk quota is exhausted"}
+
+
+def describe_outside_fault(exc: BaseException) -> str | None:
+    """Return what went wrong if ``exc`` is a fault outside sweepshell's input (disk, limits, scheduler)."""
+    seen: set[int] = set()
+    current: BaseException | None = exc
+    while current is not None and id(current) not in seen:
+        seen.add(id(current))
+        if isinstance(current, OSError) and current.errno in _FULL_ERRNOS:
+            where = f" writing {current.filename}" if current.filename else ""
+            return f"{_FULL_ERRNOS[current.errno]}{where} (free space or raise the limit)"
+        name = type(current).__name__
+        if name in ("CommClosedError", "KilledWorker", "FutureCancelledError", "CancelledError") or (
+                name in ("TimeoutError", "OSError") and "scheduler" in str(current).lower()):
+            return f"the dask scheduler or its workers were lost ({name})"
+        current = current.__cause__ or current.__context__
+    return None
+
+
+def check_scheduler_reachable(address: str | None, timeout: float = 5.0) -> None:
+    """Raise a one-line :class:`ConfigError` unless a TCP connection to the scheduler opens within ``timeout`` s."""
+    import socket
+    from urllib.parse import urlsplit
+
+    if not address:
+        raise ConfigError("executor=distributed needs an address; add executor.address=tcp://HOST:PORT",
+                          field="executor.address")
+    parts = urlsplit(address if "://" in address else f"tcp://{address}")
+    try:
+        host, port = parts.hostname, parts.port
+    except ValueError:
+        host, port = None, None
+    if parts.scheme not in ("tcp", "tls") or not host or not port:
+        raise ConfigError(f"executor.address={address!r} is not a scheduler address; use tcp://HOST:PORT",
+                          field="executor.address", value=address)
+    try:
+        with socket.create_connection((host, port), timeout=timeout):
+            pass
+    except OSError as exc:
+        raise ConfigError(f"executor.address={address!r}: no scheduler answers ({exc.strerror or type(exc).__name__}"
+                          f" within {timeout:g} s); start it (`dask scheduler`) or fix the address",
+                          field="executor.address", value=address) from None
+
+
+def _reset_blocks_missing_chunks(path: str, ledger: np.ndarray, block_shape: tuple[int, ...],
+                                 model: SweepModel) -> int:
+    """Set final blocks that lost an output or regime chunk back to pending (in ``ledger`` and on disk).
+
+    Found by listing the array folders (no values are read); the ledger chunk is rewritten whole, as
+    ``verify --repair`` does, so the block is recomputed like any unfinished one. Returns the number of
+    blocks reset.
+    """
+    names = [out.name for out in model.outputs] + [REGIME_VAR]
+    lost = find_blocks_missing_chunks(path, ledger, block_shape, names)
+    if not lost:
+        return 0
+    import zarr
+
+    arr: Any = zarr.open_array(str(Path(path) / STATUS_VAR), mode="r+", zarr_format=3)
+    for block in iter_blocks(tuple(ledger.shape), block_shape):
+        if block.index in lost:
+            log.info("block %s of %s lost its %s chunk(s); recomputing it", list(block.index), path,
+                        ", ".join(lost[block.index]))
+            arr[block.slices] = np.zeros(block.shape, dtype=np.uint8)
+            ledger[block.slices] = 0
+    return len(lost)
 
 
 def _drive(client: Any, plan: SweepPlan, pending: list[Block], claims: ClaimBook, observer: RunObserver,
@@ -305,7 +399,7 @@ def _final_summary(plan: SweepPlan, block_shape: tuple[int, ...], tally: dict[st
     return RunSummary(store_path=plan.store_path, total=plan.n_points, counts=_counts(ledger),
                       computed=tally["computed"], blocks=tally["blocks"], wall_seconds=time.perf_counter() - t0,
                       model_seconds=tally["model_seconds"], reused=tally["reused"],
-                      extra={"by_other_runners": tally["by_others"]})
+                      extra={"by_other_runners": tally["by_others"], "damaged_blocks": tally["damaged"]})
 
 
 def run_sweep(plan: SweepPlan, *, observer: RunObserver | None = None) -> RunSummary:

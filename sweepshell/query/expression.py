@@ -18,6 +18,7 @@ then evaluated by :meth:`pandas.DataFrame.eval` with empty local and global name
 from __future__ import annotations
 
 import ast
+import math
 from collections.abc import Collection, Mapping
 from typing import TYPE_CHECKING
 
@@ -82,6 +83,11 @@ def check_expression(expr: str, columns: Collection[str],
     allowed = sorted(columns)
     for node in ast.walk(tree):
         _check_node(node, text, allowed)
+    try:
+        _fold_constants(tree.body, text)
+    except RecursionError:
+        raise QueryError(f"--where is nested too deeply; {_SHORT_HELP}", field="where",
+                         value=text[:40]) from None
     for node in ast.walk(tree):
         if isinstance(node, ast.Compare) and categories:
             _check_categories(node, text, categories)
@@ -127,6 +133,69 @@ def _check_node(node: ast.AST, text: str, allowed: list[str]) -> None:
     kind = {ast.Call: "a function call", ast.Attribute: "attribute access", ast.Subscript: "indexing",
             ast.Lambda: "lambda", ast.NamedExpr: "assignment"}.get(type(node), type(node).__name__)
     raise _refuse(text, kind)
+
+
+#: largest magnitude a constant sub-expression may reach (float64 overflows at 1.8e308)
+_MAX_CONSTANT = 1e300
+
+
+def _fold_constants(node: ast.AST, text: str) -> float | None:
+    """Return the value of a constant numeric sub-expression (``None`` if it involves a name).
+
+    Refuses, before anything is evaluated, what would make the evaluation hang or exhaust memory:
+    constants beyond ±1e300 (``9**9**9``, a 400-digit literal), arithmetic on text or lists
+    (``"a" * 10**9``) and division by a zero constant. Arithmetic is done in floats with the
+    exponent checked first, so checking itself is instant.
+    """
+    if isinstance(node, ast.Constant):
+        if not isinstance(node.value, (int, float)):
+            return None
+        try:
+            value = float(node.value)
+        except OverflowError:
+            value = math.inf
+        if not abs(value) <= _MAX_CONSTANT:
+            raise _refuse(text, f"the constant {str(node.value)[:20]}... (beyond ±1e300)")
+        return value
+    if isinstance(node, ast.UnaryOp):
+        inner = _fold_constants(node.operand, text)
+        return -inner if inner is not None and isinstance(node.op, ast.USub) else inner
+    if isinstance(node, ast.BinOp):
+        for side in (node.left, node.right):
+            if isinstance(side, (ast.List, ast.Tuple)) or (isinstance(side, ast.Constant)
+                                                           and isinstance(side.value, str)):
+                raise _refuse(text, "arithmetic on text or lists")
+        left, right = _fold_constants(node.left, text), _fold_constants(node.right, text)
+        if left is None or right is None:
+            return None
+        return _apply_constant(node.op, left, right, text)
+    for child in ast.iter_child_nodes(node):
+        _fold_constants(child, text)
+    return None
+
+
+def _apply_constant(op: ast.operator, left: float, right: float, text: str) -> float:
+    if isinstance(op, ast.Pow):
+        if left == 0 and right < 0:
+            raise _refuse(text, "0 raised to a negative power")
+        if abs(left) > 1 and right * math.log10(abs(left)) > math.log10(_MAX_CONSTANT):
+            raise _refuse(text, f"the power {left:g}**{right:g} (beyond ±1e300)")
+        if left < 0 and right != int(right):
+            raise _refuse(text, f"the power {left:g}**{right:g} (not a real number)")
+        value = left ** right
+    elif isinstance(op, (ast.Div, ast.Mod)) and right == 0:
+        raise _refuse(text, "division by zero")
+    elif isinstance(op, (ast.BitAnd, ast.BitOr)):
+        raise _refuse(text, "& or | between numbers (they join conditions)")
+    else:
+        value = {ast.Add: left + right, ast.Sub: left - right, ast.Mult: left * right}.get(type(op), math.nan)
+        if isinstance(op, ast.Div):
+            value = left / right
+        elif isinstance(op, ast.Mod):
+            value = math.fmod(left, right)
+    if not abs(value) <= _MAX_CONSTANT:
+        raise _refuse(text, "a constant beyond ±1e300")
+    return value
 
 
 def _check_categories(node: ast.Compare, text: str, categories: Mapping[str, Collection[str]]) -> None:

@@ -17,6 +17,7 @@ import numpy as np
 from sweepshell.errors import QueryError
 from sweepshell.models.base import TRUSTED_STATUSES, Status
 from sweepshell.store import metadata
+from sweepshell.store.integrity import check_trusted_values
 from sweepshell.store.metadata import ATTR
 
 if TYPE_CHECKING:
@@ -171,6 +172,8 @@ def load_table(ds: xr.Dataset, columns: Iterable[str], *, trusted_only: bool = T
             data[c] = np.zeros(index.size, dtype=np.int64)
         else:
             data[c] = np.asarray(ds[c].values).reshape(-1)[index]
+            # a trusted point never answers with a lost value (a missing chunk reads as NaN)
+            check_trusted_values(data[c], status[index], c, ds.attrs, ds.encoding.get("source"))
     extra = (points if points is not None else read_store_points(ds)) if include_points else None
     if extra is not None:
         pstatus = np.asarray(extra[metadata.STATUS_VAR])
@@ -179,6 +182,8 @@ def load_table(ds: xr.Dataset, columns: Iterable[str], *, trusted_only: bool = T
             data[a] = np.concatenate([data[a], np.asarray(extra[a])[pkeep]])
         for c in wanted:
             add = np.ones(int(pkeep.sum()), dtype=np.int64) if c == SOURCE_COLUMN else np.asarray(extra[c])[pkeep]
+            if c not in (SOURCE_COLUMN, metadata.STATUS_VAR, metadata.REGIME_VAR):
+                check_trusted_values(add, pstatus[pkeep], c, ds.attrs, ds.encoding.get("source"))
             data[c] = np.concatenate([data[c], add])
     for c in wanted:
         if c == metadata.REGIME_VAR:

@@ -38,6 +38,7 @@ from sweepshell.errors import StoreNotFoundError
 from sweepshell.models.base import Status
 from sweepshell.store import metadata
 from sweepshell.store.catalog_index import open_index, parse_record, read_cached, update_index
+from sweepshell.store.leftovers import find_leftovers
 from sweepshell.store.metadata import ATTR
 
 __all__ = [
@@ -124,6 +125,9 @@ class CatalogListing:
         Number of stores read from disk this time (new or changed); the others came from the index.
     rebuilt
         Whether the index file was missing, corrupted or foreign and was created afresh.
+    leftovers
+        Paths (relative to the results folder) of what killed processes left behind: half-built
+        stores (``*.sweepshell-tmp-PID``) and stale block claims; ``clean=True`` removed them.
     """
 
     results_dir: str
@@ -131,10 +135,12 @@ class CatalogListing:
     index_path: str | None
     reread: int
     rebuilt: bool
+    leftovers: tuple[str, ...] = ()
 
     def to_dict(self) -> dict[str, Any]:
         return {"results_dir": self.results_dir, "index": self.index_path, "reread": self.reread,
-                "rebuilt": self.rebuilt, "stores": [e.to_dict() for e in self.entries]}
+                "rebuilt": self.rebuilt, "stores": [e.to_dict() for e in self.entries],
+                "leftovers": list(self.leftovers)}
 
 
 def _is_sweepshell_store(folder: Path) -> bool:
@@ -253,7 +259,8 @@ def _str_or_none(v: Any) -> str | None:
     return v if isinstance(v, str) else None
 
 
-def read_catalog(results_dir: str | os.PathLike[str] = "results", *, use_index: bool = True) -> CatalogListing:
+def read_catalog(results_dir: str | os.PathLike[str] = "results", *, use_index: bool = True,
+                 clean: bool = False) -> CatalogListing:
     """List the stores under ``results_dir``, reading only the stores that changed since the last call.
 
     Parameters
@@ -262,6 +269,8 @@ def read_catalog(results_dir: str | os.PathLike[str] = "results", *, use_index: 
         The results folder (searched recursively; symbolic links are not followed).
     use_index
         Keep and use the index file; without it every store is read.
+    clean
+        Remove the leftovers of killed processes (see :func:`find_leftovers`).
 
     Raises
     ------
@@ -277,6 +286,7 @@ def read_catalog(results_dir: str | os.PathLike[str] = "results", *, use_index: 
     if use_index:
         con, rebuilt = open_index(index_path)
     cached = read_cached(con)
+    leftovers = find_leftovers(root, clean=clean)
     root_real = root.resolve()
     entries: list[CatalogEntry] = []
     fresh: list[tuple[str, str, str]] = []
@@ -300,7 +310,7 @@ def read_catalog(results_dir: str | os.PathLike[str] = "results", *, use_index: 
         update_index(con, index_path, fresh, set(cached) - {e.path for e in entries})
     return CatalogListing(results_dir=str(root), entries=tuple(sorted(entries, key=lambda e: e.path)),
                           index_path=str(index_path) if con is not None else None, reread=len(fresh),
-                          rebuilt=rebuilt)
+                          rebuilt=rebuilt, leftovers=tuple(leftovers))
 
 
 def find_compatible_stores(results_dir: str | os.PathLike[str], model: str, model_version: str,

@@ -59,7 +59,7 @@ def point_columns(store: str | os.PathLike[str]) -> tuple[list[str], list[str]]:
     """Return ``(axis names in dimension order, scalar output names)`` of a store's point table."""
     import zarr
 
-    attrs = check_readable_store(store)
+    attrs = check_readable_store(store, chunks=True)
     axes = metadata.read_record(attrs, ATTR.axes)
     names = read_axis_order(store, axes)
     group = zarr.open_group(str(store), mode="r", zarr_format=3)
@@ -81,7 +81,7 @@ def iter_point_rows(store: str | os.PathLike[str]) -> Iterator[dict[str, np.ndar
     """
     import zarr
 
-    attrs = check_readable_store(store)
+    attrs = check_readable_store(store, chunks=True)
     names, scalars = point_columns(store)
     axes = metadata.read_record(attrs, ATTR.axes)
     regimes = ["none", *(str(r) for r in attrs.get(ATTR.regimes, []))]
@@ -205,7 +205,7 @@ def export_store(store: str | os.PathLike[str], fmt: str, output: str | os.PathL
         raise ExportError(f"format={fmt!r} is not supported; use one of {', '.join(EXPORT_FORMATS)}",
                           field="format", value=fmt, allowed=", ".join(EXPORT_FORMATS))
     source = Path(store)
-    check_readable_store(source)
+    check_readable_store(source, chunks=True)
     if fmt == "parquet" and importlib.util.find_spec("pyarrow") is None:
         raise ExportError("parquet export needs the pyarrow package, which is not installed; run `pip install "
                           "pyarrow` or export with --format csv or --format netcdf", field="format", value=fmt)

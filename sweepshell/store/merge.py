@@ -45,8 +45,10 @@ from sweepshell.models.base import Status
 from sweepshell.plan import iter_blocks
 from sweepshell.store import metadata
 from sweepshell.store.catalog import read_axis_order
+from sweepshell.store.integrity import check_store_path
 from sweepshell.store.metadata import ATTR
 from sweepshell.store.reader import check_readable_store
+from sweepshell.store.writer import clean_stale_temporaries
 
 __all__ = ["MERGED_FROM_ATTR", "MergeConflictError", "MergeReport", "merge_stores", "union_axis_values"]
 
@@ -274,12 +276,13 @@ def merge_stores(a: str | os.PathLike[str], b: str | os.PathLike[str], output: s
     import zarr
 
     a, b, out_path = str(a), str(b), Path(output)
+    check_store_path(str(output), "-o")  # a URL or system path is refused before anything is read or written
     if prefer not in (None, "a", "b"):
         raise StoreMismatchError(f"prefer={prefer!r}; use 'a' or 'b'", field="prefer", value=prefer)
     if out_path.exists() or out_path.is_symlink():
         raise StoreMismatchError(f"output {str(out_path)!r} exists; merge writes a new store, choose another -o path",
                                  field="output", value=str(out_path))
-    attrs_a, attrs_b = check_readable_store(a), check_readable_store(b)
+    attrs_a, attrs_b = check_readable_store(a, chunks=True), check_readable_store(b, chunks=True)
     _check_same_definition(a, b, attrs_a, attrs_b)
     names_a, axes_a = _parse_axes(a, attrs_a)
     names_b, axes_b = _parse_axes(b, attrs_b)
@@ -350,6 +353,7 @@ def merge_stores(a: str | os.PathLike[str], b: str | os.PathLike[str], output: s
         sa, sb = ds_a[n].attrs.get("spacing"), ds_b[n].attrs.get("spacing")
         spacing[n] = str(sa) if sa == sb and sa is not None else "list"
 
+    clean_stale_temporaries(out_path)  # a killed merge's half-built store
     tmp = out_path.with_name(out_path.name + metadata.TEMP_SUFFIX + f"-{os.getpid()}")
     out_path.parent.mkdir(parents=True, exist_ok=True)
     if tmp.exists():
@@ -428,7 +432,7 @@ def _fill(tmp: Path, a: str, b: str, group_a: Any, group_b: Any, names: list[str
         if prefer is None and counts["conflicts"]:
             continue
         for v in value_vars:  # outputs and regime first, the ledger last (see store/writer.py)
-            arr: Any = target[v]
+            arr: Any = target[v].with_config({"write_empty_chunks": True})  # type: ignore[union-attr]
             merged = np.full(values_a[v].shape, arr.fill_value, dtype=values_a[v].dtype)
             merged[use_a] = values_a[v][use_a]
             merged[use_b] = values_b[v][use_b]

@@ -36,17 +36,25 @@ __all__ = [
     "TEMP_SUFFIX",
     "canonical_json",
     "child_nodes",
+    "consolidated_entries",
     "dimension_names",
+    "extra_chunk_counts",
     "has_node",
     "is_store",
+    "list_chunk_indices",
     "load_record",
+    "node_size",
     "read_attrs",
     "read_node",
+    "read_node_or_reason",
     "read_record",
     "reconsolidate",
+    "refuse_constant",
     "regime_attrs",
+    "salvage_attributes",
     "status_attrs",
     "try_read_attrs",
+    "write_node",
 ]
 
 #: the metadata document of every zarr (format 3) group and array folder
@@ -205,7 +213,7 @@ def load_record(text: Any) -> Any:
     TypeError, ValueError
         If it is not a JSON string.
     """
-    return json.loads(text)
+    return json.loads(text, parse_constant=refuse_constant)
 
 
 def read_record(attrs: Mapping[str, Any], key: str, default: str | None = None) -> Any:
@@ -236,3 +244,133 @@ def reconsolidate(path: str | os.PathLike[str]) -> None:
         # coordinates (written at creation); it says nothing about the arrays added since
         warnings.filterwarnings("ignore", message=".*does not have a Zarr V3 specification.*")
         zarr.consolidate_metadata(str(path), zarr_format=3)
+
+
+# --- damaged stores: reading what survives (see sweepshell.store.integrity) -------------------------------------
+
+
+def read_node_or_reason(folder: str | os.PathLike[str]) -> tuple[Any, str | None]:
+    """Return ``(metadata document, None)`` of the node at ``folder``, or ``(None, what is wrong)``.
+
+    Never raises: a missing, unreadable or non-JSON document is described in a few words.
+    """
+    return _read_file_or_reason(Path(folder) / META_FILE)
+
+
+def _read_file_or_reason(file: Path) -> tuple[Any, str | None]:
+    """Return ``(value, None)`` or ``(None, reason)`` for a JSON file."""
+    try:
+        text = file.read_text()
+    except FileNotFoundError:
+        return None, "is missing"
+    except (OSError, UnicodeDecodeError) as exc:
+        return None, f"cannot be read ({type(exc).__name__})"
+    try:
+        return json.loads(text, parse_constant=refuse_constant), None
+    except ValueError as exc:
+        return None, f"does not parse as JSON ({str(exc).splitlines()[0]})"
+
+
+def refuse_constant(name: str) -> Any:
+    # zarr writes NaN fill values as the string "NaN"; a bare NaN/Infinity token is not JSON
+    raise ValueError(f"non-standard constant {name}")
+
+
+def _salvage_attributes(text: str) -> dict[str, Any] | None:
+    """Return the ``attributes`` object of a damaged (e.g. truncated) root ``zarr.json``, if it parses.
+
+    zarr writes ``attributes`` first, so a file cut anywhere after them still yields them.
+    """
+    key = text.find('"attributes"')
+    if key < 0:
+        return None
+    colon = text.find(":", key + len('"attributes"'))
+    if colon < 0:
+        return None
+    start = colon + 1
+    while start < len(text) and text[start].isspace():
+        start += 1
+    try:
+        value, _ = json.JSONDecoder().raw_decode(text, start)
+    except ValueError:
+        return None
+    return value if isinstance(value, dict) else None
+
+
+def salvage_attributes(folder: str | os.PathLike[str]) -> dict[str, Any] | None:
+    """Return the attributes that still parse in a damaged (e.g. truncated) metadata document, if any."""
+    try:
+        return _salvage_attributes((Path(folder) / META_FILE).read_text(errors="replace"))
+    except OSError:
+        return None
+
+
+def node_size(folder: str | os.PathLike[str]) -> int:
+    """Return the size in bytes of the node's metadata document (0 when absent)."""
+    try:
+        return (Path(folder) / META_FILE).stat().st_size
+    except OSError:
+        return 0
+
+
+def write_node(folder: str | os.PathLike[str], value: Any) -> None:
+    """Replace the node's metadata document atomically (``verify --repair`` rebuilding damaged metadata)."""
+    Path(folder).mkdir(exist_ok=True)
+    _write_file(Path(folder) / META_FILE, value)
+
+
+def _write_file(file: Path, value: Any) -> None:
+    tmp = file.with_name(file.name + f".tmp-{os.getpid()}")
+    tmp.write_text(json.dumps(value, indent=2))
+    os.replace(tmp, file)
+
+
+def list_chunk_indices(array_dir: str | os.PathLike[str]) -> set[tuple[int, ...]] | None:
+    """Return the chunk grid indices that have a file, by listing the folder (no decoding).
+
+    Returns ``None`` when the array's chunk key encoding is not the default one (``c/i/j``
+    or ``c.i.j``) or its metadata cannot be read: then presence cannot be judged by listing.
+    """
+    folder = Path(array_dir)
+    meta, reason = _read_file_or_reason(folder / "zarr.json")
+    if reason is not None or not isinstance(meta, dict):
+        return set() if not folder.exists() else None
+    enc = meta.get("chunk_key_encoding") or {}
+    if enc.get("name") != "default":
+        return None
+    sep = (enc.get("configuration") or {}).get("separator", "/")
+    found: set[tuple[int, ...]] = set()
+    if sep == "/":
+        base = folder / "c"
+        for dirpath, _, files in os.walk(base):
+            rel = Path(dirpath).relative_to(base).parts
+            for f in files:
+                parts = (*rel, f)
+                if all(p.isdigit() for p in parts):
+                    found.add(tuple(int(p) for p in parts))
+        return found
+    for f in os.listdir(folder):
+        pieces = f.split(sep)
+        if pieces[0] == "c" and len(pieces) > 1 and all(p.isdigit() for p in pieces[1:]):
+            found.add(tuple(int(p) for p in pieces[1:]))
+    return found
+
+
+def extra_chunk_counts(array_dir: Path, n_axes: int) -> tuple[int, ...]:
+    meta, _ = _read_file_or_reason(array_dir / "zarr.json")
+    try:
+        shape = meta["shape"][n_axes:]
+        chunks = meta["chunk_grid"]["configuration"]["chunk_shape"][n_axes:]
+        return tuple(math.ceil(s / c) for s, c in zip(shape, chunks, strict=True))
+    except (TypeError, KeyError, ZeroDivisionError, ValueError):
+        return ()
+
+
+
+
+def consolidated_entries(root_meta: Mapping[str, Any]) -> dict[str, Any]:
+    """Return the consolidated metadata entries (node path → document) of a parsed root document."""
+    consolidated = root_meta.get("consolidated_metadata")
+    if isinstance(consolidated, dict) and isinstance(consolidated.get("metadata"), dict):
+        return dict(consolidated["metadata"])
+    return {}

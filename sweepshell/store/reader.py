@@ -23,17 +23,27 @@ __all__ = ["check_readable_store", "is_block_final", "open_sweep", "read_attrs",
 log = logging.getLogger(__name__)
 
 
-def check_readable_store(path: str | os.PathLike[str]) -> dict[str, Any]:
-    """Return the store's attributes, or raise a clear error if it is not a store we can read."""
+def check_readable_store(path: str | os.PathLike[str], *, chunks: bool = False) -> dict[str, Any]:
+    """Return the store's attributes, or raise a clear error if it is not a store we can read.
+
+    The metadata is always checked (a few small files); with ``chunks=True`` also that every
+    final block holding trusted points has all its chunks (a listing, no decoding) — for commands
+    that answer with values.
+    """
+    from sweepshell.store.integrity import check_store_chunks, check_store_metadata, read_root_metadata
+
     p = Path(path)
     if not p.exists():
         raise StoreNotFoundError(f"no store at {str(p)!r}; check the path (stores are folders ending in .zarr)",
                                  field="store", value=str(p))
     try:
-        attrs = metadata.read_attrs(p)
-    except (OSError, ValueError):
+        root_meta = read_root_metadata(p)
+    except (FileNotFoundError, NotADirectoryError):
         raise StoreSchemaError(f"{str(p)!r} is not a zarr store written by sweepshell; give a store folder",
                                field="store", value=str(p)) from None
+    attrs: dict[str, Any] = root_meta.get("attributes") or {}
+    if not isinstance(attrs, dict):
+        attrs = {}
     schema = attrs.get(ATTR.schema)
     if schema is None:
         raise StoreSchemaError(f"{str(p)!r} is a zarr group but not a sweepshell store (no {ATTR.schema} "
@@ -41,6 +51,9 @@ def check_readable_store(path: str | os.PathLike[str]) -> dict[str, Any]:
     if schema != metadata.SCHEMA_VERSION:
         raise StoreSchemaError(f"store {str(p)!r} has schema version {schema!r}; this sweepshell reads version "
                                f"{metadata.SCHEMA_VERSION}; upgrade sweepshell", field="store", value=str(p))
+    check_store_metadata(p, root_meta)
+    if chunks:
+        check_store_chunks(p, attrs)
     return attrs
 
 
@@ -59,7 +72,7 @@ def open_sweep(path: str | os.PathLike[str]) -> xr.Dataset:
     """
     import xarray as xr
 
-    check_readable_store(path)
+    check_readable_store(path, chunks=True)
     return xr.open_zarr(str(path), consolidated=True, zarr_format=3)
 
 

@@ -20,8 +20,12 @@ def summarize_store(path: str | os.PathLike[str]) -> dict[str, Any]:
     attrs = check_readable_store(path)
     block_shape = tuple(int(b) for b in attrs[ATTR.block_shape])
     ledger = read_ledger(path, block_shape)
-    raw = np.bincount(ledger.reshape(-1), minlength=len(Status))
+    raw = np.bincount(ledger.reshape(-1), minlength=256)
     counts = {s.name: int(raw[s.value]) for s in Status}
+    # codes outside the ledger's flag values are counted, never dropped from the totals
+    unknown = int(raw[len(Status):].sum())
+    if unknown:
+        counts["unknown"] = unknown
     total = int(ledger.size)
     axes_values: dict[str, list[Any]] = read_record(attrs, ATTR.axes)
     order = [d for d in dimension_names(path, STATUS_VAR) if d in axes_values]  # plan order, not sorted keys
@@ -45,9 +49,40 @@ def summarize_store(path: str | os.PathLike[str]) -> dict[str, Any]:
         "block_shape": list(block_shape),
         "total": total,
         "counts": counts,
-        "complete": counts[Status.pending.name] == 0,
-        "complete_fraction": (total - counts[Status.pending.name]) / total if total else 1.0,
+        "complete": counts[Status.pending.name] == 0 and not unknown,
+        "complete_fraction": (total - counts[Status.pending.name] - unknown) / total if total else 1.0,
+        "off_grid_points": _count_off_grid(path),
+        "blocks_missing_chunks": _count_lost_blocks(path, ledger, block_shape),
         "settings": read_record(attrs, ATTR.settings, "{}"),
         "fixed": read_record(attrs, ATTR.fixed, "{}"),
         "bytes_on_disk": size,
     }
+
+
+def _count_off_grid(path: str | os.PathLike[str]) -> dict[str, int]:
+    """Return the off-grid point list's counts per status (empty when the store has none)."""
+    import zarr
+
+    from sweepshell.store.points import POINTS_GROUP, has_points
+
+    if not has_points(path):
+        return {}
+    try:
+        status = np.asarray(zarr.open_array(str(Path(path) / POINTS_GROUP / STATUS_VAR), mode="r",
+                                            zarr_format=3)[...])
+    except Exception:  # an unreadable point list is verify's to report; status still answers for the grid
+        return {"unreadable": 1}
+    raw = np.bincount(status.reshape(-1), minlength=256)
+    counts = {s.name: int(raw[s.value]) for s in Status if raw[s.value]}
+    if raw[len(Status):].sum():
+        counts["unknown"] = int(raw[len(Status):].sum())
+    return counts
+
+
+def _count_lost_blocks(path: str | os.PathLike[str], ledger: np.ndarray, block_shape: tuple[int, ...]) -> int:
+    """Return how many final blocks lost an output or regime chunk (a listing; no model import, no decoding)."""
+    from sweepshell.store.integrity import consolidated_outputs, find_blocks_missing_chunks
+    from sweepshell.store.metadata import REGIME_VAR
+
+    names = [*consolidated_outputs(path), REGIME_VAR]
+    return len(find_blocks_missing_chunks(path, ledger, block_shape, names))

@@ -36,16 +36,16 @@ from __future__ import annotations
 
 import datetime as _dt
 import os
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from pathlib import Path
 from typing import Any
 
 import numpy as np
 
-from sweepshell.errors import StoreNotFoundError, StoreSchemaError
+from sweepshell.errors import StoreDamagedError, StoreNotFoundError, StoreSchemaError
 from sweepshell.models.base import TRUSTED_STATUSES, Status
 from sweepshell.plan import iter_blocks
-from sweepshell.store import metadata
+from sweepshell.store import integrity, metadata
 from sweepshell.store.catalog import read_axis_order
 from sweepshell.store.metadata import ATTR
 
@@ -114,6 +114,8 @@ class VerifyReport:
         Every inconsistency found; empty when the store is consistent.
     repaired_blocks
         Blocks set back to pending by ``repair=True``.
+    repaired_metadata
+        What ``repair=True`` rebuilt of the metadata, one line each.
     """
 
     path: str
@@ -125,6 +127,7 @@ class VerifyReport:
     recompute_points: int = 0
     problems: tuple[VerifyProblem, ...] = ()
     repaired_blocks: tuple[tuple[int, ...], ...] = ()
+    repaired_metadata: tuple[str, ...] = ()
 
     @property
     def consistent(self) -> bool:
@@ -135,7 +138,8 @@ class VerifyReport:
                 "block_shape": list(self.block_shape), "blocks": self.blocks,
                 "recompute": {"blocks": [list(b) for b in self.recompute_blocks], "points": self.recompute_points},
                 "problems": [p.to_dict() for p in self.problems],
-                "repaired_blocks": [list(b) for b in self.repaired_blocks]}
+                "repaired_blocks": [list(b) for b in self.repaired_blocks],
+                "repaired_metadata": list(self.repaired_metadata)}
 
     def to_lines(self) -> list[str]:
         """Return the human-readable report printed by ``sweepshell verify``."""
@@ -153,10 +157,15 @@ class VerifyReport:
                          f"points): {shown}{more}")
         else:
             lines.append("  a run would recompute nothing")
+        for change in self.repaired_metadata:
+            lines.append(f"  repaired: {change}")
         stuck = [p for p in self.problems if p.block is not None and not p.recomputed]
         if stuck and not self.repaired_blocks:
             lines.append("  blocks with final status but bad values are not recomputed by a run; "
-                         "`sweepshell verify --repair` sets them back to pending")
+                         f"`sweepshell verify --repair {self.path}` sets them back to pending")
+        if any(p.kind == "metadata" for p in self.problems) and not self.repaired_metadata:
+            lines.append(f"  damaged metadata: `sweepshell verify --repair {self.path}` rebuilds what the arrays "
+                         "allow")
         if self.repaired_blocks:
             lines.append(f"  repaired: {len(self.repaired_blocks)} blocks set back to pending; run the sweep again")
         return lines
@@ -265,15 +274,17 @@ def _open_arrays(root: Path, names: list[str], axes: dict[str, list[Any]]) -> tu
 
 
 def verify_store(path: str | os.PathLike[str], *, repair: bool = False) -> VerifyReport:
-    """Check a store for internal consistency; optionally reset bad blocks to pending.
+    """Check a store for internal consistency; optionally repair metadata and reset bad blocks to pending.
 
     Parameters
     ----------
     path
         The store folder.
     repair
-        Set blocks whose ledger says final but whose chunks do not decode, or whose values break
-        the ledger rules, back to pending (whole-chunk ledger writes), so that a run recomputes them.
+        First rebuild what metadata can be rebuilt (see :func:`sweepshell.store.integrity.repair_metadata`),
+        then set blocks whose ledger says final but whose chunks are missing or do not decode, or whose
+        values break the ledger rules, back to pending (whole-chunk ledger writes), so that a run
+        recomputes them.
 
     Returns
     -------
@@ -291,6 +302,30 @@ def verify_store(path: str | os.PathLike[str], *, repair: bool = False) -> Verif
     if not root.is_dir() or not metadata.has_node(root):
         raise StoreNotFoundError(f"no store at {str(root)!r}; give a store folder (ending in .zarr)",
                                  field="store", value=str(root))
+    if not repair:
+        return _verify(root, repair=False)
+    before = _metadata_problems(root)
+    if not before:
+        return _verify(root, repair=True)
+    changes = integrity.repair_metadata(root)
+    report = _verify(root, repair=True)
+    seen = {p.message for p in report.problems}
+    return replace(report, problems=tuple(p for p in before if p.message not in seen) + report.problems,
+                   repaired_metadata=tuple(changes))
+
+
+def _metadata_problems(root: Path) -> list[VerifyProblem]:
+    """Return the metadata problems alone (cheap: small JSON files, no chunks)."""
+    problems = _check_metadata_files(root)
+    try:
+        meta = integrity.read_root_metadata(root)
+    except (StoreDamagedError, FileNotFoundError):
+        return problems
+    return problems + [VerifyProblem("metadata", p.message, variable=p.variable)
+                       for p in integrity.scan_metadata(root, meta)]
+
+
+def _verify(root: Path, *, repair: bool) -> VerifyReport:
     problems = _check_metadata_files(root)
     try:
         attrs = metadata.read_node(root).get("attributes", {})
@@ -306,6 +341,11 @@ def verify_store(path: str | os.PathLike[str], *, repair: bool = False) -> Verif
     problems += attr_problems
     if axes is None or block_shape is None:
         return VerifyReport(path=str(root), problems=tuple(problems))
+    root_meta = metadata.read_node(root)
+    reported = {p.message.split(" ", 1)[0] for p in problems}  # files already named as unparseable
+    problems += [VerifyProblem("metadata", p.message, variable=p.variable)
+                 for p in integrity.scan_metadata(root, root_meta) if f"{p.variable}/zarr.json" not in reported]
+    declared = integrity.declared_outputs(attrs)
     names = read_axis_order(root, axes)
     layout_problems, arrays = _open_arrays(root, names, axes)
     problems += layout_problems
@@ -314,6 +354,10 @@ def verify_store(path: str | os.PathLike[str], *, repair: bool = False) -> Verif
         return VerifyReport(path=str(root), total=int(np.prod(shape)), block_shape=block_shape,
                             problems=tuple(problems))
     outputs = [n for n in arrays if n not in (metadata.STATUS_VAR, metadata.REGIME_VAR)]
+    not_nullable = {n for n, spec in (declared or {}).items() if not spec.nullable}
+    # lost chunks of final blocks: found by listing the array folders (a missing array misses them all)
+    checked = [*(declared or outputs), metadata.REGIME_VAR]
+    lost = integrity.find_blocks_missing_chunks(root, _read_ledger_quietly(root, block_shape), block_shape, checked)
     counts = np.zeros(256, dtype=np.int64)
     recompute: list[tuple[int, ...]] = []
     recompute_points = 0
@@ -349,8 +393,14 @@ def verify_store(path: str | os.PathLike[str], *, repair: bool = False) -> Verif
                     + ("; a run recomputes it" if will_recompute else "; its status is final, so a run does not "
                        "recompute it"), variable=name, block=block.index, points=block.n_points,
                     recomputed=will_recompute))
+        for name in lost.get(block.index, []):
+            block_problems.append(VerifyProblem(
+                "chunk", f"{name} block {list(block.index)} has no chunk on disk (lost data) although its status "
+                         "is final" + ("" if will_recompute else ", so a run does not recompute it"),
+                variable=name, block=block.index, points=block.n_points, recomputed=will_recompute))
         if status_readable:
-            block_problems += _check_ledger(block, status, values, outputs, len(regimes), will_recompute)
+            block_problems += _check_ledger(block, status, values, outputs, len(regimes), will_recompute,
+                                            not_nullable - set(lost.get(block.index, [])))
         problems += block_problems
         if repair and any(not p.recomputed for p in block_problems):
             to_repair.append(block)
@@ -375,14 +425,28 @@ def verify_store(path: str | os.PathLike[str], *, repair: bool = False) -> Verif
                         problems=tuple(problems), repaired_blocks=tuple(repaired))
 
 
+def _read_ledger_quietly(root: Path, block_shape: tuple[int, ...]) -> np.ndarray:
+    from sweepshell.store.reader import read_ledger
+
+    try:
+        return read_ledger(root, block_shape)
+    except Exception:  # an unopenable ledger is reported by the layout check
+        return np.zeros((0,) * len(block_shape), dtype=np.uint8)
+
+
 def _reason(exc: BaseException) -> str:
     text = str(exc).splitlines()[0] if str(exc) else ""
     return f"{type(exc).__name__}: {text}" if text else type(exc).__name__
 
 
 def _check_ledger(block: Any, status: np.ndarray, values: dict[str, np.ndarray], outputs: list[str],
-                  n_regimes: int, will_recompute: bool) -> list[VerifyProblem]:
-    """Return the ledger-rule violations of one block (pending points are exempt)."""
+                  n_regimes: int, will_recompute: bool, not_nullable: set[str] | frozenset[str] = frozenset(),
+                  ) -> list[VerifyProblem]:
+    """Return the ledger-rule violations of one block (pending points are exempt).
+
+    ``not_nullable`` names the outputs that must hold a value at every trusted point: NaN there
+    is lost data, not an answer.
+    """
     problems = []
     where = f"block {list(block.index)}"
     unknown = ~np.isin(status, np.arange(len(Status)))
@@ -415,6 +479,12 @@ def _check_ledger(block: Any, status: np.ndarray, values: dict[str, np.ndarray],
             problems.append(VerifyProblem("ledger", f"{where}: {int(bad.sum())} points with an untrusted status "
                                                     f"have values in {name} (must be NaN)", variable=name,
                                           block=block.index, points=int(bad.sum()), recomputed=will_recompute))
+        bad = trusted & ~finite if name in not_nullable else None
+        if bad is not None and bad.any():
+            problems.append(VerifyProblem("ledger", f"{where}: {int(bad.sum())} points with a trusted status have "
+                                                    f"no value in {name} (NaN; {name} is never NaN at a trusted "
+                                                    "point: lost data)", variable=name, block=block.index,
+                                          points=int(bad.sum()), recomputed=will_recompute))
     return problems
 
 

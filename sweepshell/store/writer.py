@@ -223,8 +223,10 @@ async def _write_block(path: str, block: Block, result: BatchResult, output_name
     from zarr.api.asynchronous import open_group
 
     group = await open_group(path, mode="r+", zarr_format=3)
-    arrays: list[Any] = await asyncio.gather(
-        *(group.getitem(n) for n in [*output_names, metadata.REGIME_VAR, metadata.STATUS_VAR]))
+    # empty chunks are written too: a chunk file then exists for every written block, so a missing one is a
+    # lost write that the integrity check can see by listing, not an all-NaN chunk zarr chose to elide
+    arrays: list[Any] = [a.with_config({"write_empty_chunks": True}) for a in await asyncio.gather(  # type: ignore[union-attr]
+        *(group.getitem(n) for n in [*output_names, metadata.REGIME_VAR, metadata.STATUS_VAR]))]
     shape = block.shape
     writes = []
     for name, arr in zip(output_names, arrays, strict=False):
