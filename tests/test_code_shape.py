@@ -27,7 +27,6 @@ ALLOWED: dict[str, int] = {
     "sweepshell/store/merge.py:merge_stores": 133,
     "sweepshell/store/verify.py": 527,
     "sweepshell/store/integrity.py": 485,
-    "sweepshell/engine/runner.py": 422,
     "sweepshell/store/verify.py:_verify": 98,
 }
 
