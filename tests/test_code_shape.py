@@ -26,7 +26,6 @@ ALLOWED: dict[str, int] = {
     "sweepshell/store/merge.py": 467,
     "sweepshell/store/merge.py:merge_stores": 133,
     "sweepshell/store/verify.py": 527,
-    "sweepshell/store/integrity.py": 485,
     "sweepshell/store/verify.py:_verify": 98,
 }
 

@@ -199,7 +199,7 @@ def main(argv: Sequence[str] | None = None) -> int:
 
 def _explain_failure(args: argparse.Namespace, exc: Exception) -> tuple[str, int]:
     """Return one line and the exit code for an unexpected exception (a damaged chunk if that is the cause)."""
-    from sweepshell.store.integrity import find_undecodable_chunk
+    from sweepshell.store.chunk_checks import find_undecodable_chunk
 
     for attr in ("store", "a", "b"):
         store = getattr(args, attr, None)

@@ -25,7 +25,8 @@ from sweepshell.errors import RunStoppedError
 from sweepshell.models import make_model
 from sweepshell.models.base import Status, SweepModel
 from sweepshell.plan import Block, SweepPlan, choose_block_shape, iter_blocks
-from sweepshell.store.integrity import check_store_metadata, find_blocks_missing_chunks
+from sweepshell.store.chunk_checks import find_blocks_missing_chunks
+from sweepshell.store.integrity import check_store_metadata
 from sweepshell.store.metadata import REGIME_VAR, STATUS_VAR, has_node, is_store
 from sweepshell.store.reader import is_block_final, read_ledger
 from sweepshell.store.writer import (
