@@ -23,8 +23,7 @@ ALLOWED: dict[str, int] = {
     "sweepshell/plot/regime_map.py": 428,
     "sweepshell/plot/regime_map.py:draw_regime_map": 129,
     "sweepshell/plot/report.py:write_report": 85,
-    "sweepshell/store/merge.py": 467,
-    "sweepshell/store/merge.py:merge_stores": 133,
+    "sweepshell/store/merge.py:merge_stores": 134,
     "sweepshell/store/verify.py": 527,
     "sweepshell/store/verify.py:_verify": 98,
 }
