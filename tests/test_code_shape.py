@@ -18,6 +18,10 @@ MAX_FUNCTION_LINES = 80
 
 #: offenders not yet split, with their size when listed: "path" (module lines) or "path:function" (lines)
 ALLOWED: dict[str, int] = {
+    # the cap_postbuckling model landed on main with these (issue 11)
+    "sweepshell/models/cap_postbuckling/branches.py:follow_cap": 163,
+    "sweepshell/models/cap_postbuckling/operators.py": 426,
+    # foundation_strip flexure, the plots and the store's verify/merge changed on other branches meanwhile
     "sweepshell/models/foundation_strip/flexure.py:compute_flexure": 83,
     "sweepshell/plot/paths.py:draw_load_paths": 100,
     "sweepshell/plot/regime_map.py": 428,
