@@ -95,7 +95,7 @@ def build_parser() -> argparse.ArgumentParser:
 
 #: modules adding further commands; each has ``register(subparsers)`` and imports heavy libraries lazily.
 #: Every command function returns an exit code and raises SweepshellError for bad input.
-_COMMAND_MODULES: tuple[str, ...] = ("sweepshell.cli.analysis", "sweepshell.cli.shape", "sweepshell.cli.team")
+_COMMAND_MODULES: tuple[str, ...] = ("sweepshell.cli.analysis", "sweepshell.cli.shape", "sweepshell.cli.sharing")
 
 
 def _cmd_run(args: argparse.Namespace) -> int:
@@ -108,11 +108,11 @@ def _cmd_run(args: argparse.Namespace) -> int:
         print(plan.resolved_yaml, end="")
         print(store_note, file=sys.stderr)
         return EXIT_OK
-    from sweepshell.engine.observers import make_observer
+    from sweepshell.engine.observers import get_observer
     from sweepshell.engine.runner import SweepInterrupted, refine_plan_store, run_plan
 
     kind = {"lines": "lines", "bar": "bar", "none": "none"}.get(args.progress, "auto")
-    observer = make_observer(kind)
+    observer = get_observer(kind)
     try:
         summary = run_plan(plan, observer=observer)
     except SweepInterrupted as stop:
@@ -251,7 +251,7 @@ def main(argv: Sequence[str] | None = None) -> int:
 
 def _explain_failure(args: argparse.Namespace, exc: Exception) -> tuple[str, int]:
     """Return one line and the exit code for an unexpected exception (a damaged chunk if that is the cause)."""
-    from sweepshell.store.integrity import find_undecodable_chunk
+    from sweepshell.store.chunk_checks import find_undecodable_chunk
 
     for attr in ("store", "a", "b"):
         store = getattr(args, attr, None)

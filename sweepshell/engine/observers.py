@@ -10,7 +10,7 @@ import sys
 import time
 from typing import Any, Protocol, TextIO
 
-__all__ = ["BarObserver", "LineObserver", "RunObserver", "SilentObserver", "make_observer"]
+__all__ = ["BarObserver", "LineObserver", "RunObserver", "SilentObserver", "get_observer"]
 
 
 class RunObserver(Protocol):
@@ -152,7 +152,7 @@ class BarObserver:
         self._progress.stop()
 
 
-def make_observer(kind: str = "auto") -> RunObserver:
+def get_observer(kind: str = "auto") -> RunObserver:
     """Return ``bar`` on a terminal, ``lines`` otherwise (``auto``), or ``none``."""
     if kind == "none":
         return SilentObserver()

@@ -17,7 +17,7 @@ import numpy as np
 from sweepshell.errors import QueryError
 from sweepshell.models.base import TRUSTED_STATUSES, Status
 from sweepshell.store import metadata
-from sweepshell.store.integrity import check_trusted_values
+from sweepshell.store.chunk_checks import check_trusted_values
 from sweepshell.store.metadata import ATTR
 
 if TYPE_CHECKING:

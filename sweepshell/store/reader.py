@@ -30,7 +30,8 @@ def check_readable_store(path: str | os.PathLike[str], *, chunks: bool = False) 
     final block holding trusted points has all its chunks (a listing, no decoding) — for commands
     that answer with values.
     """
-    from sweepshell.store.integrity import check_store_chunks, check_store_metadata, read_root_metadata
+    from sweepshell.store.chunk_checks import check_store_chunks
+    from sweepshell.store.integrity import check_store_metadata, read_root_metadata
 
     p = Path(path)
     if not p.exists():

@@ -83,7 +83,7 @@ def _count_off_grid(path: str | os.PathLike[str]) -> dict[str, int]:
 
 def _count_lost_blocks(path: str | os.PathLike[str], ledger: np.ndarray, block_shape: tuple[int, ...]) -> int:
     """Return how many final blocks lost an output or regime chunk (a listing; no model import, no decoding)."""
-    from sweepshell.store.integrity import consolidated_outputs, find_blocks_missing_chunks
+    from sweepshell.store.chunk_checks import consolidated_outputs, find_blocks_missing_chunks
     from sweepshell.store.metadata import REGIME_VAR
 
     names = [*consolidated_outputs(path), REGIME_VAR]
