@@ -72,7 +72,9 @@ def _open(store: str) -> Any:
     from sweepshell.store.reader import check_readable_store
 
     check_readable_store(store, chunks=True)
-    return xr.open_zarr(store, chunks=None, consolidated=True, zarr_format=3)
+    from sweepshell.store.location import zarr_store
+
+    return xr.open_zarr(zarr_store(store, read_only=True), chunks=None, consolidated=True, zarr_format=3)
 
 
 def _cmd_query(args: argparse.Namespace) -> int:
@@ -188,6 +190,16 @@ def _add_no_caution(parser: Any) -> None:
                              "stays in the file's metadata, and reports always show it")
 
 
+def _beside_store(store: str, suffix: str) -> Any:
+    """Return the default output file for a store: beside a local store, in the current folder for a URL."""
+    from pathlib import Path
+
+    from sweepshell.store.location import is_url
+
+    local = Path(store.rstrip("/").rsplit("/", 1)[-1]) if is_url(store) else Path(store.rstrip("/"))
+    return local.with_name(local.stem + suffix)
+
+
 def _out_path(args: argparse.Namespace, suffix: str) -> str:
     from pathlib import Path
 
@@ -199,8 +211,7 @@ def _out_path(args: argparse.Namespace, suffix: str) -> str:
             raise QueryError(f"--out {args.out!r}: folder {str(out.parent)!r} does not exist", field="out",
                              value=args.out)
         return str(out)
-    store = Path(args.store.rstrip("/"))
-    return str(store.with_name(f"{store.stem}-{suffix}.png"))
+    return str(_beside_store(args.store, f"-{suffix}.png"))
 
 
 def _cmd_map(args: argparse.Namespace) -> int:
@@ -361,9 +372,9 @@ def _cmd_report(args: argparse.Namespace) -> int:
     if args.out is not None and not Path(args.out).parent.exists():
         raise QueryError(f"--out {args.out!r}: folder does not exist", field="out", value=args.out)
     ds = _open(args.store)
-    store = Path(args.store.rstrip("/"))
-    out = Path(args.out) if args.out else store.with_name(f"{store.stem}-report.html")
-    text = write_report(ds, str(store))
+    store = args.store.rstrip("/")
+    out = Path(args.out) if args.out else _beside_store(store, "-report.html")
+    text = write_report(ds, store)
     out.write_text(text, encoding="utf-8")
     print(out)
     return 0

@@ -127,10 +127,10 @@ def _cmd_run(args: argparse.Namespace) -> int:
 
 def _describe_existing_store(plan: Any) -> str:
     """Say what a run would do with the plan's store; raise the run's own error if it would refuse it."""
-    from pathlib import Path
+    from sweepshell.store.writer import store_exists
 
-    path = Path(plan.store_path)
-    if not path.exists():
+    path = plan.store_path
+    if not store_exists(path):
         return f"store {path} does not exist yet: the run creates it"
     from sweepshell.models import make_model
     from sweepshell.store.writer import check_store_matches
@@ -145,9 +145,10 @@ def _load_run_plan(args: argparse.Namespace) -> Any:
     from pathlib import Path
 
     from sweepshell.config.loader import load_plan
+    from sweepshell.store.location import as_path
     from sweepshell.store.metadata import is_store
 
-    store = Path(args.sweep.rstrip("/"))
+    store = as_path(args.sweep.rstrip("/"))
     if not is_store(store):
         return load_plan(args.sweep, args.overrides, config_dir=args.config_dir)
     from sweepshell.store.metadata import ATTR

@@ -27,7 +27,8 @@ from sweepshell.errors import ConfigError, ParameterError, SweepshellError, Unkn
 from sweepshell.models import get_model
 from sweepshell.models.base import SweepModel
 from sweepshell.plan import Axis, ExecutorSpec, SweepPlan
-from sweepshell.store.integrity import check_model_limits, check_store_path
+from sweepshell.store.integrity import check_model_limits
+from sweepshell.store.location import public_options, read_store_config
 
 log = logging.getLogger(__name__)
 
@@ -69,18 +70,15 @@ def build_plan(cfg: Mapping[str, Any], *, source: str = "<dict>") -> SweepPlan:
     if not isinstance(reuse, bool):
         raise ConfigError(f"reuse={reuse!r} must be true or false", field="reuse", value=reuse)
     refine = _build_refine(cfg.get("refine"), [a.name for a in axes])
-    store = cfg.get("store") or {}
-    if not isinstance(store, dict):
-        raise ConfigError("store must be a mapping (store: {path: results/NAME.zarr})", field="store", value=store)
-    store_path = store.get("path") or os.path.join("results", f"{name}.zarr")
-    check_store_path(store_path)
+    store_path, store_options = read_store_config(cfg.get("store"), os.path.join("results", f"{name}.zarr"),
+                                                  process_workers=executor.kind != "threads")
     resolved = {
         "name": name,
         "model": model_name,
         "settings": settings,
         "fixed": {k: _plain(v) for k, v in fixed.items()},
         "axes": {a.name: [_plain(v) for v in a.values] for a in axes},
-        "store": {"path": str(store_path)},
+        "store": {"path": str(store_path), **({"options": public_options(store_options)} if store_options else {})},
         "executor": {"kind": executor.kind, "workers": executor.workers, "address": executor.address},
         "block": {"points": block_points},
         "limits": {"max_points": max_points},
@@ -91,6 +89,7 @@ def build_plan(cfg: Mapping[str, Any], *, source: str = "<dict>") -> SweepPlan:
         name=name, model=model_name, model_version=model_cls.version, settings=settings, fixed=fixed,
         axes=tuple(axes), store_path=str(store_path), executor=executor, block_points=block_points,
         resolved_yaml=yaml.safe_dump(resolved, sort_keys=False), reuse=reuse, refine=refine,
+        store_options=store_options,
     )
 
 

@@ -9,6 +9,11 @@ is removed after its status is written, so the ledger, never the claims, says wh
 
 Claims live in the store folder under ``.claims/`` (a name zarr ignores), one small file
 per block in flight, never in shared attributes (concurrent attribute updates lose writes).
+
+Stores on object storage have no rename and no modification time to refresh: there
+:class:`ObjectClaimBook` (in :mod:`sweepshell.engine.object_claims`) uses conditional
+create-if-absent writes and a lease time recorded in the claim; :func:`open_claims` picks
+the right kind for a store path.
 """
 
 from __future__ import annotations
@@ -21,7 +26,7 @@ import time
 import uuid
 from pathlib import Path
 
-__all__ = ["CLAIMS_DIR", "ClaimBook", "remove_stale_claims"]
+__all__ = ["CLAIMS_DIR", "ClaimBook", "open_claims", "remove_stale_claims"]
 
 CLAIMS_DIR = ".claims"
 
@@ -126,6 +131,17 @@ class ClaimBook:
             self.folder.rmdir()
 
 
+def open_claims(store_path: str | os.PathLike[str], ttl: float = 60.0) -> ClaimBook:
+    """Return the claims of a new runner on the store at ``store_path`` (a folder or an object-store URL)."""
+    from sweepshell.store.location import is_url
+
+    if is_url(store_path):
+        from sweepshell.engine.object_claims import ObjectClaimBook
+
+        return ObjectClaimBook(store_path, ttl)
+    return ClaimBook(store_path, ttl)
+
+
 def remove_stale_claims(store_path: str | os.PathLike[str], ttl: float = 60.0) -> int:
     """Remove claims of runners that are gone (and the folder when empty); return how many.
 
@@ -133,10 +149,11 @@ def remove_stale_claims(store_path: str | os.PathLike[str], ttl: float = 60.0) -
     and zarr would warn about the folder on every open.
     """
     from sweepshell.store.leftovers import stale_claim_files
+    from sweepshell.store.location import as_path
 
     stale = stale_claim_files(store_path, ttl)
     for claim in stale:
         claim.unlink(missing_ok=True)
     with contextlib.suppress(OSError):
-        (Path(store_path) / CLAIMS_DIR).rmdir()
+        (as_path(store_path) / CLAIMS_DIR).rmdir()
     return len(stale)

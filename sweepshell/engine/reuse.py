@@ -13,7 +13,6 @@ from __future__ import annotations
 import logging
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
-from pathlib import Path
 from typing import Any
 
 import numpy as np
@@ -23,6 +22,7 @@ from sweepshell.models.base import TRUSTED_STATUSES, BatchResult, SweepModel
 from sweepshell.plan import SweepPlan
 from sweepshell.store import metadata
 from sweepshell.store.chunk_checks import find_blocks_missing_chunks
+from sweepshell.store.location import AnyPath, as_path, zarr_store
 from sweepshell.store.metadata import ATTR, canonical_json
 from sweepshell.store.reader import check_readable_store, read_ledger
 
@@ -60,7 +60,7 @@ def find_donors(plan: SweepPlan, model: SweepModel) -> list[Donor]:
     """Return the compatible stores beside the plan's store (never the store itself)."""
     from sweepshell.store.catalog import find_compatible_stores
 
-    target = Path(plan.store_path).resolve()
+    target = as_path(plan.store_path).resolve()
     stores = find_compatible_stores(target.parent, plan.model, plan.model_version, canonical_json(model.settings))
     donors = []
     for store in stores:
@@ -86,7 +86,7 @@ def find_donors(plan: SweepPlan, model: SweepModel) -> list[Donor]:
     return donors
 
 
-def _axis_order(store: Path, axes: Mapping[str, Any]) -> list[str]:
+def _axis_order(store: AnyPath, axes: Mapping[str, Any]) -> list[str]:
     return [n for n in metadata.dimension_names(store, metadata.STATUS_VAR) if n in axes]
 
 
@@ -128,7 +128,7 @@ def take_from_donors(donors: Sequence[Donor], model: SweepModel, inputs: Mapping
         if not ok.any():
             continue
         try:
-            group = zarr.open_group(donor.path, mode="r", zarr_format=3)
+            group = zarr.open_group(zarr_store(donor.path, read_only=True), mode="r", zarr_format=3)
             where = tuple(idx[name][ok] for name in donor.axis_names)
             status = np.asarray(group[metadata.STATUS_VAR].vindex[where])  # type: ignore[union-attr]
             final = status != 0

@@ -8,15 +8,13 @@ written are simply recomputed by the next run.
 from __future__ import annotations
 
 import logging
-import os
 import time
 from dataclasses import dataclass, field
-from pathlib import Path
 from typing import Any
 
 import numpy as np
 
-from sweepshell.engine.claims import ClaimBook, remove_stale_claims
+from sweepshell.engine.claims import ClaimBook, open_claims, remove_stale_claims
 from sweepshell.engine.executors import (
     check_scheduler_reachable,
     dashboard_link,
@@ -32,6 +30,7 @@ from sweepshell.models.base import Status, SweepModel
 from sweepshell.plan import Block, SweepPlan, choose_block_shape, iter_blocks
 from sweepshell.store.chunk_checks import find_blocks_missing_chunks
 from sweepshell.store.integrity import check_store_metadata
+from sweepshell.store.location import absolute_store_path, as_path, zarr_store
 from sweepshell.store.metadata import REGIME_VAR, STATUS_VAR, has_node, is_store
 from sweepshell.store.reader import is_block_final, read_ledger
 from sweepshell.store.writer import (
@@ -39,6 +38,7 @@ from sweepshell.store.writer import (
     clean_stale_temporaries,
     create_store,
     store_block_shape,
+    store_exists,
 )
 
 __all__ = [
@@ -118,12 +118,12 @@ def prepare_store(plan: SweepPlan, model: SweepModel | None = None) -> tuple[tup
     """Check or create the store of ``plan``; return its block shape and whether it was new."""
     model = model or make_model(plan.model, plan.settings)
     path = plan.store_path
-    if Path(path).exists():
+    clean_stale_temporaries(path)  # a creation killed midway (on an object store: a prefix with no root)
+    if store_exists(path):
         if has_node(path):
             check_store_metadata(path)  # a damaged store: one line naming the problem and `verify --repair`
         check_store_matches(path, plan, model)
         return store_block_shape(path), False
-    clean_stale_temporaries(path)
     block_shape = choose_block_shape(plan.shape, plan.block_points)
     create_store(plan, model, block_shape)
     return (store_block_shape(path) if is_store(path) else block_shape), True
@@ -155,7 +155,7 @@ def run_plan(plan: SweepPlan, *, observer: RunObserver | None = None, claim_ttl:
     model = make_model(plan.model, plan.settings)
     if plan.executor.kind == "distributed":
         check_scheduler_reachable(plan.executor.address)  # before anything is written
-    existing = Path(path).exists()
+    existing = store_exists(path)
     # an existing store is checked (a store of another sweep is refused) before anything starts
     block_shape: tuple[int, ...] = prepare_store(plan, model)[0] if existing else ()
     tally = {"model_seconds": 0.0, "computed": 0, "blocks": 0, "by_others": 0, "reused": 0, "damaged": 0}
@@ -173,7 +173,7 @@ def run_plan(plan: SweepPlan, *, observer: RunObserver | None = None, claim_ttl:
                 return RunSummary(store_path=path, total=plan.n_points, counts=_counts(ledger), computed=0,
                                   blocks=0, wall_seconds=time.perf_counter() - t0)
             to_compute = sum(b.n_points for b in pending)
-            claims = ClaimBook(path, ttl=claim_ttl)
+            claims = open_claims(path, ttl=claim_ttl)
             donors = find_donors(plan, model) if plan.reuse else []
             active = get_client()
             link = dashboard_link(active)
@@ -222,7 +222,7 @@ def _reset_blocks_missing_chunks(path: str, ledger: np.ndarray, block_shape: tup
         return 0
     import zarr
 
-    arr: Any = zarr.open_array(str(Path(path) / STATUS_VAR), mode="r+", zarr_format=3)
+    arr: Any = zarr.open_array(zarr_store(as_path(path) / STATUS_VAR), mode="r+", zarr_format=3)
     for block in iter_blocks(tuple(ledger.shape), block_shape):
         if block.index in lost:
             log.info("block %s of %s lost its %s chunk(s); recomputing it", list(block.index), path,
@@ -258,9 +258,10 @@ def _drive(client: Any, plan: SweepPlan, pending: list[Block], claims: ClaimBook
                     observer.advance(block.n_points)
                     continue
                 future = client.submit(
-                    compute_block, os.path.abspath(path), plan.model, plan.settings, plan.axis_names,
+                    compute_block, absolute_store_path(path), plan.model, plan.settings, plan.axis_names,
                     [v[s] for v, s in zip(axis_values, block.slices, strict=True)], plan.fixed, block, donors,
-                    key=f"sweepshell-block-{'-'.join(map(str, block.index))}-{claims.runner}", pure=False)
+                    key=f"sweepshell-block-{'-'.join(map(str, block.index))}-{claims.runner}", pure=False,
+                    store_options=plan.store_options or None)
                 in_flight[future] = block
             if held_elsewhere:  # another runner has them; drop the ones it finished, retry the rest later
                 ledger = read_ledger(path)

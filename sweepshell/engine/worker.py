@@ -94,12 +94,17 @@ def _checked(model: SweepModel, result: BatchResult, n: int) -> BatchResult:
 
 def compute_block(store_path: str, model_name: str, settings: Mapping[str, Any], axis_names: Sequence[str],
                   axis_values: Sequence[np.ndarray], fixed: Mapping[str, Any], block: Block,
-                  donors: Sequence[Donor] = ()) -> dict[str, Any]:
+                  donors: Sequence[Donor] = (), store_options: Mapping[str, Any] | None = None) -> dict[str, Any]:
     """Evaluate one block (copying what donors already have) and write it.
 
-    Returns status counts, points reused and the time spent in the model.
+    ``store_options`` are the object-store options of the run (``store.options``), shipped with the
+    task so that workers on other machines reach the same bucket. Returns status counts, points
+    reused and the time spent in the model.
     """
+    from sweepshell.store.location import register_options
     from sweepshell.store.writer import write_block
+
+    register_options(store_path, store_options)
 
     model = _cached_model(model_name, settings)
     inputs = build_block_inputs(model, axis_names, axis_values, fixed)

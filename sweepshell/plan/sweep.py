@@ -89,6 +89,9 @@ class SweepPlan:
     refine
         ``None``, or ``{"levels": L, "x": AXIS|None, "y": AXIS|None}``: after the grid is complete, evaluate
         new points along regime boundaries, level by level (see :mod:`sweepshell.engine.refine`).
+    store_options
+        Options of the object-store filesystem (``store.options``: endpoint, credentials); never recorded
+        in the store, and left out of the plan's repr.
     """
 
     name: str
@@ -103,6 +106,7 @@ class SweepPlan:
     resolved_yaml: str = ""
     reuse: bool = True
     refine: dict[str, Any] | None = None
+    store_options: dict[str, Any] = field(default_factory=dict, repr=False)
 
     @property
     def shape(self) -> tuple[int, ...]:

@@ -9,7 +9,6 @@ from __future__ import annotations
 
 from collections.abc import Iterable, Mapping, Sequence
 from dataclasses import dataclass, field
-from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
 import numpy as np
@@ -18,6 +17,7 @@ from sweepshell.errors import QueryError
 from sweepshell.models.base import TRUSTED_STATUSES, Status
 from sweepshell.store import metadata
 from sweepshell.store.chunk_checks import check_trusted_values
+from sweepshell.store.location import as_path
 from sweepshell.store.metadata import ATTR
 
 if TYPE_CHECKING:
@@ -107,7 +107,7 @@ def read_store_points(ds: xr.Dataset) -> dict[str, np.ndarray] | None:
     from sweepshell.store.points import read_points
 
     source = ds.encoding.get("source")
-    if not source or not Path(source).exists():
+    if not source or not as_path(source).exists():
         return None
     points = read_points(source)
     if points is None or points[metadata.STATUS_VAR].size == 0:

@@ -39,6 +39,7 @@ from sweepshell.models.base import Status
 from sweepshell.store import metadata
 from sweepshell.store.catalog_index import open_index, parse_record, read_cached, update_index
 from sweepshell.store.leftovers import find_leftovers
+from sweepshell.store.location import AnyPath, ObjectPath, StorePath, as_path
 from sweepshell.store.metadata import ATTR
 
 __all__ = [
@@ -149,13 +150,16 @@ def _is_sweepshell_store(folder: Path) -> bool:
     return metadata.is_store(folder)
 
 
-def iter_store_folders(results_dir: str | os.PathLike[str]) -> Iterator[Path]:
+def iter_store_folders(results_dir: AnyPath) -> Iterator[StorePath]:
     """Yield every store folder under ``results_dir`` (sorted, symbolic links not followed).
 
     Folders whose names start with ``.`` and half-built templates are skipped; a store's own
-    sub-folders are not searched for further stores.
+    sub-folders are not searched for further stores. On an object store the prefix is listed once.
     """
-    root = Path(results_dir)
+    root = as_path(results_dir)
+    if isinstance(root, ObjectPath):
+        yield from (root / rel for rel in _object_stores(root, root.find_detail()))
+        return
     for dirpath, dirnames, _files in os.walk(root, followlinks=False):
         here = Path(dirpath)
         keep = []
@@ -168,6 +172,37 @@ def iter_store_folders(results_dir: str | os.PathLike[str]) -> Iterator[Path]:
             else:
                 keep.append(name)
         dirnames[:] = keep
+
+
+def _object_stores(root: ObjectPath, listing: dict[str, tuple[int, float]]) -> list[str]:
+    """Return the store prefixes (relative to ``root``) in one listing of an object-store prefix."""
+    suffix = "/" + metadata.META_FILE
+    found: list[str] = []
+    for key in sorted(k[:-len(suffix)] for k in listing if k.endswith(suffix)):
+        if any(part.startswith(".") for part in key.split("/")) or any(key.startswith(f + "/") for f in found):
+            continue
+        if metadata.is_store(root / key):
+            found.append(key)
+    return found
+
+
+def _walk_stores(root: StorePath) -> Iterator[tuple[StorePath, str, tuple[str, int, float, bool]]]:
+    """Yield (store, path relative to root, (fingerprint, bytes, latest mtime, holds a link)) for each store."""
+    if isinstance(root, ObjectPath):
+        listing = root.find_detail()
+        for rel in _object_stores(root, listing):
+            digest = hashlib.sha256()
+            mine = sorted((k, v) for k, v in listing.items() if k.startswith(rel + "/"))
+            for key, (size, mtime) in mine:
+                digest.update(f"{key}\0{size}\0{mtime}\n".encode())
+            latest = max((m for _, (_, m) in mine), default=0.0)
+            yield root / rel, rel, (digest.hexdigest(), sum(sz for _, (sz, _) in mine), latest, False)
+        return
+    root_real = root.resolve()
+    for store in iter_store_folders(root):
+        assert isinstance(store, Path)
+        if store.resolve().is_relative_to(root_real):  # links are not followed
+            yield store, store.relative_to(root).as_posix(), _walk_files(store)
 
 
 def _walk_files(store: Path) -> tuple[str, int, float, bool]:
@@ -198,7 +233,7 @@ def _iso(seconds: float) -> str | None:
     return _dt.datetime.fromtimestamp(seconds, _dt.UTC).isoformat(timespec="seconds")
 
 
-def read_axis_order(store: str | os.PathLike[str], axes_values: dict[str, Any]) -> list[str]:
+def read_axis_order(store: AnyPath, axes_values: dict[str, Any]) -> list[str]:
     """Return the axis names in plan (dimension) order.
 
     ``axes_json`` is canonical JSON with sorted keys, so the order comes from the ledger's
@@ -227,7 +262,7 @@ def _summarize_axes(axes_values: dict[str, list[Any]], order: list[str]) -> list
     return axes
 
 
-def _read_entry(store: Path, rel: str, size: int, latest: float) -> CatalogEntry:
+def _read_entry(store: StorePath, rel: str, size: int, latest: float) -> CatalogEntry:
     """Read one store's summary from its own files (attributes as JSON, ledger through zarr)."""
     from sweepshell.store.reader import check_readable_store, read_ledger
 
@@ -259,7 +294,7 @@ def _str_or_none(v: Any) -> str | None:
     return v if isinstance(v, str) else None
 
 
-def read_catalog(results_dir: str | os.PathLike[str] = "results", *, use_index: bool = True,
+def read_catalog(results_dir: AnyPath = "results", *, use_index: bool = True,
                  clean: bool = False) -> CatalogListing:
     """List the stores under ``results_dir``, reading only the stores that changed since the last call.
 
@@ -277,24 +312,20 @@ def read_catalog(results_dir: str | os.PathLike[str] = "results", *, use_index: 
     StoreNotFoundError
         If ``results_dir`` is not a folder.
     """
-    root = Path(results_dir)
+    root = as_path(results_dir)
+    use_index = use_index and isinstance(root, Path)  # the index is a local database file
     if not root.is_dir():
         raise StoreNotFoundError(f"results folder {str(root)!r} does not exist; give a folder holding .zarr stores",
                                  field="dir", value=str(root))
     index_path = root / CATALOG_FILE
     con, rebuilt = (None, False)
-    if use_index:
+    if use_index and isinstance(index_path, Path):
         con, rebuilt = open_index(index_path)
     cached = read_cached(con)
     leftovers = find_leftovers(root, clean=clean)
-    root_real = root.resolve()
     entries: list[CatalogEntry] = []
     fresh: list[tuple[str, str, str]] = []
-    for store in iter_store_folders(root):
-        rel = store.relative_to(root).as_posix()
-        if not store.resolve().is_relative_to(root_real):  # pragma: no cover - links are not followed
-            continue
-        fingerprint, size, latest, has_link = _walk_files(store)
+    for store, rel, (fingerprint, size, latest, has_link) in _walk_stores(root):
         if has_link:
             entries.append(CatalogEntry(path=rel, bytes_on_disk=size, updated=_iso(latest),
                                         problem="the store holds symbolic links; not read"))
@@ -307,14 +338,15 @@ def read_catalog(results_dir: str | os.PathLike[str] = "results", *, use_index: 
             fresh.append((rel, fingerprint, json.dumps(asdict(entry))))
         entries.append(entry)
     if con is not None:
+        assert isinstance(index_path, Path)
         update_index(con, index_path, fresh, set(cached) - {e.path for e in entries})
     return CatalogListing(results_dir=str(root), entries=tuple(sorted(entries, key=lambda e: e.path)),
                           index_path=str(index_path) if con is not None else None, reread=len(fresh),
                           rebuilt=rebuilt, leftovers=tuple(leftovers))
 
 
-def find_compatible_stores(results_dir: str | os.PathLike[str], model: str, model_version: str,
-                           settings_json: str, *, fixed_json: str | None = None) -> list[Path]:
+def find_compatible_stores(results_dir: AnyPath, model: str, model_version: str,
+                           settings_json: str, *, fixed_json: str | None = None) -> list[StorePath]:
     """Return the stores under ``results_dir`` whose values may be reused for a sweep.
 
     A store qualifies when its model name, model version and settings record are exactly the
@@ -339,13 +371,13 @@ def find_compatible_stores(results_dir: str | os.PathLike[str], model: str, mode
     list of Path
         Store folders, sorted by path; empty if none qualifies.
     """
-    root = Path(results_dir)
+    root = as_path(results_dir)
     if not root.is_dir():
         return []
     wanted = {ATTR.model: model, ATTR.model_version: model_version, ATTR.settings: settings_json}
     if fixed_json is not None:
         wanted[ATTR.fixed] = fixed_json
-    found = []
+    found: list[StorePath] = []
     for entry in read_catalog(root).entries:
         if entry.problem is not None or entry.model != model or entry.model_version != model_version \
                 or entry.settings_json != settings_json:

@@ -11,9 +11,7 @@ array folders, which costs a directory walk, not a decode. The metadata side is
 from __future__ import annotations
 
 import itertools
-import os
 from collections.abc import Iterable, Mapping
-from pathlib import Path
 from typing import Any
 
 import numpy as np
@@ -22,6 +20,7 @@ from sweepshell.errors import StoreDamagedError
 from sweepshell.models.base import TRUSTED_STATUSES
 from sweepshell.store import metadata
 from sweepshell.store.integrity import declared_outputs, read_root_metadata
+from sweepshell.store.location import AnyPath, as_path, zarr_store
 from sweepshell.store.metadata import ATTR
 
 __all__ = ["check_store_chunks", "check_trusted_values", "consolidated_outputs", "find_blocks_missing_chunks",
@@ -30,7 +29,7 @@ __all__ = ["check_store_chunks", "check_trusted_values", "consolidated_outputs",
 _TRUSTED = np.array(sorted(int(s) for s in TRUSTED_STATUSES))
 
 
-def find_blocks_missing_chunks(path: str | os.PathLike[str], ledger: np.ndarray, block_shape: tuple[int, ...],
+def find_blocks_missing_chunks(path: AnyPath, ledger: np.ndarray, block_shape: tuple[int, ...],
                                variables: Iterable[str]) -> dict[tuple[int, ...], list[str]]:
     """Return ``{block index: [variables missing a chunk]}`` for final blocks holding a trusted point.
 
@@ -47,7 +46,7 @@ def find_blocks_missing_chunks(path: str | os.PathLike[str], ledger: np.ndarray,
     """
     from sweepshell.plan import iter_blocks
 
-    root = Path(path)
+    root = as_path(path)
     needy: list[tuple[int, ...]] = []
     for block in iter_blocks(tuple(ledger.shape), block_shape):
         status = ledger[block.slices]
@@ -67,7 +66,7 @@ def find_blocks_missing_chunks(path: str | os.PathLike[str], ledger: np.ndarray,
     return missing
 
 
-def check_store_chunks(path: str | os.PathLike[str], attrs: Mapping[str, Any] | None = None) -> None:
+def check_store_chunks(path: AnyPath, attrs: Mapping[str, Any] | None = None) -> None:
     """Raise :class:`StoreDamagedError` if a final block holding trusted points lost a chunk.
 
     Reads the ledger and lists the array folders (no values are decoded), so every command
@@ -91,7 +90,7 @@ def check_store_chunks(path: str | os.PathLike[str], attrs: Mapping[str, Any] | 
                                 "then run the sweep again", field="store", value=str(path))
 
 
-def consolidated_outputs(path: str | os.PathLike[str]) -> list[str]:
+def consolidated_outputs(path: AnyPath) -> list[str]:
     """Return the data variables other than status and regime, from the consolidated metadata."""
     meta = read_root_metadata(path)
     entries = metadata.consolidated_entries(meta)
@@ -103,7 +102,7 @@ def consolidated_outputs(path: str | os.PathLike[str]) -> list[str]:
 
 
 def check_trusted_values(values: np.ndarray, status: np.ndarray, name: str, attrs: Mapping[str, Any],
-                         path: str | os.PathLike[str] | None = None) -> None:
+                         path: AnyPath | None = None) -> None:
     """Raise :class:`StoreDamagedError` if a non-nullable output is NaN at a trusted point.
 
     ``values`` and ``status`` are flat per point (extra dimensions, if any, trailing in ``values``).
@@ -125,14 +124,14 @@ def check_trusted_values(values: np.ndarray, status: np.ndarray, name: str, attr
                                 field="store", value=name)
 
 
-def find_undecodable_chunk(path: str | os.PathLike[str]) -> tuple[str, tuple[int, ...]] | None:
+def find_undecodable_chunk(path: AnyPath) -> tuple[str, tuple[int, ...]] | None:
     """Return ``(variable, block index)`` of the first chunk on disk that does not decode, or ``None``.
 
     Decodes every chunk, so it is meant for explaining a failed read, not for routine checks.
     """
     import zarr
 
-    root = Path(path)
+    root = as_path(path)
     try:
         meta = read_root_metadata(root)
     except (FileNotFoundError, StoreDamagedError):
@@ -144,7 +143,7 @@ def find_undecodable_chunk(path: str | os.PathLike[str]) -> tuple[str, tuple[int
         if not present:
             continue
         try:
-            arr = zarr.open_array(str(root / name), mode="r", zarr_format=3)
+            arr = zarr.open_array(zarr_store(root / name), mode="r", zarr_format=3)
         except Exception:
             return name, ()
         for index in sorted(present):

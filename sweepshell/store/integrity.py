@@ -20,11 +20,10 @@ from __future__ import annotations
 
 import json
 import math
-import os
 import re
 from collections.abc import Mapping
 from dataclasses import dataclass
-from pathlib import Path
+from pathlib import Path as _LocalPath
 from typing import Any
 
 import numpy as np
@@ -32,6 +31,7 @@ import numpy as np
 from sweepshell.errors import ConfigError, StoreDamagedError
 from sweepshell.models.base import TRUSTED_STATUSES
 from sweepshell.store import metadata
+from sweepshell.store.location import AnyPath, StorePath, as_path
 from sweepshell.store.metadata import ATTR
 
 __all__ = [
@@ -78,25 +78,36 @@ class MetadataProblem:
     repairable: bool
 
 
-_URL_RE = re.compile(r"^[A-Za-z][A-Za-z0-9+.-]+:")
 _SYSTEM_DIRS = ("/proc", "/sys", "/dev")
+#: extras that install the filesystem of a protocol
+_EXTRAS = {"s3": "s3", "s3a": "s3", "gs": "gcs", "gcs": "gcs", "az": "azure", "abfs": "azure", "abfss": "azure"}
+#: protocols that cannot hold a store others write to
+_READ_ONLY = ("http", "https", "ftp", "zip", "tar", "github", "reference", "data")
 
 
-def check_store_path(store_path: Any, what: str = "store.path") -> None:
-    """Refuse store paths that cannot hold a store: URLs, system folders, paths through or onto a file.
+def check_store_path(store_path: Any, what: str = "store.path", *, process_workers: bool = False) -> None:
+    """Refuse store paths that cannot hold a store: unusable URLs, system folders, paths through or onto a file.
 
-    Stores live in local (or shared, mounted) folders; object-store URLs are not supported yet, and
-    refusing them here keeps a URL from becoming a local folder named ``s3:``.
+    Plain paths and ``file://`` URLs are local folders; ``s3://``, ``gs://``, ``az://`` and other fsspec
+    URLs are object-store prefixes when their filesystem package is installed. ``memory://`` lives in
+    one process, so it is refused when ``process_workers`` (workers in other processes) would write.
     """
+    from sweepshell.store.location import is_url, protocol_of
+
     if not isinstance(store_path, str) or not store_path.strip():
         raise ConfigError(f"{what}={store_path!r} must be a folder path such as results/NAME.zarr",
                           field=what, value=store_path)
-    if _URL_RE.match(store_path):
-        raise ConfigError(f"{what}={store_path!r} is a URL; object stores are not supported yet, give a local "
-                          "or mounted folder such as results/NAME.zarr", field=what, value=store_path)
-    resolved = Path(store_path).resolve()
+    if is_url(store_path):
+        _check_store_url(store_path, protocol_of(store_path), what, process_workers)
+        return
+    if store_path.lower().startswith("file://"):
+        store_path = store_path[len("file://"):]
+    elif re.match(r"^[A-Za-z][A-Za-z0-9+.-]+:", store_path):
+        raise ConfigError(f"{what}={store_path!r} looks like a URL without '//'; write PROTOCOL://BUCKET/NAME.zarr "
+                          "or a folder path such as results/NAME.zarr", field=what, value=store_path)
+    resolved = _LocalPath(store_path).resolve()
     for system in _SYSTEM_DIRS:
-        if resolved == Path(system) or Path(system) in resolved.parents:
+        if resolved == _LocalPath(system) or _LocalPath(system) in resolved.parents:
             raise ConfigError(f"{what}={store_path!r} is under {system}, a system folder; give a folder of "
                               "your own such as results/NAME.zarr", field=what, value=store_path)
     if resolved.exists() and not resolved.is_dir():
@@ -110,7 +121,33 @@ def check_store_path(store_path: Any, what: str = "store.path") -> None:
             break
 
 
-def repair_remedy(path: str | os.PathLike[str], repairable: bool = True) -> str:
+def _check_store_url(url: str, protocol: str, what: str, process_workers: bool) -> None:
+    """Refuse URLs whose filesystem is missing, read-only, or private to one process."""
+    from fsspec.registry import get_filesystem_class, known_implementations, registry
+
+    key = url[len(protocol) + 3:].strip("/")
+    if protocol in _READ_ONLY:
+        raise ConfigError(f"{what}={url!r}: {protocol}:// is read-only; give an object-store URL (s3://, gs://, "
+                          "az://) or a folder path", field=what, value=url)
+    if protocol not in known_implementations and protocol not in registry:
+        raise ConfigError(f"{what}={url!r}: no filesystem is known for {protocol}://; use s3://, gs://, az:// "
+                          "or a folder path", field=what, value=url)
+    try:
+        get_filesystem_class(protocol)
+    except ImportError:
+        extra = _EXTRAS.get(protocol)
+        fix = f"pip install 'sweepshell[{extra}]'" if extra else f"install the fsspec filesystem for {protocol}://"
+        raise ConfigError(f"{what}={url!r}: the {protocol}:// filesystem is not installed; {fix}",
+                          field=what, value=url) from None
+    if protocol == "memory" and process_workers:
+        raise ConfigError(f"{what}={url!r}: memory:// lives inside one process and workers in other processes "
+                          "cannot write to it; use executor=threads or an object store", field=what, value=url)
+    if not key or ("/" not in key and protocol not in ("memory",)):
+        raise ConfigError(f"{what}={url!r} names a bucket, not a store inside it; write {protocol}://BUCKET/NAME.zarr",
+                          field=what, value=url)
+
+
+def repair_remedy(path: AnyPath, repairable: bool = True) -> str:
     """Return the fix to name for a damaged store."""
     if repairable:
         return f"run `sweepshell verify --repair {path}`, then run the sweep again"
@@ -118,7 +155,7 @@ def repair_remedy(path: str | os.PathLike[str], repairable: bool = True) -> str:
             "(store.path=...)")
 
 
-def read_root_metadata(path: str | os.PathLike[str]) -> dict[str, Any]:
+def read_root_metadata(path: AnyPath) -> dict[str, Any]:
     """Return the parsed root ``zarr.json`` of a store.
 
     Raises
@@ -129,7 +166,7 @@ def read_root_metadata(path: str | os.PathLike[str]) -> dict[str, Any]:
         If there is no root ``zarr.json`` (the caller decides what that means).
     """
     if not metadata.has_node(path):
-        raise FileNotFoundError(str(Path(path) / metadata.META_FILE))
+        raise FileNotFoundError(str(as_path(path) / metadata.META_FILE))
     size = metadata.node_size(path)
     if size > MAX_ROOT_METADATA_BYTES:
         raise StoreDamagedError(f"store {str(path)!r}: its root metadata zarr.json is {size} bytes, above "
@@ -174,13 +211,13 @@ def _expected_dtypes(attrs: Mapping[str, Any]) -> dict[str, str]:
     return expected
 
 
-def scan_metadata(path: str | os.PathLike[str], root_meta: Mapping[str, Any]) -> list[MetadataProblem]:
+def scan_metadata(path: AnyPath, root_meta: Mapping[str, Any]) -> list[MetadataProblem]:
     """Return every metadata inconsistency of a store whose root metadata parsed.
 
     Reads each array's ``zarr.json`` (a few small files) and compares it with the consolidated
     copy and the declared data types.
     """
-    root = Path(path)
+    root = as_path(path)
     attrs = root_meta.get("attributes") or {}
     consolidated = root_meta.get("consolidated_metadata")
     entries: dict[str, Any] = {}
@@ -205,7 +242,7 @@ def _json_attr(attrs: Mapping[str, Any], key: str) -> dict[str, Any] | None:
     return value if isinstance(value, dict) else None
 
 
-def _scan_array(root: Path, name: str, copy: Any, dtype: str | None) -> list[MetadataProblem]:
+def _scan_array(root: StorePath, name: str, copy: Any, dtype: str | None) -> list[MetadataProblem]:
     own, reason = metadata.read_node_or_reason(root / name)
     if reason is None and not (isinstance(own, dict) and own.get("node_type") == "array"):
         reason = "is not the metadata of an array"
@@ -239,7 +276,7 @@ def _short(meta: Mapping[str, Any], key: str) -> str:
     return text if len(text) <= 40 else text[:37] + "..."
 
 
-def check_store_metadata(path: str | os.PathLike[str], root_meta: Mapping[str, Any] | None = None) -> None:
+def check_store_metadata(path: AnyPath, root_meta: Mapping[str, Any] | None = None) -> None:
     """Raise :class:`StoreDamagedError` naming the first metadata problem and its remedy.
 
     Cheap (a few small JSON files); every command that opens a store calls it, so a damaged
@@ -257,7 +294,7 @@ def check_store_metadata(path: str | os.PathLike[str], root_meta: Mapping[str, A
                                 field="store", value=str(path))
 
 
-def check_record_shapes(path: str | os.PathLike[str], root_meta: Mapping[str, Any]) -> list[MetadataProblem]:
+def check_record_shapes(path: AnyPath, root_meta: Mapping[str, Any]) -> list[MetadataProblem]:
     """Return problems of the recorded axes and block shape against the ledger array's own metadata.
 
     Commands size their work from these records (refine, merge, run), so a record that claims
@@ -265,7 +302,7 @@ def check_record_shapes(path: str | os.PathLike[str], root_meta: Mapping[str, An
     (``Infinity``) is refused before anything is allocated.
     """
     attrs = root_meta.get("attributes") or {}
-    status_meta, _ = metadata.read_node_or_reason(Path(path) / metadata.STATUS_VAR)
+    status_meta, _ = metadata.read_node_or_reason(as_path(path) / metadata.STATUS_VAR)
     if not isinstance(status_meta, dict):
         return []  # reported by the metadata scan
     dims = [str(d) for d in status_meta.get("dimension_names") or []]
@@ -313,7 +350,7 @@ def check_model_limits(model: Any, where: str, error: type[Exception] = StoreDam
                     f"{MAX_SECONDS_PER_POINT:g} s is allowed")
 
 
-def repair_metadata(path: str | os.PathLike[str]) -> list[str]:
+def repair_metadata(path: AnyPath) -> list[str]:
     """Rebuild what can be rebuilt of a store's metadata; return one line per change.
 
     - a truncated root whose attributes still parse gets a new root (attributes kept);
@@ -322,7 +359,7 @@ def repair_metadata(path: str | os.PathLike[str]) -> list[str]:
     - a disagreement is settled in favour of the copy with the declared data type;
     - finally the consolidated metadata is rebuilt from the arrays' own files.
     """
-    root = Path(path)
+    root = as_path(path)
     changes: list[str] = []
     meta, reason = metadata.read_node_or_reason(root)
     if reason is not None or not isinstance(meta, dict):

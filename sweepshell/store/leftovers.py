@@ -8,10 +8,13 @@ import os
 import socket
 import time
 from pathlib import Path
+from typing import Any
 
 from sweepshell.store import metadata
+from sweepshell.store.location import AnyPath, ObjectPath, StorePath, as_path
+from sweepshell.store.publish import CREATING_MARKER, clean_stale_temporaries, creation_abandoned
 
-__all__ = ["CLAIMS_DIR", "find_leftovers", "leftover_temporaries", "stale_claim_files"]
+__all__ = ["CLAIMS_DIR", "claim_is_stale", "find_leftovers", "leftover_temporaries", "stale_claim_files"]
 
 #: the folder of block claims inside a store (see sweepshell.engine.claims)
 CLAIMS_DIR = ".claims"
@@ -29,16 +32,39 @@ def _pid_gone(host: str, pid: str) -> bool:
     return False
 
 
-def stale_claim_files(store: str | os.PathLike[str], ttl: float = 60.0) -> list[Path]:
+def claim_is_stale(record: Any, now: float | None = None) -> bool:
+    """Whether an object-store claim record's lease ran out or its runner's process is gone from this host."""
+    now = time.time() if now is None else now
+    try:
+        lease_until = float(record["lease_until"])
+        host, pid, _ = str(record["runner"]).rsplit(":", 2)
+    except (TypeError, KeyError, ValueError):
+        return True
+    return lease_until < now or _pid_gone(host, pid)
+
+
+def stale_claim_files(store: AnyPath, ttl: float = 60.0) -> list[StorePath]:
     """Return the claim files of a store left by runners that are gone.
 
     A claim is stale when its runner's process no longer exists on this host, or when it has
-    not been refreshed for ``ttl`` seconds (a runner on another host refreshes every ``ttl/4``).
+    not been refreshed for ``ttl`` seconds (a runner on another host refreshes every ``ttl/4``);
+    on an object store, when its recorded lease ran out.
     """
-    folder = Path(store) / CLAIMS_DIR
+    where = as_path(store) / CLAIMS_DIR
+    if isinstance(where, ObjectPath):
+        found: list[StorePath] = []
+        for obj in sorted(where.iterdir()):
+            try:
+                record = json.loads(obj.read_text())
+            except (OSError, ValueError):
+                record = None
+            if claim_is_stale(record):
+                found.append(obj)
+        return found
+    folder: Path = where
     if not folder.is_dir():
         return []
-    stale = []
+    stale: list[StorePath] = []
     now = time.time()
     for claim in sorted(folder.iterdir()):
         try:
@@ -61,26 +87,44 @@ def leftover_temporaries(folder: str | os.PathLike[str]) -> list[Path]:
     return found
 
 
-def find_leftovers(results_dir: str | os.PathLike[str], *, clean: bool = False) -> list[str]:
+def find_leftovers(results_dir: AnyPath, *, clean: bool = False) -> list[str]:
     """Return (and with ``clean`` remove) leftovers of killed processes under a results folder."""
     import shutil
 
     from sweepshell.store.catalog import iter_store_folders
 
-    root = Path(results_dir)
-    found: list[Path] = []
-    for dirpath, dirnames, _files in os.walk(root, followlinks=False):
-        found += leftover_temporaries(dirpath)
-        dirnames[:] = [d for d in dirnames if not d.startswith(".") and metadata.TEMP_SUFFIX not in d
-                       and not metadata.has_node(Path(dirpath) / d)]
+    root = as_path(results_dir)
+    found: list[StorePath] = []
+    if isinstance(root, ObjectPath):
+        found += _object_leftovers(root)
+    else:
+        for dirpath, dirnames, _files in os.walk(root, followlinks=False):
+            found += leftover_temporaries(dirpath)
+            dirnames[:] = [d for d in dirnames if not d.startswith(".") and metadata.TEMP_SUFFIX not in d
+                           and not metadata.has_node(Path(dirpath) / d)]
     for store in iter_store_folders(root):
         found += stale_claim_files(store)
     if clean:
         for path in found:
-            if path.is_dir():
+            if isinstance(path, ObjectPath) and f"/{CLAIMS_DIR}/" in str(path):
+                path.unlink(missing_ok=True)
+            elif isinstance(path, ObjectPath):
+                clean_stale_temporaries(path)
+            elif path.is_dir():
                 shutil.rmtree(path, ignore_errors=True)
             else:
                 path.unlink(missing_ok=True)
                 with contextlib.suppress(OSError):
                     path.parent.rmdir()
-    return [p.relative_to(root).as_posix() for p in found]
+    return [p.relative_to(root).as_posix() for p in found]  # type: ignore[arg-type]
+
+
+def _object_leftovers(root: ObjectPath) -> list[StorePath]:
+    """Return the half-uploaded stores under an object-store prefix whose creator is gone."""
+    found: list[StorePath] = []
+    for key in root.find():
+        if key.endswith("/" + CREATING_MARKER):
+            store = root / key[:-len(CREATING_MARKER) - 1]
+            if creation_abandoned(store):
+                found.append(store)
+    return found

@@ -23,6 +23,7 @@ from typing import Any
 import numpy as np
 
 from sweepshell.models.base import Status
+from sweepshell.store.location import AnyPath, ObjectPath, StorePath, as_path
 
 __all__ = [
     "ATTR",
@@ -121,12 +122,12 @@ def regime_attrs(regimes: tuple[str, ...]) -> dict[str, object]:
 # --- reading node metadata --------------------------------------------------------------------------------------
 
 
-def has_node(folder: str | os.PathLike[str]) -> bool:
+def has_node(folder: AnyPath) -> bool:
     """Return whether ``folder`` holds a zarr group or array (a metadata document)."""
-    return (Path(folder) / META_FILE).is_file()
+    return (as_path(folder) / META_FILE).is_file()
 
 
-def read_node(folder: str | os.PathLike[str]) -> dict[str, Any]:
+def read_node(folder: AnyPath) -> dict[str, Any]:
     """Return the metadata document of the zarr node at ``folder``.
 
     Raises
@@ -136,13 +137,13 @@ def read_node(folder: str | os.PathLike[str]) -> dict[str, Any]:
     ValueError
         If it is not a JSON object.
     """
-    data = json.loads((Path(folder) / META_FILE).read_text())
+    data = json.loads((as_path(folder) / META_FILE).read_text())
     if not isinstance(data, dict):
         raise ValueError(f"{META_FILE} is not a JSON object")
     return data
 
 
-def read_attrs(folder: str | os.PathLike[str]) -> dict[str, Any]:
+def read_attrs(folder: AnyPath) -> dict[str, Any]:
     """Return the attributes of the zarr node at ``folder`` (``{}`` when it has none).
 
     Raises
@@ -158,7 +159,7 @@ def read_attrs(folder: str | os.PathLike[str]) -> dict[str, Any]:
     return attrs
 
 
-def try_read_attrs(folder: str | os.PathLike[str]) -> dict[str, Any] | None:
+def try_read_attrs(folder: AnyPath) -> dict[str, Any] | None:
     """Return the attributes of the zarr node at ``folder``, or ``None`` if there is none readable."""
     try:
         return read_attrs(folder)
@@ -166,13 +167,13 @@ def try_read_attrs(folder: str | os.PathLike[str]) -> dict[str, Any] | None:
         return None
 
 
-def is_store(folder: str | os.PathLike[str]) -> bool:
+def is_store(folder: AnyPath) -> bool:
     """Return whether ``folder`` holds a sweepshell store (any schema version)."""
     attrs = try_read_attrs(folder) if has_node(folder) else None
     return attrs is not None and ATTR.schema in attrs
 
 
-def dimension_names(store: str | os.PathLike[str], variable: str = STATUS_VAR) -> list[str]:
+def dimension_names(store: AnyPath, variable: str = STATUS_VAR) -> list[str]:
     """Return the dimension names of a store variable (for the ledger: the axes in plan order).
 
     Raises
@@ -180,12 +181,15 @@ def dimension_names(store: str | os.PathLike[str], variable: str = STATUS_VAR) -
     OSError, ValueError
         If the variable's metadata cannot be read.
     """
-    return [str(n) for n in read_node(Path(store) / variable).get("dimension_names") or []]
+    return [str(n) for n in read_node(as_path(store) / variable).get("dimension_names") or []]
 
 
-def child_nodes(folder: str | os.PathLike[str]) -> list[Path]:
+def child_nodes(folder: AnyPath) -> list[StorePath]:
     """Return the sub-folders of ``folder`` that are zarr nodes, sorted by name."""
-    return sorted(p for p in Path(folder).iterdir() if p.is_dir() and has_node(p))
+    loc = as_path(folder)
+    if isinstance(loc, ObjectPath):  # one listing; a prefix is a node when it holds a metadata document
+        return sorted(loc / k.split("/")[0] for k in loc.find() if k.count("/") == 1 and k.endswith("/" + META_FILE))
+    return sorted(p for p in loc.iterdir() if p.is_dir() and has_node(p))
 
 
 # --- the JSON records inside the attributes ----------------------------------------------------------------------
@@ -241,7 +245,7 @@ def read_record(attrs: Mapping[str, Any], key: str, default: str | None = None) 
 # --- consolidated metadata ---------------------------------------------------------------------------------------
 
 
-def reconsolidate(path: str | os.PathLike[str]) -> None:
+def reconsolidate(path: AnyPath) -> None:
     """Rewrite the store's consolidated metadata after arrays were added or resized."""
     import zarr
 
@@ -252,21 +256,23 @@ def reconsolidate(path: str | os.PathLike[str]) -> None:
         # re-serialising the grid's existing arrays repeats zarr's warning about fixed-length string
         # coordinates (written at creation); it says nothing about the arrays added since
         warnings.filterwarnings("ignore", message=".*does not have a Zarr V3 specification.*")
-        zarr.consolidate_metadata(str(path), zarr_format=3)
+        from sweepshell.store.location import zarr_store
+
+        zarr.consolidate_metadata(zarr_store(path), zarr_format=3)
 
 
 # --- damaged stores: reading what survives (see sweepshell.store.integrity) -------------------------------------
 
 
-def read_node_or_reason(folder: str | os.PathLike[str]) -> tuple[Any, str | None]:
+def read_node_or_reason(folder: AnyPath) -> tuple[Any, str | None]:
     """Return ``(metadata document, None)`` of the node at ``folder``, or ``(None, what is wrong)``.
 
     Never raises: a missing, unreadable or non-JSON document is described in a few words.
     """
-    return _read_file_or_reason(Path(folder) / META_FILE)
+    return _read_file_or_reason(as_path(folder) / META_FILE)
 
 
-def _read_file_or_reason(file: Path) -> tuple[Any, str | None]:
+def _read_file_or_reason(file: StorePath) -> tuple[Any, str | None]:
     """Return ``(value, None)`` or ``(None, reason)`` for a JSON file."""
     try:
         text = file.read_text()
@@ -313,26 +319,30 @@ def _salvage_attributes(text: str) -> dict[str, Any] | None:
     return value if isinstance(value, dict) else None
 
 
-def salvage_attributes(folder: str | os.PathLike[str]) -> dict[str, Any] | None:
+def salvage_attributes(folder: AnyPath) -> dict[str, Any] | None:
     """Return the attributes that still parse in a damaged (e.g. truncated) metadata document, if any."""
     try:
-        return _salvage_attributes((Path(folder) / META_FILE).read_text(errors="replace"))
+        return _salvage_attributes((as_path(folder) / META_FILE).read_text(errors="replace"))
     except OSError:
         return None
 
 
-def node_size(folder: str | os.PathLike[str]) -> int:
+def node_size(folder: AnyPath) -> int:
     """Return the size in bytes of the node's metadata document (0 when absent)."""
     try:
-        return (Path(folder) / META_FILE).stat().st_size
+        return (as_path(folder) / META_FILE).stat().st_size
     except OSError:
         return 0
 
 
-def write_node(folder: str | os.PathLike[str], value: Any) -> None:
+def write_node(folder: AnyPath, value: Any) -> None:
     """Replace the node's metadata document atomically (``verify --repair`` rebuilding damaged metadata)."""
-    Path(folder).mkdir(exist_ok=True)
-    _write_file(Path(folder) / META_FILE, value)
+    loc = as_path(folder)
+    if isinstance(loc, ObjectPath):  # one PUT replaces an object atomically
+        (loc / META_FILE).write_text(json.dumps(value, indent=2))
+        return
+    loc.mkdir(exist_ok=True)
+    _write_file(loc / META_FILE, value)
 
 
 def _write_file(file: Path, value: Any) -> None:
@@ -341,13 +351,13 @@ def _write_file(file: Path, value: Any) -> None:
     os.replace(tmp, file)
 
 
-def list_chunk_indices(array_dir: str | os.PathLike[str]) -> set[tuple[int, ...]] | None:
+def list_chunk_indices(array_dir: AnyPath) -> set[tuple[int, ...]] | None:
     """Return the chunk grid indices that have a file, by listing the folder (no decoding).
 
     Returns ``None`` when the array's chunk key encoding is not the default one (``c/i/j``
     or ``c.i.j``) or its metadata cannot be read: then presence cannot be judged by listing.
     """
-    folder = Path(array_dir)
+    folder = as_path(array_dir)
     meta, reason = _read_file_or_reason(folder / "zarr.json")
     if reason is not None or not isinstance(meta, dict):
         return set() if not folder.exists() else None
@@ -356,6 +366,12 @@ def list_chunk_indices(array_dir: str | os.PathLike[str]) -> set[tuple[int, ...]
         return None
     sep = (enc.get("configuration") or {}).get("separator", "/")
     found: set[tuple[int, ...]] = set()
+    if isinstance(folder, ObjectPath):  # one paginated listing of the array's prefix
+        for key in folder.find():
+            pieces = key.split("/") if sep == "/" else key.split(sep)
+            if pieces[0] == "c" and len(pieces) > 1 and all(p.isdigit() for p in pieces[1:]):
+                found.add(tuple(int(p) for p in pieces[1:]))
+        return found
     if sep == "/":
         base = folder / "c"
         for dirpath, _, files in os.walk(base):
@@ -372,8 +388,8 @@ def list_chunk_indices(array_dir: str | os.PathLike[str]) -> set[tuple[int, ...]
     return found
 
 
-def extra_chunk_counts(array_dir: Path, n_axes: int) -> tuple[int, ...]:
-    meta, _ = _read_file_or_reason(array_dir / "zarr.json")
+def extra_chunk_counts(array_dir: AnyPath, n_axes: int) -> tuple[int, ...]:
+    meta, _ = _read_file_or_reason(as_path(array_dir) / "zarr.json")
     try:
         shape = meta["shape"][n_axes:]
         chunks = meta["chunk_grid"]["configuration"]["chunk_shape"][n_axes:]

@@ -22,15 +22,14 @@ grid) and ``xr.open_zarr(store, group="points")`` stay in step without warnings.
 from __future__ import annotations
 
 import datetime as _dt
-import os
 from collections.abc import Mapping, Sequence
-from pathlib import Path
 from typing import Any
 
 import numpy as np
 
 from sweepshell.models.base import Status
 from sweepshell.store import metadata
+from sweepshell.store.location import AnyPath, StorePath, as_path, zarr_store
 from sweepshell.store.metadata import ATTR, POINTS_GROUP
 
 __all__ = ["ORIGINS", "POINTS_DIM", "POINTS_GROUP", "append_points", "has_points", "read_count", "read_points"]
@@ -47,12 +46,12 @@ def _array(group: Any, name: str) -> Any:
     return group[name]
 
 
-def has_points(path: str | os.PathLike[str]) -> bool:
+def has_points(path: AnyPath) -> bool:
     """Return whether the store has a point list (possibly empty)."""
-    return metadata.has_node(Path(path) / POINTS_GROUP)
+    return metadata.has_node(as_path(path) / POINTS_GROUP)
 
 
-def read_points(path: str | os.PathLike[str], *, final_only: bool = True) -> dict[str, np.ndarray] | None:
+def read_points(path: AnyPath, *, final_only: bool = True) -> dict[str, np.ndarray] | None:
     """Return the point list as name → numpy array, or ``None`` if the store has none.
 
     Categorical axes come back as object arrays of names. With ``final_only`` the points
@@ -62,7 +61,7 @@ def read_points(path: str | os.PathLike[str], *, final_only: bool = True) -> dic
 
     if not has_points(path):
         return None
-    group = zarr.open_group(str(Path(path) / POINTS_GROUP), mode="r", zarr_format=3)
+    group = zarr.open_group(zarr_store(as_path(path) / POINTS_GROUP), mode="r", zarr_format=3)
     status = np.asarray(_array(group, metadata.STATUS_VAR)[...])
     keep = status != Status.pending if final_only else np.ones(status.shape, dtype=bool)
     out: dict[str, np.ndarray] = {}
@@ -75,11 +74,11 @@ def read_points(path: str | os.PathLike[str], *, final_only: bool = True) -> dic
     return out
 
 
-def _create_group(path: Path, grid_attrs: Mapping[str, Any], axes: Mapping[str, np.ndarray],
+def _create_group(path: StorePath, grid_attrs: Mapping[str, Any], axes: Mapping[str, np.ndarray],
                   outputs: Mapping[str, tuple[tuple[int, ...], Mapping[str, Any]]]) -> Any:
     import zarr
 
-    root = zarr.open_group(str(path), mode="r+", zarr_format=3)
+    root = zarr.open_group(zarr_store(path), mode="r+", zarr_format=3)
     attrs = {
         "description": "points evaluated off the grid (along regime boundaries); same model as the grid",
         ATTR.model: grid_attrs.get(ATTR.model),
@@ -121,7 +120,7 @@ def _create_group(path: Path, grid_attrs: Mapping[str, Any], axes: Mapping[str, 
     return group
 
 
-def append_points(path: str | os.PathLike[str], axes: Mapping[str, np.ndarray], outputs: Mapping[str, np.ndarray],
+def append_points(path: AnyPath, axes: Mapping[str, np.ndarray], outputs: Mapping[str, np.ndarray],
                   regime: np.ndarray, status: np.ndarray, *, origin: str, level: int | np.ndarray = 0,
                   output_attrs: Mapping[str, Mapping[str, Any]] | None = None,
                   output_dims: Mapping[str, Sequence[str]] | None = None) -> int:
@@ -146,7 +145,7 @@ def append_points(path: str | os.PathLike[str], axes: Mapping[str, np.ndarray], 
     """
     import zarr
 
-    p = Path(path)
+    p = as_path(path)
     grid_attrs = metadata.read_attrs(p)
     n = int(np.asarray(status).shape[0])
     if n == 0:
@@ -154,7 +153,7 @@ def append_points(path: str | os.PathLike[str], axes: Mapping[str, np.ndarray], 
     if origin not in ORIGINS:
         raise ValueError(f"origin={origin!r}; use one of {ORIGINS}")
     if has_points(p):
-        group = zarr.open_group(str(p / POINTS_GROUP), mode="r+", zarr_format=3)
+        group = zarr.open_group(zarr_store(p / POINTS_GROUP), mode="r+", zarr_format=3)
         stored = dict(group.attrs)
         for key in (ATTR.model, ATTR.model_version, ATTR.settings, ATTR.fixed):
             if stored.get(key) != grid_attrs.get(key):
@@ -189,11 +188,11 @@ def append_points(path: str | os.PathLike[str], axes: Mapping[str, np.ndarray], 
     return stop
 
 
-def read_count(path: str | os.PathLike[str]) -> int:
+def read_count(path: AnyPath) -> int:
     """Return the number of entries in the point list (0 if there is none)."""
     import zarr
 
     if not has_points(path):
         return 0
-    group = zarr.open_group(str(Path(path) / POINTS_GROUP), mode="r", zarr_format=3)
+    group = zarr.open_group(zarr_store(as_path(path) / POINTS_GROUP), mode="r", zarr_format=3)
     return int(_array(group, metadata.STATUS_VAR).shape[0])

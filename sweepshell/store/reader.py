@@ -3,14 +3,13 @@
 from __future__ import annotations
 
 import logging
-import os
-from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
 from sweepshell.errors import StoreNotFoundError, StoreSchemaError
 from sweepshell.store import metadata
+from sweepshell.store.location import AnyPath, as_path, zarr_store
 from sweepshell.store.metadata import ATTR
 
 if TYPE_CHECKING:
@@ -23,7 +22,7 @@ __all__ = ["check_readable_store", "is_block_final", "open_sweep", "read_attrs",
 log = logging.getLogger(__name__)
 
 
-def check_readable_store(path: str | os.PathLike[str], *, chunks: bool = False) -> dict[str, Any]:
+def check_readable_store(path: AnyPath, *, chunks: bool = False) -> dict[str, Any]:
     """Return the store's attributes, or raise a clear error if it is not a store we can read.
 
     The metadata is always checked (a few small files); with ``chunks=True`` also that every
@@ -33,7 +32,7 @@ def check_readable_store(path: str | os.PathLike[str], *, chunks: bool = False) 
     from sweepshell.store.chunk_checks import check_store_chunks
     from sweepshell.store.integrity import check_store_metadata, read_root_metadata
 
-    p = Path(path)
+    p = as_path(path)
     if not p.exists():
         raise StoreNotFoundError(f"no store at {str(p)!r}; check the path (stores are folders ending in .zarr)",
                                  field="store", value=str(p))
@@ -58,12 +57,12 @@ def check_readable_store(path: str | os.PathLike[str], *, chunks: bool = False) 
     return attrs
 
 
-def read_attrs(path: str | os.PathLike[str]) -> dict[str, Any]:
+def read_attrs(path: AnyPath) -> dict[str, Any]:
     """Return the provenance attributes of a store (checked to be a known schema)."""
     return check_readable_store(path)
 
 
-def open_sweep(path: str | os.PathLike[str], *, chunks: Any = "auto") -> xr.Dataset:
+def open_sweep(path: AnyPath, *, chunks: Any = "auto") -> xr.Dataset:
     """Open a sweep store as a lazy :class:`xarray.Dataset`.
 
     Parameters
@@ -83,10 +82,10 @@ def open_sweep(path: str | os.PathLike[str], *, chunks: Any = "auto") -> xr.Data
     import xarray as xr
 
     check_readable_store(path, chunks=True)
-    return xr.open_zarr(str(path), consolidated=True, zarr_format=3, chunks=chunks)
+    return xr.open_zarr(zarr_store(path, read_only=True), consolidated=True, zarr_format=3, chunks=chunks)
 
 
-def read_ledger(path: str | os.PathLike[str], block_shape: tuple[int, ...] | None = None) -> np.ndarray:
+def read_ledger(path: AnyPath, block_shape: tuple[int, ...] | None = None) -> np.ndarray:
     """Return the status ledger as a numpy array.
 
     A chunk that cannot be decoded (a run killed while writing it) reads as ``pending``, so
@@ -94,7 +93,8 @@ def read_ledger(path: str | os.PathLike[str], block_shape: tuple[int, ...] | Non
     """
     import zarr
 
-    arr = zarr.open_array(str(Path(path) / metadata.STATUS_VAR), mode="r", zarr_format=3)
+    arr = zarr.open_array(zarr_store(as_path(path) / metadata.STATUS_VAR, read_only=True), mode="r",
+                          zarr_format=3)
     try:
         return np.asarray(arr[...])
     except Exception:  # a torn chunk: fall back to reading chunk by chunk
@@ -111,11 +111,12 @@ def read_ledger(path: str | os.PathLike[str], block_shape: tuple[int, ...] | Non
     return out
 
 
-def is_block_final(path: str | os.PathLike[str], block: Block) -> bool:
+def is_block_final(path: AnyPath, block: Block) -> bool:
     """Return whether every point of ``block`` has a final status (an unreadable chunk is not final)."""
     import zarr
 
-    arr = zarr.open_array(str(Path(path) / metadata.STATUS_VAR), mode="r", zarr_format=3)
+    arr = zarr.open_array(zarr_store(as_path(path) / metadata.STATUS_VAR, read_only=True), mode="r",
+                          zarr_format=3)
     try:
         return bool(np.all(np.asarray(arr[block.slices]) != 0))
     except Exception:

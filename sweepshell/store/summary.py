@@ -2,20 +2,19 @@
 
 from __future__ import annotations
 
-import os
-from pathlib import Path
 from typing import Any
 
 import numpy as np
 
 from sweepshell.models.base import Status
+from sweepshell.store.location import AnyPath, as_path, total_size, zarr_store
 from sweepshell.store.metadata import ATTR, STATUS_VAR, dimension_names, read_record
 from sweepshell.store.reader import check_readable_store, read_ledger
 
 __all__ = ["summarize_store"]
 
 
-def summarize_store(path: str | os.PathLike[str]) -> dict[str, Any]:
+def summarize_store(path: AnyPath) -> dict[str, Any]:
     """Return a JSON-ready summary: model, version, axes, counts per status, completeness."""
     attrs = check_readable_store(path)
     block_shape = tuple(int(b) for b in attrs[ATTR.block_shape])
@@ -37,7 +36,7 @@ def summarize_store(path: str | os.PathLike[str]) -> dict[str, Any]:
                      "min": min(numeric) if numeric else values[0],
                      "max": max(numeric) if numeric else values[-1],
                      "values": values if len(values) <= 12 else None})
-    size = sum(f.stat().st_size for f in Path(path).rglob("*") if f.is_file())
+    size = total_size(path)
     return {
         "path": str(path),
         "sweep": attrs.get(ATTR.sweep_name),
@@ -61,7 +60,7 @@ def summarize_store(path: str | os.PathLike[str]) -> dict[str, Any]:
     }
 
 
-def _count_off_grid(path: str | os.PathLike[str]) -> dict[str, int]:
+def _count_off_grid(path: AnyPath) -> dict[str, int]:
     """Return the off-grid point list's counts per status (empty when the store has none)."""
     import zarr
 
@@ -70,7 +69,7 @@ def _count_off_grid(path: str | os.PathLike[str]) -> dict[str, int]:
     if not has_points(path):
         return {}
     try:
-        status = np.asarray(zarr.open_array(str(Path(path) / POINTS_GROUP / STATUS_VAR), mode="r",
+        status = np.asarray(zarr.open_array(zarr_store(as_path(path) / POINTS_GROUP / STATUS_VAR), mode="r",
                                             zarr_format=3)[...])
     except Exception:  # an unreadable point list is verify's to report; status still answers for the grid
         return {"unreadable": 1}
@@ -81,7 +80,7 @@ def _count_off_grid(path: str | os.PathLike[str]) -> dict[str, int]:
     return counts
 
 
-def _count_lost_blocks(path: str | os.PathLike[str], ledger: np.ndarray, block_shape: tuple[int, ...]) -> int:
+def _count_lost_blocks(path: AnyPath, ledger: np.ndarray, block_shape: tuple[int, ...]) -> int:
     """Return how many final blocks lost an output or regime chunk (a listing; no model import, no decoding)."""
     from sweepshell.store.chunk_checks import consolidated_outputs, find_blocks_missing_chunks
     from sweepshell.store.metadata import REGIME_VAR

@@ -2,8 +2,10 @@
 
 Safety rules this module keeps (see DESIGN.md and STACK-NOTES.md):
 
-- The template (metadata, coordinates, attributes) is built in a temporary folder beside
-  the target and renamed into place, so a run killed during creation leaves no half store.
+- The template (metadata, coordinates, attributes) is built in a temporary folder and moved
+  into place atomically (:mod:`sweepshell.store.publish`: a rename on local disks; on object
+  stores an upload whose root ``zarr.json`` comes last), so a run killed during creation leaves
+  no half store that a reader could open or that blocks the next run.
 - Every write covers whole chunks: a block is exactly one chunk of every variable.
 - A block's outputs are written first, its regime next and its ``status`` last; a block
   whose status is not final is recomputed on resume. Writes are idempotent.
@@ -15,11 +17,8 @@ from __future__ import annotations
 import datetime as _dt
 import json
 import logging
-import os
-import shutil
 import warnings
 from collections.abc import Sequence
-from pathlib import Path
 from typing import Any
 
 import numpy as np
@@ -30,7 +29,9 @@ from sweepshell.models import get_model_origin
 from sweepshell.models.base import BatchResult, SweepModel
 from sweepshell.plan import Block, SweepPlan
 from sweepshell.store import metadata
+from sweepshell.store.location import AnyPath, ObjectPath, as_path, zarr_store
 from sweepshell.store.metadata import ATTR, canonical_json, is_store
+from sweepshell.store.publish import clean_stale_temporaries, publish_template, temporary_folder
 
 __all__ = [
     "check_store_matches",
@@ -38,6 +39,7 @@ __all__ = [
     "create_store",
     "plan_attrs",
     "store_block_shape",
+    "store_exists",
     "write_block",
 ]
 
@@ -68,7 +70,7 @@ def plan_attrs(plan: SweepPlan, model: SweepModel, block_shape: Sequence[int]) -
 
 
 
-def check_store_matches(path: str | os.PathLike[str], plan: SweepPlan, model: SweepModel) -> None:
+def check_store_matches(path: AnyPath, plan: SweepPlan, model: SweepModel) -> None:
     """Raise unless the existing store at ``path`` was made by the same sweep definition.
 
     Raises
@@ -79,7 +81,7 @@ def check_store_matches(path: str | os.PathLike[str], plan: SweepPlan, model: Sw
         If model, model version, settings, fixed parameters or axes differ; the message
         names the first difference and suggests a new store path.
     """
-    p = Path(path)
+    p = as_path(path)
     if not is_store(p):
         what = "a file" if p.is_file() else "a folder that is not a sweepshell store"
         raise StoreSchemaError(f"store.path={str(p)!r} is {what}; choose another path "
@@ -153,29 +155,17 @@ def _short(v: Any) -> str:
     return text if len(text) < 60 else text[:57] + "..."
 
 
-def store_block_shape(path: str | os.PathLike[str]) -> tuple[int, ...]:
+def store_block_shape(path: AnyPath) -> tuple[int, ...]:
     """Return the block (= chunk) shape recorded in an existing store."""
     return tuple(int(b) for b in metadata.read_attrs(path)[ATTR.block_shape])
 
 
-def clean_stale_temporaries(path: str | os.PathLike[str]) -> None:
-    """Remove half-built templates left by runs that were killed while creating the store."""
-    p = Path(path)
-    for tmp in p.parent.glob(p.name + metadata.TEMP_SUFFIX + "-*"):
-        pid_text = tmp.name.rsplit("-", 1)[-1]
-        if pid_text.isdigit() and _pid_alive(int(pid_text)):
-            continue
-        shutil.rmtree(tmp, ignore_errors=True)
-
-
-def _pid_alive(pid: int) -> bool:
-    try:
-        os.kill(pid, 0)
-    except ProcessLookupError:
-        return False
-    except PermissionError:
-        return True
-    return True
+def store_exists(path: AnyPath) -> bool:
+    """Return whether something is at ``path`` (a folder; on an object store, a store's root document)."""
+    loc = as_path(path)
+    if isinstance(loc, ObjectPath):  # a prefix without its root is a creation in progress or a leftover
+        return metadata.has_node(loc)
+    return loc.exists()
 
 
 def create_store(plan: SweepPlan, model: SweepModel, block_shape: Sequence[int]) -> None:
@@ -184,11 +174,8 @@ def create_store(plan: SweepPlan, model: SweepModel, block_shape: Sequence[int])
     import xarray as xr
     from zarr.codecs import ZstdCodec
 
-    target = Path(plan.store_path)
-    target.parent.mkdir(parents=True, exist_ok=True)
-    tmp = target.with_name(target.name + metadata.TEMP_SUFFIX + f"-{os.getpid()}")
-    if tmp.exists():
-        shutil.rmtree(tmp)
+    target = as_path(plan.store_path)
+    tmp = temporary_folder(target)
     block_shape = tuple(int(b) for b in block_shape)
     shape = plan.shape
     dims = plan.axis_names
@@ -232,25 +219,20 @@ def create_store(plan: SweepPlan, model: SweepModel, block_shape: Sequence[int])
         # that it is an extension of format 3, which we accept: arrays are never added after creation
         warnings.filterwarnings("ignore", message=".*[Cc]onsolidated metadata.*")
         ds.to_zarr(tmp, mode="w-", compute=False, zarr_format=3, consolidated=True, encoding=encoding)
-    try:
-        os.rename(tmp, target)
-    except OSError:
+    if not publish_template(tmp, target):
         # another runner created the store first; theirs is as good as ours if it matches
-        shutil.rmtree(tmp, ignore_errors=True)
-        if not is_store(target):
-            raise
         check_store_matches(target, plan, model)
 
 
-def write_block(path: str | os.PathLike[str], block: Block, result: BatchResult,
+def write_block(path: AnyPath, block: Block, result: BatchResult,
                 output_names: Sequence[str]) -> None:
     """Write one block's results: outputs and regime first (concurrently), the status ledger last."""
     from zarr.core.sync import sync
 
-    sync(_write_block(str(path), block, result, list(output_names)))
+    sync(_write_block(zarr_store(path), block, result, list(output_names)))
 
 
-async def _write_block(path: str, block: Block, result: BatchResult, output_names: list[str]) -> None:
+async def _write_block(path: Any, block: Block, result: BatchResult, output_names: list[str]) -> None:
     import asyncio
 
     from zarr.api.asynchronous import open_group
