@@ -267,6 +267,11 @@ def _explain_failure(args: argparse.Namespace, exc: Exception) -> tuple[str, int
             return (f"store {store!r}: {name} block {list(index)} does not decode (checksum or format error: the "
                     f"chunk is damaged); run `sweepshell verify --repair {store}`, then run the sweep again",
                     EXIT_BAD_INPUT)
+    from sweepshell.store.location import describe_storage_fault
+
+    storage = describe_storage_fault(exc)
+    if storage is not None:
+        return storage, EXIT_BAD_INPUT
     if isinstance(exc, OSError):
         if exc.errno in (errno.ENOSPC, errno.EFBIG, errno.EDQUOT):
             return (f"{exc.strerror} ({exc.filename or ''}); free space or raise the limit, then run the same "

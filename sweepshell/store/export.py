@@ -29,6 +29,7 @@ import json
 import logging
 import math
 import os
+import tempfile
 from collections.abc import Iterator
 from pathlib import Path
 from typing import IO, Any
@@ -39,6 +40,7 @@ from sweepshell.errors import SweepshellError
 from sweepshell.models.base import Status
 from sweepshell.store import metadata
 from sweepshell.store.catalog import read_axis_order
+from sweepshell.store.location import AnyPath, StorePath, as_path, zarr_store
 from sweepshell.store.metadata import ATTR
 from sweepshell.store.reader import check_readable_store
 
@@ -63,19 +65,20 @@ class ExportError(SweepshellError, ValueError):
     """An export cannot be made as asked (format, output path, missing optional library)."""
 
 
-def _default_output(store: Path, fmt: str) -> Path:
+def _default_output(store: StorePath, fmt: str) -> StorePath:
+    """Beside a local store; in the current folder for a store on an object store."""
     name = store.name.removesuffix(".zarr") if store.name.endswith(".zarr") else store.name
-    return store.with_name(name + EXPORT_FORMATS[fmt])
+    return store.with_name(name + EXPORT_FORMATS[fmt]) if isinstance(store, Path) else Path(name + EXPORT_FORMATS[fmt])
 
 
-def point_columns(store: str | os.PathLike[str]) -> tuple[list[str], list[str]]:
+def point_columns(store: AnyPath) -> tuple[list[str], list[str]]:
     """Return ``(axis names in dimension order, scalar output names)`` of a store's point table."""
     import zarr
 
     attrs = check_readable_store(store, chunks=True)
     axes = metadata.read_record(attrs, ATTR.axes)
     names = read_axis_order(store, axes)
-    group = zarr.open_group(str(store), mode="r", zarr_format=3)
+    group = zarr.open_group(zarr_store(store, read_only=True), mode="r", zarr_format=3)
     scalars = []
     for name, arr in sorted(group.arrays()):
         dims = tuple(getattr(arr.metadata, "dimension_names", None) or ())
@@ -86,7 +89,7 @@ def point_columns(store: str | os.PathLike[str]) -> tuple[list[str], list[str]]:
     return names, scalars
 
 
-def iter_point_rows(store: str | os.PathLike[str]) -> Iterator[dict[str, np.ndarray]]:
+def iter_point_rows(store: AnyPath) -> Iterator[dict[str, np.ndarray]]:
     """Yield the point table in slabs along the first axis: column name → 1-D array.
 
     Columns: the axes (float64, or object names), the scalar outputs, ``regime`` and
@@ -100,7 +103,7 @@ def iter_point_rows(store: str | os.PathLike[str]) -> Iterator[dict[str, np.ndar
     regimes = ["none", *(str(r) for r in attrs.get(ATTR.regimes, []))]
     status_names = np.array([s.name for s in Status], dtype=object)
     regime_names = np.array(regimes, dtype=object)
-    group: Any = zarr.open_group(str(store), mode="r", zarr_format=3)
+    group: Any = zarr.open_group(zarr_store(store, read_only=True), mode="r", zarr_format=3)
     shape = tuple(len(axes[n]) for n in names)
     rows_per_slab = max(1, int(attrs[ATTR.block_shape][0]))
     values = [np.array(axes[n], dtype=object) if axes[n] and isinstance(axes[n][0], str)
@@ -128,7 +131,7 @@ def _format_column(column: np.ndarray) -> list[str]:
     return [str(v) for v in column.tolist()]
 
 
-def _write_csv(store: Path, handle: IO[str]) -> int:
+def _write_csv(store: StorePath, handle: IO[str]) -> int:
     writer = csv.writer(handle, lineterminator="\n")
     header_written = False
     rows = 0
@@ -155,7 +158,7 @@ def _netcdf_attr(value: Any) -> Any:
     return value
 
 
-def _write_netcdf(store: Path, target: Path, engine: str) -> str:
+def _write_netcdf(store: StorePath, target: Path, engine: str) -> str:
     from sweepshell.store.reader import open_sweep
 
     ds = open_sweep(store)
@@ -178,7 +181,7 @@ def _write_netcdf(store: Path, target: Path, engine: str) -> str:
     return engine
 
 
-def _write_parquet(store: Path, target: Path) -> None:
+def _write_parquet(store: StorePath, target: Path) -> None:
     import pandas as pd
     import pyarrow as pa
     import pyarrow.parquet as pq
@@ -202,9 +205,9 @@ def _write_parquet(store: Path, target: Path) -> None:
     pq.write_table(arrow, target)
 
 
-def export_store(store: str | os.PathLike[str], fmt: str, output: str | os.PathLike[str] | None = None, *,
+def export_store(store: AnyPath, fmt: str, output: AnyPath | None = None, *,
                  overwrite: bool = False, stdout: IO[str] | None = None,
-                 engine: str | None = None) -> Path | None:
+                 engine: str | None = None) -> StorePath | None:
     """Write a store as netCDF, CSV or Parquet.
 
     Parameters
@@ -239,7 +242,7 @@ def export_store(store: str | os.PathLike[str], fmt: str, output: str | os.PathL
     if fmt not in EXPORT_FORMATS:
         raise ExportError(f"format={fmt!r} is not supported; use one of {', '.join(EXPORT_FORMATS)}",
                           field="format", value=fmt, allowed=", ".join(EXPORT_FORMATS))
-    source = Path(store)
+    source = as_path(store)
     check_readable_store(source, chunks=True)
     nc_engine = _choose_writer(fmt, engine)
     if output is not None and str(output) == "-":
@@ -249,10 +252,12 @@ def export_store(store: str | os.PathLike[str], fmt: str, output: str | os.PathL
         rows = _write_csv(source, stdout)
         log.info("exported %d rows of %s to standard output", rows, source)
         return None
-    target = Path(output) if output is not None else _default_output(source, fmt)
+    target = as_path(output) if output is not None else _default_output(source, fmt)
     _check_target(source, target, overwrite)
     target.parent.mkdir(parents=True, exist_ok=True)
-    tmp = target.with_name(f".{target.name}.sweepshell-tmp-{os.getpid()}")
+    # an object-store target is written locally, then uploaded in one request (whole or not at all)
+    local = target if isinstance(target, Path) else Path(tempfile.gettempdir()) / target.name
+    tmp = local.with_name(f".{local.name}.sweepshell-tmp-{os.getpid()}")
     try:
         if fmt == "csv":
             with open(tmp, "w", newline="", encoding="utf-8") as handle:
@@ -261,7 +266,10 @@ def export_store(store: str | os.PathLike[str], fmt: str, output: str | os.PathL
             _write_netcdf(source, tmp, nc_engine)
         else:
             _write_parquet(source, tmp)
-        os.replace(tmp, target)
+        if isinstance(target, Path):
+            os.replace(tmp, target)
+        else:
+            target.fs.put_file(str(tmp), target.key)
     finally:
         with contextlib.suppress(FileNotFoundError):
             tmp.unlink()
@@ -283,9 +291,9 @@ def _choose_writer(fmt: str, engine: str | None) -> str:
     return engine or ("h5netcdf" if has_h5 else "scipy")
 
 
-def _check_target(source: Path, target: Path, overwrite: bool) -> None:
+def _check_target(source: StorePath, target: StorePath, overwrite: bool) -> None:
     """Refuse an output inside the store, an existing one (unless ``overwrite``) and a folder."""
-    if target.resolve().is_relative_to(source.resolve()):
+    if str(target.resolve()).startswith(str(source.resolve()).rstrip("/") + "/"):
         raise ExportError(f"output {str(target)!r} is inside the store; write the export elsewhere",
                           field="output", value=str(target))
     if (target.exists() or target.is_symlink()) and not overwrite:

@@ -266,6 +266,12 @@ class ObjectPath:
         self.fs.invalidate_cache(self.key)
         return [ObjectPath(f"{self.protocol}://{k}") for k in self.fs.glob(f"{self.key}/{pattern}")]
 
+    def rglob(self, pattern: str) -> list[ObjectPath]:
+        """Every object under this prefix whose name matches ``pattern`` (one listing)."""
+        from fnmatch import fnmatchcase
+
+        return [self / k for k in self.find() if fnmatchcase(k.rsplit("/", 1)[-1], pattern)]
+
     def find(self) -> list[str]:
         """Every object key under this prefix, relative to it (one paginated listing)."""
         self.fs.invalidate_cache(self.key)
@@ -354,6 +360,33 @@ def as_path(path: AnyPath) -> StorePath:
         return path
     text = os.fspath(path)
     return ObjectPath(text) if is_url(text) else _local(text)
+
+
+_NO_CREDENTIALS = ("NoCredentialsError", "PartialCredentialsError", "ProfileNotFound", "DefaultCredentialsError")
+_UNREACHABLE = ("EndpointConnectionError", "ConnectTimeoutError", "ClientConnectorError", "ConnectionError",
+                "ServerDisconnectedError", "ReadTimeoutError")
+
+
+def describe_storage_fault(exc: BaseException) -> str | None:
+    """Return one line (with the fix) if ``exc`` is an object-store fault: credentials, endpoint, bucket, access."""
+    seen: set[int] = set()
+    current: BaseException | None = exc
+    while current is not None and id(current) not in seen:
+        seen.add(id(current))
+        name, text = type(current).__name__, str(current).splitlines()[0][:160] if str(current) else ""
+        if name in _NO_CREDENTIALS:
+            return (f"the object store needs credentials ({text}); set them as usual for the filesystem "
+                    "(AWS_ACCESS_KEY_ID/AWS_SECRET_ACCESS_KEY, a credentials file, store.options.profile) "
+                    "or store.options.anon=true for a public bucket")
+        if name in _UNREACHABLE:
+            return (f"the object store cannot be reached ({text}); check store.options.endpoint_url (or "
+                    "AWS_ENDPOINT_URL) and the network")
+        if "bucket does not exist" in text.lower() or "NoSuchBucket" in text:
+            return f"the bucket does not exist ({text}); create it first or check the store URL"
+        if isinstance(current, PermissionError) or "AccessDenied" in text or "InvalidAccessKeyId" in text:
+            return f"the object store refused access ({text}); check the credentials and the bucket's permissions"
+        current = current.__cause__ or current.__context__
+    return None
 
 
 def absolute_store_path(path: AnyPath) -> str:

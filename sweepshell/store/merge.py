@@ -30,7 +30,6 @@ from __future__ import annotations
 import datetime as _dt
 import json
 import logging
-import os
 import shutil
 import warnings
 from collections.abc import Callable
@@ -45,10 +44,11 @@ from sweepshell.errors import StoreMismatchError, StoreSchemaError
 from sweepshell.store import metadata
 from sweepshell.store.catalog import read_axis_order
 from sweepshell.store.integrity import check_store_path
+from sweepshell.store.location import AnyPath, StorePath, absolute_store_path, as_path, zarr_store
 from sweepshell.store.merge_fill import MergeConflictError, fill_merged
 from sweepshell.store.metadata import ATTR
+from sweepshell.store.publish import clean_stale_temporaries, publish_template, temporary_folder
 from sweepshell.store.reader import check_readable_store
-from sweepshell.store.writer import clean_stale_temporaries
 
 __all__ = ["MERGED_FROM_ATTR", "MergeConflictError", "MergeReport", "merge_stores", "union_axis_values"]
 
@@ -202,7 +202,7 @@ def _build_template(tmp: Path, ds_a: Any, names: list[str], union: dict[str, lis
         ds.to_zarr(tmp, mode="w-", compute=False, zarr_format=3, consolidated=True, encoding=encoding)
 
 
-def merge_stores(a: str | os.PathLike[str], b: str | os.PathLike[str], output: str | os.PathLike[str], *,
+def merge_stores(a: AnyPath, b: AnyPath, output: AnyPath, *,
                  prefer: str | None = None, rtol: float = 1e-9) -> MergeReport:
     """Merge stores ``a`` and ``b`` into a new store ``output`` over the union of their axes.
 
@@ -235,15 +235,15 @@ def merge_stores(a: str | os.PathLike[str], b: str | os.PathLike[str], output: s
     import xarray as xr
     import zarr
 
-    a, b, out_path = str(a), str(b), Path(output)
+    a, b, out_path = str(a), str(b), as_path(output)
     _check_request(output, out_path, prefer)
     attrs_a, attrs_b = check_readable_store(a, chunks=True), check_readable_store(b, chunks=True)
     _check_same_definition(a, b, attrs_a, attrs_b)
     names, union, pos_a, pos_b = _union_grid(a, b, attrs_a, attrs_b)
-    group_a = zarr.open_group(a, mode="r", zarr_format=3)
-    group_b = zarr.open_group(b, mode="r", zarr_format=3)
-    ds_a = xr.open_zarr(a, consolidated=True, zarr_format=3)
-    ds_b = xr.open_zarr(b, consolidated=True, zarr_format=3)
+    group_a = zarr.open_group(zarr_store(a, read_only=True), mode="r", zarr_format=3)
+    group_b = zarr.open_group(zarr_store(b, read_only=True), mode="r", zarr_format=3)
+    ds_a = xr.open_zarr(zarr_store(a, read_only=True), consolidated=True, zarr_format=3)
+    ds_b = xr.open_zarr(zarr_store(b, read_only=True), consolidated=True, zarr_format=3)
     data_vars = _check_same_variables(a, b, ds_a, ds_b, names)
     outputs = [v for v in data_vars if v not in (metadata.STATUS_VAR, metadata.REGIME_VAR)]
     block_shape = tuple(int(x) for x in attrs_a[ATTR.block_shape])
@@ -262,14 +262,14 @@ def merge_stores(a: str | os.PathLike[str], b: str | os.PathLike[str], output: s
                            rtol)
 
     counts = _write_into_place(out_path, build)
-    skipped = tuple(p for p in (a, b) if metadata.has_node(Path(p) / metadata.POINTS_GROUP))
+    skipped = tuple(p for p in (a, b) if metadata.has_node(as_path(p) / metadata.POINTS_GROUP))
     if skipped:
         log.warning("off-grid points of %s were not carried over into %s", ", ".join(skipped), out_path)
     return MergeReport(output=str(out_path), total=int(np.prod([len(union[n]) for n in names])),
                        points_not_merged=skipped, **counts)
 
 
-def _check_request(output: str | os.PathLike[str], out_path: Path, prefer: str | None) -> None:
+def _check_request(output: AnyPath, out_path: StorePath, prefer: str | None) -> None:
     """Refuse a URL or system output path, an unknown ``prefer`` and an existing output, before any reading."""
     check_store_path(str(output), "-o")
     if prefer not in (None, "a", "b"):
@@ -319,7 +319,7 @@ def _check_same_variables(a: str, b: str, ds_a: Any, ds_b: Any, names: list[str]
     return data_vars
 
 
-def _merged_attributes(out_path: Path, source_a: tuple[str, dict[str, Any]], source_b: tuple[str, dict[str, Any]],
+def _merged_attributes(out_path: StorePath, source_a: tuple[str, dict[str, Any]], source_b: tuple[str, dict[str, Any]],
                        names: list[str], union: dict[str, list[Any]]) -> dict[str, Any]:
     """Return C's attributes: A's, with the union axes, a new time, a sweep over the union and the sources."""
     import yaml
@@ -328,7 +328,7 @@ def _merged_attributes(out_path: Path, source_a: tuple[str, dict[str, Any]], sou
     now = _dt.datetime.now(_dt.UTC).isoformat(timespec="seconds")
     sources = []
     for path, attrs in (source_a, source_b):
-        record: dict[str, Any] = {"path": os.path.abspath(path), "created": attrs.get(ATTR.created),
+        record: dict[str, Any] = {"path": absolute_store_path(path), "created": attrs.get(ATTR.created),
                                   "sweep_name": attrs.get(ATTR.sweep_name), "axes_json": attrs.get(ATTR.axes),
                                   "sweep_yaml": attrs.get(ATTR.sweep_yaml)}
         if MERGED_FROM_ATTR in attrs:
@@ -351,21 +351,19 @@ def _merged_attributes(out_path: Path, source_a: tuple[str, dict[str, Any]], sou
             MERGED_FROM_ATTR: json.dumps(sources, sort_keys=True)}
 
 
-def _write_into_place(out_path: Path, build: Callable[[Path], dict[str, int]]) -> dict[str, int]:
-    """Build the store in a temporary folder beside ``out_path`` and rename it into place; nothing is left on error."""
+def _write_into_place(out_path: StorePath, build: Callable[[Path], dict[str, int]]) -> dict[str, int]:
+    """Build the store in a temporary folder and publish it at ``out_path`` atomically; nothing is left on error.
+
+    See :mod:`sweepshell.store.publish` (a rename on local disks, root-last upload on object stores).
+    """
     clean_stale_temporaries(out_path)  # a killed merge's half-built store
-    tmp = out_path.with_name(out_path.name + metadata.TEMP_SUFFIX + f"-{os.getpid()}")
-    out_path.parent.mkdir(parents=True, exist_ok=True)
-    if tmp.exists():
-        shutil.rmtree(tmp)
+    tmp = temporary_folder(out_path)
     try:
         counts = build(tmp)
-        try:
-            os.rename(tmp, out_path)
-        except OSError:
-            raise StoreMismatchError(f"output {str(out_path)!r} appeared while merging; choose another -o path",
-                                     field="output", value=str(out_path)) from None
     except BaseException:
-        shutil.rmtree(tmp, ignore_errors=True)
+        shutil.rmtree(tmp if isinstance(out_path, Path) else tmp.parent, ignore_errors=True)
         raise
+    if not publish_template(tmp, out_path):
+        raise StoreMismatchError(f"output {str(out_path)!r} appeared while merging; choose another -o path",
+                                 field="output", value=str(out_path))
     return counts

@@ -34,9 +34,7 @@ decoded by zarr with the store's declared numeric dtypes.
 
 from __future__ import annotations
 
-import os
 from dataclasses import dataclass, field, replace
-from pathlib import Path
 from typing import Any
 
 import numpy as np
@@ -46,6 +44,7 @@ from sweepshell.models.base import Status
 from sweepshell.plan import Block, iter_blocks
 from sweepshell.store import chunk_checks, integrity, metadata
 from sweepshell.store.catalog import read_axis_order
+from sweepshell.store.location import AnyPath, StorePath, as_path, zarr_store
 from sweepshell.store.metadata import ATTR
 from sweepshell.store.verify_checks import (
     check_attributes,
@@ -60,7 +59,7 @@ from sweepshell.store.verify_report import VerifyProblem, VerifyReport
 __all__ = ["VerifyProblem", "VerifyReport", "verify_store"]
 
 
-def verify_store(path: str | os.PathLike[str], *, repair: bool = False) -> VerifyReport:
+def verify_store(path: AnyPath, *, repair: bool = False) -> VerifyReport:
     """Check a store for internal consistency; optionally repair metadata and reset bad blocks to pending.
 
     Parameters
@@ -85,7 +84,7 @@ def verify_store(path: str | os.PathLike[str], *, repair: bool = False) -> Verif
     StoreSchemaError
         If it is not a sweepshell store, or of an unknown schema version.
     """
-    root = Path(path)
+    root = as_path(path)
     if not root.is_dir() or not metadata.has_node(root):
         raise StoreNotFoundError(f"no store at {str(root)!r}; give a store folder (ending in .zarr)",
                                  field="store", value=str(root))
@@ -101,7 +100,7 @@ def verify_store(path: str | os.PathLike[str], *, repair: bool = False) -> Verif
                    repaired_metadata=tuple(changes))
 
 
-def _metadata_problems(root: Path) -> list[VerifyProblem]:
+def _metadata_problems(root: StorePath) -> list[VerifyProblem]:
     """Return the metadata problems alone (cheap: small JSON files, no chunks)."""
     problems = check_metadata_files(root)
     try:
@@ -113,7 +112,7 @@ def _metadata_problems(root: Path) -> list[VerifyProblem]:
 
 
 
-def _verify(root: Path, *, repair: bool) -> VerifyReport:
+def _verify(root: StorePath, *, repair: bool) -> VerifyReport:
     """Run the checks in order; stop early when what follows cannot be read (no axes, no ledger)."""
     problems = check_metadata_files(root)
     try:
@@ -146,7 +145,7 @@ def _verify(root: Path, *, repair: bool) -> VerifyReport:
                         repaired_blocks=tuple(repaired))
 
 
-def _check_schema(root: Path, attrs: Any) -> None:
+def _check_schema(root: StorePath, attrs: Any) -> None:
     """Refuse a folder that is not a sweepshell store, or one of another schema version."""
     if not isinstance(attrs, dict) or ATTR.schema not in attrs:
         raise StoreSchemaError(f"{str(root)!r} is not a sweepshell store (no {ATTR.schema} attribute)",
@@ -168,7 +167,7 @@ class _BlockScan:
     problems: list[VerifyProblem] = field(default_factory=list)
 
 
-def _scan_blocks(root: Path, arrays: dict[str, Any], shape: tuple[int, ...], block_shape: tuple[int, ...],
+def _scan_blocks(root: StorePath, arrays: dict[str, Any], shape: tuple[int, ...], block_shape: tuple[int, ...],
                  n_regimes: int, declared: dict[str, Any] | None, repair: bool) -> _BlockScan:
     """Decode every block of the ledger and the outputs and check it against the ledger rules."""
     outputs = [n for n in arrays if n not in (metadata.STATUS_VAR, metadata.REGIME_VAR)]
@@ -233,12 +232,12 @@ def _lost_chunk(name: str, block: Block, will_recompute: bool) -> VerifyProblem:
         variable=name, block=block.index, points=block.n_points, recomputed=will_recompute)
 
 
-def _reset_to_pending(root: Path, scan: _BlockScan) -> list[tuple[int, ...]]:
+def _reset_to_pending(root: StorePath, scan: _BlockScan) -> list[tuple[int, ...]]:
     """Set the blocks to repair back to pending (one whole-chunk ledger write each); return their indices."""
     import zarr
 
     repaired: list[tuple[int, ...]] = []
-    ledger: Any = zarr.open_array(str(root / metadata.STATUS_VAR), mode="r+", zarr_format=3)
+    ledger: Any = zarr.open_array(zarr_store(root / metadata.STATUS_VAR), mode="r+", zarr_format=3)
     for block in scan.to_repair:
         ledger[block.slices] = np.zeros(block.shape, dtype=np.uint8)
         repaired.append(block.index)
@@ -256,7 +255,7 @@ def _named_counts(counts: np.ndarray) -> dict[str, int]:
     return named
 
 
-def _read_ledger_quietly(root: Path, block_shape: tuple[int, ...]) -> np.ndarray:
+def _read_ledger_quietly(root: StorePath, block_shape: tuple[int, ...]) -> np.ndarray:
     from sweepshell.store.reader import read_ledger
 
     try:

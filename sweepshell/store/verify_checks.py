@@ -9,13 +9,13 @@ from __future__ import annotations
 
 import datetime as _dt
 from dataclasses import dataclass
-from pathlib import Path
 from typing import Any
 
 import numpy as np
 
 from sweepshell.models.base import TRUSTED_STATUSES, Status
 from sweepshell.store import metadata
+from sweepshell.store.location import StorePath, zarr_store
 from sweepshell.store.metadata import ATTR
 from sweepshell.store.verify_report import VerifyProblem
 
@@ -26,10 +26,11 @@ _UNTRUSTED_FINAL = np.array(sorted(int(s) for s in Status if s is not Status.pen
 _TRUSTED = np.array(sorted(int(s) for s in TRUSTED_STATUSES))
 
 
-def check_metadata_files(root: Path) -> list[VerifyProblem]:
+def check_metadata_files(root: StorePath) -> list[VerifyProblem]:
     """Return one problem per ``zarr.json`` in the store that does not parse."""
     problems = []
-    for meta in sorted(root.rglob(metadata.META_FILE)):
+    metas: list[Any] = list(root.rglob(metadata.META_FILE))
+    for meta in sorted(metas, key=str):
         try:
             metadata.read_node(meta.parent)
         except (OSError, ValueError) as exc:
@@ -82,7 +83,7 @@ def check_attributes(attrs: dict[str, Any]) -> tuple[list[VerifyProblem], dict[s
     return problems, axes, block_shape, regimes
 
 
-def open_arrays(root: Path, names: list[str], axes: dict[str, list[Any]]) -> tuple[
+def open_arrays(root: StorePath, names: list[str], axes: dict[str, list[Any]]) -> tuple[
         list[VerifyProblem], dict[str, Any]]:
     """Open every data variable from its own metadata (not the consolidated copy) and check the layout."""
     import zarr
@@ -99,7 +100,7 @@ def open_arrays(root: Path, names: list[str], axes: dict[str, list[Any]]) -> tup
         if meta.get("node_type") != "array":
             continue
         try:
-            arr = zarr.open_array(str(sub), mode="r", zarr_format=3)
+            arr = zarr.open_array(zarr_store(sub), mode="r", zarr_format=3)
         except Exception as exc:
             problems.append(VerifyProblem("metadata", f"array {name} cannot be opened ({type(exc).__name__})",
                                           variable=name))
@@ -192,7 +193,7 @@ def check_ledger(block: Any, status: np.ndarray, values: dict[str, np.ndarray], 
 _POINT_BOOKKEEPING = ("level", "origin")
 
 
-def check_point_list(root: Path, axis_names: list[str], n_regimes: int) -> list[VerifyProblem]:
+def check_point_list(root: StorePath, axis_names: list[str], n_regimes: int) -> list[VerifyProblem]:
     """Check the off-grid point list: chunks decode, final points obey the ledger rules."""
     import zarr
 
@@ -204,7 +205,7 @@ def check_point_list(root: Path, axis_names: list[str], n_regimes: int) -> list[
     for sub in metadata.child_nodes(folder):
         name = f"{metadata.POINTS_GROUP}/{sub.name}"
         try:
-            values[sub.name] = np.asarray(zarr.open_array(str(sub), mode="r", zarr_format=3)[...])
+            values[sub.name] = np.asarray(zarr.open_array(zarr_store(sub), mode="r", zarr_format=3)[...])
         except Exception as exc:
             problems.append(VerifyProblem("chunk", f"{name} does not decode ({failure_reason(exc)})",
                                           variable=name))

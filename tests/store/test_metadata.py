@@ -12,9 +12,11 @@ from sweepshell.store import metadata
 
 ROOT = Path(__file__).resolve().parents[2] / "sweepshell"
 
-#: modules that parse JSON files of their own (not store metadata): claim files, the catalog's cache
-OWN_JSON = {"sweepshell/engine/claims.py", "sweepshell/store/catalog.py", "sweepshell/store/catalog_index.py",
-            "sweepshell/store/leftovers.py"}
+#: modules that parse JSON files of their own (not store metadata): claim files, the catalog's cache, the
+#: creation marker of an upload to an object store, the filesystem options (cache key)
+OWN_JSON = {"sweepshell/engine/claims.py", "sweepshell/engine/object_claims.py", "sweepshell/store/catalog.py",
+            "sweepshell/store/catalog_index.py", "sweepshell/store/leftovers.py", "sweepshell/store/publish.py",
+            "sweepshell/store/location.py"}
 
 
 def _offences(path: Path) -> list[str]:
