@@ -279,8 +279,12 @@ class ObjectPath:
             keys = self.fs.find(self.key)
         except FileNotFoundError:
             return []
-        n = len(self.key) + 1
-        return [k[n:] for k in keys if k.startswith(self.key + "/")]
+        base = self._listed_base()
+        return [k[len(base) + 1:] for k in keys if k.startswith(base + "/")]
+
+    def _listed_base(self) -> str:
+        """The prefix as the filesystem spells it in listings (``memory://`` adds a leading ``/``)."""
+        return str(self.fs._strip_protocol(str(self))).rstrip("/")
 
     def find_detail(self) -> dict[str, tuple[int, float]]:
         """Every object under this prefix, relative to it: (size in bytes, modification time in s)."""
@@ -289,10 +293,11 @@ class ObjectPath:
             found = self.fs.find(self.key, detail=True)
         except FileNotFoundError:
             return {}
-        n = len(self.key) + 1
+        base = self._listed_base()
+        n = len(base) + 1
         out = {}
         for key, info in found.items():
-            if key.startswith(self.key + "/"):
+            if key.startswith(base + "/"):
                 modified = info.get("LastModified") or info.get("mtime") or 0.0
                 out[key[n:]] = (int(info.get("size") or 0),
                                 modified.timestamp() if hasattr(modified, "timestamp") else float(modified or 0.0))
