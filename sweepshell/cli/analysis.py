@@ -69,11 +69,10 @@ def _open(store: str) -> Any:
     """Open a store for reading without dask (lazy numpy indexing): importing dask.array costs seconds."""
     import xarray as xr
 
+    from sweepshell.store.location import zarr_store
     from sweepshell.store.reader import check_readable_store
 
     check_readable_store(store, chunks=True)
-    from sweepshell.store.location import zarr_store
-
     return xr.open_zarr(zarr_store(store, read_only=True), chunks=None, consolidated=True, zarr_format=3)
 
 
@@ -190,18 +189,10 @@ def _add_no_caution(parser: Any) -> None:
                              "stays in the file's metadata, and reports always show it")
 
 
-def _beside_store(store: str, suffix: str) -> Any:
-    """Return the default output file for a store: beside a local store, in the current folder for a URL."""
-    from pathlib import Path
-
-    from sweepshell.store.location import is_url
-
-    local = Path(store.rstrip("/").rsplit("/", 1)[-1]) if is_url(store) else Path(store.rstrip("/"))
-    return local.with_name(local.stem + suffix)
-
-
 def _out_path(args: argparse.Namespace, suffix: str) -> str:
     from pathlib import Path
+
+    from sweepshell.cli.options import beside_store
 
     if args.out:
         out = Path(args.out)
@@ -211,7 +202,7 @@ def _out_path(args: argparse.Namespace, suffix: str) -> str:
             raise QueryError(f"--out {args.out!r}: folder {str(out.parent)!r} does not exist", field="out",
                              value=args.out)
         return str(out)
-    return str(_beside_store(args.store, f"-{suffix}.png"))
+    return str(beside_store(args.store, f"-{suffix}.png"))
 
 
 def _cmd_map(args: argparse.Namespace) -> int:
@@ -365,6 +356,7 @@ def _register_report(subparsers: Any) -> None:
 def _cmd_report(args: argparse.Namespace) -> int:
     from pathlib import Path
 
+    from sweepshell.cli.options import beside_store
     from sweepshell.plot.report import write_report
 
     if args.out is not None and not args.out.endswith((".html", ".htm")):
@@ -372,9 +364,8 @@ def _cmd_report(args: argparse.Namespace) -> int:
     if args.out is not None and not Path(args.out).parent.exists():
         raise QueryError(f"--out {args.out!r}: folder does not exist", field="out", value=args.out)
     ds = _open(args.store)
-    store = args.store.rstrip("/")
-    out = Path(args.out) if args.out else _beside_store(store, "-report.html")
-    text = write_report(ds, store)
+    out = Path(args.out) if args.out else beside_store(args.store, "-report.html")
+    text = write_report(ds, args.store.rstrip("/"))
     out.write_text(text, encoding="utf-8")
     print(out)
     return 0

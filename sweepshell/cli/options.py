@@ -8,7 +8,7 @@ from __future__ import annotations
 
 from typing import Any
 
-__all__ = ["STORE_HELP", "add_format_option", "add_out_option"]
+__all__ = ["STORE_HELP", "add_format_option", "add_out_option", "beside_store"]
 
 STORE_HELP = "a sweepshell store (a folder ending in .zarr)"
 
@@ -23,3 +23,13 @@ def add_format_option(parser: Any, choices: tuple[str, ...] = ("text", "json"), 
     """Add ``--format CHOICE`` and ``--json`` (same as ``--format json``), stored as ``args.format``."""
     parser.add_argument("--format", choices=choices, default=default, help=f"{help_text} (default {default})")
     parser.add_argument("--json", dest="format", action="store_const", const="json", help="same as --format json")
+
+
+def beside_store(store: str, suffix: str) -> Any:
+    """Return the default output file for a store: beside a local store, in the current folder for a URL."""
+    from pathlib import Path
+
+    from sweepshell.store.location import is_url
+
+    local = Path(store.rstrip("/").rsplit("/", 1)[-1]) if is_url(store) else Path(store.rstrip("/"))
+    return local.with_name(local.stem + suffix)

@@ -307,9 +307,7 @@ def _salvage_attributes(text: str) -> dict[str, Any] | None:
     if key < 0:
         return None
     colon = text.find(":", key + len('"attributes"'))
-    if colon < 0:
-        return None
-    start = colon + 1
+    start = len(text) if colon < 0 else colon + 1
     while start < len(text) and text[start].isspace():
         start += 1
     try:
@@ -338,11 +336,11 @@ def node_size(folder: AnyPath) -> int:
 def write_node(folder: AnyPath, value: Any) -> None:
     """Replace the node's metadata document atomically (``verify --repair`` rebuilding damaged metadata)."""
     loc = as_path(folder)
-    if isinstance(loc, ObjectPath):  # one PUT replaces an object atomically
+    if isinstance(loc, Path):
+        loc.mkdir(exist_ok=True)
+        _write_file(loc / META_FILE, value)
+    else:  # one PUT replaces an object atomically
         (loc / META_FILE).write_text(json.dumps(value, indent=2))
-        return
-    loc.mkdir(exist_ok=True)
-    _write_file(loc / META_FILE, value)
 
 
 def _write_file(file: Path, value: Any) -> None:
@@ -366,13 +364,7 @@ def list_chunk_indices(array_dir: AnyPath) -> set[tuple[int, ...]] | None:
         return None
     sep = (enc.get("configuration") or {}).get("separator", "/")
     found: set[tuple[int, ...]] = set()
-    if isinstance(folder, ObjectPath):  # one paginated listing of the array's prefix
-        for key in folder.find():
-            pieces = key.split("/") if sep == "/" else key.split(sep)
-            if pieces[0] == "c" and len(pieces) > 1 and all(p.isdigit() for p in pieces[1:]):
-                found.add(tuple(int(p) for p in pieces[1:]))
-        return found
-    if sep == "/":
+    if sep == "/" and isinstance(folder, Path):
         base = folder / "c"
         for dirpath, _, files in os.walk(base):
             rel = Path(dirpath).relative_to(base).parts
@@ -381,7 +373,8 @@ def list_chunk_indices(array_dir: AnyPath) -> set[tuple[int, ...]] | None:
                 if all(p.isdigit() for p in parts):
                     found.add(tuple(int(p) for p in parts))
         return found
-    for f in os.listdir(folder):
+    # an object store lists the array's prefix in one paginated request
+    for f in folder.find() if isinstance(folder, ObjectPath) else os.listdir(folder):
         pieces = f.split(sep)
         if pieces[0] == "c" and len(pieces) > 1 and all(p.isdigit() for p in pieces[1:]):
             found.add(tuple(int(p) for p in pieces[1:]))
@@ -396,8 +389,6 @@ def extra_chunk_counts(array_dir: AnyPath, n_axes: int) -> tuple[int, ...]:
         return tuple(math.ceil(s / c) for s, c in zip(shape, chunks, strict=True))
     except (TypeError, KeyError, ZeroDivisionError, ValueError):
         return ()
-
-
 
 
 def consolidated_entries(root_meta: Mapping[str, Any]) -> dict[str, Any]:
