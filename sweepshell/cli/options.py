@@ -10,7 +10,7 @@ from typing import Any
 
 __all__ = ["STORE_HELP", "add_format_option", "add_out_option", "beside_store"]
 
-STORE_HELP = "a sweepshell store (a folder ending in .zarr)"
+STORE_HELP = "a sweepshell store (a folder, or an s3:// gs:// az:// URL, ending in .zarr)"
 
 
 def add_out_option(parser: Any, help_text: str, *, required: bool = False, metavar: str = "FILE") -> None:
