@@ -116,7 +116,7 @@ class ObjectPath:
         self.fs.invalidate_cache(self.key)  # other processes write too: never answer from a stale listing
         try:
             info: dict[str, Any] = self.fs.info(self.key)
-        except (FileNotFoundError, OSError):
+        except FileNotFoundError:  # absent; access denied, unreachable or no credentials are faults to report
             return None
         return info
 

@@ -86,8 +86,12 @@ def test_two_runners_on_one_bucket_compute_each_block_once(workdir, s3_bucket):
     _same(url, workdir / "reference.zarr")
 
 
-def test_a_local_cluster_writes_its_blocks_straight_to_the_bucket(workdir, s3_bucket):
+def test_a_local_cluster_writes_its_blocks_straight_to_the_bucket(workdir, s3_bucket, monkeypatch):
     from distributed import Client, LocalCluster
+
+    from sweepshell.store import location
+
+    monkeypatch.setattr(location, "_OPTIONS", {})  # store.options are registered for the process: keep them here
 
     sweep = write_sweep(workdir, SWEEP.replace("work_seconds: 0.004", "work_seconds: 0.0"))
     run_sweep(str(sweep), ["executor=threads", "store.path=reference.zarr"])

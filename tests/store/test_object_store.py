@@ -74,8 +74,11 @@ def test_commands_read_and_write_s3_urls(s3_store, tmp_path, monkeypatch, capsys
     assert not as_path(merged + "/.sweepshell-creating").exists()
 
 
-def test_credentials_never_enter_provenance(s3_bucket, s3_server):
+def test_credentials_never_enter_provenance(s3_bucket, s3_server, monkeypatch):
     from sweepshell.config.loader import build_plan
+    from sweepshell.store import location
+
+    monkeypatch.setattr(location, "_OPTIONS", {})  # store.options are registered for the process: keep them here
 
     url = f"{s3_bucket}/secret.zarr"
     options = {"endpoint_url": s3_server, "key": "sweepshell-test", "secret": "sweepshell-test-secret"}
@@ -87,7 +90,7 @@ def test_credentials_never_enter_provenance(s3_bucket, s3_server):
     from sweepshell import run_sweep
 
     assert run_sweep(plan).complete
-    everything = "".join(as_path(url / k if isinstance(url, ObjectPath) else f"{url}/{k}").read_text(errors="replace")
+    everything = "".join(as_path(f"{url}/{k}").read_text(errors="replace")
                          for k in as_path(url).find() if k.endswith("zarr.json"))
     assert "sweepshell-test-secret" not in everything and '"key"' not in read_attrs(url)[ATTR.sweep_yaml]
     assert s3_server in read_attrs(url)[ATTR.sweep_yaml]  # the endpoint says where the store lives
@@ -147,3 +150,48 @@ def test_memory_store_with_threads_works_in_process():
     summary_path = "memory://sweepshell-test/column.zarr"
     run_column_store(summary_path, ETA, LOAD, block_points=3)
     assert int((open_sweep(summary_path).status.values != 0).sum()) == 12
+
+
+def test_storage_faults_are_one_line_with_the_fix(s3_server, workdir, monkeypatch, capsys):
+    import s3fs
+
+    from sweepshell.store import location
+    from tests.conftest import SMALL_COLUMN_SWEEP, write_sweep
+
+    write_sweep(workdir, SMALL_COLUMN_SWEEP, name="col.yaml")
+    run = ["run", "col.yaml", "--progress", "none", "executor=threads"]
+    assert main([*run, "store.path=s3://no-such-bucket-here/x.zarr"]) == 2
+    err = capsys.readouterr().err.strip().splitlines()
+    assert len(err) == 1 and "the bucket does not exist" in err[0] and "Traceback" not in err[0]
+    for name in ("AWS_ACCESS_KEY_ID", "AWS_SECRET_ACCESS_KEY"):
+        monkeypatch.delenv(name)
+    monkeypatch.setenv("AWS_SHARED_CREDENTIALS_FILE", str(workdir / "none"))
+    monkeypatch.setenv("AWS_CONFIG_FILE", str(workdir / "none"))
+    monkeypatch.setenv("AWS_EC2_METADATA_DISABLED", "true")
+    s3fs.S3FileSystem.clear_instance_cache()
+    location._filesystem.cache_clear()
+    try:
+        assert main(["status", "s3://some-bucket/x.zarr"]) == 2
+        err = capsys.readouterr().err.strip().splitlines()
+        assert len(err) == 1 and "needs credentials" in err[0] and "AWS_ACCESS_KEY_ID" in err[0]
+    finally:
+        s3fs.S3FileSystem.clear_instance_cache()
+        location._filesystem.cache_clear()
+
+
+def test_a_store_url_resumes_by_itself_and_catalog_clean_clears_a_dead_creation(s3_bucket, tmp_path, monkeypatch,
+                                                                                  capsys):
+    monkeypatch.chdir(tmp_path)
+    url = f"{s3_bucket}/results/column.zarr"
+    run_column_store(url, ETA, LOAD, block_points=3)
+    capsys.readouterr()
+    assert main(["run", url, "--progress", "none", "executor=threads"]) == 0  # the store's own recorded sweep
+    assert "nothing to compute" in capsys.readouterr().out
+    dead = as_path(f"{s3_bucket}/results/half.zarr")
+    (dead / ".sweepshell-creating").write_text(json.dumps({"runner": f"{socket.gethostname()}:999999999",
+                                                            "started": time.time()}))
+    (dead / "status" / "zarr.json").write_text("{}")
+    assert main(["catalog", f"{s3_bucket}/results", "--clean", "--json"]) == 0
+    listing = json.loads(capsys.readouterr().out)
+    assert listing["leftovers"] == ["half.zarr"] and [s["path"] for s in listing["stores"]] == ["column.zarr"]
+    assert dead.find() == [] and is_store(url)
