@@ -140,8 +140,7 @@ class CurvedStripModel(SweepModel):
                       bounds=(0.0, _INF), closed=(True, False), symbol="P"),
     )
     regimes: ClassVar[tuple[str, ...]] = ("stiff", "folded", "collapsed")
-    # measured (benchmarks/bench_curved_strip.py, one core, default settings): 1.2 ms per bending point and
-    # 1.8-2.7 ms per cantilever point in blocks of 400; 15 ms for a single-point call
+    # seconds per point at the default settings, for block sizing (the measurement: theory.md, Speed)
     cost_hint: ClassVar[float] = 0.002
 
     def __init__(self, *, modes: int = 24, curvature_range: float = 2.5, curvature_samples: int = 160,
