@@ -39,7 +39,7 @@ STALE_SECONDS = 120.0
 def temporary_folder(target: StorePath) -> Path:
     """Return an empty local folder to build the store for ``target`` in."""
     if isinstance(target, ObjectPath):
-        return Path(tempfile.mkdtemp(prefix="sweepshell-") ) / target.name
+        return Path(tempfile.mkdtemp(prefix="sweepshell-")) / target.name
     target.parent.mkdir(parents=True, exist_ok=True)
     tmp = target.with_name(target.name + metadata.TEMP_SUFFIX + f"-{os.getpid()}")
     if tmp.exists():

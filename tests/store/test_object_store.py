@@ -195,3 +195,21 @@ def test_a_store_url_resumes_by_itself_and_catalog_clean_clears_a_dead_creation(
     listing = json.loads(capsys.readouterr().out)
     assert listing["leftovers"] == ["half.zarr"] and [s["path"] for s in listing["stores"]] == ["column.zarr"]
     assert dead.find() == [] and is_store(url)
+
+
+def test_without_conditional_writes_claims_say_one_runner_per_store(s3_bucket, monkeypatch, caplog):
+    from sweepshell.engine.claims import open_claims
+    from sweepshell.store.objectpath import ObjectPath as _ObjectPath
+
+    def ignores_the_condition(self, data):  # a server that accepts If-None-Match and overwrites anyway
+        self.write_bytes(data)
+        return True
+
+    monkeypatch.setattr(_ObjectPath, "create_exclusive", ignores_the_condition)
+    with caplog.at_level("WARNING"):
+        book = open_claims(f"{s3_bucket}/x.zarr")
+    assert not book.coordinated
+    assert "does not honour conditional writes" in caplog.text and "one runner per store" in caplog.text
+    assert book.try_claim((0,)) and (0,) in book.held
+    book.release_all()
+    assert as_path(f"{s3_bucket}/x.zarr").find() == []  # the probe leaves nothing behind
