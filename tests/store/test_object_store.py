@@ -213,3 +213,18 @@ def test_without_conditional_writes_claims_say_one_runner_per_store(s3_bucket, m
     assert book.try_claim((0,)) and (0,) in book.held
     book.release_all()
     assert as_path(f"{s3_bucket}/x.zarr").find() == []  # the probe leaves nothing behind
+
+
+def test_verify_repair_on_a_bucket_then_the_run_restores_it(s3_bucket, s3_store, tmp_path, monkeypatch, capsys):
+    monkeypatch.chdir(tmp_path)
+    url = f"{s3_bucket}/results/column.zarr"
+    run_column_store(url, ETA, LOAD, block_points=3)
+    chunk = as_path(f"{url}/critical_load/c/1/0")
+    chunk.write_bytes(chunk.read_bytes()[:7])  # a chunk cut short
+    assert main(["verify", url]) == 1
+    assert "critical_load" in capsys.readouterr().out
+    assert main(["verify", url, "--repair"]) == 1  # problems were found (and repaired)
+    assert "repaired: 1 blocks" in capsys.readouterr().out
+    assert main(["run", url, "--progress", "none", "executor=threads"]) == 0
+    xr.testing.assert_identical(open_sweep(url).load().drop_attrs(),
+                                open_sweep(s3_store["local"]).load().drop_attrs())
