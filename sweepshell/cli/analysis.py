@@ -67,13 +67,11 @@ def register(subparsers: Any) -> None:
 
 def _open(store: str) -> Any:
     """Open a store for reading without dask (lazy numpy indexing): importing dask.array costs seconds."""
-    import xarray as xr
-
-    from sweepshell.store.location import zarr_store
+    from sweepshell.store.location import open_dataset
     from sweepshell.store.reader import check_readable_store
 
     check_readable_store(store, chunks=True)
-    return xr.open_zarr(zarr_store(store, read_only=True), chunks=None, consolidated=True, zarr_format=3)
+    return open_dataset(store, chunks=None)
 
 
 def _cmd_query(args: argparse.Namespace) -> int:

@@ -33,6 +33,7 @@ __all__ = [
     "describe_storage_fault",
     "filesystem_for",
     "is_url",
+    "open_dataset",
     "protocol_of",
     "public_options",
     "read_store_config",
@@ -179,6 +180,16 @@ def total_size(path: AnyPath) -> int:
     if isinstance(loc, ObjectPath):
         return sum(size for size, _ in loc.find_detail().values())
     return sum(f.stat().st_size for f in loc.rglob("*") if f.is_file())
+
+
+def open_dataset(path: AnyPath, **kwargs: Any) -> Any:
+    """Open a store with :func:`xarray.open_zarr`; ``encoding["source"]`` is the store's path or full URL."""
+    import xarray as xr
+
+    ds = xr.open_zarr(zarr_store(path, read_only=True), consolidated=True, zarr_format=3, **kwargs)
+    if is_url(path):  # xarray records an object store's key without its protocol
+        ds.encoding["source"] = str(path)
+    return ds
 
 
 def zarr_store(path: AnyPath, *, read_only: bool = False) -> Any:

@@ -9,7 +9,7 @@ import numpy as np
 
 from sweepshell.errors import StoreNotFoundError, StoreSchemaError
 from sweepshell.store import metadata
-from sweepshell.store.location import AnyPath, as_path, zarr_store
+from sweepshell.store.location import AnyPath, as_path, open_dataset, zarr_store
 from sweepshell.store.metadata import ATTR
 
 if TYPE_CHECKING:
@@ -79,10 +79,9 @@ def open_sweep(path: AnyPath, *, chunks: Any = "auto") -> xr.Dataset:
     StoreNotFoundError, StoreSchemaError
         If there is no store at ``path`` or its schema is unknown.
     """
-    import xarray as xr
 
     check_readable_store(path, chunks=True)
-    return xr.open_zarr(zarr_store(path, read_only=True), consolidated=True, zarr_format=3, chunks=chunks)
+    return open_dataset(path, chunks=chunks)
 
 
 def read_ledger(path: AnyPath, block_shape: tuple[int, ...] | None = None) -> np.ndarray:

@@ -228,3 +228,15 @@ def test_verify_repair_on_a_bucket_then_the_run_restores_it(s3_bucket, s3_store,
     assert main(["run", url, "--progress", "none", "executor=threads"]) == 0
     xr.testing.assert_identical(open_sweep(url).load().drop_attrs(),
                                 open_sweep(s3_store["local"]).load().drop_attrs())
+
+
+def test_refine_and_boundary_record_points_in_a_bucket_store(s3_bucket, tmp_path, monkeypatch, capsys):
+    monkeypatch.chdir(tmp_path)
+    url = f"{s3_bucket}/results/column.zarr"
+    run_column_store(url, ETA, [0.5, 5.0, 20.0, 40.0], block_points=4)
+    assert main(["refine", url, "--levels", "1"]) == 0
+    capsys.readouterr()
+    assert main(["status", url, "--json"]) == 0
+    assert sum(json.loads(capsys.readouterr().out)["off_grid_points"].values()) == 21
+    assert main(["boundary", url, "--between", "stable", "buckled", "--bisections", "1", "--format", "json"]) == 0
+    assert json.loads(capsys.readouterr().out)
