@@ -198,7 +198,7 @@ def _initial_slope(out: CapBranchResult, pb0: HarmonicCapProblem, pbk: HarmonicC
         dd = float(pbk.conjugate(zc[0]) - pb0.conjugate(zb))
         dl = float(pbk.load(zc[0, -1])) - load_b
         secants.append(dl / dd if dd != 0.0 else math.nan)
-        falls.append(dl < 0.0)
+        falls.append(dl * math.copysign(1.0, load_b) < 0.0)  # its magnitude falls (a mismatch strain may be < 0)
     out.load_falls = bool(falls and falls[0])
     if len(secants) == 2 and np.isfinite(pre_slope) and pre_slope != 0.0:
         # each secant errs by O(s²): the Richardson pair by O(s⁴)
@@ -232,9 +232,12 @@ def _follow_branch(out: CapBranchResult, cap: _Cap, pb0_exact: HarmonicCapProble
     if zk.shape[0] == 0:
         return out
     base = float(pb0.load(zb[-1]))
-    out.load_drop = float(np.min(pbk.load(zk[:, -1])) / base) if base != 0.0 else math.nan
+    out.load_drop = float(np.min(pbk.load(zk[:, -1]) / base)) if base != 0.0 else math.nan
     if back:
         return _rejoin(out, cap, pb0, pbk, zk[-1])
+    if state_k == TRACE_DONE and abs(float(pbk.load(zk[-1, -1]))) > cap.max_load:
+        out.finished = True  # the load range ended before max_indentation: nothing to measure there
+        return out
     if state_k != TRACE_DONE or zk.shape[0] < 2 or pbk.apex_deflection(zk[-1]) < cap.target:
         return out
     zf = land_on_deflection(pbk, zk[-2], zk[-1], cap.target, tol)

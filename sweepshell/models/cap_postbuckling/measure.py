@@ -1,4 +1,4 @@
-"""What is measured on a solved cap state: asymmetry, ridge line, polygon corners, the shape picture.
+"""Measures of a solved cap state: asymmetry, ridge line, polygon corners, the shape picture.
 
 The ridge is, per angle θ, the radius where the meridional curvature of the deformed surface
 is most convex. Whether it is polygonal is read from the ridge line's turning rate

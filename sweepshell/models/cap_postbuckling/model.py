@@ -112,7 +112,8 @@ class CapPostbucklingModel(SweepModel):
             OutputSpec("branch_wave_number", "1", "circumferential wave number n of the followed branch "
                        "(0: axisymmetric only)"),
             OutputSpec("bifurcation_load", "1", "load at the bifurcation (limit point for regime limit_point), as "
-                       "shallow_cap's critical_load: pressure over p_cl or apex force over E h^3/R; NaN when stable",
+                       "shallow_cap's critical_load: pressure over p_cl, apex force over E h^3/R or mismatch strain "
+                       "over 2h/(R c); NaN when stable",
                        nullable=True),
             OutputSpec("postbuckling_slope", "1", "initial d(load)/d(conjugate displacement) on the bifurcated "
                        "branch over that of the pre-buckling path (negative: unstable); NaN without a branch",

@@ -356,3 +356,22 @@ def test_si_inputs_set_the_shell_parameter():
     assert res.outputs["bifurcation_pressure_si"][0] == pytest.approx(load * p_cl, rel=1e-12)
     inputs.update(base_radius=np.array([0.3]), thickness=np.array([0.05]))  # a/R = 0.6: not shallow
     assert model.solve_batch(inputs).status[0] == Status.outside_validity
+
+
+@pytest.mark.slow
+def test_mismatch_sweep_point_follows_its_branch():
+    # the model end to end on a shrinking coated disc (lambda = 8, rho = 0.5): the scan's n = 6, shallow_cap's
+    # critical strain (internal consistency, 1e-6), the branch followed until the strain range |e| = 8 ends
+    model = CapPostbucklingModel()
+    inputs = {k: v[:1] for k, v in model.sample_inputs().items()}
+    inputs.update(shell_parameter=np.array([8.0]), load=np.array(["mismatch"]), mismatch_strain=np.array([-8.0]),
+                  wave_number=np.array([0.0]), max_indentation=np.array([10.0]))
+    res = model.solve_batch(inputs)
+    n, load, _ = _shallow(8.0, load="mismatch", mismatch_strain=-8.0)
+    out = res.outputs
+    assert res.status[0] == Status.ok and model.regimes[res.regime[0]].endswith("_postbuckling")
+    assert out["branch_wave_number"][0] == n == 6
+    assert out["bifurcation_load"][0] == pytest.approx(load, rel=1e-6)
+    path = out["load_path"][0]
+    assert path[-1, 0] < -8.0 and path[:, 2].max() > 0.5  # the branch reached the end of the strain range
+    assert np.isnan(out["shape"][0]).all()  # max_indentation was not reached: nothing measured there
