@@ -197,22 +197,6 @@ EXAMPLES = REPO / "examples"
 RING_PLUGIN = EXAMPLES / "elastic_ring_plugin"
 
 
-def pip_install_target(source: Path, target: Path) -> Path:
-    """Install ``source`` (a project folder or a wheel) without dependencies into ``target``; return ``target``.
-
-    The test venv already holds every dependency, so putting ``target`` first on ``PYTHONPATH`` gives a
-    subprocess the installed package (and its entry points, read from the dist-info) without a second venv.
-    """
-    import subprocess
-    import sys
-
-    proc = subprocess.run([sys.executable, "-m", "pip", "install", "--quiet", "--no-deps", "--no-compile",
-                           "--disable-pip-version-check", "--target", str(target), str(source)],
-                          capture_output=True, text=True, timeout=600, check=False)
-    assert proc.returncode == 0, proc.stdout + proc.stderr
-    return target
-
-
 def subprocess_env(*paths: Path) -> dict[str, str]:
     """Environment for a ``python -m sweepshell`` subprocess: ``paths`` first on ``PYTHONPATH``, no config override."""
     env = {k: v for k, v in os.environ.items() if k != "SWEEPSHELL_CONFIG_DIR"}
@@ -223,9 +207,21 @@ def subprocess_env(*paths: Path) -> dict[str, str]:
 
 
 @pytest.fixture(scope="session")
-def ring_plugin_site(tmp_path_factory: pytest.TempPathFactory) -> Path:
-    """A folder holding the installed example plug-in ``fenwick-rings`` (put it on ``PYTHONPATH``)."""
-    return pip_install_target(RING_PLUGIN, tmp_path_factory.mktemp("plugin-site"))
+def ring_plugin_wheel(tmp_path_factory: pytest.TempPathFactory) -> Path:
+    """The built wheel of the example plug-in ``fenwick-rings`` (``examples/elastic_ring_plugin``)."""
+    from tests.venvs import build_wheel
+
+    return build_wheel(RING_PLUGIN, tmp_path_factory.mktemp("plugin-wheel"))
+
+
+@pytest.fixture(scope="session")
+def ring_plugin_python(tmp_path_factory: pytest.TempPathFactory, ring_plugin_wheel: Path) -> Path:
+    """``python`` of a fresh virtual environment with ``fenwick-rings`` installed (tests leave it installed)."""
+    from tests.venvs import install, make_venv
+
+    python = make_venv(tmp_path_factory.mktemp("plugin-venv") / "venv")
+    install(python, ring_plugin_wheel)
+    return python
 
 
 #: a 4 x 3 column grid in blocks of 3 (one per stiffness): the small store the fault and hostile-input tests damage

@@ -14,8 +14,8 @@ from tests.conftest import EXAMPLES, subprocess_env
 pytestmark = pytest.mark.slow  # each runs a small sweep in a fresh process
 
 
-def _run(script: str, cwd: Path, *paths: Path) -> str:
-    proc = subprocess.run([sys.executable, str(EXAMPLES / script)], cwd=cwd, env=subprocess_env(*paths),
+def _run(script: str, cwd: Path, python: Path = Path(sys.executable)) -> str:
+    proc = subprocess.run([str(python), str(EXAMPLES / script)], cwd=cwd, env=subprocess_env(),
                           capture_output=True, text=True, timeout=600, check=False)
     assert proc.returncode == 0, proc.stdout + proc.stderr
     return proc.stdout
@@ -47,8 +47,8 @@ def test_film_study(tmp_path):
     assert (tmp_path / "orrin_film.png").stat().st_size > 10_000
 
 
-def test_plugin_sweep(tmp_path, ring_plugin_site):
-    out = _run("plugin_sweep.py", tmp_path, ring_plugin_site)
+def test_plugin_sweep(tmp_path, ring_plugin_python):
+    out = _run("plugin_sweep.py", tmp_path, ring_plugin_python)
     assert "model from package fenwick-rings 1.0.0" in out
     # long tube: p_cr = E/(4(1-nu^2)) (t/R)^3 (Bryan 1888; Timoshenko & Gere 1961, Sec. 7.4)
     expected = 1.0e9 / (4 * (1 - 0.45**2)) * (0.01 / 0.5) ** 3

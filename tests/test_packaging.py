@@ -5,40 +5,38 @@ from __future__ import annotations
 import os
 import re
 import subprocess
-import sys
 import tomllib
 from pathlib import Path
 
 import pytest
 
 import sweepshell
-from tests.conftest import REPO, pip_install_target, subprocess_env
+from tests.conftest import REPO, subprocess_env
+from tests.venvs import build_wheel, install, make_venv
 
 
 def _pyproject() -> dict:
     return tomllib.loads((REPO / "pyproject.toml").read_text())
 
 
-@pytest.mark.slow  # builds the wheel and runs a sweep in a fresh install (numba compiles there once)
+@pytest.mark.slow  # builds the wheel and runs a sweep in a fresh environment (numba compiles there once)
 def test_wheel_runs_a_packaged_sweep_from_an_empty_folder(tmp_path):
-    wheels = tmp_path / "wheels"
-    build = subprocess.run([sys.executable, "-m", "pip", "wheel", "--quiet", "--no-deps", "--no-cache-dir",
-                            "--disable-pip-version-check", "-w", str(wheels), str(REPO)],
-                           capture_output=True, text=True, timeout=600, check=False)
-    assert build.returncode == 0, build.stdout + build.stderr
-    (wheel,) = wheels.glob("sweepshell-*.whl")
+    wheel = build_wheel(REPO, tmp_path / "wheels")
     assert wheel.name.startswith(f"sweepshell-{sweepshell.__version__}-")
-    site = pip_install_target(wheel, tmp_path / "site")
-    assert (site / "sweepshell" / "py.typed").is_file()
-    assert (site / "sweepshell" / "_configs" / "sweep" / "dome_dimple_map.yaml").is_file()
+    python = make_venv(tmp_path / "venv")
+    install(python, wheel)
     empty = tmp_path / "elsewhere"
     empty.mkdir()
-    env = subprocess_env(site)
-    env["PYTHONPATH"] = str(site)  # the wheel's package only, not the checkout
-    where = subprocess.run([sys.executable, "-c", "import sweepshell; print(sweepshell.__file__)"], cwd=empty,
-                           env=env, capture_output=True, text=True, timeout=120, check=False)
-    assert where.stdout.strip() == str(site / "sweepshell" / "__init__.py"), where.stderr
-    run = subprocess.run([sys.executable, "-m", "sweepshell", "run", "dome_dimple_map", "--progress", "none",
+    env = subprocess_env()
+    env.pop("PYTHONPATH")  # the wheel's package, not the checkout
+    where = subprocess.run([str(python), "-c", "import sweepshell, pathlib; "
+                            "print(pathlib.Path(sweepshell.__file__).parent)"],
+                           cwd=empty, env=env, capture_output=True, text=True, timeout=120, check=False)
+    package = Path(where.stdout.strip())
+    assert package.is_relative_to(tmp_path / "venv"), where.stdout + where.stderr
+    assert (package / "py.typed").is_file()
+    assert (package / "_configs" / "sweep" / "dome_dimple_map.yaml").is_file()
+    run = subprocess.run([str(python.parent / "sweepshell"), "run", "dome_dimple_map", "--progress", "none",
                           "axes.shell_parameter=[4.0,8.0]", "axes.dimple_amplitude=[0.01]", "executor=threads"],
                          cwd=empty, env=env, capture_output=True, text=True, timeout=900, check=False)
     assert run.returncode == 0, run.stderr

@@ -1,9 +1,9 @@
 """The plug-in seam: an installed distribution's entry point in ``sweepshell.models`` is listed, swept, recorded
 in the store's provenance and refused cleanly once uninstalled.
 
-The example plug-in (``examples/elastic_ring_plugin``, distribution ``fenwick-rings``) is installed with
-``pip install --target`` into a folder that subprocesses put on ``PYTHONPATH``; leaving the folder off is
-uninstalling it.
+The example plug-in (``examples/elastic_ring_plugin``, distribution ``fenwick-rings``) is built as a wheel,
+installed with ``pip install`` into a fresh virtual environment (``tests/venvs.py``) and removed with
+``pip uninstall``; subprocesses run that environment's ``python``.
 """
 
 from __future__ import annotations
@@ -18,6 +18,7 @@ import pytest
 from sweepshell.errors import UnknownModelError
 from sweepshell.models import get_model, list_models
 from tests.conftest import subprocess_env
+from tests.venvs import install, make_venv, pip
 
 RING_SWEEP = """\
 name: liners
@@ -31,25 +32,28 @@ executor: {kind: threads, workers: 1}
 """
 
 
-def _sweepshell(args: list[str], cwd: Path, *paths: Path) -> subprocess.CompletedProcess[str]:
-    return subprocess.run([sys.executable, "-m", "sweepshell", *args], cwd=cwd, env=subprocess_env(*paths),
+def _sweepshell(python: Path, args: list[str], cwd: Path) -> subprocess.CompletedProcess[str]:
+    return subprocess.run([str(python), "-m", "sweepshell", *args], cwd=cwd, env=subprocess_env(),
                           capture_output=True, text=True, timeout=300, check=False)
 
 
 @pytest.mark.slow  # builds and installs a package, runs several subprocesses
-def test_installed_plugin_is_listed_swept_recorded_and_refused_when_gone(ring_plugin_site, tmp_path):
-    listed = _sweepshell(["models"], tmp_path, ring_plugin_site)
+def test_installed_plugin_is_listed_swept_recorded_and_refused_when_gone(ring_plugin_wheel, tmp_path):
+    python = make_venv(tmp_path / "venv")  # its own environment: this test uninstalls the plug-in
+    assert "elastic_ring" not in _sweepshell(python, ["models"], tmp_path).stdout
+    install(python, ring_plugin_wheel)
+    listed = _sweepshell(python, ["models"], tmp_path)
     assert listed.returncode == 0, listed.stderr
     assert "elastic_ring 1.0 (fenwick-rings 1.0.0): thin ring" in listed.stdout
     assert "shallow_cap" in listed.stdout and "(built-in)" in listed.stdout
-    described = json.loads(_sweepshell(["models", "--json"], tmp_path, ring_plugin_site).stdout)
+    described = json.loads(_sweepshell(python, ["models", "--json"], tmp_path).stdout)
     origin = {d["name"]: d["origin"] for d in described}
     assert origin["elastic_ring"] == {"builtin": False, "distribution": "fenwick-rings", "version": "1.0.0",
                                       "label": "fenwick-rings 1.0.0"}
     assert origin["winkler_column"]["builtin"] is True
 
     (tmp_path / "liners.yaml").write_text(RING_SWEEP)
-    run = _sweepshell(["run", "liners.yaml", "--progress", "none"], tmp_path, ring_plugin_site)
+    run = _sweepshell(python, ["run", "liners.yaml", "--progress", "none"], tmp_path)
     assert run.returncode == 0, run.stderr
     store = tmp_path / "results" / "liners.zarr"
     attrs = json.loads((store / "zarr.json").read_text())["attributes"]
@@ -67,24 +71,26 @@ def test_installed_plugin_is_listed_swept_recorded_and_refused_when_gone(ring_pl
     assert int(ds.regime.sel(thickness=0.01, foundation_modulus=0.0, pressure=20000.0)) == 1  # buckled
 
     # uninstalled: the old store still opens and reports; running names the missing package, one line, exit 2
-    status = _sweepshell(["status", str(store)], tmp_path)
+    pip(python, "uninstall", "--yes", "fenwick-rings")
+    assert "elastic_ring" not in _sweepshell(python, ["models"], tmp_path).stdout
+    status = _sweepshell(python, ["status", str(store)], tmp_path)
     assert status.returncode == 0, status.stderr
     assert "model elastic_ring 1.0 from fenwick-rings 1.0.0" in status.stdout
-    opened = subprocess.run([sys.executable, "-c", f"import sweepshell; ds = sweepshell.open_sweep({str(store)!r}); "
+    opened = subprocess.run([str(python), "-c", f"import sweepshell; ds = sweepshell.open_sweep({str(store)!r}); "
                              "print(len(ds.sweep.query('regime == \"buckled\"')))"],
                             env=subprocess_env(), capture_output=True, text=True, timeout=300, check=False)
     assert opened.returncode == 0 and int(opened.stdout) > 0, opened.stderr
-    again = _sweepshell(["run", "liners.yaml", "--progress", "none"], tmp_path)
+    again = _sweepshell(python, ["run", "liners.yaml", "--progress", "none"], tmp_path)
     assert again.returncode == 2
     assert again.stderr.count("\n") == 1 and "Traceback" not in again.stderr
     assert "'fenwick-rings'" in again.stderr and "not installed" in again.stderr and "pip install" in again.stderr
 
 
 @pytest.mark.slow
-def test_installed_plugin_keeps_the_contract(ring_plugin_site, tmp_path):
+def test_installed_plugin_keeps_the_contract(ring_plugin_python, tmp_path):
     code = ("from sweepshell.models import get_model; from sweepshell.testing import check_model; "
             "cls = get_model('elastic_ring'); check_model(cls); print(cls.__module__)")
-    proc = subprocess.run([sys.executable, "-c", code], env=subprocess_env(ring_plugin_site), cwd=tmp_path,
+    proc = subprocess.run([str(ring_plugin_python), "-c", code], env=subprocess_env(), cwd=tmp_path,
                           capture_output=True, text=True, timeout=300, check=False)
     assert proc.returncode == 0, proc.stderr
     assert proc.stdout.strip() == "fenwick_rings.model"
