@@ -23,7 +23,6 @@ ALLOWED: dict[str, int] = {
     "sweepshell/models/cap_postbuckling/operators.py": 426,
     "sweepshell/models/curved_strip/model.py": 423,
     # foundation_strip flexure, the plots and the store's verify/merge changed on other branches meanwhile
-    "sweepshell/models/foundation_sheet/model.py": 432,
     "sweepshell/plot/paths.py:draw_load_paths": 136,
     "sweepshell/plot/regime_map.py": 587,
     "sweepshell/plot/regime_map.py:draw_output_lines": 90,
