@@ -33,14 +33,12 @@ one node spacing of 0 or 1, ρ < 0.003 on 48 nodes, ρ < 0.03 or > 0.9999 on 16,
 short of ρ). The map is smooth (analytic in a strip of half-width ≈ ε around ±ρ), so parity
 is kept and smooth functions keep spectral accuracy, at the cost of the nodes in the clusters
 (derivatives of sin 3x·x² to ≈ 10⁻⁸ on 48 nodes instead of ≈ 10⁻¹³). A function with a
-kink at ρ converges only algebraically on any such grid, but with a constant that falls with ε;
-:mod:`sweepshell.numerics.split_chebyshev` (two grids split at ρ) converges geometrically and is
-what shallow_cap uses for sharp mismatch edges.
+kink at ρ converges only algebraically on any such grid, but with a constant that falls with ε.
 """
 
 from __future__ import annotations
 
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 from functools import lru_cache
 
 import numpy as np
@@ -74,10 +72,7 @@ class RadialGrid:
     stretch
         The cubic map's β (0: plain Chebyshev points).
     centre
-        The clustered map's ρ (0: no clustering); ``x`` then holds ρ exactly. On the two-domain
-        grid of :mod:`sweepshell.numerics.split_chebyshev`, the split radius.
-    d4
-        Dict parity → fourth derivative matrix (two-domain grids only; empty otherwise).
+        The clustered map's ρ (0: no clustering); ``x`` then holds ρ exactly.
     """
 
     x: np.ndarray
@@ -88,7 +83,6 @@ class RadialGrid:
     moment2: dict[int, np.ndarray]
     stretch: float = 0.0
     centre: float = 0.0
-    d4: dict[int, np.ndarray] = field(default_factory=dict)
 
     @property
     def size(self) -> int:

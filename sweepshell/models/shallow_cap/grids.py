@@ -12,48 +12,28 @@ from typing import Any
 
 import numpy as np
 
-from sweepshell.numerics.radial_chebyshev import RadialGrid, build_radial_grid
-from sweepshell.numerics.split_chebyshev import build_split_grid
-
-__all__ = ["choose_grid_centres", "choose_grids", "get_cap_grid", "get_mismatch_nodes"]
+__all__ = ["choose_grid_centres", "choose_grids", "get_mismatch_nodes"]
 
 _FIXED_NODES = 34  # smoothed-edge mismatch points' base grid when ``nodes`` is automatic
 
 
-def get_cap_grid(m: int, stretch: float = 0.0, centre: float = 0.0) -> RadialGrid:
-    """Return the radial grid of a cap's state: ``m`` nodes, axis stretch β, split radius ρ.
+def get_mismatch_nodes(settings: Mapping[str, Any], lam: np.ndarray) -> np.ndarray:
+    """Return the grid size of mismatch-strain points with shell parameters ``lam``.
 
-    With ``centre`` ρ > 0 (a sharp mismatch edge) the two-domain grid split at ρ with
-    interpolants C² there (:func:`~sweepshell.numerics.split_chebyshev.build_split_grid`: the
-    slope's third derivative jumps at the edge); otherwise the single Chebyshev grid of
-    :func:`~sweepshell.numerics.radial_chebyshev.build_radial_grid`.
-    """
-    if centre > 0.0:
-        return build_split_grid(m, centre, 2)
-    return build_radial_grid(m, stretch)
-
-
-def get_mismatch_nodes(settings: Mapping[str, Any], lam: np.ndarray, radius: np.ndarray | None = None) -> np.ndarray:
-    """Return the grid size of mismatch-strain points with shell parameters ``lam`` and region radii ``radius``.
-
-    Sharp edge (``mismatch_step_width`` 0), on the two-domain grid split at the edge
-    (:func:`get_cap_grid`): ``nodes``, or when automatic 40 for ρ ≥ 0.3, 64 for 0.15 ≤ ρ < 0.3
-    and 96 below (``radius`` None: 40), the measured need for 10⁻⁵ relative accuracy of the
-    critical load (against 80 … 96 nodes, 30 wave numbers: at ρ = 0.5, λ = 8, 20, 30 and the
-    λ = 6 annulus 10⁻⁶ … 4·10⁻⁸ on 40 nodes, 10⁻⁴ on 32, where λ = 30 showed a spurious n = 1;
-    ρ = 0.3, λ = 20: 10⁻⁵; ρ = 0.8 annuli, λ = 10, 20: 10⁻⁶; ρ = 0.2, λ = 10, 20: 4·10⁻⁶ on 64
-    nodes, 4·10⁻⁵ on 48; ρ = 0.1, λ = 10: 2·10⁻⁶ on 80, 2·10⁻⁴ on 64. Discs below ρ ≈ 0.1 are
-    not resolved by 96 nodes: ρ = 0.05, λ = 10 moved from −20.30 to −20.61 between 80 and 96).
-    Smoothed edge: the edge sits inside the cap, where the Chebyshev grid is coarsest; below
-    w·nodes ≈ 3.4 the results lose digits fast (10⁻⁶ relative at 3.4, 10⁻³ at 2), so ``nodes``
-    (when automatic max(34, 16 + 1.5λ), even) is raised until w·nodes ≥ 3.4.
+    Sharp edge (``mismatch_step_width`` 0), on the grid clustered at the edge
+    (:func:`choose_grid_centres`): ``nodes``, or when automatic 44 + 1.8λ (even, 48 … 96), the
+    measured need for 10⁻⁴ relative accuracy of the critical load (against 160 nodes: 48 nodes
+    leave 2·10⁻⁴ at λ = 8 and 12, 10⁻³ at λ = 20; 64 nodes 4·10⁻⁵ at λ = 12, 80 nodes 7·10⁻⁵ at
+    λ = 20; tests/models/shallow_cap/test_mismatch_sharp.py). Smoothed edge: the edge sits
+    inside the cap, where the Chebyshev grid is coarsest; below w·nodes ≈ 3.4 the results lose
+    digits fast (10⁻⁶ relative at 3.4, 10⁻³ at 2), so ``nodes`` (when automatic max(34,
+    16 + 1.5λ), even) is raised until w·nodes ≥ 3.4.
     """
     width = float(settings["mismatch_step_width"])
     if width == 0.0:
         if int(settings["nodes"]):
             return np.full(lam.shape, int(settings["nodes"]))
-        rho = np.full(lam.shape, 0.5) if radius is None else np.asarray(radius, dtype=float)
-        return np.where(rho >= 0.3, 40, np.where(rho >= 0.15, 64, 96)).astype(int)
+        return np.clip(np.ceil((44.0 + 1.8 * lam) / 2.0) * 2.0, 48, 96).astype(int)
     if int(settings["nodes"]):
         return np.full(lam.shape, max(int(settings["nodes"]), math.ceil(3.4 / width)))
     # on deep caps the mismatch state needs more than 34 nodes whatever the width: at λ = 20 a
@@ -66,17 +46,16 @@ def choose_grid_centres(settings: Mapping[str, Any], eigen: np.ndarray, radius: 
     """Return each point's clustering centre ρ of the radial grid (0: none; see ``build_radial_grid``).
 
     Mismatch points with a sharp edge inside the cap (``mismatch_step_width`` 0, ρ < 1) get the
-    two-domain grid split at ρ (:func:`get_cap_grid`): their response has a kink there (a jump of
-    the hoop prestress and of the third derivative of the slope), which one Chebyshev grid
-    resolves only to first order, oscillating with where ρ falls between nodes.
+    grid clustered around x = ±ρ with a node on ρ: their response has a kink there (a jump of
+    the hoop prestress and of the third derivative of the slope), which a plain grid resolves
+    only to first order, oscillating with where ρ falls between nodes.
     """
     sharp = eigen & (float(settings["mismatch_step_width"]) == 0.0) & (radius < 1.0)
     return np.where(sharp, radius, 0.0)
 
 
 def choose_grids(settings: Mapping[str, Any], lam: np.ndarray, apex: np.ndarray, eigen: np.ndarray,
-                 amplitude: np.ndarray, width: np.ndarray,
-                 radius: np.ndarray | None = None) -> tuple[np.ndarray, np.ndarray]:
+                 amplitude: np.ndarray, width: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """Return each point's radial grid: node count and stretch β (see ``build_radial_grid``).
 
     With ``nodes`` 0 (automatic) the count follows the measured need for 3·10⁻⁷ relative
@@ -85,8 +64,8 @@ def choose_grids(settings: Mapping[str, Any], lam: np.ndarray, apex: np.ndarray,
     over a/λ has width b/λ in x). Grids are stretched towards the axis where the solution
     varies fastest there: dimpled caps (``dimple_grid_stretch``) and apex forces
     (``apex_grid_stretch``); perfect caps under pressure keep Chebyshev points, whose edge
-    clustering the asymmetric modes need; mismatch points use :func:`get_mismatch_nodes` (with
-    their region radii ``radius``; sharp-edged ones the two-domain grid of :func:`choose_grid_centres`).
+    clustering the asymmetric modes need; mismatch points use :func:`get_mismatch_nodes` (and
+    sharp-edged ones the clustered map of :func:`choose_grid_centres`).
     Counts are even, from 16 to 96.
     """
     scan = int(settings["asymmetric_modes"]) > 0
@@ -102,7 +81,7 @@ def choose_grids(settings: Mapping[str, Any], lam: np.ndarray, apex: np.ndarray,
         need = np.where(apex, np.maximum(16.0 + 1.4 * lam, dimple),
                         np.where(dimpled, np.maximum(stretched, dimple), perfect))
         nodes = np.clip(np.ceil(need / 2.0) * 2.0, 16, 96).astype(int)
-    mismatch_nodes = get_mismatch_nodes(settings, lam, radius)
+    mismatch_nodes = get_mismatch_nodes(settings, lam)
     if not int(settings["nodes"]):
         # a dimple on a mismatch grid (no axis stretch there): the plain-grid need of a dimple,
         # 2 + 4.6λ/b (measured for pressure; not separately measured for mismatch loads)

@@ -60,7 +60,7 @@ class ShallowCapModel(SweepModel):
     """Shallow spherical cap under pressure or an apex force: limit points and bifurcations."""
 
     name: ClassVar[str] = "shallow_cap"
-    version: ClassVar[str] = "1.10"
+    version: ClassVar[str] = "1.9"
     summary: ClassVar[str] = ("shallow spherical cap (Föppl–von Kármán): snap-through, asymmetric "
                               "bifurcation, apex indentation, mismatch strain, dimple imperfections")
     parameters: ClassVar[tuple[ParameterSpec, ...]] = (
@@ -278,7 +278,7 @@ def _get(inputs: Mapping[str, np.ndarray], key: str, n: int) -> np.ndarray:
 def _solve_by_grid(s: Mapping[str, Any], eigen: np.ndarray, *args: np.ndarray) -> CapSolution:
     """Solve the points in groups that share a radial grid (:func:`choose_grids`)."""
     lam, nu, clamped, immovable, apex, amp, width, strain, radius, annulus = args
-    nodes, stretch = choose_grids(s, lam, apex, eigen, amp, width, radius)
+    nodes, stretch = choose_grids(s, lam, apex, eigen, amp, width)
     centre = choose_grid_centres(s, eigen, radius)
     keys = np.stack([nodes.astype(float), stretch, centre], axis=1)
     groups, inverse = np.unique(keys, axis=0, return_inverse=True)

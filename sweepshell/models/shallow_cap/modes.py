@@ -38,27 +38,20 @@ converge with the stability grid: at λ = 10, δ ≈ h the lowest eigenvalues of
 λ⁴ are 1.3724, 1.4645, 1.6489 on 3M and 4M nodes for M = 24, 34, 48 (within 4·10⁻⁴). A 2M grid
 is enough at λ = 10 but not at λ = 20 (spurious modes again), hence 3M; this costs about
 8× the scan of a pressure point.
-Pressure and mismatch states keep the state's grid. A sharp-edged mismatch strain's state lives
-on the two-domain grid split at the edge (:mod:`sweepshell.numerics.split_chebyshev`); its
-modes use the same nodes with interpolants C³ at the edge (the hoop prestress jumps, so the
-fourth derivative of ``w`` does) and the biharmonic operator written with the fourth-derivative
-matrix (:func:`_split_field_operators`), never as a product of second-order operators across
-the jump.
+Pressure and mismatch states keep the state's grid (a sharp-edged mismatch strain's kink is
+handled by that grid's node on the edge, see :mod:`sweepshell.numerics.radial_chebyshev`).
 """
 
 from __future__ import annotations
 
-import math
 from dataclasses import dataclass
 from functools import lru_cache
 
 import numpy as np
 
 from sweepshell.models.shallow_cap.compiled_modes import assemble_reduced_stability
-from sweepshell.models.shallow_cap.grids import get_cap_grid
 from sweepshell.models.shallow_cap.kernels import CapPathProblem
 from sweepshell.numerics.radial_chebyshev import build_interpolation_matrix, build_radial_grid, to_chebyshev_coordinate
-from sweepshell.numerics.split_chebyshev import build_split_grid
 
 __all__ = [
     "APEX_STABILITY_REFINEMENT",
@@ -100,26 +93,7 @@ class ModeOperators:
     stress: FieldOperators
 
 
-def _split_field_operators(size: int, n: int, m: int, centre: float) -> FieldOperators:
-    """Operators of ``x^m v`` on the two-domain grid split at ``centre`` (C³ interpolants, direct ∇⁴)."""
-    g = build_split_grid(size, centre, 3)
-    x = g.x
-    pv = 1 if (n - m) % 2 == 0 else -1
-    d = [np.eye(size), g.d1[pv], g.d2[pv], g.d3[pv], g.d4[pv]]
-    # k-th derivative of x^m v by Leibniz
-    power = [math.perm(m, k) * x ** max(m - k, 0) for k in range(5)]
-    u = [sum(math.comb(k, j) * power[k - j][:, None] * d[j] for j in range(k + 1)) for k in range(5)]
-    n2 = n * n
-    # x² ∇⁴_n u = x² u⁽⁴⁾ + 2x u⁽³⁾ − (2n² + 1) u⁽²⁾ + (2n² + 1) u⁽¹⁾/x + (n⁴ − 4n²) u/x²
-    bilaplacian = ((x**2)[:, None] * u[4] + (2.0 * x)[:, None] * u[3] - (2 * n2 + 1) * u[2]
-                   + ((2 * n2 + 1) / x)[:, None] * u[1] + ((n2 * n2 - 4 * n2) / x**2)[:, None] * u[0])
-    return FieldOperators(w0=u[0], w1=u[1], w2=u[2], w3_edge=u[3][0].copy(), bilaplacian=bilaplacian,
-                          bracket=x[:, None] * u[1] - n2 * u[0])
-
-
 def _field_operators(size: int, n: int, m: int, stretch: float, centre: float) -> FieldOperators:
-    if centre > 0.0:
-        return _split_field_operators(size, n, m, centre)
     g = build_radial_grid(size, stretch, centre)
     x = g.x
     pv = 1 if (n - m) % 2 == 0 else -1
@@ -306,7 +280,7 @@ def _reduced_matrices(problem: CapPathProblem, co: ModeCoefficients, modes: np.n
     """Yield ``(j, n, A − B S⁻¹ C)`` ``(k, M, M)`` for each wave number of ``modes`` (on the grid of ``co``)."""
     stretch, centre = problem.grid.stretch, problem.grid.centre
     m = co.f.shape[1]
-    x = problem.grid.x if m == problem.size else get_cap_grid(m, stretch, centre).x
+    x = problem.grid.x if m == problem.size else build_radial_grid(m, stretch, centre).x
     keys = list(zip(co.nu.tolist(), co.immovable.tolist(), strict=True))
     unique = sorted(set(keys))
     group = np.array([unique.index(key) for key in keys], dtype=np.int64) if len(unique) > 1 \
@@ -375,7 +349,7 @@ def count_unstable_modes(problem: CapPathProblem, z: np.ndarray, idx: np.ndarray
     """
     out = np.zeros((z.shape[0], len(modes)), dtype=int)
     for rows, co in _group_coefficients(problem, z, idx):
-        x = get_cap_grid(co.f.shape[1], problem.grid.stretch, problem.grid.centre).x
+        x = build_radial_grid(co.f.shape[1], problem.grid.stretch, problem.grid.centre).x
         for j, n, a in _reduced_matrices(problem, co, modes):
             edge, edge_in = a[:, :2, :2], a[:, :2, 2:]
             inner = a[:, 2:, 2:] - a[:, 2:, :2] @ np.linalg.solve(edge, edge_in)

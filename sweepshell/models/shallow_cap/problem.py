@@ -8,8 +8,8 @@ from typing import Any
 
 import numpy as np
 
-from sweepshell.models.shallow_cap.grids import get_cap_grid
 from sweepshell.models.shallow_cap.kernels import CapPathProblem, eigenstrain_stress
+from sweepshell.numerics.radial_chebyshev import build_radial_grid
 
 __all__ = ["CapInputs", "build_batch_problem", "build_problem"]
 
@@ -69,7 +69,7 @@ def build_problem(lam: np.ndarray, nu: np.ndarray, clamped: np.ndarray, immovabl
     :func:`~sweepshell.numerics.radial_chebyshev.build_radial_grid`; a sharp edge wants
     ``centre`` = its radius, which puts a node on it).
     """
-    grid = get_cap_grid(nodes, stretch, centre)
+    grid = build_radial_grid(nodes, stretch, centre)
     x = grid.x
     n = lam.shape[0]
     c = np.sqrt(3.0 * (1.0 - nu**2))

@@ -31,7 +31,7 @@ def test_automatic_grids_grow_with_lambda_and_stretch_only_where_needed():
     nodes, beta = choose_grids(s, lam, apex, eigen, amp, np.full(5, 2.0))
     assert nodes[0] < nodes[1] and nodes.min() >= 16 and np.all(nodes % 2 == 0)
     np.testing.assert_array_equal(beta, [0.0, 0.0, 0.5, 0.85, 0.0])
-    assert nodes[4] == 40  # sharp-edged mismatch points (the default, ρ = 0.5): 40 nodes split at the edge
+    assert nodes[4] == 80  # sharp-edged mismatch points (the default): 44 + 1.8λ
     fixed, _ = choose_grids({**s, "nodes": 40}, lam, apex, eigen, amp, np.full(5, 2.0))
     np.testing.assert_array_equal(fixed, [40, 40, 40, 40, 40])
 
