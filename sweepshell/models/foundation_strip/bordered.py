@@ -49,8 +49,9 @@ def _residual(problem: StripProblem, X: np.ndarray, out: np.ndarray) -> None:
     sin, cos = np.sin(phi), np.cos(phi)
     fill_angle_residual(phi, sin, cos, float(X[n]), float(X[n + 1]), problem.kappa0, problem.ybar0,
                         problem.cubic, h, out)
-    out[n] = (h * np.sum(1.0 - cos) - problem.slack0) / L - X[n + 2]
-    out[n + 1] = h * np.sum(sin) / L
+    # ndarray.sum: the same pairwise reduction as np.sum, without its dispatch overhead
+    out[n] = (h * (1.0 - cos).sum() - problem.slack0) / L - X[n + 2]
+    out[n + 1] = h * sin.sum() / L
 
 
 def compute_jacobian(problem: StripProblem, X: np.ndarray) -> np.ndarray:
@@ -97,7 +98,7 @@ def _factor(A: np.ndarray):
     if not is_finite(A):
         return None
     lu, piv, info = dgetrf(A, overwrite_a=1)
-    if info < 0 or not is_finite(lu) or np.min(np.abs(np.diag(lu))) == 0.0:
+    if info < 0 or not is_finite(lu) or np.abs(np.diag(lu)).min() == 0.0:
         return None
     return lu, piv
 
@@ -125,7 +126,7 @@ def solve_tangent(lu, W: np.ndarray) -> np.ndarray | None:
     rhs = np.zeros(lu[0].shape[0])
     rhs[-1] = 1.0
     t = lu_solve(lu, rhs)
-    norm = math.sqrt(float(np.sum(W * t * t)))
+    norm = math.sqrt(float((W * t * t).sum()))
     if not math.isfinite(norm) or norm == 0.0:
         return None
     return t / norm
@@ -149,7 +150,7 @@ def solve_newton(problem: StripProblem, X: np.ndarray, row: np.ndarray, value: f
         _residual(problem, X, b)
         b[-1] = float(row @ X) - value
         dX = lu_solve(lu, -b)
-        size = float(np.max(np.abs(dX))) if np.all(np.isfinite(dX)) else math.inf
+        size = float(np.abs(dX).max()) if np.isfinite(dX).all() else math.inf
         if size > 10.0:
             return None, it
         X = X + dX

@@ -279,10 +279,10 @@ def _corrected_step(problem: StripProblem, path: StripPath, X: np.ndarray, t: np
             lu_new = factor_at(problem, X_new, t * W)
             t_new = None if lu_new is None else solve_tangent(lu_new, W)
             if t_new is not None:
-                turn = float(np.sum(W * t_new * t))
+                turn = float((W * t_new * t).sum())
                 if turn < 0.0:
                     t_new, turn = -t_new, -turn
-                drift = math.sqrt(float(np.sum(W * (X_new - X_pred) ** 2)))
+                drift = math.sqrt(float((W * (X_new - X_pred) ** 2).sum()))
                 # a sharp turn, a change of shape or a long corrector may mean the step
                 # jumped to another branch (near a limit load the load barely changes while
                 # the shape does, so the shape gets its own test)
