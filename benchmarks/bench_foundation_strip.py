@@ -7,7 +7,9 @@ Three measurements, each printed with its agreement check and the speed ratio:
 2. one confinement path to the fold per point: the model (chord Newton, pseudo-arclength)
    vs a plain reference — natural-parameter continuation in the end-shortening with
    ``scipy.optimize.root`` and the analytic Jacobian, a fresh solve at every grid value;
-3. a confinement sweep of one strip (points share one path) vs one model call per point.
+3. a confinement sweep of one strip (points share one path) vs one model call per point;
+4. the path to the fold with the compiled residual and Jacobian (the model) vs the same
+   continuation on their numpy specification (identical results, checked).
 
 Run with one BLAS thread for the "one core" figure::
 
@@ -25,6 +27,7 @@ from scipy.integrate import solve_bvp
 from scipy.optimize import root
 
 from sweepshell.models import make_model
+from sweepshell.models.foundation_strip import bordered, branches, continuation
 from sweepshell.models.foundation_strip.continuation import StripPath
 from sweepshell.models.foundation_strip.elastica import (
     build_strip_grid,
@@ -179,6 +182,36 @@ def bench_path() -> None:
           f"{t_single:8.4f} s/point one call each   ratio {t_single * 31 / t_shared:6.1f}x")
 
 
+def _spec_factor_at(problem, X, row):
+    return bordered.factor_bordered(bordered.compute_jacobian(problem, X), row)
+
+
+def _spec_residual(problem, X, out):
+    out[:-1] = bordered.compute_residual(problem, X)
+
+
+def bench_fold_kernels() -> None:
+    model = make_model("foundation_strip")
+    imps = np.array([3e-4, 1e-3, 3e-3])
+    inputs = make_inputs(model, imps.size, imperfection=imps, confinement=0.0)
+    model.solve_batch(inputs)  # compile or load the kernels
+    t_fast, fast = best_of(lambda: model.solve_batch(inputs), repeats=5)
+    patched = [(continuation, "factor_at"), (branches, "factor_at"), (bordered, "factor_at"),
+               (bordered, "_residual")]
+    saved = [getattr(mod, name) for mod, name in patched]
+    try:
+        for mod, name in patched:
+            setattr(mod, name, _spec_residual if name == "_residual" else _spec_factor_at)
+        t_spec, spec = best_of(lambda: model.solve_batch(inputs), repeats=5)
+    finally:
+        for (mod, name), fn in zip(patched, saved, strict=True):
+            setattr(mod, name, fn)
+    same = np.array_equal(fast.outputs["fold_confinement"], spec.outputs["fold_confinement"])
+    print(f"fold path  compiled kernels {1e3 * t_fast / imps.size:7.1f} ms/point   numpy specification "
+          f"{1e3 * t_spec / imps.size:7.1f} ms/point   ratio {t_spec / t_fast:5.2f}x   identical folds {same}")
+
+
 if __name__ == "__main__":
+    bench_fold_kernels()
     bench_onset_and_flexure()
     bench_path()

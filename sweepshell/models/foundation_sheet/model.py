@@ -88,63 +88,11 @@ import numpy as np
 
 from sweepshell.errors import ParameterError
 from sweepshell.models.base import BatchResult, OutputSpec, ParameterSpec, Status, SweepModel
-from sweepshell.models.foundation_sheet.energy import (
-    build_sheet_problem,
-    compute_height_field,
-    project_field_to_modes,
-)
-from sweepshell.models.foundation_sheet.minimize import SheetMinimum, minimize_sheet_energy
-from sweepshell.models.foundation_sheet.patterns import (
-    PATTERN_NAMES,
-    classify_pattern,
-    measure_pattern,
-    measure_peak_amplitude,
-)
+from sweepshell.models.foundation_sheet.patterns import PATTERN_NAMES, classify_pattern, measure_pattern
+from sweepshell.models.foundation_sheet.point import fill_point_outputs, solve_sheet_point
+from sweepshell.models.foundation_sheet.scales import MIN_MODES_PER_WAVELENGTH, compute_sheet_scales
 
 __all__ = ["FoundationSheetModel", "compute_sheet_scales"]
-
-#: the smallest grid points per critical wavelength a point may use
-MIN_MODES_PER_WAVELENGTH = 4
-
-
-def compute_sheet_scales(film_thickness: np.ndarray, film_modulus: np.ndarray,
-                         film_poisson_ratio: np.ndarray, substrate_modulus: np.ndarray,
-                         substrate_poisson_ratio: np.ndarray,
-                         substrate: np.ndarray) -> dict[str, np.ndarray]:
-    """Return the linear-onset scales of each point (vectorised).
-
-    Parameters
-    ----------
-    film_thickness
-        h, m.
-    film_modulus, substrate_modulus
-        E_f, E_s, Pa.
-    film_poisson_ratio, substrate_poisson_ratio
-        ν_f, ν_s (1).
-    substrate
-        ``half_space`` or ``winkler`` per point.
-
-    Returns
-    -------
-    dict
-        ``critical_strain`` ε_c (1), ``wavenumber`` k₀ (1/m), ``critical_wavelength``
-        2π/k₀ (m), ``height_scale`` b = √ε_c/k₀ (m), ``energy_scale`` Ē_f h ε_c² (J/m²),
-        ``contrast`` Ē_f/Ē_s (1).
-    """
-    h = np.asarray(film_thickness, dtype=float)
-    ef = np.asarray(film_modulus, dtype=float) / (1.0 - np.asarray(film_poisson_ratio, dtype=float) ** 2)
-    es = np.asarray(substrate_modulus, dtype=float) / (
-        1.0 - np.asarray(substrate_poisson_ratio, dtype=float) ** 2)
-    contrast = ef / es
-    kh_half = np.cbrt(3.0 / contrast)
-    winkler = np.asarray(substrate).astype(str) == "winkler"
-    # Winkler bed K = Ē_s k_h/2: (k₀h)⁴ = 12 K h/Ē_f = 6 k_h h/(Ē_f/Ē_s)
-    kh = np.where(winkler, (6.0 * kh_half / contrast) ** 0.25, kh_half)
-    eps_c = np.where(winkler, kh**2 / 6.0, kh**2 / 4.0)
-    k0 = kh / h
-    return {"critical_strain": eps_c, "wavenumber": k0, "critical_wavelength": 2 * np.pi / k0,
-            "height_scale": np.sqrt(eps_c) / k0, "energy_scale": ef * h * eps_c**2,
-            "contrast": contrast}
 
 
 class FoundationSheetModel(SweepModel):
@@ -330,103 +278,26 @@ class FoundationSheetModel(SweepModel):
             b, ratio = scales["height_scale"][i], scales["height_scale"][i] / h[i]
             try:
                 with np.errstate(all="raise", under="ignore"):
-                    problem = build_sheet_problem(int(modes[i]), int(cells[i]), str(substrate[i]),
-                                                 float(nu[i]), (float(s1[i]), float(s2[i])))
-                    flat_amplitude = s["flat_tolerance"] / ratio
-                    if problem.linear_stability_margin() >= 0.0:
-                        field = np.zeros((problem.n, problem.n))
-                        code, energy, confidence = Status.no_instability, 0.0, 1.0
-                    else:
-                        mirrored = None
-                        if s["mirror_starts"] and s1[i] != s2[i]:
-                            mirrored = build_sheet_problem(int(modes[i]), int(cells[i]), str(substrate[i]),
-                                                          float(nu[i]), (float(s2[i]), float(s1[i])))
-                        found = self._solve_point(problem, mirrored, ratio, seed_energies[i])
-                        if not found:
-                            status[i] = Status.not_converged
-                            continue
-                        energy, field, iterations[i] = min(found, key=lambda c: c[0])
-                        code = Status.ok
-                        patterns = [classify_pattern(measure_pattern(c[1]), flat_amplitude) for c in found]
-                        chosen = classify_pattern(measure_pattern(field), flat_amplitude)
-                        confidence = patterns.count(chosen) / len(patterns)
-                    self._fill_point(out, int(i), field * b, h[i], energy * scales["energy_scale"][i],
-                                     scales["critical_wavelength"][i] * cells[i])
-                    out["pattern_confidence"][i] = confidence
-                    regime[i] = classify_pattern(measure_pattern(field), flat_amplitude)
+                    answer = solve_sheet_point(int(modes[i]), int(cells[i]), str(substrate[i]), float(nu[i]),
+                                               (float(s1[i]), float(s2[i])), ratio, s, seed_energies[i])
+                    if answer.height is None:
+                        status[i] = answer.status
+                        continue
+                    iterations[i] = answer.iterations
+                    fill_point_outputs(out, int(i), answer.height * b, h[i],
+                                       answer.energy * scales["energy_scale"][i],
+                                       scales["critical_wavelength"][i] * cells[i], s["flat_tolerance"])
+                    out["pattern_confidence"][i] = answer.confidence
+                    regime[i] = classify_pattern(measure_pattern(answer.height), s["flat_tolerance"] / ratio)
             except (FloatingPointError, ValueError, np.linalg.LinAlgError):
                 status[i] = Status.failed
                 regime[i] = -1
                 for v in out.values():
                     v[i] = np.nan
                 continue
-            status[i] = code
+            status[i] = answer.status
             out["critical_strain"][i] = eps_c[i]
             out["critical_wavelength"][i] = scales["critical_wavelength"][i]
             out["overstress"][i] = overstress[i]
         return BatchResult(outputs=out, status=status, regime=regime,
                            diagnostics={"iterations": iterations, "seed_energies": seed_energies})
-
-    def _solve_point(self, problem: Any, mirrored: Any, height_ratio: float,
-                     seed_energies: np.ndarray) -> list[tuple[float, np.ndarray, int]]:
-        """Run every seed (on the mirrored problem too, if given); return the converged minima.
-
-        Each as ``(energy, height, iterations)``; heights of the mirrored problem are
-        transposed back, so every candidate is an equilibrium of ``problem``.
-        """
-        found = [(m.energy, m.height, m.iterations) for m in self._run_seeds(problem, height_ratio, seed_energies)]
-        if mirrored is not None:
-            unused = np.full(len(self._settings["seeds"]), np.nan)
-            found += [(m.energy, m.height.T.copy(), m.iterations)
-                      for m in self._run_seeds(mirrored, height_ratio, unused)]
-        return found
-
-    def _run_seeds(self, problem: Any, height_ratio: float, seed_energies: np.ndarray) -> list[SheetMinimum]:
-        """Run every seed on ``problem``; return the converged minima (energies of finite ones recorded)."""
-        s = self._settings
-        converged: list[SheetMinimum] = []
-        for j, seed in enumerate(s["seeds"]):
-            # white noise on the grid, projected onto the resolved modes: depends only on
-            # the seed and the grid, never on the point or its place in the batch
-            grid_noise = np.random.default_rng(seed).standard_normal((problem.n, problem.n))
-            z0 = project_field_to_modes(problem, grid_noise)
-            start_rms = float(np.sqrt(np.mean(compute_height_field(problem, z0) ** 2)))
-            # initial rms height = perturbation × h, i.e. perturbation × h/b in scaled units
-            z0 *= s["perturbation"] / height_ratio / start_rms
-            found = minimize_sheet_energy(problem, z0, gradient_tolerance=s["gradient_tolerance"],
-                                          max_iterations=s["max_iterations"])
-            if not found.finite:
-                continue
-            seed_energies[j] = found.energy
-            if found.converged:
-                converged.append(found)
-        return converged
-
-    def _fill_point(self, out: dict[str, np.ndarray], i: int, height: np.ndarray, thickness: float,
-                    energy: float, cell_size: float) -> None:
-        """Write the measured outputs of point i from its equilibrium height (m)."""
-        measures = measure_pattern(height)
-        flat = measures.rms <= self._settings["flat_tolerance"] * thickness
-        out["amplitude_rms"][i] = measures.rms
-        out["amplitude_peak"][i] = 0.0 if flat else measure_peak_amplitude(height)
-        out["energy"][i] = energy
-        out["wavelength"][i] = np.nan if flat else cell_size / measures.wavenumber
-        if "height" in out:
-            out["height"][i] = sample_periodic_field(height, out["height"].shape[1])
-
-
-def sample_periodic_field(field: np.ndarray, samples: int) -> np.ndarray:
-    """Return a band-limited periodic field evaluated on a ``samples`` × ``samples`` grid.
-
-    Exact evaluation of the Fourier series at the coarse points (no aliasing of the
-    sampled values), positions ``j/samples`` of the cell side.
-    """
-    n = field.shape[0]
-    F = np.fft.fft2(field) / field.size
-    m = np.fft.fftfreq(n, 1.0 / n)
-    nyquist = np.abs(m) >= n / 2
-    F[nyquist, :] = 0.0  # a band-limited field has no Nyquist content; drop round-off
-    F[:, nyquist] = 0.0
-    x = np.arange(samples) / samples
-    E = np.exp(2j * np.pi * np.outer(x, m))
-    return (E @ F @ E.T).real

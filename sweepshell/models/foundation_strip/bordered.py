@@ -3,6 +3,12 @@
 Unknowns X = (φ₁..φ_N, P, R, d) and the N + 2 equations of
 :mod:`sweepshell.models.foundation_strip.continuation`, closed by one bordering row
 ``row·X = value`` (the pseudo-arclength condition, or a fixed confinement).
+
+``compute_residual`` and ``compute_jacobian`` (numpy) are the specification; the path's hot loop
+uses the compiled kernels of :mod:`sweepshell.models.foundation_strip.compiled` through
+:func:`factor_at` and :func:`solve_newton`, which give the same numbers to the last bit, and
+calls LAPACK's ``getrf``/``getrs`` directly (the routines behind ``scipy.linalg.lu_factor`` and
+``lu_solve``, without their per-call checks).
 """
 
 from __future__ import annotations
@@ -11,12 +17,14 @@ import math
 import warnings
 
 import numpy as np
-from scipy.linalg import LinAlgWarning, lu_factor, lu_solve
+from scipy.linalg import LinAlgWarning, lu_factor
+from scipy.linalg.lapack import dgetrf, dgetrs
 
+from sweepshell.models.foundation_strip.compiled import fill_angle_jacobian, fill_angle_residual, is_finite
 from sweepshell.models.foundation_strip.elastica import StripProblem, compute_gradient, compute_hessian
 
-__all__ = ["PHI_WEIGHT", "build_weights", "compute_jacobian", "compute_residual", "factor_bordered",
-           "get_det_sign", "solve_newton", "solve_tangent"]
+__all__ = ["PHI_WEIGHT", "build_weights", "compute_jacobian", "compute_residual", "factor_at", "factor_bordered",
+           "get_det_sign", "lu_solve", "solve_newton", "solve_tangent"]
 
 PHI_WEIGHT = 30.0
 
@@ -31,6 +39,19 @@ def compute_residual(problem: StripProblem, X: np.ndarray) -> np.ndarray:
     r[n] = (h * np.sum(1.0 - cos) - problem.slack0) / L - d
     r[n + 1] = h * np.sum(sin) / L
     return r
+
+
+def _residual(problem: StripProblem, X: np.ndarray, out: np.ndarray) -> None:
+    """Write :func:`compute_residual` into ``out[:N + 2]`` (compiled angle rows)."""
+    g = problem.grid
+    n, h, L = g.n, g.h, g.length
+    phi = X[:n]
+    sin, cos = np.sin(phi), np.cos(phi)
+    fill_angle_residual(phi, sin, cos, float(X[n]), float(X[n + 1]), problem.kappa0, problem.ybar0,
+                        problem.cubic, h, out)
+    # ndarray.sum: the same pairwise reduction as np.sum, without its dispatch overhead
+    out[n] = (h * (1.0 - cos).sum() - problem.slack0) / L - X[n + 2]
+    out[n + 1] = h * sin.sum() / L
 
 
 def compute_jacobian(problem: StripProblem, X: np.ndarray) -> np.ndarray:
@@ -59,6 +80,35 @@ def build_weights(n: int) -> np.ndarray:
     return w
 
 
+def factor_at(problem: StripProblem, X: np.ndarray, row: np.ndarray):
+    """LU factors of the bordered matrix [J(X); row], or None if singular or not finite.
+
+    The same factors as ``factor_bordered(compute_jacobian(problem, X), row)``.
+    """
+    n = problem.grid.n
+    phi = X[:n]
+    A = np.empty((n + 3, n + 3), order="F")
+    fill_angle_jacobian(np.sin(phi), np.cos(phi), float(X[n]), float(X[n + 1]), problem.ybar0, problem.cubic,
+                        problem.grid.h, problem.grid.length, A)
+    A[-1] = row
+    return _factor(A)
+
+
+def _factor(A: np.ndarray):
+    if not is_finite(A):
+        return None
+    lu, piv, info = dgetrf(A, overwrite_a=1)
+    if info < 0 or not is_finite(lu) or np.abs(np.diag(lu)).min() == 0.0:
+        return None
+    return lu, piv
+
+
+def lu_solve(lu, b: np.ndarray) -> np.ndarray:
+    """Solve with LU factors of :func:`factor_at` or :func:`factor_bordered` (LAPACK ``getrs``)."""
+    x, _ = dgetrs(lu[0], lu[1], b)
+    return x
+
+
 def factor_bordered(J: np.ndarray, row: np.ndarray):
     """LU factors of the bordered matrix [J; row], or None if singular or not finite."""
     A = np.vstack([J, row])
@@ -75,8 +125,8 @@ def factor_bordered(J: np.ndarray, row: np.ndarray):
 def solve_tangent(lu, W: np.ndarray) -> np.ndarray | None:
     rhs = np.zeros(lu[0].shape[0])
     rhs[-1] = 1.0
-    t = lu_solve(lu, rhs, check_finite=False)
-    norm = math.sqrt(float(np.sum(W * t * t)))
+    t = lu_solve(lu, rhs)
+    norm = math.sqrt(float((W * t * t).sum()))
     if not math.isfinite(norm) or norm == 0.0:
         return None
     return t / norm
@@ -91,14 +141,16 @@ def solve_newton(problem: StripProblem, X: np.ndarray, row: np.ndarray, value: f
     most iterations at the cost of one O(N²) back-substitution.
     """
     last = math.inf
+    b = np.empty(X.shape[0])
     for it in range(1, max_iter + 1):
         if lu is None:
-            lu = factor_bordered(compute_jacobian(problem, X), row)
+            lu = factor_at(problem, X, row)
             if lu is None:
                 return None, it
-        b = -np.concatenate([compute_residual(problem, X), [float(row @ X) - value]])
-        dX = lu_solve(lu, b, check_finite=False)
-        size = float(np.max(np.abs(dX))) if np.all(np.isfinite(dX)) else math.inf
+        _residual(problem, X, b)
+        b[-1] = float(row @ X) - value
+        dX = lu_solve(lu, -b)
+        size = float(np.abs(dX).max()) if np.isfinite(dX).all() else math.inf
         if size > 10.0:
             return None, it
         X = X + dX

@@ -9,7 +9,7 @@ from scipy.linalg import svd
 
 from sweepshell.models.foundation_strip.bordered import (
     compute_jacobian,
-    factor_bordered,
+    factor_at,
     get_det_sign,
     solve_newton,
     solve_tangent,
@@ -68,10 +68,10 @@ def locate_bifurcation(problem: StripProblem, X: np.ndarray, t: np.ndarray, ds: 
         Xs, _ = solve_newton(problem, X + sigma * t, tw, float(tw @ (X + sigma * t)), None, tol, 16)
         if Xs is None:
             return None, 0
-        lu = factor_bordered(compute_jacobian(problem, Xs), tw)
+        lu = factor_at(problem, Xs, tw)
         return Xs, 0 if lu is None else get_det_sign(lu)
 
-    lu0 = factor_bordered(compute_jacobian(problem, X), tw)
+    lu0 = factor_at(problem, X, tw)
     if lu0 is None:
         return None
     sign_lo = get_det_sign(lu0)
@@ -108,7 +108,7 @@ def switch_branch(problem: StripProblem, Xb: np.ndarray, z: np.ndarray, W: np.nd
     X_new, _ = solve_newton(problem, Xb + eps * z, zw, float(zw @ (Xb + eps * z)), None, tol, 16)
     if X_new is None:
         return None
-    lu = factor_bordered(compute_jacobian(problem, X_new), zw)
+    lu = factor_at(problem, X_new, zw)
     t_new = None if lu is None else solve_tangent(lu, W)
     if t_new is None:
         return None

@@ -37,8 +37,7 @@ import numpy as np
 
 from sweepshell.models.foundation_strip.bordered import (
     build_weights,
-    compute_jacobian,
-    factor_bordered,
+    factor_at,
     get_det_sign,
     solve_newton,
     solve_tangent,
@@ -257,11 +256,11 @@ def _start_path(problem: StripProblem, path: StripPath, compliance: float, W: np
     _record(problem, path, X, compliance)
     t = np.zeros(n + 3)
     t[n] = 1.0  # load first
-    lu = factor_bordered(compute_jacobian(problem, X), t * W)
+    lu = factor_at(problem, X, t * W)
     t_maybe = None if lu is None else solve_tangent(lu, W)
     if t_maybe is None:
         return None
-    return X, t_maybe, factor_bordered(compute_jacobian(problem, X), t_maybe * W)
+    return X, t_maybe, factor_at(problem, X, t_maybe * W)
 
 
 def _corrected_step(problem: StripProblem, path: StripPath, X: np.ndarray, t: np.ndarray, lu: Any, ds: float,
@@ -277,13 +276,13 @@ def _corrected_step(problem: StripProblem, path: StripPath, X: np.ndarray, t: np
         X_new, its = solve_newton(problem, X_pred, tw, float(tw @ X_pred), lu, tol, 16)
         path.newton_iterations += its
         if X_new is not None:
-            lu_new = factor_bordered(compute_jacobian(problem, X_new), t * W)
+            lu_new = factor_at(problem, X_new, t * W)
             t_new = None if lu_new is None else solve_tangent(lu_new, W)
             if t_new is not None:
-                turn = float(np.sum(W * t_new * t))
+                turn = float((W * t_new * t).sum())
                 if turn < 0.0:
                     t_new, turn = -t_new, -turn
-                drift = math.sqrt(float(np.sum(W * (X_new - X_pred) ** 2)))
+                drift = math.sqrt(float((W * (X_new - X_pred) ** 2).sum()))
                 # a sharp turn, a change of shape or a long corrector may mean the step
                 # jumped to another branch (near a limit load the load barely changes while
                 # the shape does, so the shape gets its own test)
@@ -315,7 +314,7 @@ def _at_sign_change(problem: StripProblem, path: StripPath, X: np.ndarray, t: np
     X_new, t_new = switched
     _record(problem, path, Xb, compliance)
     path.bifurcations.append(len(path.load) - 1)
-    return False, _Step(X_new, t_new, factor_bordered(compute_jacobian(problem, X_new), t_new * W), 0, 1.0, 0.0)
+    return False, _Step(X_new, t_new, factor_at(problem, X_new, t_new * W), 0, 1.0, 0.0)
 
 
 def solve_at_confinement(problem: StripProblem, path: StripPath, target: float, *, compliance: float,

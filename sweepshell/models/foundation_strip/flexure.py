@@ -83,6 +83,29 @@ def _row(z: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     return z.real, -z.imag
 
 
+def _decaying_solution(D: np.ndarray, alpha: np.ndarray, n_ax: np.ndarray, end_load: np.ndarray,
+                       end_moment: np.ndarray, axial_force: np.ndarray,
+                       continuous: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Return the decaying root ``r`` and the coefficient ``C`` of ``w = Re(C e^{rξ})`` (see module docstring).
+
+    ``n_ax`` is N/(2√(DK)) inside (−1, 1); the end conditions are those of the broken or the
+    continuous plate.
+    """
+    # the decaying root with positive frequency: r = −a + ib, a, b > 0
+    r = np.conj(-np.sqrt(2.0 * (-n_ax + 1j * np.sqrt(1.0 - n_ax ** 2))))
+    bend = D / alpha ** 2  # converts d²w/dξ² to a moment
+    shear = D / alpha ** 3  # converts d³w/dξ³ to a force
+    ax = axial_force / alpha
+    one = np.ones_like(r)
+    # broken: shear row D w''' + N w' = V0, moment row D w'' = M0
+    shear_row = _row(shear * r ** 3 + ax * r)
+    c_broken = _solve_coefficient([_row(bend * r ** 2), shear_row], [end_moment, end_load])
+    # continuous: symmetric part (w' = 0, D w''' = V0/2) + antisymmetric (w = 0, D w'' = −M0/2)
+    c_sym = _solve_coefficient([_row(r), _row(shear * r ** 3)], [0.0 * end_load, 0.5 * end_load])
+    c_anti = _solve_coefficient([_row(one), _row(bend * r ** 2)], [0.0 * end_moment, -0.5 * end_moment])
+    return r, np.where(continuous, c_sym + c_anti, c_broken)
+
+
 def compute_flexure(elastic_thickness: np.ndarray, youngs_modulus: np.ndarray, poisson_ratio: np.ndarray,
                     density_contrast: np.ndarray, gravity: np.ndarray, end_load: np.ndarray,
                     end_moment: np.ndarray, axial_force: np.ndarray, continuous: np.ndarray) -> FlexureProfile:
@@ -119,20 +142,7 @@ def compute_flexure(elastic_thickness: np.ndarray, youngs_modulus: np.ndarray, p
     alpha = (4.0 * D / K) ** 0.25
     n_ax = axial_force / (2.0 * np.sqrt(D * K))
     valid = np.abs(n_ax) < 1.0
-    n_safe = np.where(valid, n_ax, 0.0)
-    # the decaying root with positive frequency: r = −a + ib, a, b > 0
-    r = np.conj(-np.sqrt(2.0 * (-n_safe + 1j * np.sqrt(1.0 - n_safe ** 2))))
-    bend = D / alpha ** 2  # converts d²w/dξ² to a moment
-    shear = D / alpha ** 3  # converts d³w/dξ³ to a force
-    ax = axial_force / alpha
-    one = np.ones_like(r)
-    # broken: shear row D w''' + N w' = V0, moment row D w'' = M0
-    shear_row = _row(shear * r ** 3 + ax * r)
-    c_broken = _solve_coefficient([_row(bend * r ** 2), shear_row], [end_moment, end_load])
-    # continuous: symmetric part (w' = 0, D w''' = V0/2) + antisymmetric (w = 0, D w'' = −M0/2)
-    c_sym = _solve_coefficient([_row(r), _row(shear * r ** 3)], [0.0 * end_load, 0.5 * end_load])
-    c_anti = _solve_coefficient([_row(one), _row(bend * r ** 2)], [0.0 * end_moment, -0.5 * end_moment])
-    C = np.where(continuous, c_sym + c_anti, c_broken)
+    r, C = _decaying_solution(D, alpha, np.where(valid, n_ax, 0.0), end_load, end_moment, axial_force, continuous)
 
     a, b = -r.real, r.imag
     mag, theta = np.abs(C), np.angle(C)

@@ -218,7 +218,7 @@ def test_airy_reduction_agrees_with_displacement_form(substrate: str) -> None:
 
 
 def test_numerical_trouble_is_status_failed_not_an_exception(monkeypatch: pytest.MonkeyPatch) -> None:
-    import sweepshell.models.foundation_sheet.model as module
+    import sweepshell.models.foundation_sheet.point as module
 
     def explode(*args: Any, **kwargs: Any) -> None:
         raise FloatingPointError("overflow encountered")
