@@ -61,7 +61,8 @@ def build_parser() -> argparse.ArgumentParser:
         description="Run a sweep: SWEEP is a name in configs/sweep/ or a path to a YAML file. Running it again "
                     "continues where it stopped. Overrides use hydra's grammar, e.g. fixed.poisson_ratio=0.25 "
                     "axes.shell_parameter=range(3,12,0.5) axes.edge=clamped,pinned store.path=scratch/x.zarr "
-                    "executor=threads executor.workers=1.",
+                    "executor=threads executor.workers=1. The default executor (auto) computes small sweeps in this "
+                    "process and starts local worker processes for larger ones.",
         epilog=EXIT_CODES_HELP + ". " + _CAUTION_HELP)
     run.add_argument("sweep", metavar="SWEEP")
     run.add_argument("overrides", nargs="*", metavar="OVERRIDE")
@@ -102,7 +103,7 @@ def _cmd_run(args: argparse.Namespace) -> int:
     if args.dry_run:
         shape = " x ".join(f"{a.name}[{len(a)}]" for a in plan.axes)
         print(f"sweep {plan.name}: model {plan.model} {plan.model_version}, {plan.n_points} points ({shape}), "
-              f"store {plan.store_path}, executor {plan.executor.kind}")
+              f"store {plan.store_path}; {plan.describe_executor()}")
         print(plan.resolved_yaml, end="")
         return EXIT_OK
     from sweepshell.engine.observers import make_observer

@@ -1,4 +1,4 @@
-"""Run a plan: create or reopen the store, find unfinished blocks, compute them on dask.
+"""Run a plan: create or reopen the store, find unfinished blocks, compute them on dask or in this process.
 
 Resume is the normal case: the ledger says which blocks are final, and only the others are
 submitted. Interrupting (Ctrl-C) cancels outstanding blocks; blocks whose status was not
@@ -20,6 +20,7 @@ from typing import Any
 import numpy as np
 
 from sweepshell.engine.claims import ClaimBook, remove_stale_claims
+from sweepshell.engine.inprocess import drive_in_process
 from sweepshell.engine.observers import RunObserver, SilentObserver
 from sweepshell.engine.reuse import Donor, find_donors
 from sweepshell.engine.worker import compute_block
@@ -81,6 +82,9 @@ class RunSummary:
         Wall time of the run, including start-up of workers.
     model_seconds
         Time spent inside the model, summed over workers.
+    extra
+        ``executor`` (``"in-process"`` when no cluster was started, else the executor kind; absent when nothing
+        was computed), ``by_other_runners``, ``damaged_blocks``.
     """
 
     store_path: str
@@ -162,8 +166,8 @@ def start_client(spec: ExecutorSpec) -> tuple[Any, Any]:
 
 
 @contextlib.contextmanager
-def _client_started_early(plan: SweepPlan) -> Iterator[Callable[[], Any]]:
-    """Start the workers in the background while a new store's template is written.
+def _client_started_early(plan: SweepPlan, early_start: bool) -> Iterator[Callable[[], Any]]:
+    """Start the workers in the background (if ``early_start``) while a new store's template is written.
 
     Yields a function returning the client (waiting for it); whatever was started is closed on exit. For an
     existing store nothing starts early: it may well be complete, and then no workers are needed.
@@ -171,7 +175,7 @@ def _client_started_early(plan: SweepPlan) -> Iterator[Callable[[], Any]]:
     from concurrent.futures import ThreadPoolExecutor
 
     pool = ThreadPoolExecutor(1, thread_name_prefix="sweepshell-start")
-    early = None if Path(plan.store_path).exists() else pool.submit(start_client, plan.executor)
+    early = pool.submit(start_client, plan.executor) if early_start else None
     started: list[tuple[Any, Any]] = []
 
     def get() -> Any:
@@ -218,10 +222,12 @@ def run_plan(plan: SweepPlan, *, observer: RunObserver | None = None, claim_ttl:
     existing = Path(path).exists()
     # an existing store is checked (a store of another sweep is refused) before anything starts
     block_shape: tuple[int, ...] = prepare_store(plan, model)[0] if existing else ()
-    tally = {"model_seconds": 0.0, "computed": 0, "blocks": 0, "by_others": 0, "reused": 0, "damaged": 0}
+    tally: dict[str, Any] = {"model_seconds": 0.0, "computed": 0, "blocks": 0, "by_others": 0, "reused": 0, "damaged": 0}
     claims: ClaimBook | None = None
+    # a new store of small estimated work is computed here: no workers start early
+    early_start = not existing and not plan.executor.runs_in_process(plan.estimated_seconds())
     try:
-        with _client_started_early(plan) as get_client:
+        with _client_started_early(plan, early_start) as get_client:
             if not existing:
                 block_shape, _ = prepare_store(plan, model)
             ledger = read_ledger(path, block_shape)
@@ -235,9 +241,16 @@ def run_plan(plan: SweepPlan, *, observer: RunObserver | None = None, claim_ttl:
             to_compute = sum(b.n_points for b in pending)
             claims = ClaimBook(path, ttl=claim_ttl)
             donors = find_donors(plan, model) if plan.reuse else []
-            client = get_client()
-            observer.start(plan.n_points, plan.n_points - to_compute, to_compute)
-            _drive(client, plan, pending, claims, observer, tally, donors)
+            in_process = plan.executor.runs_in_process(plan.estimated_seconds(to_compute))
+            tally["executor"] = "in-process" if in_process else plan.executor.kind
+            log.info("%s", plan.describe_executor(to_compute))
+            if in_process:
+                observer.start(plan.n_points, plan.n_points - to_compute, to_compute)
+                drive_in_process(plan, pending, claims, observer, tally, donors)
+            else:
+                client = get_client()
+                observer.start(plan.n_points, plan.n_points - to_compute, to_compute)
+                _drive(client, plan, pending, claims, observer, tally, donors)
     except KeyboardInterrupt:
         if claims is None or not block_shape:
             raise
@@ -399,7 +412,8 @@ def _final_summary(plan: SweepPlan, block_shape: tuple[int, ...], tally: dict[st
     return RunSummary(store_path=plan.store_path, total=plan.n_points, counts=_counts(ledger),
                       computed=tally["computed"], blocks=tally["blocks"], wall_seconds=time.perf_counter() - t0,
                       model_seconds=tally["model_seconds"], reused=tally["reused"],
-                      extra={"by_other_runners": tally["by_others"], "damaged_blocks": tally["damaged"]})
+                      extra={"by_other_runners": tally["by_others"], "damaged_blocks": tally["damaged"],
+                             "executor": tally.get("executor")})
 
 
 def run_sweep(plan: SweepPlan, *, observer: RunObserver | None = None) -> RunSummary:
