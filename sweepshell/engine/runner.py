@@ -222,7 +222,8 @@ def run_plan(plan: SweepPlan, *, observer: RunObserver | None = None, claim_ttl:
     existing = Path(path).exists()
     # an existing store is checked (a store of another sweep is refused) before anything starts
     block_shape: tuple[int, ...] = prepare_store(plan, model)[0] if existing else ()
-    tally: dict[str, Any] = {"model_seconds": 0.0, "computed": 0, "blocks": 0, "by_others": 0, "reused": 0, "damaged": 0}
+    tally: dict[str, Any] = {"model_seconds": 0.0, "computed": 0, "blocks": 0, "by_others": 0, "reused": 0,
+                             "damaged": 0}
     claims: ClaimBook | None = None
     # a new store of small estimated work is computed here: no workers start early
     early_start = not existing and not plan.executor.runs_in_process(plan.estimated_seconds())
