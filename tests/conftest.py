@@ -183,3 +183,12 @@ def cap_inputs(lam: Any, **columns: Any) -> dict[str, np.ndarray]:
     from sweepshell.models.shallow_cap.model import ShallowCapModel
 
     return model_inputs(ShallowCapModel, shell_parameter=np.atleast_1d(np.asarray(lam, dtype=float)), **columns)
+
+
+@pytest.fixture(scope="session")
+def shape_stores(tmp_path_factory: pytest.TempPathFactory) -> dict[str, Path]:
+    """Read-only synthetic stores of the shape view: ``cap`` (height fields), ``strip`` (sections), ``plain`` (none)."""
+    from tests.plot.shape_stores import make_cap_store, make_plain_store, make_strip_store
+
+    folder = tmp_path_factory.mktemp("shapes")
+    return {"cap": make_cap_store(folder), "strip": make_strip_store(folder), "plain": make_plain_store(folder)}

@@ -93,7 +93,7 @@ def build_parser() -> argparse.ArgumentParser:
 
 #: modules adding further commands; each has ``register(subparsers)`` and imports heavy libraries lazily.
 #: Every command function returns an exit code and raises SweepshellError for bad input.
-_COMMAND_MODULES: tuple[str, ...] = ("sweepshell.cli.analysis", "sweepshell.cli.team")
+_COMMAND_MODULES: tuple[str, ...] = ("sweepshell.cli.analysis", "sweepshell.cli.shape", "sweepshell.cli.team")
 
 
 def _cmd_run(args: argparse.Namespace) -> int:

@@ -37,6 +37,7 @@ __all__ = [
 # name -> (module, class); a fixed table of our own code, never extended from input
 _REGISTRY: dict[str, tuple[str, str]] = {
     "shallow_cap": ("sweepshell.models.shallow_cap.model", "ShallowCapModel"),
+    "cap_postbuckling": ("sweepshell.models.cap_postbuckling.model", "CapPostbucklingModel"),
     "foundation_strip": ("sweepshell.models.foundation_strip.model", "FoundationStripModel"),
     "foundation_sheet": ("sweepshell.models.foundation_sheet.model", "FoundationSheetModel"),
     "winkler_column": ("sweepshell.models.winkler_column.model", "WinklerColumnModel"),

@@ -17,6 +17,7 @@ from typing import TYPE_CHECKING, Any
 import numpy as np
 
 from sweepshell.about import CAUTION
+from sweepshell.errors import QueryError
 from sweepshell.query.boundary import find_boundary
 from sweepshell.query.table import describe_fields, select_points
 from sweepshell.store.metadata import ATTR
@@ -29,6 +30,7 @@ __all__ = ["write_report"]
 
 _MAX_MAPS = 4
 _MAX_VERTICES = 25
+_SHAPES_PER_FIGURE = 4
 
 _STYLE = """
 body { font-family: system-ui, -apple-system, "Segoe UI", sans-serif; max-width: 1000px; margin: 2em auto;
@@ -93,6 +95,31 @@ def _line_plots(ds: xr.Dataset, info: Any) -> str:
         html_parts.append(f"<figure><img alt='{html.escape(output)} against {html.escape(numeric[0])}' "
                           f"src='data:image/png;base64,{_png(result.figure)}'></figure>")
     return "\n".join(html_parts)
+
+
+def _shape_section(ds: xr.Dataset) -> list[str]:
+    """Shapes at one representative point per regime, for stores that hold a shape (none otherwise)."""
+    from sweepshell.plot.shape import describe_point, draw_shapes, find_shape_output, pick_representative_points
+
+    try:
+        output = find_shape_output(ds)
+    except QueryError:
+        return []
+    picked = pick_representative_points(ds, output)
+    parts = ["<h2>Shapes</h2>"]
+    if not picked:
+        return [*parts, "<p>No point with a trusted result holds a shape.</p>"]
+    parts.append("<p class='muted'>One point per regime: the trusted point with a stored shape nearest the "
+                 "regime's median position on the grid. Draw others with <code>sweepshell shape</code>.</p>")
+    for start in range(0, len(picked), _SHAPES_PER_FIGURE):
+        chunk = picked[start:start + _SHAPES_PER_FIGURE]
+        result = draw_shapes(ds, [at for _, at in chunk])
+        where = "; ".join(f"{name.replace('_', ' ')}: {describe_point(ds, point, symbols=False)}"
+                          for (name, _), point in zip(chunk, result.points, strict=True))
+        parts.append(f"<figure><img alt='stored shapes at representative points' "
+                     f"src='data:image/png;base64,{_png(result.figure)}'><figcaption class='muted'>"
+                     f"{html.escape(where)}</figcaption></figure>")
+    return parts
 
 
 def write_report(ds: xr.Dataset, store_path: str) -> str:
@@ -161,6 +188,8 @@ def write_report(ds: xr.Dataset, store_path: str) -> str:
                 + _table(["line", x, y, "bracket low", "bracket high", "bracket along"], shown))
     parts.append("<h2>Boundaries</h2>")
     parts.extend(boundary_sections or ["<p>No boundary between two regimes on these maps.</p>"])
+
+    parts.extend(_shape_section(ds))
 
     parts.append("<h2>Extreme points</h2><p class='muted'>Smallest and largest value of each scalar output over "
                  "the points with a trustworthy status.</p>")
