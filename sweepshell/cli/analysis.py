@@ -17,6 +17,7 @@ import sys
 from typing import TYPE_CHECKING, Any
 
 from sweepshell.about import CAUTION
+from sweepshell.cli.options import STORE_HELP, add_format_option, add_out_option
 from sweepshell.errors import QueryError
 
 if TYPE_CHECKING:
@@ -30,7 +31,7 @@ _WHERE_HELP = (
     "not and parentheses; arithmetic + - * / ** %% between numbers. regime and status compare by name "
     "(regime == \"buckled\"); source is \"grid\" or \"points\" (evaluated off the grid). Strings in double or "
     "single quotes. No calls, attribute access, indexing or other names: an expression never runs code. "
-    "Example: --where 'stiffness_ratio > 5 and regime == \"buckled\"'"
+    "Example (a shallow_cap store): --where 'shell_parameter > 5 and regime == \"bifurcation\"'"
 )
 _TABLE_LIMIT = 40
 
@@ -45,13 +46,13 @@ def register(subparsers: Any) -> None:
         epilog="JSON is a list of objects, one per point, with the axis values and the requested fields "
                "(regime and status as names, missing values as null). The caution about critical loads goes "
                "to stderr, so stdout stays clean CSV/JSON. " + CAUTION)
-    q.add_argument("store", metavar="STORE")
+    q.add_argument("store", metavar="STORE", help=STORE_HELP)
     q.add_argument("--where", metavar="EXPR", help=_WHERE_HELP)
     q.add_argument("--fields", metavar="A,B", help="comma-separated fields besides the axes "
                    "(default: every scalar output and regime)")
     q.add_argument("--sort", metavar="FIELD", help="sort by FIELD; --sort=-FIELD sorts descending")
     q.add_argument("--limit", metavar="N", type=int, help=f"at most N rows (table default {_TABLE_LIMIT})")
-    q.add_argument("--format", choices=("table", "csv", "json"), default="table", help="output format")
+    add_format_option(q, ("table", "csv", "json"), "table")
     q.add_argument("--all", action="store_true",
                    help="include points whose status is not trustworthy (not_converged, outside_validity, "
                         "failed), with their status")
@@ -168,7 +169,7 @@ def _register_map(subparsers: Any) -> None:
                     "of a third axis (--color AXIS, default the first other axis with few values). Axes given in "
                     "log spacing are drawn on log scales. Every other axis is fixed by --at NAME=VALUE (nearest "
                     "grid value, reported) or at its first value.")
-    m.add_argument("store", metavar="STORE")
+    m.add_argument("store", metavar="STORE", help=STORE_HELP)
     m.add_argument("--x", required=True, metavar="AXIS", help="axis along the horizontal")
     m.add_argument("--y", required=True, metavar="AXIS|OUTPUT", help="axis (regime map) or output (line plot)")
     m.add_argument("--color", metavar="VAR", help="map: 'regime' (default) or a scalar output drawn as a colour "
@@ -176,8 +177,15 @@ def _register_map(subparsers: Any) -> None:
     m.add_argument("--contour", metavar="OUTPUT", help="labelled contour lines of a scalar output (map)")
     m.add_argument("--at", action="append", metavar="NAME=VALUE", help="fix another axis (repeatable)")
     m.add_argument("--show-points", action="store_true", help="mark the off-grid points (refinement, bisection)")
-    m.add_argument("--out", metavar="FILE", help="FILE.png or FILE.svg (default: <store>-<x>-<y>.png)")
+    add_out_option(m, "FILE.png or FILE.svg (default: <store>-<x>-<y>.png)")
+    _add_no_caution(m)
     m.set_defaults(func=_cmd_map)
+
+
+def _add_no_caution(parser: Any) -> None:
+    parser.add_argument("--no-caution", action="store_true",
+                        help="leave the caution footer off the picture (for a figure in a paper); the caution "
+                             "stays in the file's metadata, and reports always show it")
 
 
 def _out_path(args: argparse.Namespace, suffix: str) -> str:
@@ -206,11 +214,11 @@ def _cmd_map(args: argparse.Namespace) -> int:
     info = describe_fields(ds)
     if args.y in info.axes:
         result = draw_regime_map(ds, args.x, args.y, color=args.color, contour=args.contour, at=at,
-                                 show_points=args.show_points)
+                                 show_points=args.show_points, caution=not args.no_caution)
     else:
         if args.contour:
             raise QueryError("--contour applies to regime maps (--y AXIS), not to line plots", field="contour")
-        result = draw_output_lines(ds, args.x, args.y, series=args.color, at=at)
+        result = draw_output_lines(ds, args.x, args.y, series=args.color, at=at, caution=not args.no_caution)
     return _save_and_tell(result.figure, out, [f"fixed {cut.describe()}" for cut in result.view.cuts]
                           + list(result.notes))
 
@@ -234,7 +242,7 @@ def _register_boundary(subparsers: Any) -> None:
                     "times with new model evaluations (the model is rebuilt from the store by registered name; a "
                     "store of another model version is refused). New points are recorded in the store's point "
                     "list, so later maps, queries and boundaries use them. Other axes are fixed by --at.")
-    b.add_argument("store", metavar="STORE")
+    b.add_argument("store", metavar="STORE", help=STORE_HELP)
     b.add_argument("--between", nargs=2, required=True, metavar=("A", "B"), help="two regime names")
     b.add_argument("--x", metavar="AXIS", help="horizontal axis (default: the first numeric axis)")
     b.add_argument("--y", metavar="AXIS", help="vertical axis (default: the next numeric axis)")
@@ -243,8 +251,8 @@ def _register_boundary(subparsers: Any) -> None:
                    help="bisections per grid edge (default 6: brackets of 1/64 of the spacing); 0 = no new "
                         "evaluations")
     b.add_argument("--no-record", action="store_true", help="do not add the new points to the store")
-    b.add_argument("--format", choices=("csv", "json"), default="csv", help="output format (default csv)")
-    b.add_argument("--out", metavar="FILE", help="write to FILE instead of stdout")
+    add_format_option(b, ("csv", "json"), "csv")
+    add_out_option(b, "write to FILE instead of stdout")
     b.set_defaults(func=_cmd_boundary)
 
 
@@ -309,14 +317,15 @@ def _register_path(subparsers: Any) -> None:
         description="Plot an output with an extra dimension (e.g. a sampled load path) at one or more points, "
                     "overlaid. Each --at gives one point as comma-separated NAME=VALUE pairs (nearest grid values, "
                     "reported); axes not named take their first value.")
-    p.add_argument("store", metavar="STORE")
+    p.add_argument("store", metavar="STORE", help=STORE_HELP)
     p.add_argument("--at", action="append", metavar="NAME=VALUE[,NAME=VALUE...]", help="one point (repeatable)")
     p.add_argument("--y", metavar="OUTPUT[:COMPONENT]", help="path output to draw, with the component for outputs "
                    "stored in parts, e.g. load_path:load (default: the first path output, its load against its "
                    "other component)")
     p.add_argument("--x", metavar="OUTPUT[:COMPONENT]", help="path output along the horizontal (default: the "
                    "other component, or the sample index)")
-    p.add_argument("--out", metavar="FILE", help="FILE.png or FILE.svg (default: <store>-path.png)")
+    add_out_option(p, "FILE.png or FILE.svg (default: <store>-path.png)")
+    _add_no_caution(p)
     p.set_defaults(func=_cmd_path)
 
 
@@ -326,7 +335,7 @@ def _cmd_path(args: argparse.Namespace) -> int:
     ds = _open(args.store)
     points = [parse_point(text) for text in args.at or []]
     out = _out_path(args, "path")
-    result = draw_load_paths(ds, points, y=args.y, x=args.x)
+    result = draw_load_paths(ds, points, y=args.y, x=args.x, caution=not args.no_caution)
     return _save_and_tell(result.figure, out, list(result.notes))
 
 
@@ -337,8 +346,8 @@ def _register_report(subparsers: Any) -> None:
                     "axes, completeness, provenance), regime maps, the boundaries (from stored points; sharpen them "
                     "first with `sweepshell boundary` or `sweepshell refine`), the extreme points of every output "
                     "and the caution.")
-    r.add_argument("store", metavar="STORE")
-    r.add_argument("--out", metavar="FILE.html", help="output file (default: <store>-report.html)")
+    r.add_argument("store", metavar="STORE", help=STORE_HELP)
+    add_out_option(r, "output file (default: <store>-report.html)", metavar="FILE.html")
     r.set_defaults(func=_cmd_report)
 
 
@@ -368,7 +377,7 @@ def _register_refine(subparsers: Any) -> None:
                     "(finest spacing = grid spacing / 2^levels). New points go to the store's point list and are "
                     "used by query, map and boundary; running refine again reuses them. Other axes: every "
                     "combination of their values, or fixed with --at.")
-    r.add_argument("store", metavar="STORE")
+    r.add_argument("store", metavar="STORE", help=STORE_HELP)
     r.add_argument("--levels", type=int, default=3, help="levels of refinement (default 3)")
     r.add_argument("--x", metavar="AXIS", help="first axis (default: the first numeric axis)")
     r.add_argument("--y", metavar="AXIS", help="second axis (default: the next numeric axis)")

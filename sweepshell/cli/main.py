@@ -19,9 +19,10 @@ import logging
 import os
 import sys
 from collections.abc import Sequence
-from typing import NoReturn
+from typing import Any, NoReturn
 
 from sweepshell.about import CAUTION, __version__
+from sweepshell.cli.options import STORE_HELP, add_format_option
 from sweepshell.errors import SweepshellError
 
 __all__ = ["build_parser", "main"]
@@ -58,14 +59,15 @@ def build_parser() -> argparse.ArgumentParser:
 
     run = sub.add_parser(
         "run", help="run (or resume) a sweep",
-        description="Run a sweep: SWEEP is a name in configs/sweep/ or a path to a YAML file. Running it again "
+        description="Run a sweep: SWEEP is a name in configs/sweep/, a path to a YAML file, or a store (which "
+                    "continues from the sweep recorded in it, e.g. a merged store). Running it again "
                     "continues where it stopped. Overrides use hydra's grammar, e.g. fixed.poisson_ratio=0.25 "
                     "axes.shell_parameter=range(3,12,0.5) axes.edge=clamped,pinned store.path=scratch/x.zarr "
                     "executor=threads executor.workers=1. The default executor (auto) computes small sweeps in this "
                     "process and starts local worker processes for larger ones.",
         epilog=EXIT_CODES_HELP + ". " + _CAUTION_HELP)
-    run.add_argument("sweep", metavar="SWEEP")
-    run.add_argument("overrides", nargs="*", metavar="OVERRIDE")
+    run.add_argument("sweep", metavar="SWEEP", help="sweep name, sweep YAML file, or store to continue")
+    run.add_argument("overrides", nargs="*", metavar="OVERRIDE", help="key=value in hydra's grammar (see above)")
     run.add_argument("--config-dir", help="the configs/ folder (default: ./configs)")
     run.add_argument("--progress", choices=("auto", "bar", "lines", "none"), default="auto",
                      help="progress display (default: a bar on a terminal, periodic lines otherwise)")
@@ -75,13 +77,13 @@ def build_parser() -> argparse.ArgumentParser:
 
     status = sub.add_parser("status", help="what a store holds and how complete it is",
                             description="Counts per status, model and version, axes, completeness.")
-    status.add_argument("store", metavar="STORE")
-    status.add_argument("--json", action="store_true", help="print JSON")
+    status.add_argument("store", metavar="STORE", help=STORE_HELP)
+    add_format_option(status)
     status.set_defaults(func=_cmd_status)
 
     models = sub.add_parser("models", help="the registered models",
                             description="List the registered models with parameters, outputs and regimes.")
-    models.add_argument("--json", action="store_true", help="print JSON")
+    add_format_option(models)
     models.set_defaults(func=_cmd_models)
 
     for module_name in _COMMAND_MODULES:
@@ -97,14 +99,14 @@ _COMMAND_MODULES: tuple[str, ...] = ("sweepshell.cli.analysis", "sweepshell.cli.
 
 
 def _cmd_run(args: argparse.Namespace) -> int:
-    from sweepshell.config.loader import load_plan
-
-    plan = load_plan(args.sweep, args.overrides, config_dir=args.config_dir)
+    plan = _load_run_plan(args)
     if args.dry_run:
+        store_note = _describe_existing_store(plan)  # a store the run would refuse is refused here too
         shape = " x ".join(f"{a.name}[{len(a)}]" for a in plan.axes)
         print(f"sweep {plan.name}: model {plan.model} {plan.model_version}, {plan.n_points} points ({shape}), "
               f"store {plan.store_path}; {plan.describe_executor()}")
         print(plan.resolved_yaml, end="")
+        print(store_note, file=sys.stderr)
         return EXIT_OK
     from sweepshell.engine.observers import make_observer
     from sweepshell.engine.runner import SweepInterrupted, refine_plan_store, run_plan
@@ -123,11 +125,52 @@ def _cmd_run(args: argparse.Namespace) -> int:
     return EXIT_OK
 
 
+def _describe_existing_store(plan: Any) -> str:
+    """Say what a run would do with the plan's store; raise the run's own error if it would refuse it."""
+    from pathlib import Path
+
+    path = Path(plan.store_path)
+    if not path.exists():
+        return f"store {path} does not exist yet: the run creates it"
+    from sweepshell.models import make_model
+    from sweepshell.store.writer import check_store_matches
+
+    check_store_matches(path, plan, make_model(plan.model, plan.settings))
+    return f"store {path} exists and matches this sweep: the run continues it"
+
+
+def _load_run_plan(args: argparse.Namespace) -> Any:
+    """Return the plan of ``run SWEEP`` — or of ``run STORE``: the store's own recorded sweep, into that store."""
+    import tempfile
+    from pathlib import Path
+
+    from sweepshell.config.loader import load_plan
+    from sweepshell.store.metadata import is_store
+
+    store = Path(args.sweep.rstrip("/"))
+    if not is_store(store):
+        return load_plan(args.sweep, args.overrides, config_dir=args.config_dir)
+    from sweepshell.store.metadata import ATTR
+    from sweepshell.store.reader import check_readable_store, read_attrs
+
+    check_readable_store(str(store))
+    recorded = str(read_attrs(str(store)).get(ATTR.sweep_yaml) or "")
+    if not recorded.strip():
+        from sweepshell.errors import ConfigError
+
+        raise ConfigError(f"store {str(store)!r} records no sweep; run it with its sweep file instead",
+                          field="sweep", value=args.sweep)
+    with tempfile.TemporaryDirectory(prefix="sweepshell-") as folder:
+        sweep_file = Path(folder) / f"{store.stem}.yaml"
+        sweep_file.write_text(recorded, encoding="utf-8")
+        return load_plan(str(sweep_file), [f"store.path={store}", *args.overrides], config_dir=args.config_dir)
+
+
 def _cmd_status(args: argparse.Namespace) -> int:
     from sweepshell.store.summary import summarize_store
 
     info = summarize_store(args.store)
-    if args.json:
+    if args.format == "json":
         print(json.dumps(info, indent=2))
         return EXIT_OK
     axes = ", ".join(f"{a['name']}[{a['size']}] {a['min']}..{a['max']}" for a in info["axes"])
@@ -153,7 +196,7 @@ def _cmd_models(args: argparse.Namespace) -> int:
     from sweepshell.models import list_models, make_model
 
     described = [make_model(name).describe() for name in list_models()]
-    if args.json:
+    if args.format == "json":
         print(json.dumps(described, indent=2))
         return EXIT_OK
     for d in described:

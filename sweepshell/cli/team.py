@@ -13,6 +13,8 @@ import json
 import sys
 from typing import Any
 
+from sweepshell.cli.options import STORE_HELP, add_format_option, add_out_option
+
 __all__ = ["register"]
 
 EXIT_OK = 0
@@ -28,7 +30,7 @@ def register(subparsers: Any) -> None:
                     "(DIR/.sweepshell-catalog.sqlite) caches what did not change; the stores stay the source "
                     "of truth and a damaged or foreign index is rebuilt.")
     cat.add_argument("dir", metavar="DIR", nargs="?", default="results", help="results folder (default results/)")
-    cat.add_argument("--json", action="store_true", help="print JSON")
+    add_format_option(cat)
     cat.add_argument("--no-index", action="store_true", help="read every store; neither read nor write the index")
     cat.add_argument("--clean", action="store_true",
                      help="remove leftovers of killed processes (half-built stores, stale block claims)")
@@ -42,9 +44,9 @@ def register(subparsers: Any) -> None:
                     "point final in both with different values is a conflict: merge stops and names the first "
                     "few unless --prefer picks a side. C records both sources in its merged_from_json "
                     "attribute.")
-    merge.add_argument("a", metavar="A")
-    merge.add_argument("b", metavar="B")
-    merge.add_argument("-o", "--output", required=True, metavar="C", help="the new store (must not exist)")
+    merge.add_argument("a", metavar="A", help="first store")
+    merge.add_argument("b", metavar="B", help="second store")
+    add_out_option(merge, "the new store (must not exist)", required=True, metavar="C")
     merge.add_argument("--prefer", choices=("a", "b"), help="on conflicting points keep A's (a) or B's (b) values")
     merge.set_defaults(func=_cmd_merge)
 
@@ -55,8 +57,8 @@ def register(subparsers: Any) -> None:
                     "regime -1, trusted ones a regime). Reports the blocks a run would recompute.",
         epilog="Exit codes: 0 consistent (pending blocks are not a problem), 1 problems found (also when "
                "--repair reset them), 2 bad input (no store, not a sweepshell store, unknown schema).")
-    verify.add_argument("store", metavar="STORE")
-    verify.add_argument("--json", action="store_true", help="print JSON")
+    verify.add_argument("store", metavar="STORE", help=STORE_HELP)
+    add_format_option(verify)
     verify.add_argument("--repair", action="store_true",
                         help="set blocks whose status is final but whose chunks do not decode or whose values break "
                              "the ledger rules back to pending, so the next run recomputes them")
@@ -68,10 +70,9 @@ def register(subparsers: Any) -> None:
                     "scipy; status stored as int8, list attributes joined into strings). csv and parquet: one "
                     "row per grid point with the axis values, every output without extra dimensions, the regime "
                     "name and the status name (parquet needs pyarrow).")
-    export.add_argument("store", metavar="STORE")
-    export.add_argument("--format", required=True, choices=("netcdf", "csv", "parquet"))
-    export.add_argument("-o", "--output", metavar="FILE",
-                        help="output file (default: STORE with .nc/.csv/.parquet); '-' writes CSV to stdout")
+    export.add_argument("store", metavar="STORE", help=STORE_HELP)
+    export.add_argument("--format", required=True, choices=("netcdf", "csv", "parquet"), help="file format")
+    add_out_option(export, "output file (default: STORE with .nc/.csv/.parquet); '-' writes CSV to stdout")
     export.add_argument("--force", action="store_true", help="replace FILE if it exists")
     export.set_defaults(func=_cmd_export)
 
@@ -96,7 +97,7 @@ def _cmd_catalog(args: argparse.Namespace) -> int:
     from sweepshell.store.catalog import read_catalog
 
     listing = read_catalog(args.dir, use_index=not args.no_index, clean=args.clean)
-    if args.json:
+    if args.format == "json":
         print(json.dumps(listing.to_dict(), indent=2))
         return EXIT_OK
     for left in listing.leftovers:
@@ -124,7 +125,7 @@ def _cmd_catalog(args: argparse.Namespace) -> int:
 def _cmd_merge(args: argparse.Namespace) -> int:
     from sweepshell.store.merge import merge_stores
 
-    report = merge_stores(args.a, args.b, args.output, prefer=args.prefer)
+    report = merge_stores(args.a, args.b, args.out, prefer=args.prefer)
     print(report.to_line())
     return EXIT_OK
 
@@ -133,7 +134,7 @@ def _cmd_verify(args: argparse.Namespace) -> int:
     from sweepshell.store.verify import verify_store
 
     report = verify_store(args.store, repair=args.repair)
-    if args.json:
+    if args.format == "json":
         print(json.dumps(report.to_dict(), indent=2))
     else:
         for line in report.to_lines():
@@ -144,8 +145,8 @@ def _cmd_verify(args: argparse.Namespace) -> int:
 def _cmd_export(args: argparse.Namespace) -> int:
     from sweepshell.store.export import export_store
 
-    target = export_store(args.store, args.format, args.output, overwrite=args.force,
-                          stdout=sys.stdout if args.output == "-" else None)
+    target = export_store(args.store, args.format, args.out, overwrite=args.force,
+                          stdout=sys.stdout if args.out == "-" else None)
     if target is not None:
-        print(f"wrote {target}", file=sys.stderr if args.output == "-" else sys.stdout)
+        print(f"wrote {target}", file=sys.stderr if args.out == "-" else sys.stdout)
     return EXIT_OK

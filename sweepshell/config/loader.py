@@ -13,6 +13,7 @@ from __future__ import annotations
 
 import inspect
 import json
+import logging
 import math
 import os
 import re
@@ -29,6 +30,8 @@ from sweepshell.models import get_model
 from sweepshell.models.base import SweepModel
 from sweepshell.plan import IN_PROCESS_SECONDS, Axis, ExecutorSpec, SweepPlan
 from sweepshell.store.integrity import check_model_limits, check_store_path
+
+log = logging.getLogger(__name__)
 
 __all__ = ["find_config_dir", "load_plan", "parse_overrides", "resolve_sweep_file"]
 
@@ -61,6 +64,11 @@ def find_config_dir(explicit: str | os.PathLike[str] | None = None) -> Path:
 def resolve_sweep_file(sweep: str, config_dir: Path) -> Path:
     """Return the YAML file of ``sweep``: a path, or a name in ``configs/sweep/``."""
     p = Path(sweep)
+    from sweepshell.store.metadata import is_store
+
+    if is_store(p):
+        raise ConfigError(f"{sweep!r} is a store, not a sweep file; `sweepshell run STORE` continues it from its "
+                          "recorded sweep", field="sweep", value=sweep)
     if p.suffix in (".yaml", ".yml") or os.sep in sweep or p.is_file():
         if p.is_file():
             return p
@@ -389,9 +397,12 @@ def build_plan(cfg: Mapping[str, Any], *, source: str = "<dict>") -> SweepPlan:
         if isinstance(value, (list, dict)):
             raise ConfigError(f"fixed.{pname}={value!r} is not a single value; move it to axes to sweep it",
                               field=f"fixed.{pname}", value=value)
-        if isinstance(value, float) and not math.isfinite(value):
-            raise ConfigError(f"fixed.{pname}={value!r} is not a finite number; give a finite value",
-                              field=f"fixed.{pname}", value=value)
+        if value is None and isinstance(param.default, float) and math.isnan(param.default):
+            fixed[pname] = param.default  # an optional parameter left unset (recorded plans write null)
+            continue
+        if isinstance(value, float) and not math.isfinite(value) and not param.admits_infinity:
+            raise ConfigError(f"fixed.{pname}={value!r} is not a finite number; give a finite value "
+                              f"({param.describe_allowed()})", field=f"fixed.{pname}", value=value)
         param.check_values(value, where=f"fixed.{pname}")
         fixed[pname] = float(value) if not param.is_categorical else value
     for param in model_cls.parameters:
@@ -556,18 +567,44 @@ def _expand_form(where: str, form: str, args: Any) -> list[float]:
         count = math.ceil((b - a) / c - 1e-9)
         if count > 100_000_000:
             raise ConfigError(f"{where}: range has {count} values; use a larger step", field=where, value=args)
-        return [a + i * c for i in range(count)]
+        return snap_decimals([a + i * c for i in range(count)], max(abs(a), abs(b), abs(c)))
     if c != int(c) or c < 1:
         raise ConfigError(f"{where}: {form} count={c:g} must be a whole number ≥ 1", field=where, value=args)
     if c > 100_000_000:
         raise ConfigError(f"{where}: {form} count={int(c)} is absurdly large; use fewer values", field=where,
                           value=args)
     if form == "linspace":
-        return [float(v) for v in np.linspace(a, b, int(c))]
+        return snap_decimals(np.linspace(a, b, int(c)), max(abs(a), abs(b)))
     if max(abs(a), abs(b)) > 300:
         raise ConfigError(f"{where}: logspace exponents [{a:g}, {b:g}] overflow; use base-10 exponents within "
                           "±300", field=where, value=args)
-    return [float(v) for v in np.logspace(a, b, int(c))]
+    low, high = min(a, b), max(a, b)
+    if 0 < low < 1 and high / low >= 10:  # e.g. [0.001, 1]: reads like values, not exponents
+        log.warning("%s: logspace takes base-10 exponents; [%g, %g] gives %g … %g. If you meant those as values, "
+                    "write {logspace: [%g, %g, %d]}", where, a, b, 10 ** a, 10 ** b,
+                    math.log10(a) if a > 0 else a, math.log10(b) if b > 0 else b, int(c))
+    return [snap_decimals([float(v)], abs(float(v)))[0] for v in np.logspace(a, b, int(c))]
+
+
+def snap_decimals(values: Any, scale: float) -> list[float]:
+    """Return ``values`` with those within a few ulps of ``scale`` from a short decimal set to that decimal.
+
+    ``linspace``, ``range`` and ``logspace`` compute values in binary, so 0 comes out as −2.8·10⁻¹⁷ and
+    0.3 as 0.30000000000000004; a query for ``x == 0`` would then find nothing. Rounding to 12
+    significant digits of ``scale`` and keeping the result only when it moves the value by at
+    most 16 ulps of ``scale`` makes exact decimals exact and leaves other values (1/3) alone.
+    """
+    out = []
+    tolerance = 16 * np.finfo(float).eps * scale
+    quantum = 10.0 ** (math.floor(math.log10(scale)) - 12) if scale > 0 and math.isfinite(scale) else 0.0
+    for v in values:
+        v = float(v)
+        if quantum > 0:
+            short = float(f"{round(v / quantum) * quantum:.15g}")
+            if abs(short - v) <= tolerance:
+                v = short
+        out.append(v + 0.0)  # no negative zero
+    return out
 
 
 def _make_refine(spec: Any, axis_names: list[str]) -> dict[str, Any] | None:
@@ -608,3 +645,4 @@ def _make_executor(spec: Mapping[str, Any]) -> ExecutorSpec:
         raise ConfigError(f"executor.in_process_seconds={seconds!r} must be a number of seconds ≥ 0",
                           field="executor.in_process_seconds", value=seconds)
     return ExecutorSpec(kind=kind, workers=workers, address=address, in_process_seconds=float(seconds))
+

@@ -11,7 +11,7 @@ __all__ = ["BarObserver", "LineObserver", "RunObserver", "SilentObserver", "make
 
 
 class RunObserver(Protocol):
-    def start(self, total: int, done: int, to_compute: int) -> None: ...
+    def start(self, total: int, done: int, to_compute: int, note: str = "") -> None: ...
     def advance(self, points: int) -> None: ...
     def close(self) -> None: ...
 
@@ -19,7 +19,7 @@ class RunObserver(Protocol):
 class SilentObserver:
     """Reports nothing (library use, tests)."""
 
-    def start(self, total: int, done: int, to_compute: int) -> None:
+    def start(self, total: int, done: int, to_compute: int, note: str = "") -> None:
         return None
 
     def advance(self, points: int) -> None:
@@ -38,6 +38,42 @@ def _fmt_seconds(s: float) -> str:
     return f"{h}:{m:02d}:{sec:02d}" if h else f"{m}:{sec:02d}"
 
 
+def _fmt_rate(rate: float) -> str:
+    """``1,234/s``, ``12/s``, ``0.12/s`` (slow models still show a rate)."""
+    return f"{rate:,.0f}/s" if rate >= 10 else f"{rate:.2g}/s"
+
+
+class _Eta:
+    """Remaining time from the rate since the first finished block.
+
+    The first block carries the one-off costs (worker start-up, kernel compilation), which
+    would make an extrapolated ETA many times too long; until a second block is done there is
+    no estimate.
+    """
+
+    def __init__(self, to_compute: int) -> None:
+        self.to_compute, self.computed = to_compute, 0
+        self.first: tuple[float, int] | None = None
+
+    def advance(self, points: int) -> None:
+        self.computed += points
+        if self.first is None:
+            self.first = (time.monotonic(), self.computed)
+
+    def rate(self) -> float:
+        if self.first is None:
+            return float("nan")
+        t1, c1 = self.first
+        elapsed = time.monotonic() - t1
+        return (self.computed - c1) / elapsed if self.computed > c1 and elapsed > 0 else float("nan")
+
+    def remaining(self) -> float:
+        if self.computed >= self.to_compute:
+            return 0.0
+        rate = self.rate()
+        return (self.to_compute - self.computed) / rate if rate > 0 else float("nan")
+
+
 class LineObserver:
     """Prints one progress line every ``every`` seconds (for logs, pipes and CI)."""
 
@@ -45,19 +81,23 @@ class LineObserver:
         self.stream = stream or sys.stderr
         self.every = every
 
-    def start(self, total: int, done: int, to_compute: int) -> None:
+    def start(self, total: int, done: int, to_compute: int, note: str = "") -> None:
         self.total, self.done, self.to_compute, self.computed = total, done, to_compute, 0
         self.t0 = self.last = time.monotonic()
+        self.eta = _Eta(to_compute)
+        if note:
+            print(note, file=self.stream, flush=True)
 
     def advance(self, points: int) -> None:
         self.computed += points
+        self.eta.advance(points)
         now = time.monotonic()
         if now - self.last >= self.every or self.computed >= self.to_compute:
             self.last = now
-            rate = self.computed / max(now - self.t0, 1e-9)
-            eta = (self.to_compute - self.computed) / rate if rate > 0 else float("inf")
-            print(f"progress {self.done + self.computed}/{self.total} points ({rate:.0f}/s, "
-                  f"ETA {_fmt_seconds(eta)})", file=self.stream, flush=True)
+            rate = self.eta.rate()
+            speed = f"{_fmt_rate(rate)}, " if rate > 0 else ""
+            print(f"progress {self.done + self.computed}/{self.total} points ({speed}"
+                  f"ETA {_fmt_seconds(self.eta.remaining())})", file=self.stream, flush=True)
 
     def close(self) -> None:
         return None
@@ -73,25 +113,25 @@ class BarObserver:
             Progress,
             TextColumn,
             TimeElapsedColumn,
-            TimeRemainingColumn,
         )
 
         self._progress = Progress(
             TextColumn("[bold]sweep"), BarColumn(), MofNCompleteColumn(), TextColumn("points"),
-            TextColumn("{task.fields[rate]}"), TimeElapsedColumn(), TextColumn("ETA"), TimeRemainingColumn(),
-            transient=False)
+            TextColumn("{task.fields[rate]}"), TimeElapsedColumn(), TextColumn("ETA {task.fields[eta]}"),
+            TextColumn("{task.fields[note]}"), transient=False)
         self._task: Any = None
 
-    def start(self, total: int, done: int, to_compute: int) -> None:
-        self.t0 = time.monotonic()
-        self.computed = 0
+    def start(self, total: int, done: int, to_compute: int, note: str = "") -> None:
+        self.eta = _Eta(to_compute)
         self._progress.start()
-        self._task = self._progress.add_task("sweep", total=total, completed=done, rate="")
+        self._task = self._progress.add_task("sweep", total=total, completed=done, rate="", eta="?",
+                                             note=f"({note})" if note else "")
 
     def advance(self, points: int) -> None:
-        self.computed += points
-        rate = self.computed / max(time.monotonic() - self.t0, 1e-9)
-        self._progress.update(self._task, advance=points, rate=f"{rate:,.0f}/s")
+        self.eta.advance(points)
+        rate = self.eta.rate()
+        self._progress.update(self._task, advance=points, rate=_fmt_rate(rate) if rate > 0 else "",
+                              eta=_fmt_seconds(self.eta.remaining()), note="")
 
     def close(self) -> None:
         self._progress.stop()

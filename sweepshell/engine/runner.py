@@ -159,9 +159,11 @@ def start_client(spec: ExecutorSpec) -> tuple[Any, Any]:
             cluster = LocalCluster(n_workers=1, threads_per_worker=spec.workers or 1, processes=False,
                                    dashboard_address=":0")
         else:
+            # worker processes ignore Ctrl-C (sweepshell.engine.worker_setup): the runner handles it
             cluster = LocalCluster(n_workers=spec.workers or (os.cpu_count() or 1), threads_per_worker=1,
                                    processes=True, dashboard_address=":0",
-                                   silence_logs=logging.CRITICAL if quiet else logging.ERROR)
+                                   silence_logs=logging.CRITICAL if quiet else logging.ERROR,
+                                   preload=["sweepshell.engine.worker_setup"])
     return Client(cluster), cluster
 
 
@@ -245,12 +247,14 @@ def run_plan(plan: SweepPlan, *, observer: RunObserver | None = None, claim_ttl:
             in_process = plan.executor.runs_in_process(plan.estimated_seconds(to_compute))
             tally["executor"] = "in-process" if in_process else plan.executor.kind
             log.info("%s", plan.describe_executor(to_compute))
+            note = "compiling the model's kernels (once); the ETA follows the first computed blocks" \
+                if model.kernels_to_compile() else ""
             if in_process:
-                observer.start(plan.n_points, plan.n_points - to_compute, to_compute)
+                observer.start(plan.n_points, plan.n_points - to_compute, to_compute, note=note)
                 drive_in_process(plan, pending, claims, observer, tally, donors)
             else:
                 client = get_client()
-                observer.start(plan.n_points, plan.n_points - to_compute, to_compute)
+                observer.start(plan.n_points, plan.n_points - to_compute, to_compute, note=note)
                 _drive(client, plan, pending, claims, observer, tally, donors)
     except KeyboardInterrupt:
         if claims is None or not block_shape:

@@ -40,6 +40,7 @@ _REGISTRY: dict[str, tuple[str, str]] = {
     "cap_postbuckling": ("sweepshell.models.cap_postbuckling.model", "CapPostbucklingModel"),
     "foundation_strip": ("sweepshell.models.foundation_strip.model", "FoundationStripModel"),
     "foundation_sheet": ("sweepshell.models.foundation_sheet.model", "FoundationSheetModel"),
+    "curved_strip": ("sweepshell.models.curved_strip.model", "CurvedStripModel"),
     "winkler_column": ("sweepshell.models.winkler_column.model", "WinklerColumnModel"),
 }
 

@@ -71,6 +71,10 @@ class ParameterSpec:
         For categorical parameters, the allowed names; ``bounds`` is then ignored.
     integer
         Whether only whole numbers are allowed.
+    admits_infinity
+        Whether an infinite bound, where ``closed``, is itself a value: some parameters mean
+        something at infinity (an inextensible strip, a flat section); for every other
+        parameter a non-finite value is refused.
     """
 
     name: str
@@ -81,6 +85,7 @@ class ParameterSpec:
     closed: tuple[bool, bool] = (True, True)
     choices: tuple[str, ...] | None = None
     integer: bool = False
+    admits_infinity: bool = False
     symbol: str = ""
 
     @property
@@ -92,8 +97,8 @@ class ParameterSpec:
         if self.choices is not None:
             return "one of " + ", ".join(self.choices)
         lo, hi = self.bounds
-        left = "[" if self.closed[0] and math.isfinite(lo) else "("
-        right = "]" if self.closed[1] and math.isfinite(hi) else ")"
+        left = "[" if self.closed[0] and (math.isfinite(lo) or self.admits_infinity) else "("
+        right = "]" if self.closed[1] and (math.isfinite(hi) or self.admits_infinity) else ")"
         text = f"{left}{_fmt(lo)}, {_fmt(hi)}{right}"
         return text + (" (whole numbers)" if self.integer else "")
 
@@ -125,7 +130,7 @@ class ParameterSpec:
                 field=where, value=v, allowed=self.describe_allowed())
         x = float(v)
         lo, hi = self.bounds
-        ok = math.isfinite(x) or x in (lo, hi)
+        ok = math.isfinite(x) or (self.admits_infinity and x in (lo, hi))
         ok = ok and (x > lo or (self.closed[0] and x == lo)) and (x < hi or (self.closed[1] and x == hi))
         if not ok:
             fix = _suggest_fix(self, x)
@@ -222,6 +227,9 @@ class SweepModel(abc.ABC):
     cost_hint: ClassVar[float] = 1e-3
     #: whether the outputs include critical loads (the CLI prints a caution then)
     reports_critical_loads: ClassVar[bool] = True
+    #: categorical parameter → choice → parameters that only mean something with that choice
+    #: (figure titles leave the others out)
+    parameter_groups: ClassVar[Mapping[str, Mapping[str, tuple[str, ...]]]] = {}
 
     def __init__(self, **settings: Any) -> None:
         if settings:
@@ -271,6 +279,36 @@ class SweepModel(abc.ABC):
         Called once at plan time, after each value was checked against its bounds.
         """
         return None
+
+    @classmethod
+    def kernels_to_compile(cls) -> bool:
+        """Whether the first batch in this installation compiles the model's kernels (seconds, once).
+
+        The progress display says so instead of extrapolating an ETA from the compile time.
+        """
+        return False
+
+    @classmethod
+    def study_parameters(cls, fixed: Mapping[str, Any]) -> tuple[str, ...]:
+        """Return the fixed parameters that define a study, in the order a figure title names them.
+
+        Categorical parameters come first, then numbers, each in declaration order; values
+        that are ``None``/NaN (not given) are left out, and so are parameters that
+        :attr:`parameter_groups` ties to another choice of a fixed categorical parameter.
+        """
+        skip: set[str] = set()
+        for chooser, groups in cls.parameter_groups.items():
+            if chooser in fixed:
+                for choice, names in groups.items():
+                    if fixed[chooser] != choice:
+                        skip.update(names)
+
+        def given(name: str) -> bool:
+            v = fixed.get(name)
+            return v is not None and not (isinstance(v, float) and math.isnan(v)) and name not in skip
+
+        ordered = [p.name for p in cls.parameters if p.choices] + [p.name for p in cls.parameters if not p.choices]
+        return tuple(name for name in ordered if name in fixed and given(name))
 
     @classmethod
     def sample_inputs(cls) -> dict[str, np.ndarray]:

@@ -19,6 +19,7 @@ import numpy as np
 
 from sweepshell.errors import QueryError
 from sweepshell.models.base import Status
+from sweepshell.plot.layout import finish_figure
 from sweepshell.plot.style import (
     BOUNDARY_COLOR,
     COLORBAR_AXES,
@@ -29,17 +30,17 @@ from sweepshell.plot.style import (
     PENDING_COLOR,
     STATUS_MARKERS,
     UNTRUSTED_COLOR,
-    add_caution_footer,
     axis_label,
     make_figure,
     regime_colors,
+    study_subtitle,
     title_lines,
 )
+from sweepshell.plot.units import format_quantity, is_integer_valued, set_axis_format
 from sweepshell.query.boundary import known_points, locate_boundary, slice_codes
 from sweepshell.query.slicing import SweepSlice, from_unit, slice_sweep, to_unit
 from sweepshell.query.table import describe_fields, read_store_points, regime_names
 from sweepshell.store import metadata
-from sweepshell.store.metadata import ATTR
 
 if TYPE_CHECKING:
     import xarray as xr
@@ -54,6 +55,8 @@ _MAX_CELLS = 250_000      # above this many grid cells (or with off-grid points)
 _RASTER = 420             # raster size per axis (about the axes' size in pixels at 150 dpi / 1.5)
 _MAX_CONTOUR = 400        # contour lines of an output are drawn from at most this many points per axis
 _MAX_MARKERS = 20_000     # untrusted points drawn individually up to this many
+_CONFIDENCE = "pattern_confidence"  # an output some models give: share of starts that reach the chosen state
+_WEAK_CONFIDENCE = 0.5
 
 
 @dataclass(frozen=True)
@@ -95,7 +98,7 @@ def _check_numeric(view: SweepSlice) -> None:
 
 def draw_regime_map(ds: xr.Dataset, x: str, y: str, *, color: str | None = None, contour: str | None = None,
                     at: Mapping[str, str] | None = None, show_points: bool = False,
-                    boundaries: bool = True) -> MapResult:
+                    boundaries: bool = True, caution: bool = True) -> MapResult:
     """Draw the regime map of a store over axes ``x`` and ``y``.
 
     Parameters
@@ -115,11 +118,14 @@ def draw_regime_map(ds: xr.Dataset, x: str, y: str, *, color: str | None = None,
         Mark the off-grid points of the store's point list.
     boundaries
         Draw the boundaries between regimes.
+    caution
+        Draw the caution footer (it is kept in the file's metadata either way).
 
     Raises
     ------
     QueryError
-        For an unknown axis or output, or an axis that holds names.
+        For an unknown axis or output, an axis that holds names, or a colour field without
+        a single value in the view.
     """
     info = describe_fields(ds)
     for name in (x, y):
@@ -157,6 +163,7 @@ def draw_regime_map(ds: xr.Dataset, x: str, y: str, *, color: str | None = None,
         assert color is not None
         field_values = np.asarray(view.ds[color].values, float)
         field_values = np.where(codes >= 0, field_values, np.nan)
+        check_has_values(view, color, field_values, codes)
         cmap = _cmap_with_bad()
         finite = field_values[np.isfinite(field_values)]
         norm = None
@@ -165,12 +172,15 @@ def draw_regime_map(ds: xr.Dataset, x: str, y: str, *, color: str | None = None,
 
             norm = LogNorm(finite.min(), finite.max())  # values over decades read better on a log scale
         mesh = _draw_field(ax, xu, yu, field_values, view.log, known=None, cmap=cmap, norm=norm)
-        cbar = fig.colorbar(mesh, cax=fig.add_axes(COLORBAR_AXES))
-        cbar.set_label(axis_label(color, dict(view.ds[color].attrs)))
+        cax = fig.add_axes(COLORBAR_AXES)
+        cbar = fig.colorbar(mesh, cax=cax)
+        shown = set_axis_format(cax.yaxis, str(view.ds[color].attrs.get("units", "")), finite,
+                                log=norm is not None, integer=is_integer_valued(finite))
+        cbar.set_label(axis_label(color, dict(view.ds[color].attrs), shown))
     else:
         cmap = ListedColormap(fill_colors)
         _draw_field(ax, xu, yu, codes.astype(float) + 2, view.log, known=_refined_only(known), cmap=cmap, vmin=-0.5,
-                    vmax=len(fill_colors) - 0.5)
+                    vmax=len(fill_colors) - 0.5, classes=True)
         present = set(np.unique(codes).tolist())
         if known is not None:
             present |= set(np.unique(known["regime"]).tolist())
@@ -185,9 +195,10 @@ def draw_regime_map(ds: xr.Dataset, x: str, y: str, *, color: str | None = None,
             handles.append(Patch(facecolor=PENDING_COLOR, edgecolor="#777777", linewidth=0.5,
                                  label="not computed yet"))
 
+    boundary_lines: list[np.ndarray] = []
     if boundaries:
-        drawn = _draw_boundaries(ax, view, codes, regimes, known, x, y, xv, yv)
-        if drawn:
+        boundary_lines = _draw_boundaries(ax, view, codes, regimes, known, x, y, xv, yv)
+        if boundary_lines:
             handles.append(Line2D([], [], color=BOUNDARY_COLOR, linewidth=1.4, label="regime boundary"))
     if contour:
         values = np.where(codes >= 0, np.asarray(view.ds[contour].values, float), np.nan)
@@ -196,10 +207,15 @@ def draw_regime_map(ds: xr.Dataset, x: str, y: str, *, color: str | None = None,
         if np.isfinite(values).sum() >= 4 and np.nanmax(values) > np.nanmin(values):
             cs = ax.contour(cxv, cyv, values.T, levels=7, colors=CONTOUR_COLOR, linewidths=0.8,
                             linestyles="--")
-            ax.clabel(cs, fontsize=7, fmt="%.3g", inline_spacing=3)
+            units = str(view.ds[contour].attrs.get("units", ""))
+            positions = _label_positions(cs, boundary_lines, view.log)
+            ax.clabel(cs, fontsize=7, fmt=lambda v: format_quantity(v, units), inline_spacing=3,
+                      manual=positions if positions else False)
             handles.append(Line2D([], [], color=CONTOUR_COLOR, linewidth=0.8, linestyle="--",
                                   label=f"{contour.replace('_', ' ')} (contours)"))
     handles += _draw_status_markers(ax, xv, yv, status, notes)
+    if not continuous and _CONFIDENCE in view.ds:
+        handles += _draw_uncertain(ax, view, codes, xv, yv)
     if show_points and known is not None:
         ax.scatter(known["x"], known["y"], s=2.0, c="#000000", alpha=0.45, linewidths=0, zorder=3)
         handles.append(Line2D([], [], marker=".", linestyle="none", color="#000000", alpha=0.6,
@@ -209,19 +225,67 @@ def draw_regime_map(ds: xr.Dataset, x: str, y: str, *, color: str | None = None,
     ex, ey = from_unit(_edges(xu)[[0, -1]], view.log[0]), from_unit(_edges(yu)[[0, -1]], view.log[1])
     ax.set_xlim(ex[0], ex[1])
     ax.set_ylim(ey[0], ey[1])
-    ax.set_xlabel(axis_label(x, dict(view.ds[x].attrs)))
-    ax.set_ylabel(axis_label(y, dict(view.ds[y].attrs)))
-    ax.tick_params(direction="out", labelsize=9)
+    label_axes(ax, view, x, y, xv, yv)
     title = "Regime map" if not continuous else f"{str(color).replace('_', ' ')} with regime boundaries"
-    ax.set_title(title_lines(dict(ds.attrs), title, _subtitle(ds, view)), fontsize=9.5, loc="left")
-    if handles and continuous:  # right of the colour bar
-        fig.legend(handles=handles, loc="upper left", bbox_to_anchor=(0.79, 0.88), fontsize=8.5, frameon=False,
-                   borderaxespad=0.0)
+    ax.set_title(title_lines(dict(ds.attrs), title, study_subtitle(ds, view.cuts)), fontsize=9.5, loc="left")
+    if handles and continuous:  # right of the colour bar and its labels, moving with it
+        cax = fig.axes[-1]
+        box = cax.get_window_extent()
+        tight = cax.get_tightbbox(fig.canvas.get_renderer())  # type: ignore[attr-defined]
+        right = tight.x1 if tight is not None else box.x1
+        cax.legend(handles=handles, loc="upper left", bbox_to_anchor=((right - box.x0) / box.width + 1.0, 1.0),
+                   fontsize=8.5, frameon=False, borderaxespad=0.0)
     elif handles:
         ax.legend(handles=handles, loc="upper left", bbox_to_anchor=(1.02, 1.0), fontsize=8.5, frameon=False,
                   borderaxespad=0.0)
-    add_caution_footer(fig)
+    finish_figure(fig, caution=caution)
     return MapResult(fig, view, tuple(notes))
+
+
+def label_axes(ax: Axes, view: SweepSlice, x: str, y: str, xv: np.ndarray, yv: np.ndarray) -> None:
+    """Label and format the two axes of a map by the units rule of :mod:`sweepshell.plot.units`."""
+    for axis, name, values, log in ((ax.xaxis, x, xv, view.log[0]), (ax.yaxis, y, yv, view.log[1])):
+        attrs = dict(view.ds[name].attrs)
+        shown = set_axis_format(axis, str(attrs.get("units", "")), values, log=log,
+                                integer=not log and is_integer_valued(values))
+        axis.set_label_text(axis_label(name, attrs, shown))
+    ax.tick_params(direction="out", labelsize=9)
+
+
+def check_has_values(view: SweepSlice, output: str, values: np.ndarray, codes: np.ndarray) -> None:
+    """Raise :class:`QueryError` when ``output`` has no value anywhere in the view (nothing to draw).
+
+    The message says why: no trusted point, or an output that is NaN at every trusted point
+    (with what NaN means for it).
+    """
+    if np.isfinite(values).any():
+        return
+    where = view.describe_cuts() or "the whole store"
+    trusted = int(np.sum(codes >= 0))
+    if trusted == 0:
+        raise QueryError(f"no point of this view ({where}) has a trusted result, so {output} has nothing to "
+                         "draw; check `sweepshell status STORE` or choose other --at values", field="y",
+                         value=output)
+    meaning = str(view.ds[output].attrs.get("long_name", "")).strip()
+    raise QueryError(f"{output} is NaN at all {trusted} trusted points of this view ({where})"
+                     f"{'; it means: ' + meaning if meaning else ''}; choose another output or other --at values",
+                     field="y", value=output)
+
+
+def _draw_uncertain(ax: Axes, view: SweepSlice, codes: np.ndarray, xv: np.ndarray, yv: np.ndarray) -> list[Any]:
+    """Mark points whose pattern most starts did not reach (several states compete there)."""
+    from matplotlib.lines import Line2D
+
+    confidence = np.asarray(view.ds[_CONFIDENCE].values, float)
+    weak = (codes >= 0) & (confidence < _WEAK_CONFIDENCE)
+    if not np.any(weak):
+        return []
+    ix, iy = np.nonzero(weak)
+    ax.scatter(xv[ix], yv[iy], marker="D", s=14, facecolors="none", edgecolors="#1A1A1A", linewidths=0.8,
+               zorder=5)
+    return [Line2D([], [], marker="D", linestyle="none", markersize=4.5, markerfacecolor="none",
+                   markeredgecolor="#1A1A1A", label=f"multistable ({int(weak.sum())}: under half\nof the starts "
+                                                    "reach this pattern)")]
 
 
 def _refined_only(known: Mapping[str, np.ndarray] | None) -> dict[str, np.ndarray] | None:
@@ -239,25 +303,6 @@ def _refined_only(known: Mapping[str, np.ndarray] | None) -> dict[str, np.ndarra
     return {k: v[keep] for k, v in known.items()}
 
 
-def _subtitle(ds: xr.Dataset, view: SweepSlice) -> str:
-    parts = [c.describe().split(" (")[0] for c in view.cuts]
-    try:
-        fixed = metadata.read_record(ds.attrs, ATTR.fixed, "{}")
-    except ValueError:
-        fixed = {}
-    defaults: dict[str, Any] = {}
-    try:
-        from sweepshell.models import get_model
-
-        defaults = {p.name: p.default for p in get_model(str(ds.attrs.get(ATTR.model))).parameters}
-    except Exception:  # an unknown model: list every fixed parameter
-        log.debug("model of the store not registered; listing every fixed parameter")
-    # parameters left at the model's default are omitted: the report lists them all
-    parts += [f"{k} = {v:g}" if isinstance(v, float) else f"{k} = {v}" for k, v in fixed.items()
-              if v is not None and not (k in defaults and defaults[k] == v)]
-    return ", ".join(parts)
-
-
 def _cmap_with_bad() -> Any:
     import matplotlib as mpl
 
@@ -266,9 +311,16 @@ def _cmap_with_bad() -> Any:
 
 def _draw_field(ax: Axes, xu: np.ndarray, yu: np.ndarray, values: np.ndarray, log: tuple[bool, ...], *,
                 known: Mapping[str, np.ndarray] | None, cmap: Any, vmin: float | None = None,
-                vmax: float | None = None, norm: Any = None) -> Any:
-    """Draw a field given on the grid (nx, ny); off-grid points refine it by nearest neighbour."""
-    if known is None and values.size <= _MAX_CELLS:
+                vmax: float | None = None, norm: Any = None, classes: bool = False) -> Any:
+    """Draw a field given on the grid (nx, ny); off-grid points refine it.
+
+    Regime classes (``classes``) on a grid of at least 2 × 2 are drawn from bilinear
+    interpolation of their indicators, so a region ends halfway between grid points of
+    different regime, where the boundary lines run (no staircase of cells); other fields are
+    drawn cell by cell.
+    """
+    smooth = classes and known is None and len(xu) > 1 and len(yu) > 1
+    if known is None and values.size <= _MAX_CELLS and not smooth:
         ex, ey = from_unit(_edges(xu), log[0]), from_unit(_edges(yu), log[1])
         return ax.pcolormesh(ex, ey, values.T, cmap=cmap, vmin=vmin, vmax=vmax, norm=norm,
                              shading="flat", rasterized=True, linewidth=0)
@@ -276,12 +328,34 @@ def _draw_field(ax: Axes, xu: np.ndarray, yu: np.ndarray, values: np.ndarray, lo
     rx = np.linspace(exu[0], exu[-1], _RASTER + 1)
     ry = np.linspace(eyu[0], eyu[-1], _RASTER + 1)
     cx, cy = 0.5 * (rx[1:] + rx[:-1]), 0.5 * (ry[1:] + ry[:-1])
-    if known is None:
+    if smooth:
+        raster = _bilinear_classes(xu, yu, values, cx, cy)
+    elif known is None:
         raster = values[_nearest_index(xu, cx)[:, None], _nearest_index(yu, cy)[None, :]]
     else:
         raster = _interpolate_classes(xu, yu, values, known, log, cx, cy)
     return ax.pcolormesh(from_unit(rx, log[0]), from_unit(ry, log[1]), raster.T, cmap=cmap, vmin=vmin, vmax=vmax,
                          norm=norm, shading="flat", rasterized=True, linewidth=0)
+
+
+def _bilinear_classes(xu: np.ndarray, yu: np.ndarray, values: np.ndarray, cx: np.ndarray,
+                      cy: np.ndarray) -> np.ndarray:
+    """Return the class on a raster: the largest bilinearly interpolated class indicator (grid only)."""
+    ix = np.clip(np.searchsorted(xu, cx) - 1, 0, len(xu) - 2)
+    iy = np.clip(np.searchsorted(yu, cy) - 1, 0, len(yu) - 2)
+    tx = np.clip((cx - xu[ix]) / (xu[ix + 1] - xu[ix]), 0.0, 1.0)[:, None]
+    ty = np.clip((cy - yu[iy]) / (yu[iy + 1] - yu[iy]), 0.0, 1.0)[None, :]
+    present = np.unique(values)
+    best = np.full((len(cx), len(cy)), -np.inf)
+    raster = np.zeros((len(cx), len(cy)))
+    for c in present:
+        ind = (values == c).astype(float)
+        weight = ((1 - tx) * (1 - ty) * ind[ix][:, iy] + tx * (1 - ty) * ind[ix + 1][:, iy]
+                  + (1 - tx) * ty * ind[ix][:, iy + 1] + tx * ty * ind[ix + 1][:, iy + 1])
+        better = weight > best
+        raster[better] = c
+        best[better] = weight[better]
+    return raster
 
 
 def _interpolate_classes(xu: np.ndarray, yu: np.ndarray, values: np.ndarray, known: Mapping[str, np.ndarray],
@@ -311,11 +385,12 @@ def _interpolate_classes(xu: np.ndarray, yu: np.ndarray, values: np.ndarray, kno
 
 def _draw_boundaries(ax: Axes, view: SweepSlice, codes: np.ndarray, regimes: tuple[str, ...],
                      known: Mapping[str, np.ndarray] | None, x: str, y: str, xv: np.ndarray,
-                     yv: np.ndarray) -> bool:
+                     yv: np.ndarray) -> list[np.ndarray]:
+    """Draw every boundary between two regimes present; return the drawn polylines (k × 2, data units)."""
     from matplotlib import patheffects
 
     halo = [patheffects.withStroke(linewidth=3.0, foreground="white", alpha=0.8)]  # readable on any fill
-    drawn = False
+    drawn: list[np.ndarray] = []
     present = [r for r in range(len(regimes)) if np.any(codes == r)]
     for i, a in enumerate(present):
         for b in present[i + 1:]:
@@ -324,8 +399,41 @@ def _draw_boundaries(ax: Axes, view: SweepSlice, codes: np.ndarray, regimes: tup
             for line in boundary.lines:
                 ax.plot(line.x, line.y, color=BOUNDARY_COLOR, linewidth=1.4, solid_capstyle="round", zorder=4,
                         path_effects=halo)
-                drawn = True
+                drawn.append(np.stack([np.asarray(line.x, float), np.asarray(line.y, float)], 1))
     return drawn
+
+
+def _label_positions(cs: Any, boundary_lines: Sequence[np.ndarray], log: tuple[bool, ...]) -> list[tuple[float, float]]:
+    """Return one label position per contour level: the vertex farthest from boundaries and the frame.
+
+    Measured in the evenly spaced units of the axes, scaled to the unit square, so labels never
+    sit on a regime boundary when the level has room elsewhere.
+    """
+    segments = [seg for level in cs.allsegs for seg in level if len(seg)]
+    if not segments:
+        return []
+    every = np.concatenate(segments)
+    ux, uy = to_unit(every[:, 0], log[0]), to_unit(every[:, 1], log[1])
+    lo = np.array([ux.min(), uy.min()])
+    span = np.maximum(np.array([ux.max(), uy.max()]) - lo, 1e-300)
+
+    def unit(points: np.ndarray) -> np.ndarray:
+        return (np.stack([to_unit(points[:, 0], log[0]), to_unit(points[:, 1], log[1])], 1) - lo) / span
+
+    avoid = unit(np.concatenate(boundary_lines)) if boundary_lines else np.empty((0, 2))
+    positions = []
+    for level in cs.allsegs:
+        if not any(len(seg) for seg in level):
+            continue
+        points = np.concatenate([seg for seg in level if len(seg)])
+        u = unit(points)
+        room = np.minimum.reduce([u[:, 0], 1 - u[:, 0], u[:, 1], 1 - u[:, 1]]) * 2.0  # keep off the frame
+        if len(avoid):
+            room = np.minimum(room, np.min(np.hypot(u[:, None, 0] - avoid[None, :, 0],
+                                                    u[:, None, 1] - avoid[None, :, 1]), axis=1))
+        k = int(np.argmax(room))
+        positions.append((float(points[k, 0]), float(points[k, 1])))
+    return positions
 
 
 def _draw_status_markers(ax: Axes, xv: np.ndarray, yv: np.ndarray, status: np.ndarray, notes: list[str]) -> list[Any]:
@@ -354,11 +462,20 @@ def _draw_status_markers(ax: Axes, xv: np.ndarray, yv: np.ndarray, status: np.nd
 
 
 def draw_output_lines(ds: xr.Dataset, x: str, output: str, *, series: str | None = None,
-                      at: Mapping[str, str] | None = None, max_series: int = 12) -> MapResult:
+                      at: Mapping[str, str] | None = None, max_series: int = 12,
+                      caution: bool = True) -> MapResult:
     """Draw ``output`` against axis ``x``, one line per value of the ``series`` axis.
 
     Without ``series`` the first other axis with 2 to ``max_series`` values (not fixed by ``at``)
-    gives the lines. Untrusted points leave gaps and are marked with ``x`` along the bottom.
+    gives the lines. A numeric series takes its colours from a sequential map with a colour
+    bar naming the values; named values get distinct colours and a legend. Outputs holding
+    whole numbers only are drawn as steps. Untrusted points leave gaps and are marked with
+    ``x`` along the bottom.
+
+    Raises
+    ------
+    QueryError
+        For an unknown axis or output, or an output without a single value in the view.
     """
     info = describe_fields(ds)
     if x not in info.axes:
@@ -383,18 +500,21 @@ def draw_output_lines(ds: xr.Dataset, x: str, output: str, *, series: str | None
     codes = slice_codes(view.ds)
     values = np.where(codes >= 0, np.asarray(view.ds[output].values, float), np.nan)
     xv = np.asarray(view.ds[x].values, float)
+    check_has_values(view, output, values, codes)
     fig = make_figure(7.4, 5.0)
-    ax = fig.add_axes((0.085, 0.22, 0.7 if series is None else 0.68, 0.66))
+    numeric_series = series is not None and view.ds[series].dtype.kind in "fiu"
+    ax = fig.add_axes((0.085, 0.22, 0.7 if series is None else (0.64 if numeric_series else 0.68), 0.66))
     n_lines = 1 if series is None else view.ds.sizes[series]
     if values.ndim == 1:
         values = values[:, None]
         codes = codes[:, None]
-    if n_lines <= len(OKABE_ITO):
-        colors = [OKABE_ITO[(i + 5) % len(OKABE_ITO)] if n_lines == 1 else OKABE_ITO[i] for i in range(n_lines)]
+    integer = is_integer_valued(values)
+    if numeric_series:
+        assert series is not None
+        colors = _series_colorbar(fig, ax, view, series)
     else:
-        import matplotlib as mpl
-
-        colors = [mpl.colormaps["cividis"](t) for t in np.linspace(0.0, 0.9, n_lines)]
+        colors = [OKABE_ITO[(i + 5) % len(OKABE_ITO)] if n_lines == 1 else OKABE_ITO[i % len(OKABE_ITO)]
+                  for i in range(n_lines)]
     markers = "osD^vP*"
     from matplotlib.transforms import blended_transform_factory
 
@@ -402,27 +522,57 @@ def draw_output_lines(ds: xr.Dataset, x: str, output: str, *, series: str | None
     any_bad = False
     for j in range(n_lines):
         label = None
-        if series is not None:
-            v = view.ds[series].values[j]
-            label = f"{v:.4g}" if isinstance(v, (float, np.floating)) else str(v)
-        ax.plot(xv, values[:, j], color=colors[j], linewidth=1.6, marker=markers[j % len(markers)], markersize=3.5,
-                label=label)
+        if series is not None and not numeric_series:
+            label = str(view.ds[series].values[j]).replace("_", " ")
+        marker = "o" if numeric_series else markers[j % len(markers)]
+        # whole-number outputs (wave numbers, mode counts) change in steps: drawn as steps, never sloped
+        ax.plot(xv, values[:, j], color=colors[j], linewidth=1.6, marker=marker, markersize=3.5, label=label,
+                drawstyle="steps-mid" if integer else "default")
         bad = codes[:, j] < 0
         if np.any(bad):
             any_bad = True
             ax.plot(xv[bad], np.full(bad.sum(), 0.02 + 0.025 * (j % 4)), linestyle="none", marker="x",
                     markersize=5, color=colors[j], transform=rug, clip_on=False)
     ax.set_xscale("log" if view.log[0] else "linear")
-    ax.set_xlabel(axis_label(x, dict(view.ds[x].attrs)))
-    ax.set_ylabel(axis_label(output, dict(view.ds[output].attrs)))
+    shown_x = set_axis_format(ax.xaxis, str(view.ds[x].attrs.get("units", "")), xv, log=view.log[0],
+                              integer=not view.log[0] and is_integer_valued(xv))
+    shown_y = set_axis_format(ax.yaxis, str(view.ds[output].attrs.get("units", "")), values[np.isfinite(values)],
+                              integer=integer)
+    ax.set_xlabel(axis_label(x, dict(view.ds[x].attrs), shown_x))
+    ax.set_ylabel(axis_label(output, dict(view.ds[output].attrs), shown_y))
     ax.grid(True, color="#E5E5E5", linewidth=0.6)
     ax.tick_params(direction="out", labelsize=9)
     ax.set_title(title_lines(dict(ds.attrs), f"{output.replace('_', ' ')} across {x.replace('_', ' ')}",
-                             _subtitle(ds, view)), fontsize=10, loc="left")
-    if series is not None:
+                             study_subtitle(ds, view.cuts)), fontsize=10, loc="left")
+    if series is not None and not numeric_series:
         leg = ax.legend(title=axis_label(series, dict(view.ds[series].attrs)), fontsize=8.5, title_fontsize=8.5,
                         frameon=False, loc="upper left", bbox_to_anchor=(1.02, 1.0), borderaxespad=0.0)
         leg.get_title().set_horizontalalignment("left")
     notes = ["x marks along the bottom: points without a trusted result"] if any_bad else []
-    add_caution_footer(fig)
+    finish_figure(fig, caution=caution)
     return MapResult(fig, view, tuple(notes))
+
+
+def _series_colorbar(fig: Figure, ax: Axes, view: SweepSlice, series: str) -> list[Any]:
+    """Colour the lines of a numeric series axis from a sequential map, with a colour bar naming the values."""
+    import matplotlib as mpl
+    from matplotlib.cm import ScalarMappable
+    from matplotlib.colors import BoundaryNorm, ListedColormap
+    from matplotlib.ticker import FixedLocator, NullLocator
+
+    values = np.asarray(view.ds[series].values, float)
+    log = view.log[1]
+    colors = [mpl.colormaps["viridis"](t) for t in np.linspace(0.0, 0.88, len(values))]
+    order = np.argsort(values)
+    edges = from_unit(_edges(to_unit(values[order], log)), log)
+    mappable = ScalarMappable(norm=BoundaryNorm(edges, len(values)),
+                              cmap=ListedColormap([colors[k] for k in order]))
+    pos = ax.get_position()
+    cax = fig.add_axes((pos.x1 + 0.02, pos.y0, 0.018, pos.height))
+    cbar = fig.colorbar(mappable, cax=cax, spacing="uniform")
+    attrs = dict(view.ds[series].attrs)
+    shown = set_axis_format(cax.yaxis, str(attrs.get("units", "")), values, digits=3)
+    cax.yaxis.set_major_locator(FixedLocator(values[order].tolist()))
+    cax.yaxis.set_minor_locator(NullLocator())
+    cbar.set_label(axis_label(series, attrs, shown))
+    return colors

@@ -20,6 +20,7 @@ from sweepshell.about import CAUTION
 from sweepshell.errors import QueryError
 from sweepshell.query.boundary import find_boundary
 from sweepshell.query.table import describe_fields, select_points
+from sweepshell.store import metadata
 from sweepshell.store.metadata import ATTR
 
 if TYPE_CHECKING:
@@ -48,7 +49,7 @@ img { max-width: 100%; } pre { background: #f6f6f6; padding: 0.8em; overflow-x: 
 
 def _png(fig: Figure) -> str:
     buffer = io.BytesIO()
-    fig.savefig(buffer, format="png", dpi=110)
+    fig.savefig(buffer, format="png", dpi=110, metadata={"Description": CAUTION})
     return base64.b64encode(buffer.getvalue()).decode("ascii")
 
 
@@ -88,7 +89,13 @@ def _line_plots(ds: xr.Dataset, info: Any) -> str:
     if not numeric or not info.scalar_outputs:
         return "<p>The store has no numeric axis with several values; no figure.</p>"
     preferred = [o for o in ("critical_load", "knockdown") if o in info.scalar_outputs]
-    outputs = (preferred or list(info.scalar_outputs))[:2]
+    # only outputs with values at trusted points make figures (a flexure store has no critical load)
+    codes = np.asarray(ds[metadata.REGIME_VAR].values) >= 0
+    has_data = [o for o in info.scalar_outputs
+                if np.isfinite(np.where(codes, np.asarray(ds[o].values, float), np.nan)).any()]
+    outputs = ([o for o in preferred if o in has_data] or has_data)[:2]
+    if not outputs:
+        return "<p>No scalar output has a value at a trusted point; no figure.</p>"
     html_parts = ["<p class='muted'>One numeric axis: outputs drawn against it instead of a regime map.</p>"]
     for output in outputs:
         result = draw_output_lines(ds, numeric[0], output)

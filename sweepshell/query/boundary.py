@@ -91,8 +91,45 @@ def trace_boundary(xu: np.ndarray, yu: np.ndarray, codes: np.ndarray, a: int, b:
     z = np.ma.masked_invalid(f.T)
     gen = contourpy.contour_generator(x=np.asarray(xu, float), y=np.asarray(yu, float), z=z,
                                       line_type=contourpy.LineType.Separate)
-    lines = gen.lines(0.0)
-    return [np.asarray(line, dtype=float) for line in lines if len(line) >= 2]
+    lines = [np.asarray(line, dtype=float) for line in gen.lines(0.0)]
+    return _keep_a_b_edges(lines, xu, yu, codes, a, b)
+
+
+def _keep_a_b_edges(lines: list[np.ndarray], xu: np.ndarray, yu: np.ndarray, codes: np.ndarray, a: int,
+                    b: int) -> list[np.ndarray]:
+    """Keep the vertices on grid edges joining an A and a B point, each vertex once.
+
+    The contour of the masked indicator also runs through cells with a third regime at a
+    corner; those vertices sit on edges to that regime or inside the cell and are no part of
+    the A/B boundary,
+    so a polyline is split where they are dropped. A vertex already kept (polylines meeting
+    at a cell) is not repeated.
+    """
+    kept: list[np.ndarray] = []
+    seen: set[tuple[float, float]] = set()
+    for line in lines:
+        if len(line) < 2:
+            continue
+        ix0, iy0, ix1, iy1 = _edges_of_vertices(line, xu, yu)
+        pair = np.sort(np.stack([codes[ix0, iy0], codes[ix1, iy1]], 1), axis=1)
+        good = (pair[:, 0] == min(a, b)) & (pair[:, 1] == max(a, b))
+        # a vertex inside a cell (a saddle or a masked corner) lies on no grid edge
+        on_x = np.min(np.abs(line[:, :1] - xu[None, :]), axis=1) <= 1e-9 * max(1.0, float(np.ptp(xu)))
+        on_y = np.min(np.abs(line[:, 1:] - yu[None, :]), axis=1) <= 1e-9 * max(1.0, float(np.ptp(yu)))
+        good &= on_x | on_y
+        run: list[np.ndarray] = []
+        for k in range(len(line)):
+            key = (round(float(line[k, 0]), 12), round(float(line[k, 1]), 12))
+            if good[k] and key not in seen:
+                seen.add(key)
+                run.append(line[k])
+                continue
+            if run:
+                kept.append(np.array(run))
+            run = []
+        if run:  # a single vertex is a lone A/B edge between other regimes: still a bracket
+            kept.append(np.array(run))
+    return kept
 
 
 def _edges_of_vertices(line: np.ndarray, xu: np.ndarray, yu: np.ndarray) -> tuple[np.ndarray, ...]:

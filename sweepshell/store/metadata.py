@@ -208,12 +208,15 @@ def canonical_json(obj: Any) -> str:
 def load_record(text: Any) -> Any:
     """Return the value of one JSON record (an attribute string written by :func:`canonical_json`).
 
+    ``Infinity`` and ``-Infinity`` read as floats (a fixed parameter whose range includes infinity);
+    ``NaN`` is refused (canonical records write it as null).
+
     Raises
     ------
     TypeError, ValueError
         If it is not a JSON string.
     """
-    return json.loads(text, parse_constant=refuse_constant)
+    return json.loads(text, parse_constant=_infinity_only)
 
 
 def read_record(attrs: Mapping[str, Any], key: str, default: str | None = None) -> Any:
@@ -226,7 +229,11 @@ def read_record(attrs: Mapping[str, Any], key: str, default: str | None = None) 
     TypeError, ValueError
         If it is not a JSON string.
     """
-    return load_record(attrs[key] if default is None else attrs.get(key, default))
+    text = attrs[key] if default is None else attrs.get(key, default)
+    if key == ATTR.axes:
+        # axis values are finite by construction; a non-finite one is damage (and sizes work from it)
+        return json.loads(text, parse_constant=refuse_constant)
+    return load_record(text)
 
 
 # --- consolidated metadata ---------------------------------------------------------------------------------------
@@ -269,6 +276,13 @@ def _read_file_or_reason(file: Path) -> tuple[Any, str | None]:
         return json.loads(text, parse_constant=refuse_constant), None
     except ValueError as exc:
         return None, f"does not parse as JSON ({str(exc).splitlines()[0]})"
+
+
+def _infinity_only(name: str) -> float:
+    # fixed parameters may hold ±inf where their range includes it (json writes Infinity); NaN is never a value
+    if name in ("Infinity", "-Infinity"):
+        return float(name)
+    return refuse_constant(name)
 
 
 def refuse_constant(name: str) -> Any:

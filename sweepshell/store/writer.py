@@ -95,11 +95,38 @@ def check_store_matches(path: str | os.PathLike[str], plan: SweepPlan, model: Sw
         ("axes", attrs.get(ATTR.axes), canonical_json({a.name: list(a.values) for a in plan.axes})),
     ]
     for what, stored, wanted in checks:
-        if stored != wanted:
+        if stored != wanted and not (what == "axes" and _same_axes(stored, wanted)):
             detail = _describe_difference(what, stored, wanted)
             raise StoreMismatchError(
                 f"store {str(p)!r} was made with other {what} ({detail}); run into a new store with {new} "
                 "(stores can be merged later)", field="store.path", value=str(p))
+
+
+def _same_axes(stored: Any, wanted: Any) -> bool:
+    """Whether two axis records differ only in the last bits of their numbers.
+
+    Axis forms snap exact decimals (0 instead of −2.8·10⁻¹⁷); stores written before that keep
+    their values and still resume with the same sweep.
+    """
+    try:
+        a, b = metadata.load_record(stored), metadata.load_record(wanted)
+    except (TypeError, ValueError):
+        return False
+    if list(a) != list(b):
+        return False
+    for name in a:
+        va, vb = a[name], b[name]
+        if len(va) != len(vb):
+            return False
+        for x, y in zip(va, vb, strict=True):
+            if isinstance(x, str) or isinstance(y, str):
+                if x != y:
+                    return False
+            else:
+                scale = max((abs(v) for v in va if not isinstance(v, str)), default=0.0)
+                if abs(float(x) - float(y)) > 16 * 2.220446049250313e-16 * scale:
+                    return False
+    return True
 
 
 def _describe_difference(what: str, stored: Any, wanted: Any) -> str:

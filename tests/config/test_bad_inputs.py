@@ -137,3 +137,30 @@ def test_numbers_with_unsigned_exponents_are_numbers(workdir):
     sweep = write_sweep(workdir, COLUMN_SWEEP.replace("{linspace: [0.5, 40, 15]}", "[1e0, 2.5e1, 4E+1]"))
     plan = load_plan(str(sweep))
     assert plan.axes[1].values == (1.0, 25.0, 40.0)
+
+
+def test_infinity_is_a_fixed_value_only_where_the_range_includes_it(workdir, capsys):
+    """A flat strip (transverse_radius = inf) is meaningful; an infinite Poisson's ratio is not."""
+    from sweepshell.cli.main import main
+    from sweepshell.store.metadata import ATTR, read_record
+
+    sweep = write_sweep(workdir, """\
+        name: flat
+        model: curved_strip
+        fixed: {transverse_radius: .inf, load: bend_opposite}
+        axes:
+          width: [0.01, 0.02]
+        executor: {kind: threads, workers: 1}
+        """)
+    assert main(["run", str(sweep), "--progress", "none"]) == 0
+    import xarray as xr
+
+    ds = xr.open_zarr(workdir / "results" / "flat.zarr", consolidated=True)
+    assert read_record(ds.attrs, ATTR.fixed)["transverse_radius"] == float("inf")
+    capsys.readouterr()
+    assert main(["status", str(workdir / "results" / "flat.zarr")]) == 0
+    before = sorted(p.name for p in workdir.rglob("*"))
+    assert main(["run", str(sweep), "fixed.thickness=inf", "store.path=results/other.zarr"]) == 2
+    err = capsys.readouterr().err
+    assert err.count("\n") == 1 and "fixed.thickness=inf is not a finite number" in err
+    assert sorted(p.name for p in workdir.rglob("*")) == before

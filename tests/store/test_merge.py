@@ -152,3 +152,31 @@ def test_union_of_axis_values_sorts_numbers_and_absorbs_round_off():
     with pytest.raises(StoreMismatchError):
         union_axis_values(["pinned"], [1.0])
     assert np.array_equal(union_axis_values([2.0], [1.0])[1], [-1, 0])
+
+
+def test_run_store_continues_a_merged_store_from_its_recorded_sweep(stores, tmp_path, capsys):
+    from sweepshell.cli.main import main
+
+    out = tmp_path / "c.zarr"
+    merge_stores(stores["a"], stores["b2"], out)
+    # a conflicting override is refused by the dry run, as the run would refuse it
+    assert main(["run", str(out), "--dry-run", "fixed.end=weak"]) == 2
+    assert "was made with other fixed parameters" in capsys.readouterr().err
+    assert main(["run", str(out), "--dry-run"]) == 0
+    assert "exists and matches this sweep" in capsys.readouterr().err
+    assert main(["run", str(out), "reuse=false", "executor=threads"]) == 0
+    assert "-> " + str(out) in capsys.readouterr().out
+    xr.testing.assert_identical(_data(out), _data(stores["u"]))
+
+
+def test_a_recorded_plan_with_unset_optional_parameters_round_trips(tmp_path):
+    from sweepshell.config.loader import build_plan
+
+    plan = build_plan({"name": "caps", "model": "shallow_cap", "axes": {"shell_parameter": [4.0, 5.0]},
+                       "store": {"path": str(tmp_path / "x.zarr")}})
+    import yaml
+
+    recorded = yaml.safe_load(plan.resolved_yaml)
+    assert recorded["fixed"]["thickness"] is None  # NaN = not given, written as null
+    again = build_plan(recorded)
+    assert again.resolved_yaml == plan.resolved_yaml

@@ -38,7 +38,13 @@ Equilibria are found by L-BFGS on the pseudo-spectral energy from small seeded r
 heights, one run per seed, keeping the lowest energy (see
 :mod:`sweepshell.models.foundation_sheet.energy`); the regime comes from the equilibrium spectrum
 and the local orientation of the height field (rule in
-:mod:`sweepshell.models.foundation_sheet.patterns`).
+:mod:`sweepshell.models.foundation_sheet.patterns`). With ``mirror_starts`` (default) every seed also
+runs on the mirrored problem (ε₁ and ε₂ swapped) and its equilibrium, transposed, joins the
+candidates: an isotropic film on a square cell has the same equilibria up to that mirror,
+so the points (ε₁, ε₂) and (ε₂, ε₁) choose among the same candidates and the map is
+symmetric under strain_x ↔ strain_y. ``pattern_confidence`` is the share of converged
+starts whose equilibrium has the chosen pattern: 1 where every start agrees, lower where
+several patterns are (meta)stable and the choice rests on small energy differences.
 
 Resolution as a parameter
 -------------------------
@@ -165,10 +171,14 @@ class FoundationSheetModel(SweepModel):
         Smallest Ē_f/Ē_s treated as valid (thin-film, stiff-on-soft theory).
     max_strain
         Largest |strain| treated as valid (small-strain FvK theory).
+    mirror_starts
+        Also run every seed on the mirrored problem (strains swapped) and keep the lowest
+        energy of both (twice the cost; the map becomes mirror-symmetric).
     """
 
     name: ClassVar[str] = "foundation_sheet"
-    version: ClassVar[str] = "1.0"
+    # 1.1: mirrored starts and pattern_confidence (the regime of multistable points can change)
+    version: ClassVar[str] = "1.1"
     summary: ClassVar[str] = ("wrinkle patterns of a biaxially compressed FvK film on a half-space "
                               "or Winkler substrate, pseudo-spectral energy minimisation")
     parameters: ClassVar[tuple[ParameterSpec, ...]] = (
@@ -200,7 +210,7 @@ class FoundationSheetModel(SweepModel):
     def __init__(self, *, seeds: Sequence[int] = (1, 2, 3), perturbation: float = 0.01,
                  gradient_tolerance: float = 1e-4, max_iterations: int = 4000,
                  height_samples: int = 16, flat_tolerance: float = 1e-3,
-                 min_contrast: float = 5.0, max_strain: float = 0.2) -> None:
+                 min_contrast: float = 5.0, max_strain: float = 0.2, mirror_starts: bool = True) -> None:
         super().__init__()
         seed_list = [int(s) for s in seeds]
         if not seed_list:
@@ -214,7 +224,10 @@ class FoundationSheetModel(SweepModel):
                           "gradient_tolerance": float(gradient_tolerance),
                           "max_iterations": int(max_iterations), "height_samples": int(height_samples),
                           "flat_tolerance": float(flat_tolerance), "min_contrast": float(min_contrast),
-                          "max_strain": float(max_strain)}
+                          "max_strain": float(max_strain), "mirror_starts": bool(mirror_starts)}
+
+    def estimated_cost(self) -> float:
+        return self.cost_hint * (2.0 if self._settings["mirror_starts"] else 1.0)
 
     # -- declarations -----------------------------------------------------------------
     @property
@@ -232,6 +245,8 @@ class FoundationSheetModel(SweepModel):
             OutputSpec("amplitude_peak", "m", "half the peak-to-valley height of the equilibrium"),
             OutputSpec("energy", "J m-2", "energy per unit area relative to the flat compressed film",
                        symbol="ΔΠ"),
+            OutputSpec("pattern_confidence", "1", "share of converged starts (seeds, both mirror orientations) "
+                       "ending in the chosen pattern; below 1 where states are multistable"),
         ]
         if self._settings["height_samples"] > 0:
             specs.append(OutputSpec("height", "m", "equilibrium height sampled on a coarse grid of the cell",
@@ -318,19 +333,28 @@ class FoundationSheetModel(SweepModel):
                 with np.errstate(all="raise", under="ignore"):
                     problem = make_sheet_problem(int(modes[i]), int(cells[i]), str(substrate[i]),
                                                  float(nu[i]), (float(s1[i]), float(s2[i])))
+                    flat_amplitude = s["flat_tolerance"] / ratio
                     if problem.linear_stability_margin() >= 0.0:
                         field = np.zeros((problem.n, problem.n))
-                        code, energy = Status.no_instability, 0.0
+                        code, energy, confidence = Status.no_instability, 0.0, 1.0
                     else:
-                        best = self._solve_point(problem, ratio, seed_energies[i])
-                        if best is None:
+                        mirrored = None
+                        if s["mirror_starts"] and s1[i] != s2[i]:
+                            mirrored = make_sheet_problem(int(modes[i]), int(cells[i]), str(substrate[i]),
+                                                          float(nu[i]), (float(s2[i]), float(s1[i])))
+                        found = self._solve_point(problem, mirrored, ratio, seed_energies[i])
+                        if not found:
                             status[i] = Status.not_converged
                             continue
-                        field, code, energy = best.height, Status.ok, best.energy
-                        iterations[i] = best.iterations
+                        energy, field, iterations[i] = min(found, key=lambda c: c[0])
+                        code = Status.ok
+                        patterns = [classify_pattern(measure_pattern(c[1]), flat_amplitude) for c in found]
+                        chosen = classify_pattern(measure_pattern(field), flat_amplitude)
+                        confidence = patterns.count(chosen) / len(patterns)
                     self._fill_point(out, int(i), field * b, h[i], energy * scales["energy_scale"][i],
                                      scales["critical_wavelength"][i] * cells[i])
-                    regime[i] = classify_pattern(measure_pattern(field), s["flat_tolerance"] / ratio)
+                    out["pattern_confidence"][i] = confidence
+                    regime[i] = classify_pattern(measure_pattern(field), flat_amplitude)
             except (FloatingPointError, ValueError, np.linalg.LinAlgError):
                 status[i] = Status.failed
                 regime[i] = -1
@@ -344,11 +368,24 @@ class FoundationSheetModel(SweepModel):
         return BatchResult(outputs=out, status=status, regime=regime,
                            diagnostics={"iterations": iterations, "seed_energies": seed_energies})
 
-    def _solve_point(self, problem: Any, height_ratio: float,
-                     seed_energies: np.ndarray) -> SheetMinimum | None:
-        """Run every seed; return the lowest-energy converged minimum, or None."""
+    def _solve_point(self, problem: Any, mirrored: Any, height_ratio: float,
+                     seed_energies: np.ndarray) -> list[tuple[float, np.ndarray, int]]:
+        """Run every seed (on the mirrored problem too, if given); return the converged minima.
+
+        Each as ``(energy, height, iterations)``; heights of the mirrored problem are
+        transposed back, so every candidate is an equilibrium of ``problem``.
+        """
+        found = [(m.energy, m.height, m.iterations) for m in self._run_seeds(problem, height_ratio, seed_energies)]
+        if mirrored is not None:
+            unused = np.full(len(self._settings["seeds"]), np.nan)
+            found += [(m.energy, m.height.T.copy(), m.iterations)
+                      for m in self._run_seeds(mirrored, height_ratio, unused)]
+        return found
+
+    def _run_seeds(self, problem: Any, height_ratio: float, seed_energies: np.ndarray) -> list[SheetMinimum]:
+        """Run every seed on ``problem``; return the converged minima (energies of finite ones recorded)."""
         s = self._settings
-        best: SheetMinimum | None = None
+        converged: list[SheetMinimum] = []
         for j, seed in enumerate(s["seeds"]):
             # white noise on the grid, projected onto the resolved modes: depends only on
             # the seed and the grid, never on the point or its place in the batch
@@ -362,9 +399,9 @@ class FoundationSheetModel(SweepModel):
             if not found.finite:
                 continue
             seed_energies[j] = found.energy
-            if found.converged and (best is None or found.energy < best.energy):
-                best = found
-        return best
+            if found.converged:
+                converged.append(found)
+        return converged
 
     def _fill_point(self, out: dict[str, np.ndarray], i: int, height: np.ndarray, thickness: float,
                     energy: float, cell_size: float) -> None:

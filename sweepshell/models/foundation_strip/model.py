@@ -37,8 +37,8 @@ where 1 + c₃y² < 0), uniform axial strain P/A ≪ 1.
 D w'''' + N w'' + K w = 0 with a line load and moment at x = 0 on a ``broken`` or
 ``continuous`` plate. Outputs in metres: ``flexural_parameter`` α = (4D/K)^{1/4},
 ``zero_crossing_distance``, ``forebulge_distance``, ``forebulge_height`` (up
-positive), ``max_deflection`` (down positive). Regime ``flat`` (unbuckled); |N| ≥ 2√(DK) is
-``outside_validity``.
+positive), ``max_deflection`` (down positive). Regime ``flexure`` (a loaded, unbuckled plate:
+the compression regimes do not apply); |N| ≥ 2√(DK) is ``outside_validity``.
 
 Outputs that do not belong to a point's problem are NaN (all outputs are nullable).
 
@@ -112,7 +112,8 @@ class FoundationStripModel(SweepModel):
     """
 
     name: ClassVar[str] = "foundation_strip"
-    version: ClassVar[str] = "1.1"
+    # 1.2: flexure points carry the regime "flexure" instead of "flat" (a compression regime)
+    version: ClassVar[str] = "1.2"
     summary: ClassVar[str] = ("strip on an elastic foundation: wrinkle onset, wrinkle-to-fold "
                               "continuation path, plate flexure in physical units")
     parameters: ClassVar[tuple[ParameterSpec, ...]] = (
@@ -127,7 +128,7 @@ class FoundationStripModel(SweepModel):
                       default=0.0, symbol="K3"),
         ParameterSpec("stretching_stiffness", "N m-1",
                       "axial stiffness A per unit width (inf: inextensible)",
-                      default=_INF, bounds=(0.0, _INF), closed=(False, True), symbol="A"),
+                      default=_INF, bounds=(0.0, _INF), closed=(False, True), admits_infinity=True, symbol="A"),
         ParameterSpec("confinement", "1", "imposed end-shortening per unit length",
                       default=0.02, bounds=(0.0, 0.5), symbol="c"),
         ParameterSpec("imperfection", "1",
@@ -152,7 +153,12 @@ class FoundationStripModel(SweepModel):
         ParameterSpec("plate", "1", "broken (free end at the load) or continuous plate",
                       default="broken", choices=("broken", "continuous")),
     )
-    regimes: ClassVar[tuple[str, ...]] = ("flat", "wrinkled", "folded")
+    regimes: ClassVar[tuple[str, ...]] = ("flat", "wrinkled", "folded", "flexure")
+    parameter_groups: ClassVar[Mapping[str, Mapping[str, tuple[str, ...]]]] = {"problem": {
+        "compression": ("bending_stiffness", "foundation_stiffness", "cubic_stiffness", "stretching_stiffness",
+                        "confinement", "imperfection"),
+        "flexure": ("elastic_thickness", "youngs_modulus", "poisson_ratio", "density_contrast", "gravity",
+                    "end_load", "end_moment", "axial_force", "plate")}}
     #: measured: a path to the fold at default settings, one core (benchmarks/bench_foundation_strip.py)
     cost_hint: ClassVar[float] = 0.1
 
@@ -220,6 +226,7 @@ class FoundationStripModel(SweepModel):
         flex = problem == "flexure"
         if np.any(flex):
             self._solve_flexure(inputs, flex, outputs, status)
+            regime[flex] = self.regimes.index("flexure")  # a loaded plate: neither flat nor wrinkled
         comp = ~flex
         if np.any(comp):
             self._solve_compression(inputs, comp, outputs, status, regime)

@@ -272,6 +272,19 @@ class ShallowCapModel(SweepModel):
                       bounds=(0.0, math.inf), closed=(False, False), symbol="E"),
     )
     regimes: ClassVar[tuple[str, ...]] = ("stable", "limit_point", "bifurcation")
+    parameter_groups: ClassVar[Mapping[str, Mapping[str, tuple[str, ...]]]] = {
+        "load": {"mismatch": ("mismatch_strain", "mismatch_radius", "mismatch_region")}}
+
+    @classmethod
+    def kernels_to_compile(cls) -> bool:
+        # numba writes its cache (index *.nbi) beside the kernels' module; an index older than the module is stale
+        from pathlib import Path
+
+        from sweepshell.models.shallow_cap import compiled
+
+        source = Path(compiled.__file__)
+        index = list((source.parent / "__pycache__").glob(f"{source.stem}.*.nbi"))
+        return not index or min(p.stat().st_mtime for p in index) < source.stat().st_mtime
     # measured (one core, wall, benchmarks/bench_shallow_cap.py, λ = 3.5 … 20): ~1 ms axisymmetric, ~12 ms
     # with the scan, ~15 ms with bistability; apex-force points 0.1–0.3 s (λ 6–30) with the scan (its 3x
     # stability grid); sharp-edged mismatch points 45–100 ms with the scan

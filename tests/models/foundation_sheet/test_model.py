@@ -237,3 +237,26 @@ def test_huge_start_backtracks_instead_of_failing() -> None:
     with np.errstate(all="raise", under="ignore"):
         found = minimize_sheet_energy(problem, z0, gradient_tolerance=1e-6)
     assert found.converged and found.energy == pytest.approx(-0.125, rel=1e-6)
+
+
+def test_mirrored_starts_make_swapped_strains_mirror_images() -> None:
+    # an isotropic film on a square cell: (ε₁, ε₂) and (ε₂, ε₁) must give mirror-image equilibria
+    # (common practice, no source: the symmetry of the problem)
+    model = FoundationSheetModel(seeds=(1, 2), height_samples=8)
+    inputs = FoundationSheetModel.sample_inputs()
+    base = {k: np.repeat(v[1:2], 6) for k, v in inputs.items()}
+    scales = compute_sheet_scales(base["film_thickness"][:1], base["film_modulus"][:1],
+                                  base["film_poisson_ratio"][:1], base["substrate_modulus"][:1],
+                                  base["substrate_poisson_ratio"][:1], base["substrate"][:1])
+    eps_c = float(scales["critical_strain"][0])
+    pairs = np.array([(2.2, 0.4), (1.8, 1.3), (2.6, 2.0)]) * eps_c
+    base["strain_x"] = np.concatenate([pairs[:, 0], pairs[:, 1]])
+    base["strain_y"] = np.concatenate([pairs[:, 1], pairs[:, 0]])
+    result = model.solve_batch(base)
+    assert np.all(result.status == Status.ok)
+    np.testing.assert_array_equal(result.regime[:3], result.regime[3:])
+    np.testing.assert_allclose(result.outputs["energy"][:3], result.outputs["energy"][3:], rtol=1e-12)
+    height = result.outputs["height"]
+    np.testing.assert_allclose(height[:3], np.swapaxes(height[3:], 1, 2), atol=1e-12 * np.abs(height).max())
+    confidence = result.outputs["pattern_confidence"]
+    assert np.all((confidence > 0) & (confidence <= 1)) and np.all(confidence[:3] == confidence[3:])

@@ -26,7 +26,7 @@ TWO_PI = 2.0 * np.pi
 def test_registry_and_declarations():
     assert get_model("foundation_strip") is FoundationStripModel
     model = make_model("foundation_strip", {"length": 6.0})
-    assert model.regimes == ("flat", "wrinkled", "folded")
+    assert model.regimes == ("flat", "wrinkled", "folded", "flexure")
     names = [o.name for o in model.outputs]
     assert names == ["critical_load", "wavelength", "fold_confinement", "fold_amplitude", "flexural_parameter",
                      "zero_crossing_distance", "forebulge_distance", "forebulge_height", "max_deflection"]
@@ -47,7 +47,7 @@ def test_contract_shapes_nan_and_batch_invariance():
     whole = model.solve_batch(model_inputs(model, **cols))
     assert whole.status.dtype == np.uint8 and whole.regime.dtype == np.int8
     assert list(whole.status) == [1, 1, 1, 1, Status.outside_validity, Status.outside_validity]
-    assert list(whole.regime) == [0, 0, 1, 2, -1, -1]
+    assert list(whole.regime) == [0, 3, 1, 2, -1, -1]  # the flexure point: regime "flexure"
     trusted = np.isin(whole.status, list(TRUSTED_STATUSES))
     for name, v in whole.outputs.items():
         assert v.shape == (6,) and v.dtype == np.float64, name
