@@ -29,11 +29,11 @@ import numpy as np
 
 from sweepshell.models import make_model
 from sweepshell.models.foundation_sheet.energy import (
+    build_sheet_problem,
     compute_height_field,
-    make_sheet_problem,
-    minimize_sheet_energy,
     project_field_to_modes,
 )
+from sweepshell.models.foundation_sheet.minimize import minimize_sheet_energy
 from sweepshell.models.foundation_sheet.model import compute_sheet_scales
 from sweepshell.models.foundation_sheet.reference import minimize_reference_energy
 
@@ -74,7 +74,7 @@ def bench_against_reference() -> None:
     print(f"2. fast solver vs displacement-form reference, {n}x{n}, {cells} wavelengths, one start")
     ratios = []
     for label, s in cases.items():
-        problem = make_sheet_problem(n, cells, "half_space", nu, s)
+        problem = build_sheet_problem(n, cells, "half_space", nu, s)
         z0 = project_field_to_modes(problem, np.random.default_rng(1).standard_normal((n, n)))
         z0 *= 0.02 / np.sqrt(np.mean(compute_height_field(problem, z0) ** 2))
         t = time.perf_counter()

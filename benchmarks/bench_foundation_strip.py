@@ -27,12 +27,12 @@ from scipy.optimize import root
 from sweepshell.models import make_model
 from sweepshell.models.foundation_strip.continuation import StripPath
 from sweepshell.models.foundation_strip.elastica import (
+    build_strip_grid,
+    build_strip_problem,
     compute_crest_contrast,
     compute_gradient,
     compute_hessian,
     compute_node_heights,
-    make_strip_grid,
-    make_strip_problem,
 )
 from sweepshell.models.foundation_strip.path import FoldWatch, compute_pinned_onset
 
@@ -104,8 +104,8 @@ def reference_fold(imperfection: float, segments_per_wavelength: int = 16, lengt
                    d_max: float = 0.035, count: int = 70) -> float:
     """Fold confinement by natural-parameter continuation in d with scipy.optimize.root."""
     L = length * TWO_PI
-    grid = make_strip_grid(L, round(segments_per_wavelength * length))
-    problem = make_strip_problem(grid, imperfection=imperfection * TWO_PI, width=TWO_PI, cubic=0.0)
+    grid = build_strip_grid(L, round(segments_per_wavelength * length))
+    problem = build_strip_problem(grid, imperfection=imperfection * TWO_PI, width=TWO_PI, cubic=0.0)
     n, h = grid.n, grid.h
 
     def fun(z, d):

@@ -192,3 +192,37 @@ def shape_stores(tmp_path_factory: pytest.TempPathFactory) -> dict[str, Path]:
 
     folder = tmp_path_factory.mktemp("shapes")
     return {"cap": make_cap_store(folder), "strip": make_strip_store(folder), "plain": make_plain_store(folder)}
+
+EXAMPLES = REPO / "examples"
+RING_PLUGIN = EXAMPLES / "elastic_ring_plugin"
+
+
+def pip_install_target(source: Path, target: Path) -> Path:
+    """Install ``source`` (a project folder or a wheel) without dependencies into ``target``; return ``target``.
+
+    The test venv already holds every dependency, so putting ``target`` first on ``PYTHONPATH`` gives a
+    subprocess the installed package (and its entry points, read from the dist-info) without a second venv.
+    """
+    import subprocess
+    import sys
+
+    proc = subprocess.run([sys.executable, "-m", "pip", "install", "--quiet", "--no-deps", "--no-compile",
+                           "--disable-pip-version-check", "--target", str(target), str(source)],
+                          capture_output=True, text=True, timeout=600, check=False)
+    assert proc.returncode == 0, proc.stdout + proc.stderr
+    return target
+
+
+def subprocess_env(*paths: Path) -> dict[str, str]:
+    """Environment for a ``python -m sweepshell`` subprocess: ``paths`` first on ``PYTHONPATH``, no config override."""
+    env = {k: v for k, v in os.environ.items() if k != "SWEEPSHELL_CONFIG_DIR"}
+    parts = [str(p) for p in paths] + ([env["PYTHONPATH"]] if env.get("PYTHONPATH") else [])
+    env["PYTHONPATH"] = os.pathsep.join(parts)
+    env["MPLBACKEND"] = "Agg"
+    return env
+
+
+@pytest.fixture(scope="session")
+def ring_plugin_site(tmp_path_factory: pytest.TempPathFactory) -> Path:
+    """A folder holding the installed example plug-in ``fenwick-rings`` (put it on ``PYTHONPATH``)."""
+    return pip_install_target(RING_PLUGIN, tmp_path_factory.mktemp("plugin-site"))

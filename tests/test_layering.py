@@ -34,7 +34,7 @@ MODEL_SEAM = ("sweepshell.models.base", "sweepshell.errors", "sweepshell.numeric
 #: declared uses of another model's public code (stated in the using model's theory.md): cap_postbuckling
 #: takes shallow_cap's asymmetric scan (its model class) and its cos(n theta) mode operators
 MODEL_USES = {"cap_postbuckling": ("sweepshell.models.shallow_cap.model.ShallowCapModel",
-                                   "sweepshell.models.shallow_cap.modes.make_mode_operators")}
+                                   "sweepshell.models.shallow_cap.modes.build_mode_operators")}
 
 #: the query layer only reads: it never runs a model (the registry builds models) nor writes a store
 QUERY_FORBIDDEN = ("sweepshell.models", "sweepshell.store.writer", "sweepshell.store.merge",

@@ -68,7 +68,8 @@ def build_parser() -> argparse.ArgumentParser:
         epilog=EXIT_CODES_HELP + ". " + _CAUTION_HELP)
     run.add_argument("sweep", metavar="SWEEP", help="sweep name, sweep YAML file, or store to continue")
     run.add_argument("overrides", nargs="*", metavar="OVERRIDE", help="key=value in hydra's grammar (see above)")
-    run.add_argument("--config-dir", help="the configs/ folder (default: ./configs)")
+    run.add_argument("--config-dir",
+                     help="the configs/ folder (default: ./configs, else the demo configs packaged with sweepshell)")
     run.add_argument("--progress", choices=("auto", "bar", "lines", "none"), default="auto",
                      help="progress display (default: a bar on a terminal, periodic lines otherwise)")
     run.add_argument("--dry-run", action="store_true",
@@ -95,7 +96,7 @@ def build_parser() -> argparse.ArgumentParser:
 
 #: modules adding further commands; each has ``register(subparsers)`` and imports heavy libraries lazily.
 #: Every command function returns an exit code and raises SweepshellError for bad input.
-_COMMAND_MODULES: tuple[str, ...] = ("sweepshell.cli.analysis", "sweepshell.cli.shape", "sweepshell.cli.team")
+_COMMAND_MODULES: tuple[str, ...] = ("sweepshell.cli.analysis", "sweepshell.cli.shape", "sweepshell.cli.sharing")
 
 
 def _cmd_run(args: argparse.Namespace) -> int:
@@ -108,11 +109,11 @@ def _cmd_run(args: argparse.Namespace) -> int:
         print(plan.resolved_yaml, end="")
         print(store_note, file=sys.stderr)
         return EXIT_OK
-    from sweepshell.engine.observers import make_observer
+    from sweepshell.engine.observers import get_observer
     from sweepshell.engine.runner import SweepInterrupted, refine_plan_store, run_plan
 
     kind = {"lines": "lines", "bar": "bar", "none": "none"}.get(args.progress, "auto")
-    observer = make_observer(kind)
+    observer = get_observer(kind)
     try:
         summary = run_plan(plan, observer=observer)
     except SweepInterrupted as stop:
@@ -175,7 +176,9 @@ def _cmd_status(args: argparse.Namespace) -> int:
         return EXIT_OK
     axes = ", ".join(f"{a['name']}[{a['size']}] {a['min']}..{a['max']}" for a in info["axes"])
     counts = ", ".join(f"{v} {k}" for k, v in info["counts"].items() if v)
-    print(f"store {info['path']}: sweep {info['sweep']}, model {info['model']} {info['model_version']}")
+    package = info.get("model_package")
+    origin = f" from {package} {info.get('model_package_version')}" if package and package != "sweepshell" else ""
+    print(f"store {info['path']}: sweep {info['sweep']}, model {info['model']} {info['model_version']}{origin}")
     print(f"  axes: {axes}")
     print(f"  {info['total']} points: {counts}; {info['complete_fraction']:.1%} final"
           + ("" if info["complete"] else " (run the sweep again to continue)"))
@@ -193,14 +196,20 @@ def _cmd_status(args: argparse.Namespace) -> int:
 
 
 def _cmd_models(args: argparse.Namespace) -> int:
-    from sweepshell.models import list_models, make_model
+    from sweepshell.models import get_model_origin, list_models, make_model
 
-    described = [make_model(name).describe() for name in list_models()]
+    described = []
+    for name in list_models():
+        origin = get_model_origin(name)
+        d = make_model(name).describe()
+        d["origin"] = {"builtin": origin.builtin, "distribution": origin.distribution, "version": origin.version,
+                       "label": origin.label}
+        described.append(d)
     if args.format == "json":
         print(json.dumps(described, indent=2))
         return EXIT_OK
     for d in described:
-        print(f"{d['name']} {d['version']}: {d['summary']}")
+        print(f"{d['name']} {d['version']} ({d['origin']['label']}): {d['summary']}")
         for p in d["parameters"]:
             print(f"  parameter {p['name']} [{p['units']}] {p['allowed']}, default {p['default']}: {p['doc']}")
         for o in d["outputs"]:
@@ -243,7 +252,7 @@ def main(argv: Sequence[str] | None = None) -> int:
 
 def _explain_failure(args: argparse.Namespace, exc: Exception) -> tuple[str, int]:
     """Return one line and the exit code for an unexpected exception (a damaged chunk if that is the cause)."""
-    from sweepshell.store.integrity import find_undecodable_chunk
+    from sweepshell.store.chunk_checks import find_undecodable_chunk
 
     for attr in ("store", "a", "b"):
         store = getattr(args, attr, None)

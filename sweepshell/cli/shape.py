@@ -11,6 +11,7 @@ import argparse
 from typing import Any
 
 from sweepshell.about import CAUTION
+from sweepshell.cli.options import STORE_HELP, add_out_option
 
 __all__ = ["register"]
 
@@ -28,10 +29,10 @@ def register(subparsers: Any) -> None:
                     "names for categories, reported); axes not named take their first value. With one point, a "
                     "point without a trusted shape is an error; with several, its panel says why it is empty.",
         epilog=CAUTION)
-    s.add_argument("store", metavar="STORE")
+    s.add_argument("store", metavar="STORE", help=STORE_HELP)
     s.add_argument("--at", action="append", metavar="NAME=VALUE[,NAME=VALUE...]",
                    help="one point (repeatable: one panel each, at most 6)")
-    s.add_argument("--out", metavar="FILE", help="FILE.png or FILE.svg (default: <store>-shape.png)")
+    add_out_option(s, "FILE.png or FILE.svg (default: <store>-shape.png)")
     s.set_defaults(func=_cmd_shape)
 
 

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 from collections.abc import Sequence
+from typing import Any
 
 from sweepshell.engine.observers import RunObserver
 from sweepshell.engine.runner import RunSummary
@@ -13,7 +14,7 @@ __all__ = ["run_sweep"]
 
 
 def run_sweep(sweep: str | SweepPlan, overrides: Sequence[str] = (), *, observer: RunObserver | None = None,
-              config_dir: str | None = None) -> RunSummary:
+              config_dir: str | None = None, client: Any = None) -> RunSummary:
     """Run a sweep by name, path or plan; running it again resumes it.
 
     Parameters
@@ -25,7 +26,11 @@ def run_sweep(sweep: str | SweepPlan, overrides: Sequence[str] = (), *, observer
     observer
         Progress observer; silent by default.
     config_dir
-        The folder holding ``config.yaml`` (default: the project's ``configs/``).
+        The folder holding ``config.yaml`` (default: ``./configs``, else the demo configs packaged with
+        sweepshell).
+    client
+        An existing :class:`distributed.Client` to run on (left open); the sweep's executor otherwise. Its
+        workers must reach the store path.
     """
     if isinstance(sweep, SweepPlan):
         plan = sweep
@@ -33,4 +38,4 @@ def run_sweep(sweep: str | SweepPlan, overrides: Sequence[str] = (), *, observer
         from sweepshell.config.loader import load_plan
 
         plan = load_plan(sweep, overrides, config_dir=config_dir)
-    return run_plan_and_refine(plan, observer=observer)
+    return run_plan_and_refine(plan, observer=observer, client=client)

@@ -132,7 +132,7 @@ def remove_stale_claims(store_path: str | os.PathLike[str], ttl: float = 60.0) -
     A killed runner leaves its claims behind; once the store is complete nobody takes them over,
     and zarr would warn about the folder on every open.
     """
-    from sweepshell.store.catalog import stale_claim_files
+    from sweepshell.store.leftovers import stale_claim_files
 
     stale = stale_claim_files(store_path, ttl)
     for claim in stale:

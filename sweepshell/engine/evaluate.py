@@ -12,7 +12,7 @@ import logging
 import math
 import os
 from collections.abc import Mapping
-from dataclasses import dataclass, field
+from dataclasses import InitVar, dataclass, field
 from typing import Any
 
 import numpy as np
@@ -25,7 +25,7 @@ from sweepshell.store import metadata
 from sweepshell.store.integrity import check_model_limits
 from sweepshell.store.metadata import ATTR
 
-__all__ = ["PointEvaluator", "make_store_model", "store_evaluator"]
+__all__ = ["PointEvaluator", "build_store_model", "store_evaluator"]
 
 log = logging.getLogger(__name__)
 
@@ -36,7 +36,7 @@ def _settings_from_json(text: str | None) -> dict[str, Any]:
     return {k: (math.nan if v is None else v) for k, v in settings.items()}
 
 
-def make_store_model(attrs: Mapping[str, Any]) -> SweepModel:
+def build_store_model(attrs: Mapping[str, Any]) -> SweepModel:
     """Return the model that wrote a store, built from its recorded name and settings.
 
     Raises
@@ -72,6 +72,9 @@ class PointEvaluator:
         Values of the sweep axes that are not varied (from the slice).
     record
         Whether to append evaluated points to the store.
+    store_model
+        The store's model (:func:`build_store_model`); built from ``attrs`` when not given, so a
+        caller evaluating several views passes one model to all of them.
     """
 
     store: str | os.PathLike[str]
@@ -82,9 +85,10 @@ class PointEvaluator:
     level: int = 0
     evaluations: int = 0
     model: SweepModel = field(init=False)
+    store_model: InitVar[SweepModel | None] = None
 
-    def __post_init__(self) -> None:
-        self.model = make_store_model(self.attrs)
+    def __post_init__(self, store_model: SweepModel | None) -> None:
+        self.model = store_model if store_model is not None else build_store_model(self.attrs)
         fixed = metadata.read_record(self.attrs, ATTR.fixed)
         self._fixed = {k: (math.nan if v is None else v) for k, v in fixed.items()}
         self._axes = list(metadata.read_record(self.attrs, ATTR.axes))

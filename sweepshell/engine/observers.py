@@ -1,4 +1,7 @@
-"""Progress observers: a bar with rate and ETA on a terminal, plain periodic lines elsewhere."""
+"""Progress observers: a bar with rate and ETA on a terminal, plain periodic lines elsewhere.
+
+Both print the address of the dask dashboard of the run's cluster (its plots need ``bokeh``).
+"""
 
 from __future__ import annotations
 
@@ -7,10 +10,11 @@ import sys
 import time
 from typing import Any, Protocol, TextIO
 
-__all__ = ["BarObserver", "LineObserver", "RunObserver", "SilentObserver", "make_observer"]
+__all__ = ["BarObserver", "LineObserver", "RunObserver", "SilentObserver", "get_observer"]
 
 
 class RunObserver(Protocol):
+    def connected(self, dashboard: str | None) -> None: ...
     def start(self, total: int, done: int, to_compute: int, note: str = "") -> None: ...
     def advance(self, points: int) -> None: ...
     def close(self) -> None: ...
@@ -18,6 +22,9 @@ class RunObserver(Protocol):
 
 class SilentObserver:
     """Reports nothing (library use, tests)."""
+
+    def connected(self, dashboard: str | None) -> None:
+        return None
 
     def start(self, total: int, done: int, to_compute: int, note: str = "") -> None:
         return None
@@ -81,6 +88,10 @@ class LineObserver:
         self.stream = stream or sys.stderr
         self.every = every
 
+    def connected(self, dashboard: str | None) -> None:
+        if dashboard:
+            print(f"dask dashboard: {dashboard}", file=self.stream, flush=True)
+
     def start(self, total: int, done: int, to_compute: int, note: str = "") -> None:
         self.total, self.done, self.to_compute, self.computed = total, done, to_compute, 0
         self.t0 = self.last = time.monotonic()
@@ -121,6 +132,10 @@ class BarObserver:
             TextColumn("{task.fields[note]}"), transient=False)
         self._task: Any = None
 
+    def connected(self, dashboard: str | None) -> None:
+        if dashboard:
+            print(f"dask dashboard: {dashboard}", file=sys.stderr, flush=True)
+
     def start(self, total: int, done: int, to_compute: int, note: str = "") -> None:
         self.eta = _Eta(to_compute)
         self._progress.start()
@@ -137,7 +152,7 @@ class BarObserver:
         self._progress.stop()
 
 
-def make_observer(kind: str = "auto") -> RunObserver:
+def get_observer(kind: str = "auto") -> RunObserver:
     """Return ``bar`` on a terminal, ``lines`` otherwise (``auto``), or ``none``."""
     if kind == "none":
         return SilentObserver()

@@ -32,7 +32,12 @@ from typing import Any
 
 import numpy as np
 
+from sweepshell.engine.evaluate import PointEvaluator, build_store_model
 from sweepshell.errors import QueryError
+from sweepshell.query.slicing import slice_sweep
+from sweepshell.query.table import describe_fields, read_store_points
+from sweepshell.query.view_grid import ViewGrid, read_view_grid
+from sweepshell.store.reader import open_sweep
 
 __all__ = ["RefineSummary", "describe_budget", "grid_crossings", "node_crossings", "refine_store"]
 
@@ -107,15 +112,14 @@ def _uniform_count(summary: RefineSummary) -> int:
     return ((len(s.x_unit) - 1) * f + 1) * ((len(s.y_unit) - 1) * f + 1)
 
 
-def _positions(unit: np.ndarray, values: np.ndarray, index: np.ndarray, levels: int, is_log: bool) -> np.ndarray:
+def _positions(grid: ViewGrid, axis: int, index: np.ndarray, levels: int) -> np.ndarray:
     """Axis values of finest-level node indices (grid values exactly where a node is on the grid)."""
-    from sweepshell.query.slicing import from_unit
-
+    unit, values = (grid.x_unit, grid.x_values) if axis == 0 else (grid.y_unit, grid.y_values)
     step = 2 ** levels
     k = np.minimum(index // step, len(unit) - 2)
     frac = (index - k * step) / step
     u = unit[k] + frac * (unit[k + 1] - unit[k])
-    out = from_unit(u, is_log)
+    out = grid.axis_values(axis, u)
     on_grid = frac == 0
     out[on_grid] = values[k[on_grid]]
     at_end = frac == 1
@@ -131,16 +135,10 @@ def _mixed(codes: np.ndarray) -> np.ndarray:
     return high > low
 
 
-def _refine_view(view: Any, x_axis: str, y_axis: str, levels: int, evaluator: Any,
-                 known: Mapping[tuple[float, float], int]) -> SliceRefinement:
-    from sweepshell.query.boundary import slice_codes
-    from sweepshell.query.slicing import to_unit
-
-    xv = np.asarray(view.ds[x_axis].values, float)
-    yv = np.asarray(view.ds[y_axis].values, float)
-    xu, yu = to_unit(xv, view.log[0]), to_unit(yv, view.log[1])
-    codes = slice_codes(view.ds)
-    state = SliceRefinement(fixed=dict(view.fixed_values), x_unit=xu, y_unit=yu, levels=levels)
+def _refine_view(grid: ViewGrid, levels: int, evaluator: Any) -> SliceRefinement:
+    """Build the quadtree of one view level by level, evaluating the nodes not known yet."""
+    codes, known = grid.codes, grid.known
+    state = SliceRefinement(fixed=dict(grid.fixed), x_unit=grid.x_unit, y_unit=grid.y_unit, levels=levels)
     step = 2 ** levels
     nx, ny = codes.shape
     gi, gj = np.meshgrid(np.arange(nx) * step, np.arange(ny) * step, indexing="ij")
@@ -165,8 +163,8 @@ def _refine_view(view: Any, x_axis: str, y_axis: str, levels: int, evaluator: An
                               np.stack([i + half, j + half], 1)])
         new = np.unique(new, axis=0)
         todo = np.array([k for k in map(tuple, new.tolist()) if k not in state.nodes], dtype=np.int64).reshape(-1, 2)
-        xs = _positions(xu, xv, todo[:, 0], levels, view.log[0])
-        ys = _positions(yu, yv, todo[:, 1], levels, view.log[1])
+        xs = _positions(grid, 0, todo[:, 0], levels)
+        ys = _positions(grid, 1, todo[:, 1], levels)
         stored = np.array([known.get((float(a), float(b)), -2) for a, b in zip(xs, ys, strict=True)], dtype=np.int64)
         reuse = stored != -2
         state.reused += int(reuse.sum())
@@ -218,11 +216,6 @@ def refine_store(path: str | os.PathLike[str], *, x: str | None = None, y: str |
     StoreMismatchError
         If the store was written by another version of the model.
     """
-    from sweepshell.engine.evaluate import PointEvaluator
-    from sweepshell.query.slicing import slice_sweep
-    from sweepshell.query.table import describe_fields, read_store_points
-    from sweepshell.store.reader import open_sweep
-
     if not 1 <= levels <= 12:
         raise QueryError(f"--levels={levels} must be between 1 and 12", field="levels", value=levels)
     t0 = time.perf_counter()
@@ -238,18 +231,16 @@ def refine_store(path: str | os.PathLike[str], *, x: str | None = None, y: str |
     others = [a for a in info.axes if a not in (x, y) and a not in at and ds.sizes[a] > 1]
     combos = list(itertools.product(*[[str(v) for v in ds[a].values] for a in others]))
     points = read_store_points(ds)
+    model = build_store_model(ds.attrs)  # one model for every view
     slices = []
     total = 0
     for combo in combos:
         view = slice_sweep(ds, [x, y], {**at, **dict(zip(others, combo, strict=True))})
-        for name in (x, y):
-            if view.ds[name].dtype.kind not in "fiu":
-                raise QueryError(f"axis {name!r} holds names; refinement needs numeric axes", field="axis",
-                                 value=name)
-        known = _known_lookup(points, view.fixed_values, x, y)
-        evaluator = _BudgetedEvaluator(PointEvaluator(path, ds.attrs, view.fixed_values, record=record,
-                                                      origin="refine"), x, y, max_evaluations - total)
-        state = _refine_view(view, x, y, levels, evaluator, known)
+        grid = read_view_grid(view, x, y, points)
+        points_of_view = PointEvaluator(path, ds.attrs, view.fixed_values, record=record, origin="refine",
+                                        store_model=model)
+        evaluator = _BudgetedEvaluator(points_of_view, x, y, max_evaluations - total)
+        state = _refine_view(grid, levels, evaluator)
         total += state.evaluations
         slices.append(state)
         log.info("refined view %s: %d evaluations", view.describe_cuts(), state.evaluations)
@@ -277,16 +268,6 @@ class _BudgetedEvaluator:
         self._budget -= xs.size
         self._evaluator.level = self.level
         return np.asarray(self._regimes(xs, ys))
-
-
-def _known_lookup(points: Mapping[str, np.ndarray] | None, fixed: Mapping[str, Any], x: str,
-                  y: str) -> dict[tuple[float, float], int]:
-    from sweepshell.query.boundary import known_points
-
-    known = known_points(points, fixed, x, y)
-    if known is None:
-        return {}
-    return {(float(a), float(b)): int(c) for a, b, c in zip(known["x"], known["y"], known["regime"], strict=True)}
 
 
 def node_crossings(state: SliceRefinement, a: int, b: int) -> np.ndarray:

@@ -22,7 +22,7 @@ from sweepshell.errors import SweepshellError
 from sweepshell.models.base import TRUSTED_STATUSES, BatchResult, SweepModel
 from sweepshell.plan import SweepPlan
 from sweepshell.store import metadata
-from sweepshell.store.integrity import find_blocks_missing_chunks
+from sweepshell.store.chunk_checks import find_blocks_missing_chunks
 from sweepshell.store.metadata import ATTR, canonical_json
 from sweepshell.store.reader import check_readable_store, read_ledger
 

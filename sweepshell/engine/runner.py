@@ -1,4 +1,4 @@
-"""Run a plan: create or reopen the store, find unfinished blocks, compute them on dask or in this process.
+"""Run a plan: create or reopen the store, find unfinished blocks, compute them on dask.
 
 Resume is the normal case: the ledger says which blocks are final, and only the others are
 submitted. Interrupting (Ctrl-C) cancels outstanding blocks; blocks whose status was not
@@ -7,12 +7,9 @@ written are simply recomputed by the next run.
 
 from __future__ import annotations
 
-import contextlib
-import errno
 import logging
 import os
 import time
-from collections.abc import Callable, Iterator
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
@@ -21,14 +18,21 @@ import numpy as np
 
 from sweepshell.engine.claims import ClaimBook, remove_stale_claims
 from sweepshell.engine.inprocess import drive_in_process
+from sweepshell.engine.executors import (
+    check_scheduler_reachable,
+    dashboard_link,
+    describe_outside_fault,
+    start_client_early,
+)
 from sweepshell.engine.observers import RunObserver, SilentObserver
 from sweepshell.engine.reuse import Donor, find_donors
 from sweepshell.engine.worker import compute_block
-from sweepshell.errors import ConfigError, RunStoppedError
+from sweepshell.errors import RunStoppedError
 from sweepshell.models import make_model
 from sweepshell.models.base import Status, SweepModel
-from sweepshell.plan import Block, ExecutorSpec, SweepPlan, choose_block_shape, iter_blocks
-from sweepshell.store.integrity import check_store_metadata, find_blocks_missing_chunks
+from sweepshell.plan import Block, SweepPlan, choose_block_shape, iter_blocks
+from sweepshell.store.chunk_checks import find_blocks_missing_chunks
+from sweepshell.store.integrity import check_store_metadata
 from sweepshell.store.metadata import REGIME_VAR, STATUS_VAR, has_node, is_store
 from sweepshell.store.reader import is_block_final, read_ledger
 from sweepshell.store.writer import (
@@ -41,12 +45,10 @@ from sweepshell.store.writer import (
 __all__ = [
     "RunSummary",
     "SweepInterrupted",
-    "open_client",
     "prepare_store",
     "refine_plan_store",
     "run_plan",
     "run_sweep",
-    "start_client",
 ]
 
 log = logging.getLogger(__name__)
@@ -131,81 +133,17 @@ def prepare_store(plan: SweepPlan, model: SweepModel | None = None) -> tuple[tup
     return (store_block_shape(path) if is_store(path) else block_shape), True
 
 
-@contextlib.contextmanager
-def open_client(spec: ExecutorSpec) -> Iterator[Any]:
-    """Yield a dask.distributed client for the executor spec and close what we started."""
-    client, cluster = start_client(spec)
-    try:
-        yield client
-    finally:
-        client.close()
-        if cluster is not None:
-            cluster.close()
-
-
-def start_client(spec: ExecutorSpec) -> tuple[Any, Any]:
-    """Return ``(client, cluster)``: the cluster is ours to close, ``None`` for an existing one."""
-    import dask
-    from distributed import Client, LocalCluster
-
-    # a failed block is reported by the runner in one line; dask's own error log would add a traceback
-    quiet = not log.isEnabledFor(logging.INFO)
-    if quiet:
-        logging.getLogger("distributed").setLevel(logging.CRITICAL)
-    if spec.kind == "distributed":
-        return Client(spec.address, timeout="20s"), None
-    with dask.config.set({"logging.distributed": "critical" if quiet else "error"}):
-        if spec.kind == "threads":
-            cluster = LocalCluster(n_workers=1, threads_per_worker=spec.workers or 1, processes=False,
-                                   dashboard_address=":0")
-        else:
-            # worker processes ignore Ctrl-C (sweepshell.engine.worker_setup): the runner handles it
-            cluster = LocalCluster(n_workers=spec.workers or (os.cpu_count() or 1), threads_per_worker=1,
-                                   processes=True, dashboard_address=":0",
-                                   silence_logs=logging.CRITICAL if quiet else logging.ERROR,
-                                   preload=["sweepshell.engine.worker_setup"])
-    return Client(cluster), cluster
-
-
-@contextlib.contextmanager
-def _client_started_early(plan: SweepPlan, early_start: bool) -> Iterator[Callable[[], Any]]:
-    """Start the workers in the background (if ``early_start``) while a new store's template is written.
-
-    Yields a function returning the client (waiting for it); whatever was started is closed on exit. For an
-    existing store nothing starts early: it may well be complete, and then no workers are needed.
-    """
-    from concurrent.futures import ThreadPoolExecutor
-
-    pool = ThreadPoolExecutor(1, thread_name_prefix="sweepshell-start")
-    early = pool.submit(start_client, plan.executor) if early_start else None
-    started: list[tuple[Any, Any]] = []
-
-    def get() -> Any:
-        if not started:
-            started.append(early.result() if early is not None else start_client(plan.executor))
-        return started[0][0]
-
-    try:
-        yield get
-    finally:
-        if early is not None and not started:
-            with contextlib.suppress(Exception):
-                started.append(early.result())
-        for client, cluster in started:
-            client.close()
-            if cluster is not None:
-                cluster.close()
-        pool.shutdown(wait=False)
-
-
 def _counts(ledger: np.ndarray) -> dict[str, int]:
     raw = np.bincount(ledger.reshape(-1), minlength=len(Status))
     return {s.name: int(raw[s.value]) for s in Status}
 
 
-def run_plan(plan: SweepPlan, *, observer: RunObserver | None = None, claim_ttl: float = 60.0) -> RunSummary:
+def run_plan(plan: SweepPlan, *, observer: RunObserver | None = None, claim_ttl: float = 60.0,
+             client: Any = None) -> RunSummary:
     """Compute every unfinished block of ``plan`` and return a summary.
 
+    ``client`` is an existing :class:`distributed.Client` to compute on (its workers must
+    reach the store's path); by default the plan's executor starts one, closed at the end.
     Several runners may work on one store at once: each block is claimed before it is
     submitted (see :mod:`sweepshell.engine.claims`), and blocks claimed by a live runner
     are left to it and picked up from the ledger when they are done.
@@ -227,10 +165,8 @@ def run_plan(plan: SweepPlan, *, observer: RunObserver | None = None, claim_ttl:
     tally: dict[str, Any] = {"model_seconds": 0.0, "computed": 0, "blocks": 0, "by_others": 0, "reused": 0,
                              "damaged": 0}
     claims: ClaimBook | None = None
-    # a new store of small estimated work is computed here: no workers start early
-    early_start = not existing and not plan.executor.runs_in_process(plan.estimated_seconds())
     try:
-        with _client_started_early(plan, early_start) as get_client:
+        with start_client_early(plan, client) as get_client:
             if not existing:
                 block_shape, _ = prepare_store(plan, model)
             ledger = read_ledger(path, block_shape)
@@ -244,7 +180,8 @@ def run_plan(plan: SweepPlan, *, observer: RunObserver | None = None, claim_ttl:
             to_compute = sum(b.n_points for b in pending)
             claims = ClaimBook(path, ttl=claim_ttl)
             donors = find_donors(plan, model) if plan.reuse else []
-            in_process = plan.executor.runs_in_process(plan.estimated_seconds(to_compute))
+            # a caller's client is used as given; otherwise executor auto computes small work here
+            in_process = client is None and plan.executor.runs_in_process(plan.estimated_seconds(to_compute))
             tally["executor"] = "in-process" if in_process else plan.executor.kind
             log.info("%s", plan.describe_executor(to_compute))
             note = "compiling the model's kernels (once); the ETA follows the first computed blocks" \
@@ -253,9 +190,13 @@ def run_plan(plan: SweepPlan, *, observer: RunObserver | None = None, claim_ttl:
                 observer.start(plan.n_points, plan.n_points - to_compute, to_compute, note=note)
                 drive_in_process(plan, pending, claims, observer, tally, donors)
             else:
-                client = get_client()
+                active = get_client()
+                link = dashboard_link(active)
+                if link:
+                    log.info("dask dashboard: %s", link)
+                observer.connected(link)
                 observer.start(plan.n_points, plan.n_points - to_compute, to_compute, note=note)
-                _drive(client, plan, pending, claims, observer, tally, donors)
+                _drive(active, plan, pending, claims, observer, tally, donors)
     except KeyboardInterrupt:
         if claims is None or not block_shape:
             raise
@@ -278,52 +219,6 @@ def run_plan(plan: SweepPlan, *, observer: RunObserver | None = None, claim_ttl:
     remove_stale_claims(path, claim_ttl)
     observer.close()
     return _final_summary(plan, block_shape, tally, t0)
-
-
-_FULL_ERRNOS = {errno.ENOSPC: "the disk is full", errno.EFBIG: "a file reached the file-size limit",
-                errno.EDQUOT: "the disk quota is exhausted"}
-
-
-def describe_outside_fault(exc: BaseException) -> str | None:
-    """Return what went wrong if ``exc`` is a fault outside sweepshell's input (disk, limits, scheduler)."""
-    seen: set[int] = set()
-    current: BaseException | None = exc
-    while current is not None and id(current) not in seen:
-        seen.add(id(current))
-        if isinstance(current, OSError) and current.errno in _FULL_ERRNOS:
-            where = f" writing {current.filename}" if current.filename else ""
-            return f"{_FULL_ERRNOS[current.errno]}{where} (free space or raise the limit)"
-        name = type(current).__name__
-        if name in ("CommClosedError", "KilledWorker", "FutureCancelledError", "CancelledError") or (
-                name in ("TimeoutError", "OSError") and "scheduler" in str(current).lower()):
-            return f"the dask scheduler or its workers were lost ({name})"
-        current = current.__cause__ or current.__context__
-    return None
-
-
-def check_scheduler_reachable(address: str | None, timeout: float = 5.0) -> None:
-    """Raise a one-line :class:`ConfigError` unless a TCP connection to the scheduler opens within ``timeout`` s."""
-    import socket
-    from urllib.parse import urlsplit
-
-    if not address:
-        raise ConfigError("executor=distributed needs an address; add executor.address=tcp://HOST:PORT",
-                          field="executor.address")
-    parts = urlsplit(address if "://" in address else f"tcp://{address}")
-    try:
-        host, port = parts.hostname, parts.port
-    except ValueError:
-        host, port = None, None
-    if parts.scheme not in ("tcp", "tls") or not host or not port:
-        raise ConfigError(f"executor.address={address!r} is not a scheduler address; use tcp://HOST:PORT",
-                          field="executor.address", value=address)
-    try:
-        with socket.create_connection((host, port), timeout=timeout):
-            pass
-    except OSError as exc:
-        raise ConfigError(f"executor.address={address!r}: no scheduler answers ({exc.strerror or type(exc).__name__}"
-                          f" within {timeout:g} s); start it (`dask scheduler`) or fix the address",
-                          field="executor.address", value=address) from None
 
 
 def _reset_blocks_missing_chunks(path: str, ledger: np.ndarray, block_shape: tuple[int, ...],
@@ -421,13 +316,14 @@ def _final_summary(plan: SweepPlan, block_shape: tuple[int, ...], tally: dict[st
                              "executor": tally.get("executor")})
 
 
-def run_sweep(plan: SweepPlan, *, observer: RunObserver | None = None) -> RunSummary:
+def run_sweep(plan: SweepPlan, *, observer: RunObserver | None = None, client: Any = None) -> RunSummary:
     """Run a planned sweep, then the refinement it asks for; running it again resumes it.
 
     Loading a sweep by name or file is the config layer's job
-    (:func:`sweepshell.config.sweep.run_sweep`, also ``sweepshell.run_sweep``).
+    (:func:`sweepshell.config.sweep.run_sweep`, also ``sweepshell.run_sweep``). ``client`` is an existing
+    :class:`distributed.Client` to run on (left open); the plan's executor otherwise.
     """
-    summary = run_plan(plan, observer=observer)
+    summary = run_plan(plan, observer=observer, client=client)
     if plan.refine and summary.complete:
         refine_plan_store(plan)
     return summary

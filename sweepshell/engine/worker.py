@@ -20,7 +20,7 @@ from sweepshell.models import make_model
 from sweepshell.models.base import BatchResult, Status, SweepModel
 from sweepshell.plan import Block
 
-__all__ = ["compute_block", "make_block_inputs", "solve_points"]
+__all__ = ["build_block_inputs", "compute_block", "solve_points"]
 
 log = logging.getLogger(__name__)
 
@@ -35,7 +35,7 @@ def _cached_model(name: str, settings: Mapping[str, Any]) -> SweepModel:
     return model
 
 
-def make_block_inputs(model: SweepModel, axis_names: Sequence[str], axis_values: Sequence[np.ndarray],
+def build_block_inputs(model: SweepModel, axis_names: Sequence[str], axis_values: Sequence[np.ndarray],
                       fixed: Mapping[str, Any]) -> dict[str, np.ndarray]:
     """Return the model inputs of every point of a block (C order over the block's axes)."""
     grids = np.meshgrid(*[np.asarray(v) for v in axis_values], indexing="ij")
@@ -102,7 +102,7 @@ def compute_block(store_path: str, model_name: str, settings: Mapping[str, Any],
     from sweepshell.store.writer import write_block
 
     model = _cached_model(model_name, settings)
-    inputs = make_block_inputs(model, axis_names, axis_values, fixed)
+    inputs = build_block_inputs(model, axis_names, axis_values, fixed)
     t0 = time.perf_counter()
     matched = np.zeros(block.n_points, dtype=bool)
     copied = None

@@ -11,7 +11,8 @@ The corrector solves the bordered system (Keller 1977, pseudo-arclength)::
 
 with ``t`` the unit tangent at the anchor ``z_k`` in the weighted norm ``‖v‖² = Σ w_i v_i²``.
 A fold (limit point) of ``μ`` is where the tangent's ``μ`` component changes sign; it is
-refined by regula falsi (Illinois variant) on that component along the arc.
+refined by regula falsi (Illinois variant) on that component along the arc
+(:func:`sweepshell.numerics.arc_refine.refine_on_arc`).
 
 A problem is any object with ``linearize(z, idx) -> (R, lin)`` where ``z`` is ``(k, m+1)``,
 ``idx`` the ``(k,)`` problem indices, ``R`` is ``(k, m)`` and ``lin.solve_bordered(row, r, c)``
@@ -38,7 +39,6 @@ __all__ = [
     "PathHistory",
     "compute_tangent",
     "correct_on_arc",
-    "refine_on_arc",
     "trace_paths",
 ]
 
@@ -46,9 +46,8 @@ TRACE_RUNNING = 0
 TRACE_DONE = 1
 TRACE_STALLED = 2  # step length fell below its minimum: Newton kept failing
 TRACE_STEP_LIMIT = 3
-# steps are sized for this share of the turn limit at the extrapolated turning rate (chosen before the
-# orientation test, when 0.5 and 0.8 each jumped off the first fold at λ = 24.46; with the test 0.8
-# measured no faster: models/shallow_cap/theory.md)
+# steps are sized for this share of the turn limit at the extrapolated turning rate (the measurements
+# behind the choice: models/shallow_cap/theory.md)
 TURN_SAFETY = 0.6
 # a step that changes the path's orientation (see trace_paths) is accepted only when shorter
 CROSS_STEP = 4e-7
@@ -168,6 +167,72 @@ def correct_on_arc(problem: ContinuationProblem, anchor: np.ndarray, tangent: np
     return z, conv, its, t_out
 
 
+def _grow_history(zh: np.ndarray, th: np.ndarray, sh: np.ndarray,
+                  grow_to: int) -> tuple[np.ndarray, np.ndarray, np.ndarray, int]:
+    """Return the path histories extended to ``grow_to`` points (new rows NaN, steps 0)."""
+    n, cap, m1 = zh.shape
+    zh = np.concatenate([zh, np.full((n, grow_to - cap, m1), np.nan)], axis=1)
+    th = np.concatenate([th, np.full((n, grow_to - cap, m1), np.nan)], axis=1)
+    sh = np.concatenate([sh, np.zeros((n, grow_to - cap))], axis=1)
+    return zh, th, sh, grow_to
+
+
+def _screen_steps(zc: np.ndarray, tc: np.ndarray, z: np.ndarray, tn: np.ndarray, conv: np.ndarray,
+                  h: np.ndarray, w: np.ndarray, cos_max: np.ndarray,
+                  max_drift: float) -> tuple[np.ndarray, np.ndarray]:
+    """Return which corrected steps are acceptable and the cosine of each step's turn.
+
+    ``tn`` of failed corrections is zeroed in place.
+    """
+    ok = conv.copy()
+    tn[~ok] = 0.0
+    with np.errstate(invalid="ignore"):
+        cosang = _wdot(tn, tc, w)
+    dmu = z[:, -1] - zc[:, -1]
+    # both ends rising (or falling) but the load moved the other way: a fold pair was skipped
+    skipped = ((tc[:, -1] > 0) & (tn[:, -1] > 0) & (dmu < 0)) | ((tc[:, -1] < 0) & (tn[:, -1] < 0) & (dmu > 0))
+    # the corrector landing far from the predictor means the path curves within the step
+    # more than the end tangents show (e.g. a fold pair inside it): shorten the step
+    with np.errstate(invalid="ignore"):
+        drift = np.sqrt(_wdot(z - zc - h[:, None] * tc, z - zc - h[:, None] * tc, w)) / h
+    ok &= (cosang > cos_max) & ~skipped & (drift < max_drift)
+    return ok, cosang
+
+
+def _next_steps(h: np.ndarray, its: np.ndarray, cosang: np.ndarray, cos_max: np.ndarray, prev: np.ndarray,
+                step_max: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Return the next step lengths after accepted steps ``h`` and the steps' turning rates."""
+    grow = np.where(its <= 2, 1.6, np.where(its <= 3, 1.25, np.where(its <= 5, 1.0, 0.7)))
+    # a strongly turning path gets shorter steps before the angle test rejects them
+    grow = np.where(cosang < 0.5 * (1.0 + cos_max), np.minimum(grow, 0.8), grow)
+    h_next = h * grow
+    # turning rate (radians per arclength): near limit points it grows fast, so the next step is
+    # sized for the rate extrapolated by its last growth factor (avoids most angle rejections)
+    rate = np.arccos(np.clip(cosang, -1.0, 1.0)) / h
+    with np.errstate(divide="ignore", invalid="ignore"):
+        predicted = np.where(prev > 0.0, rate * np.maximum(1.0, rate / prev), rate)
+        limit = np.where(predicted > 0.0, TURN_SAFETY * np.arccos(cos_max) / predicted, np.inf)
+    return np.minimum(np.minimum(h_next, limit), step_max), rate
+
+
+def _keep_orientation(orientation: Callable[[np.ndarray, np.ndarray, np.ndarray], np.ndarray],
+                      orient_ref: np.ndarray, act: np.ndarray, z: np.ndarray, rows: np.ndarray, idx: np.ndarray,
+                      ok: np.ndarray, long_step: np.ndarray) -> np.ndarray:
+    """Return which accepted steps keep their path's orientation; record crossings of own branch points.
+
+    A long step that flips the orientation has jumped to another branch; a short one
+    (not ``long_step``) crosses a branch point of its own path, whose new sign is kept in
+    ``orient_ref``.
+    """
+    sign = orient_ref[act].copy()
+    sign[ok] = orientation(z[ok], rows[ok], idx[ok])
+    flipped = ok & (sign != orient_ref[act])
+    jumped = flipped & long_step
+    crossed = flipped & ~jumped
+    orient_ref[act[crossed]] = sign[crossed]
+    return ~jumped
+
+
 def trace_paths(problem: ContinuationProblem, z0: np.ndarray, t0: np.ndarray, idx: np.ndarray,
                 w: np.ndarray, *, first_step: float, max_step: float | np.ndarray, min_step: float,
                 max_points: int, max_angle_deg: float | np.ndarray, tol: float, max_iter: int,
@@ -204,14 +269,11 @@ def trace_paths(problem: ContinuationProblem, z0: np.ndarray, t0: np.ndarray, id
         last point (``rows`` are the path numbers 0…n-1).
     orientation
         ``f(z, row, idx) -> signs``: the sign of ``det [∂R/∂z; row]`` (up to a constant sign
-        per problem). With the bordering row ``t·w`` of a tangent ``t`` it is the sign of the
-        path's orientation ``det [∂R/∂z; tᵀ]``, which keeps its sign along a regular path
-        (through limit points too) and changes it only across a branch point (Keller 1977).
-        A step whose end has the other sign has jumped to a neighbouring branch, typically
-        across the corner of a nearly broken symmetry where the two pass within a step of
-        each other; it is rejected unless the step is shorter than ``cross_step`` (then the
-        path crosses a branch point of its own and continues with the new sign). None: no
-        such test.
+        per problem): with the bordering row ``t·w`` the path's orientation, constant along a
+        regular path (through limit points too) and changing only across a branch point
+        (Keller 1977). A step that changes it has jumped to a neighbouring branch (across the
+        corner of a nearly broken symmetry) and is rejected unless shorter than ``cross_step``
+        (then it crosses a branch point of its own path). None: no such test.
     """
     n, m1 = z0.shape
     # the history grows on demand: most paths need a few dozen points, not max_points
@@ -219,176 +281,35 @@ def trace_paths(problem: ContinuationProblem, z0: np.ndarray, t0: np.ndarray, id
     zh = np.full((n, cap, m1), np.nan)
     th = np.full((n, cap, m1), np.nan)
     sh = np.zeros((n, cap))
-    zh[:, 0] = z0
-    th[:, 0] = t0
+    zh[:, 0], th[:, 0] = z0, t0
     count = np.ones(n, dtype=int)
     state = np.full(n, TRACE_RUNNING, dtype=np.int8)
-    h = np.full(n, float(first_step))
-    turn_rate = np.zeros(n)
-    rows_all = np.arange(n)
+    h, turn_rate, rows_all = np.full(n, float(first_step)), np.zeros(n), np.arange(n)
     orient_ref = None if orientation is None else orientation(z0, t0 * w, idx)
     while True:
         act = np.nonzero(state == TRACE_RUNNING)[0]
         if act.size == 0:
             break
         if count[act].max() >= cap:
-            grow_to = min(max_points, 2 * cap)
-            zh = np.concatenate([zh, np.full((n, grow_to - cap, m1), np.nan)], axis=1)
-            th = np.concatenate([th, np.full((n, grow_to - cap, m1), np.nan)], axis=1)
-            sh = np.concatenate([sh, np.zeros((n, grow_to - cap))], axis=1)
-            cap = grow_to
-        zc = zh[act, count[act] - 1]
-        tc = th[act, count[act] - 1]
+            zh, th, sh, cap = _grow_history(zh, th, sh, min(max_points, 2 * cap))
+        zc, tc = zh[act, count[act] - 1], th[act, count[act] - 1]
         cos_max = np.cos(np.radians(np.broadcast_to(max_angle_deg, (n,))[act]))
         step_max = np.broadcast_to(max_step, (n,))[act]
         z, conv, its, tn = correct_on_arc(problem, zc, tc, h[act], idx[act], w, tol=tol, max_iter=max_iter)
-        ok = conv.copy()
-        tn[~ok] = 0.0
-        with np.errstate(invalid="ignore"):
-            cosang = _wdot(tn, tc, w)
-        dmu = z[:, -1] - zc[:, -1]
-        # both ends rising (or falling) but the load moved the other way: a fold pair was skipped
-        skipped = ((tc[:, -1] > 0) & (tn[:, -1] > 0) & (dmu < 0)) | ((tc[:, -1] < 0) & (tn[:, -1] < 0) & (dmu > 0))
-        # the corrector landing far from the predictor means the path curves within the step
-        # more than the end tangents show (e.g. a fold pair inside it): shorten the step
-        with np.errstate(invalid="ignore"):
-            drift = np.sqrt(_wdot(z - zc - h[act][:, None] * tc, z - zc - h[act][:, None] * tc, w)) / h[act]
-        ok &= (cosang > cos_max) & ~skipped & (drift < max_drift)
+        ok, cosang = _screen_steps(zc, tc, z, tn, conv, h[act], w, cos_max, max_drift)
         if orientation is not None and orient_ref is not None and ok.any():
-            sign = orient_ref[act].copy()
-            sign[ok] = orientation(z[ok], tc[ok] * w, idx[act][ok])
-            flipped = ok & (sign != orient_ref[act])
-            jumped = flipped & (h[act] > cross_step)
-            ok &= ~jumped
-            crossed = flipped & ~jumped
-            orient_ref[act[crossed]] = sign[crossed]
+            ok &= _keep_orientation(orientation, orient_ref, act, z, tc * w, idx[act], ok, h[act] > cross_step)
         rej = act[~ok]
         h[rej] *= 0.5
         state[rej[h[rej] < min_step]] = TRACE_STALLED
         acc = act[ok]
         if acc.size:
             c = count[acc]
-            zh[acc, c] = z[ok]
-            th[acc, c] = tn[ok]
-            sh[acc, c] = h[acc]
+            zh[acc, c], th[acc, c], sh[acc, c] = z[ok], tn[ok], h[acc]
             count[acc] += 1
-            grow = np.where(its[ok] <= 2, 1.6, np.where(its[ok] <= 3, 1.25, np.where(its[ok] <= 5, 1.0, 0.7)))
-            # a strongly turning path gets shorter steps before the angle test rejects them
-            grow = np.where(cosang[ok] < 0.5 * (1.0 + cos_max[ok]), np.minimum(grow, 0.8), grow)
-            h_next = h[acc] * grow
-            # turning rate (radians per arclength): near limit points it grows fast, so the next step is
-            # sized for the rate extrapolated by its last growth factor (avoids most angle rejections)
-            rate = np.arccos(np.clip(cosang[ok], -1.0, 1.0)) / h[acc]
-            prev = turn_rate[acc]
-            with np.errstate(divide="ignore", invalid="ignore"):
-                predicted = np.where(prev > 0.0, rate * np.maximum(1.0, rate / prev), rate)
-                limit = np.where(predicted > 0.0, TURN_SAFETY * np.arccos(cos_max[ok]) / predicted, np.inf)
-            turn_rate[acc] = rate
-            h[acc] = np.minimum(np.minimum(h_next, limit), step_max[ok])
+            h[acc], turn_rate[acc] = _next_steps(h[acc], its[ok], cosang[ok], cos_max[ok], turn_rate[acc],
+                                                 step_max[ok])
             fin = is_finished(zc[ok], z[ok], tn[ok], rows_all[acc])
             state[acc[fin]] = TRACE_DONE
-            full = (count[acc] >= max_points) & ~fin
-            state[acc[full]] = TRACE_STEP_LIMIT
+            state[acc[(count[acc] >= max_points) & ~fin]] = TRACE_STEP_LIMIT
     return PathHistory(z=zh, t=th, step=sh, count=count, state=state)
-
-
-def refine_on_arc(problem: ContinuationProblem, anchor: np.ndarray, tangent: np.ndarray,
-                  s_hi: np.ndarray, g_lo: np.ndarray, g_hi: np.ndarray, idx: np.ndarray,
-                  w: np.ndarray, measure: Callable[[np.ndarray, np.ndarray, np.ndarray], np.ndarray],
-                  *, tol: float, max_iter: int, iterations: int, s_tol: float,
-                  corrector: Callable[..., tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]] | None = None,
-                  s_lo: np.ndarray | None = None,
-                  ) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
-    """Find the arclength ``s ∈ (s_lo, s_hi)`` from ``anchor`` where ``measure`` changes sign.
-
-    Parameters
-    ----------
-    anchor, tangent
-        ``(k, m+1)`` accepted point before the sign change and its tangent.
-    s_hi
-        ``(k,)`` arclength of the accepted point after the sign change.
-    g_lo, g_hi
-        ``(k,)`` values of ``measure`` at both ends (opposite signs).
-    s_lo
-        ``(k,)`` start of the bracket along the same arc (default 0: the anchor).
-    measure
-        ``f(z, t, rows) -> (k,)`` scalar whose zero is sought (e.g. the tangent's load
-        component for a fold, or a stability determinant for a bifurcation); ``rows`` are the
-        positions of the states among the ``k`` refined here (not problem indices), so one
-        problem may be refined for several measures at once.
-    corrector
-        Replacement for :func:`correct_on_arc` with the same signature and results (e.g. a
-        compiled one for a particular problem); default :func:`correct_on_arc`.
-
-    Returns
-    -------
-    z, t, s, ok
-        The refined states, tangents, arclengths from the anchor and a success mask.
-    """
-    k = anchor.shape[0]
-    lo = np.zeros(k) if s_lo is None else s_lo.astype(float).copy()
-    hi = s_hi.astype(float).copy()
-    glo = g_lo.astype(float).copy()
-    ghi = g_hi.astype(float).copy()
-    side = np.zeros(k, dtype=int)
-    # the two latest evaluations, for secant steps (superlinear) inside the safe bracket
-    s_a, g_a = np.full(k, np.nan), np.full(k, np.nan)
-    s_b, g_b = np.full(k, np.nan), np.full(k, np.nan)
-    s_last = np.full(k, np.nan)
-    z_best = np.full_like(anchor, np.nan)
-    t_best = np.full_like(anchor, np.nan)
-    ok = np.ones(k, dtype=bool)
-    done = np.zeros(k, dtype=bool)
-    correct = correct_on_arc if corrector is None else corrector
-    for _ in range(iterations):
-        act = np.nonzero(~done & ok)[0]
-        if act.size == 0:
-            break
-        width = hi[act] - lo[act]
-        with np.errstate(all="ignore"):
-            denom = ghi[act] - glo[act]
-            s = np.where(denom != 0, (lo[act] * ghi[act] - hi[act] * glo[act]) / denom, 0.5 * (lo[act] + hi[act]))
-            sec = s_b[act] - g_b[act] * (s_b[act] - s_a[act]) / (g_b[act] - g_a[act])
-        inside = np.isfinite(sec) & (sec > lo[act] + 1e-3 * width) & (sec < hi[act] - 1e-3 * width)
-        s = np.where(inside, sec, np.clip(np.nan_to_num(s), lo[act] + 0.01 * width, hi[act] - 0.01 * width))
-        # a point that would move less than the tolerance is not corrected: the last one is kept
-        with np.errstate(invalid="ignore"):
-            near = np.abs(s - s_last[act]) < s_tol * np.maximum(s_hi[act], 1e-300)
-        done[act[near]] = True
-        act, s = act[~near], s[~near]
-        if act.size == 0:
-            break
-        z, conv, _, t_all = correct(problem, anchor[act], tangent[act], s, idx[act], w,
-                                    tol=tol, max_iter=max_iter)
-        ok[act[~conv]] = False
-        c = np.nonzero(conv)[0]
-        if c.size == 0:
-            continue
-        a = act[c]
-        sc = s[c]
-        t = t_all[c]
-        g = measure(z[c], t, a)
-        z_best[a] = z[c]
-        t_best[a] = t
-        s_a[a], g_a[a] = s_b[a], g_b[a]
-        s_b[a], g_b[a] = sc, g
-        moved = np.abs(sc - s_last[a])
-        s_last[a] = sc
-        same_lo = np.sign(g) == np.sign(glo[a])
-        # Illinois: halve the stale end's value when the same end moves twice
-        lo_move = a[same_lo]
-        hi_move = a[~same_lo]
-        ghi[lo_move[side[lo_move] == -1]] *= 0.5
-        glo[hi_move[side[hi_move] == 1]] *= 0.5
-        lo[lo_move] = sc[same_lo]
-        glo[lo_move] = g[same_lo]
-        side[lo_move] = -1
-        hi[hi_move] = sc[~same_lo]
-        ghi[hi_move] = g[~same_lo]
-        side[hi_move] = 1
-        scale = np.maximum(s_hi[a], 1e-300)
-        with np.errstate(invalid="ignore"):
-            fin = ((hi[a] - lo[a]) < s_tol * scale) | (moved < s_tol * scale) | (g == 0.0)
-        done[a[fin]] = True
-    s_out = np.where(np.isfinite(s_last), s_last, 0.5 * (lo + hi))
-    return z_best, t_best, s_out, ok

@@ -43,8 +43,14 @@ from functools import lru_cache
 
 import numpy as np
 
-__all__ = ["CLUSTER_SHARE", "RadialGrid", "get_cluster_width", "make_interpolation_matrix", "make_radial_grid",
-           "to_chebyshev_coordinate"]
+__all__ = [
+    "CLUSTER_SHARE",
+    "RadialGrid",
+    "build_interpolation_matrix",
+    "build_radial_grid",
+    "get_cluster_width",
+    "to_chebyshev_coordinate",
+]
 
 CLUSTER_SHARE = 0.4  # share of the map h given to the clusters at ±ρ (measured, see get_cluster_width)
 
@@ -103,7 +109,7 @@ def _reduce(full: np.ndarray, m: int, parity: int) -> np.ndarray:
     return left + parity * mirror
 
 
-def make_interpolation_matrix(m: int, parity: int, points: np.ndarray) -> np.ndarray:
+def build_interpolation_matrix(m: int, parity: int, points: np.ndarray) -> np.ndarray:
     """Return ``E`` with ``E @ u`` = the interpolant of half-grid values ``u`` at ``points``.
 
     Parameters
@@ -212,7 +218,7 @@ def _cluster_map(xi: np.ndarray, m: int, rho: float) -> tuple[np.ndarray, np.nda
 
 
 def to_chebyshev_coordinate(x: np.ndarray, m: int, stretch: float = 0.0, centre: float = 0.0) -> np.ndarray:
-    """Return the Chebyshev coordinate ξ of points ``x`` under the map of ``make_radial_grid(m, stretch, centre)``."""
+    """Return the Chebyshev coordinate ξ of points ``x`` under the map of ``build_radial_grid(m, stretch, centre)``."""
     x = np.asarray(x, dtype=float)
     if centre > 0.0:
         eps, a, gamma = _cluster_parameters(m, centre)
@@ -223,7 +229,7 @@ def to_chebyshev_coordinate(x: np.ndarray, m: int, stretch: float = 0.0, centre:
 
 
 @lru_cache(maxsize=64)
-def make_radial_grid(m: int, stretch: float = 0.0, centre: float = 0.0) -> RadialGrid:
+def build_radial_grid(m: int, stretch: float = 0.0, centre: float = 0.0) -> RadialGrid:
     """Return the half grid of ``m`` nodes with its parity-reduced operators (cached).
 
     Parameters
@@ -262,7 +268,7 @@ def make_radial_grid(m: int, stretch: float = 0.0, centre: float = 0.0) -> Radia
         ops["d2"][p] = e2 / g1[:, None] ** 2 - (g2 / g1**3)[:, None] * e1
         ops["d3"][p] = (e3 / g1[:, None] ** 3 - (3.0 * g2 / g1**4)[:, None] * e2
                         + (3.0 * g2**2 / g1**5 - g3 / g1**4)[:, None] * e1)
-        e = make_interpolation_matrix(m, p, gl_x)
+        e = build_interpolation_matrix(m, p, gl_x)
         ops["integral"][p] = (gl_w * gx1) @ e
         ops["moment2"][p] = (gl_w * gx1 * gx**2) @ e
     for table in ops.values():

@@ -13,7 +13,7 @@ from __future__ import annotations
 import logging
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
-from typing import TYPE_CHECKING, Any
+from typing import TYPE_CHECKING, Any, cast
 
 import numpy as np
 
@@ -98,7 +98,7 @@ def _check_numeric(view: SweepSlice) -> None:
 
 def draw_regime_map(ds: xr.Dataset, x: str, y: str, *, color: str | None = None, contour: str | None = None,
                     at: Mapping[str, str] | None = None, show_points: bool = False,
-                    boundaries: bool = True, caution: bool = True) -> MapResult:
+                    boundaries: bool = True, caution: bool = True, ax: Axes | None = None) -> MapResult:
     """Draw the regime map of a store over axes ``x`` and ``y``.
 
     Parameters
@@ -120,6 +120,9 @@ def draw_regime_map(ds: xr.Dataset, x: str, y: str, *, color: str | None = None,
         Draw the boundaries between regimes.
     caution
         Draw the caution footer (it is kept in the file's metadata either way).
+    ax
+        Draw into these matplotlib axes (the caller's figure: colour bar beside them, legend
+        to their right, no caution footer); a new figure of the house style when ``None``.
 
     Raises
     ------
@@ -148,9 +151,13 @@ def draw_regime_map(ds: xr.Dataset, x: str, y: str, *, color: str | None = None,
     status = np.asarray(view.ds[metadata.STATUS_VAR].values)
     points = read_store_points(ds)
     known = known_points(points, view.fixed_values, x, y)
-    fig = make_figure()
     continuous = color not in (None, "regime")
-    ax = fig.add_axes(FIELD_AXES if continuous else MAIN_AXES)
+    own = ax is None
+    if ax is None:
+        fig = make_figure()
+        ax = fig.add_axes(FIELD_AXES if continuous else MAIN_AXES)
+    else:
+        fig = cast("Figure", ax.figure)
     handles: list[Any] = []
     notes: list[str] = []
 
@@ -172,8 +179,9 @@ def draw_regime_map(ds: xr.Dataset, x: str, y: str, *, color: str | None = None,
 
             norm = LogNorm(finite.min(), finite.max())  # values over decades read better on a log scale
         mesh = _draw_field(ax, xu, yu, field_values, view.log, known=None, cmap=cmap, norm=norm)
-        cax = fig.add_axes(COLORBAR_AXES)
-        cbar = fig.colorbar(mesh, cax=cax)
+        cax = fig.add_axes(COLORBAR_AXES) if own else None
+        cbar = fig.colorbar(mesh, cax=cax) if cax is not None else fig.colorbar(mesh, ax=ax)
+        cax = cbar.ax
         shown = set_axis_format(cax.yaxis, str(view.ds[color].attrs.get("units", "")), finite,
                                 log=norm is not None, integer=is_integer_valued(finite))
         cbar.set_label(axis_label(color, dict(view.ds[color].attrs), shown))
@@ -228,7 +236,7 @@ def draw_regime_map(ds: xr.Dataset, x: str, y: str, *, color: str | None = None,
     label_axes(ax, view, x, y, xv, yv)
     title = "Regime map" if not continuous else f"{str(color).replace('_', ' ')} with regime boundaries"
     ax.set_title(title_lines(dict(ds.attrs), title, study_subtitle(ds, view.cuts)), fontsize=9.5, loc="left")
-    if handles and continuous:  # right of the colour bar and its labels, moving with it
+    if handles and continuous and own:  # right of the colour bar and its labels, moving with it
         cax = fig.axes[-1]
         box = cax.get_window_extent()
         tight = cax.get_tightbbox(fig.canvas.get_renderer())  # type: ignore[attr-defined]
@@ -238,7 +246,8 @@ def draw_regime_map(ds: xr.Dataset, x: str, y: str, *, color: str | None = None,
     elif handles:
         ax.legend(handles=handles, loc="upper left", bbox_to_anchor=(1.02, 1.0), fontsize=8.5, frameon=False,
                   borderaxespad=0.0)
-    finish_figure(fig, caution=caution)
+    if own:
+        finish_figure(fig, caution=caution)
     return MapResult(fig, view, tuple(notes))
 
 

@@ -170,8 +170,8 @@ def _fixed_parameters(ds: xr.Dataset) -> dict[str, Any]:
 
 def _wave_number(view: xr.Dataset, ds: xr.Dataset) -> int | None:
     """Return n ≥ 2 of the point's pattern: the output of the followed branch, else the parameter asked for."""
-    if "wave_number" in view.data_vars:
-        n = float(view["wave_number"].values)
+    if "branch_wave_number" in view.data_vars:
+        n = float(view["branch_wave_number"].values)
         if math.isfinite(n):  # the branch followed; 0 = axisymmetric, whatever was asked for
             return int(n) if n >= 2 and n == int(n) else None
     candidates: list[Any] = []

@@ -177,19 +177,9 @@ def locate_boundary(x_axis: str, y_axis: str, x_values: np.ndarray, y_values: np
     bisections
         Rounds of bisection per bracket.
     """
-    from sweepshell.query.slicing import from_unit, to_unit
+    from sweepshell.query.slicing import to_unit
 
-    for name in between:
-        if name not in regimes:
-            raise QueryError(f"--between {name!r} is not a regime of this model; use two of {', '.join(regimes)}",
-                             field="between", value=name, allowed=", ".join(regimes))
-    if between[0] == between[1]:
-        raise QueryError(f"--between names {between[0]!r} twice; give two different regimes", field="between",
-                         value=list(between))
-    if bisections < 0 or bisections > 40:
-        raise QueryError(f"--bisections={bisections} must be between 0 and 40", field="bisections",
-                         value=bisections)
-    a, b = regimes.index(between[0]), regimes.index(between[1])
+    a, b = _check_request(regimes, between, bisections)
     xu, yu = to_unit(x_values, log[0]), to_unit(y_values, log[1])
     polylines = trace_boundary(xu, yu, codes, a, b)
     if not polylines:
@@ -207,22 +197,54 @@ def locate_boundary(x_axis: str, y_axis: str, x_values: np.ndarray, y_values: np
     if known is not None and len(known.get("regime", ())):
         lo, hi = _narrow(pa, pb, lo, hi, known, log, a, b)
     evaluations = 0
-    active = valid.copy()
     if evaluate is not None:
-        for _ in range(bisections):
-            idx = np.flatnonzero(active & (hi - lo > 1e-12))
-            if idx.size == 0:
-                break
-            mid = 0.5 * (lo[idx] + hi[idx])
-            pos = pa[idx] + mid[:, None] * (pb[idx] - pa[idx])
-            got = np.asarray(evaluate(from_unit(pos[:, 0], log[0]), from_unit(pos[:, 1], log[1])))
-            evaluations += idx.size
-            lo[idx] = np.where(got == a, mid, lo[idx])
-            hi[idx] = np.where(got == b, mid, hi[idx])
-            active[idx[(got != a) & (got != b)]] = False  # a third regime inside: the bracket stops here
+        evaluations = _bisect(pa, pb, lo, hi, valid.copy(), evaluate, bisections, log, a, b)
+    lines = _to_lines(pa, pb, lo, hi, (iy0 != iy1).astype(np.int8), log, sizes)
+    return Boundary(x_axis, y_axis, between, lines, evaluations, bisections)
+
+
+def _check_request(regimes: tuple[str, ...], between: tuple[str, str], bisections: int) -> tuple[int, int]:
+    """Return the codes of the two regimes asked for; raise QueryError for a bad request."""
+    for name in between:
+        if name not in regimes:
+            raise QueryError(f"--between {name!r} is not a regime of this model; use two of {', '.join(regimes)}",
+                             field="between", value=name, allowed=", ".join(regimes))
+    if between[0] == between[1]:
+        raise QueryError(f"--between names {between[0]!r} twice; give two different regimes", field="between",
+                         value=list(between))
+    if bisections < 0 or bisections > 40:
+        raise QueryError(f"--bisections={bisections} must be between 0 and 40", field="bisections",
+                         value=bisections)
+    return regimes.index(between[0]), regimes.index(between[1])
+
+
+def _bisect(pa: np.ndarray, pb: np.ndarray, lo: np.ndarray, hi: np.ndarray, active: np.ndarray,
+            evaluate: RegimeEvaluator, bisections: int, log: tuple[bool, bool], a: int, b: int) -> int:
+    """Halve the brackets ``(lo, hi)`` in place by evaluating their midpoints; return the evaluations made."""
+    from sweepshell.query.slicing import from_unit
+
+    evaluations = 0
+    for _ in range(bisections):
+        idx = np.flatnonzero(active & (hi - lo > 1e-12))
+        if idx.size == 0:
+            break
+        mid = 0.5 * (lo[idx] + hi[idx])
+        pos = pa[idx] + mid[:, None] * (pb[idx] - pa[idx])
+        got = np.asarray(evaluate(from_unit(pos[:, 0], log[0]), from_unit(pos[:, 1], log[1])))
+        evaluations += idx.size
+        lo[idx] = np.where(got == a, mid, lo[idx])
+        hi[idx] = np.where(got == b, mid, hi[idx])
+        active[idx[(got != a) & (got != b)]] = False  # a third regime inside: the bracket stops here
+    return evaluations
+
+
+def _to_lines(pa: np.ndarray, pb: np.ndarray, lo: np.ndarray, hi: np.ndarray, along: np.ndarray,
+              log: tuple[bool, bool], sizes: list[int]) -> list[BoundaryLine]:
+    """Return the polylines (axis values) through the bracket midpoints, with the brackets' ends."""
+    from sweepshell.query.slicing import from_unit
+
     t = 0.5 * (lo + hi)
     pos = pa + t[:, None] * (pb - pa)
-    along = (iy0 != iy1).astype(np.int8)
     ends = np.stack([pa + lo[:, None] * (pb - pa), pa + hi[:, None] * (pb - pa)])
     ends_along = np.where(along[None, :] == 0, ends[:, :, 0], ends[:, :, 1])
     low_u, high_u = np.minimum(ends_along[0], ends_along[1]), np.maximum(ends_along[0], ends_along[1])
@@ -235,7 +257,7 @@ def locate_boundary(x_axis: str, y_axis: str, x_values: np.ndarray, y_values: np
         s = slice(start, start + n)
         lines.append(BoundaryLine(x=x_out[s], y=y_out[s], along=along[s], low=low[s], high=high[s]))
         start += n
-    return Boundary(x_axis, y_axis, between, lines, evaluations, bisections)
+    return lines
 
 
 def _narrow(pa: np.ndarray, pb: np.ndarray, lo: np.ndarray, hi: np.ndarray, known: Mapping[str, np.ndarray],

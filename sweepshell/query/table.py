@@ -17,7 +17,7 @@ import numpy as np
 from sweepshell.errors import QueryError
 from sweepshell.models.base import TRUSTED_STATUSES, Status
 from sweepshell.store import metadata
-from sweepshell.store.integrity import check_trusted_values
+from sweepshell.store.chunk_checks import check_trusted_values
 from sweepshell.store.metadata import ATTR
 
 if TYPE_CHECKING:
@@ -75,7 +75,9 @@ class SweepFields:
 def regime_names(ds: xr.Dataset) -> tuple[str, ...]:
     """Return the model's regime names of a store Dataset (code order, without ``none``)."""
     regimes = ds.attrs.get(ATTR.regimes)
-    if regimes:
+    if isinstance(regimes, str):  # netCDF keeps a list of names as one space-separated string
+        regimes = regimes.split()
+    if regimes is not None and len(regimes):
         return tuple(str(r) for r in regimes)
     meanings = str(ds[metadata.REGIME_VAR].attrs.get("flag_meanings", "")).split()
     return tuple(meanings[1:])

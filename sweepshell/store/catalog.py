@@ -27,9 +27,6 @@ import hashlib
 import json
 import logging
 import os
-import socket
-import sqlite3
-import time
 from collections.abc import Iterator
 from dataclasses import asdict, dataclass, field
 from pathlib import Path
@@ -40,6 +37,8 @@ import numpy as np
 from sweepshell.errors import StoreNotFoundError
 from sweepshell.models.base import Status
 from sweepshell.store import metadata
+from sweepshell.store.catalog_index import open_index, parse_record, read_cached, update_index
+from sweepshell.store.leftovers import find_leftovers
 from sweepshell.store.metadata import ATTR
 
 __all__ = [
@@ -47,7 +46,6 @@ __all__ = [
     "CatalogEntry",
     "CatalogListing",
     "find_compatible_stores",
-    "find_leftovers",
     "iter_store_folders",
     "read_axis_order",
     "read_catalog",
@@ -57,12 +55,6 @@ log = logging.getLogger(__name__)
 
 #: name of the index file inside a results folder
 CATALOG_FILE = ".sweepshell-catalog.sqlite"
-#: marks the SQLite file as ours ("SWPC"); anything else is rebuilt
-_APPLICATION_ID = 0x53575043
-#: version of the index tables below; another version is rebuilt
-_INDEX_VERSION = 1
-#: how long to wait for another process holding the index, s
-_LOCK_TIMEOUT_SECONDS = 10.0
 
 
 @dataclass(frozen=True)
@@ -155,54 +147,6 @@ def _is_sweepshell_store(folder: Path) -> bool:
     if (folder / metadata.META_FILE).is_symlink():
         return False
     return metadata.is_store(folder)
-
-
-#: the folder of block claims inside a store (see sweepshell.engine.claims)
-CLAIMS_DIR = ".claims"
-
-
-def _pid_gone(host: str, pid: str) -> bool:
-    if host != socket.gethostname() or not pid.isdigit():
-        return False
-    try:
-        os.kill(int(pid), 0)
-    except ProcessLookupError:
-        return True
-    except (PermissionError, OverflowError):
-        return False
-    return False
-
-
-def stale_claim_files(store: str | os.PathLike[str], ttl: float = 60.0) -> list[Path]:
-    """Return the claim files of a store left by runners that are gone.
-
-    A claim is stale when its runner's process no longer exists on this host, or when it has
-    not been refreshed for ``ttl`` seconds (a runner on another host refreshes every ``ttl/4``).
-    """
-    folder = Path(store) / CLAIMS_DIR
-    if not folder.is_dir():
-        return []
-    stale = []
-    now = time.time()
-    for claim in sorted(folder.iterdir()):
-        try:
-            age = now - claim.stat().st_mtime
-            host, pid, _ = json.loads(claim.read_text())["runner"].rsplit(":", 2)
-        except (OSError, ValueError, KeyError, TypeError, AttributeError):
-            host, pid, age = "", "", now - claim.stat().st_mtime if claim.exists() else 0.0
-        if age > ttl or _pid_gone(host, pid) or ".stale-" in claim.name:
-            stale.append(claim)
-    return stale
-
-
-def leftover_temporaries(folder: str | os.PathLike[str]) -> list[Path]:
-    """Return half-built stores (``NAME.sweepshell-tmp-PID``) in ``folder`` whose process is gone."""
-    found = []
-    for sub in sorted(Path(folder).glob("*" + metadata.TEMP_SUFFIX + "-*")):
-        pid = sub.name.rsplit("-", 1)[-1]
-        if sub.is_dir() and not sub.is_symlink() and _pid_gone(socket.gethostname(), pid):
-            found.append(sub)
-    return found
 
 
 def iter_store_folders(results_dir: str | os.PathLike[str]) -> Iterator[Path]:
@@ -315,98 +259,6 @@ def _str_or_none(v: Any) -> str | None:
     return v if isinstance(v, str) else None
 
 
-_ENTRY_TYPES: dict[str, tuple[type, ...]] = {
-    "path": (str,), "sweep": (str, type(None)), "model": (str, type(None)), "model_version": (str, type(None)),
-    "settings_json": (str, type(None)), "fixed_json": (str, type(None)), "axes": (list,), "total": (int,),
-    "counts": (dict,), "bytes_on_disk": (int,), "created": (str, type(None)), "updated": (str, type(None)),
-    "problem": (str, type(None)),
-}
-
-
-def _entry_from_record(text: str, rel: str) -> CatalogEntry | None:
-    """Parse a cached record; ``None`` unless it is plain JSON of exactly the expected shape."""
-    try:
-        data = json.loads(text)
-    except (TypeError, ValueError):
-        return None
-    if not isinstance(data, dict) or set(data) != set(_ENTRY_TYPES) or data.get("path") != rel:
-        return None
-    for key, types in _ENTRY_TYPES.items():
-        if not isinstance(data[key], types) or isinstance(data[key], bool):
-            return None
-    if not all(isinstance(k, str) and isinstance(v, int) for k, v in data["counts"].items()):
-        return None
-    if not all(isinstance(a, dict) for a in data["axes"]):
-        return None
-    return CatalogEntry(**data)
-
-
-def _connect_index(path: Path) -> tuple[sqlite3.Connection | None, bool]:
-    """Open (or create) the index; delete and recreate anything that is not our index."""
-    existed = path.exists()
-    for attempt in range(2):
-        try:
-            con = sqlite3.connect(str(path), timeout=_LOCK_TIMEOUT_SECONDS)
-            app_id = con.execute("PRAGMA application_id").fetchone()[0]
-            version = con.execute("PRAGMA user_version").fetchone()[0]
-            tables = {r[0] for r in con.execute("SELECT name FROM sqlite_master WHERE type='table'")}
-            if app_id == _APPLICATION_ID and version == _INDEX_VERSION and tables == {"stores"}:
-                return con, False
-            if app_id == 0 and version == 0 and not tables:  # a fresh, empty database
-                with con:
-                    con.execute(f"PRAGMA application_id={_APPLICATION_ID}")
-                    con.execute(f"PRAGMA user_version={_INDEX_VERSION}")
-                    con.execute("CREATE TABLE stores (path TEXT PRIMARY KEY, fingerprint TEXT NOT NULL, "
-                                "record TEXT NOT NULL)")
-                return con, existed
-            con.close()
-            reason = "foreign or outdated"
-        except sqlite3.OperationalError as exc:
-            # locked by another process, or not openable here: use no index rather than delete a good one
-            log.warning("catalog index %s is busy or cannot be opened (%s); listing without it", path, exc)
-            return None, False
-        except sqlite3.DatabaseError as exc:  # "file is not a database": garbage in our file name
-            reason = f"unreadable ({exc})"
-        except OSError as exc:
-            log.warning("catalog index %s cannot be opened (%s); listing without an index", path, exc)
-            return None, False
-        if attempt:
-            break
-        log.warning("catalog index %s is %s; rebuilding it from the stores", path, reason)
-        try:
-            path.unlink()
-        except FileNotFoundError:
-            pass
-        except OSError as exc:
-            log.warning("cannot remove %s (%s); listing without an index", path, exc)
-            return None, False
-        existed = True
-    return None, False
-
-
-def find_leftovers(results_dir: str | os.PathLike[str], *, clean: bool = False) -> list[str]:
-    """Return (and with ``clean`` remove) leftovers of killed processes under a results folder."""
-    import shutil
-
-    root = Path(results_dir)
-    found: list[Path] = []
-    for dirpath, dirnames, _files in os.walk(root, followlinks=False):
-        found += leftover_temporaries(dirpath)
-        dirnames[:] = [d for d in dirnames if not d.startswith(".") and metadata.TEMP_SUFFIX not in d
-                       and not metadata.has_node(Path(dirpath) / d)]
-    for store in iter_store_folders(root):
-        found += stale_claim_files(store)
-    if clean:
-        for path in found:
-            if path.is_dir():
-                shutil.rmtree(path, ignore_errors=True)
-            else:
-                path.unlink(missing_ok=True)
-                with contextlib.suppress(OSError):
-                    path.parent.rmdir()
-    return [p.relative_to(root).as_posix() for p in found]
-
-
 def read_catalog(results_dir: str | os.PathLike[str] = "results", *, use_index: bool = True,
                  clean: bool = False) -> CatalogListing:
     """List the stores under ``results_dir``, reading only the stores that changed since the last call.
@@ -432,16 +284,8 @@ def read_catalog(results_dir: str | os.PathLike[str] = "results", *, use_index: 
     index_path = root / CATALOG_FILE
     con, rebuilt = (None, False)
     if use_index:
-        try:
-            con, rebuilt = _connect_index(index_path)
-        except sqlite3.Error as exc:
-            log.warning("catalog index %s unusable (%s); listing without it", index_path, exc)
-    cached: dict[str, tuple[str, str]] = {}
-    if con is not None:
-        try:
-            cached = {r[0]: (r[1], r[2]) for r in con.execute("SELECT path, fingerprint, record FROM stores")}
-        except sqlite3.Error:
-            cached = {}
+        con, rebuilt = open_index(index_path)
+    cached = read_cached(con)
     leftovers = find_leftovers(root, clean=clean)
     root_real = root.resolve()
     entries: list[CatalogEntry] = []
@@ -456,21 +300,14 @@ def read_catalog(results_dir: str | os.PathLike[str] = "results", *, use_index: 
                                         problem="the store holds symbolic links; not read"))
             continue
         hit = cached.get(rel)
-        entry = _entry_from_record(hit[1], rel) if hit is not None and hit[0] == fingerprint else None
+        record = parse_record(hit[1], rel) if hit is not None and hit[0] == fingerprint else None
+        entry = None if record is None else CatalogEntry(**record)
         if entry is None:
             entry = _read_entry(store, rel, size, latest)
             fresh.append((rel, fingerprint, json.dumps(asdict(entry))))
         entries.append(entry)
     if con is not None:
-        try:
-            with con:
-                con.executemany("INSERT OR REPLACE INTO stores (path, fingerprint, record) VALUES (?, ?, ?)", fresh)
-                gone = set(cached) - {e.path for e in entries}
-                con.executemany("DELETE FROM stores WHERE path = ?", [(g,) for g in sorted(gone)])
-        except sqlite3.Error as exc:
-            log.warning("could not update catalog index %s (%s)", index_path, exc)
-        finally:
-            con.close()
+        update_index(con, index_path, fresh, set(cached) - {e.path for e in entries})
     return CatalogListing(results_dir=str(root), entries=tuple(sorted(entries, key=lambda e: e.path)),
                           index_path=str(index_path) if con is not None else None, reread=len(fresh),
                           rebuilt=rebuilt, leftovers=tuple(leftovers))

@@ -1,15 +1,19 @@
 """Export a store for tools outside the zarr world: netCDF, CSV, Parquet.
 
 - **netcdf**: the whole Dataset (every variable, coordinate and attribute). Written with
-  h5netcdf (netCDF4) when installed, else with scipy (netCDF3, 64-bit offsets; scipy is a
-  dependency). netCDF3 has no unsigned bytes, so ``status`` is stored as signed ``int8``
-  (codes 0..5 are unchanged); attributes that are lists of names are joined with spaces;
-  other non-scalar attributes become JSON strings.
+  h5netcdf (netCDF4; the ``h5netcdf`` extra) when installed, else with scipy (netCDF3,
+  64-bit offsets; scipy is a dependency); ``engine=`` chooses. netCDF3 has no unsigned
+  bytes, so there ``status`` is stored as signed ``int8`` (codes 0..5 are unchanged).
+  ``flag_values`` are written in their variable's dtype (as CF asks), string coordinates
+  carry no ``units``; attributes that are lists of names are joined with spaces (the
+  readers accept both forms, so queries on the exported file work); other non-scalar
+  attributes become JSON strings.
 - **csv** / **parquet**: one row per grid point in C order of the axes, with the axis values,
   every output without extra dimensions, the regime *name* (``none`` for -1) and the status
   *name*. NaN is an empty CSV field; floats are written in their shortest exact form, so
-  they read back bit for bit. Parquet needs pyarrow (not a dependency): without it the
-  export stops with a clear message before anything is written.
+  they read back bit for bit. Parquet keeps each column's ``units`` and ``long_name`` in its
+  field metadata; it needs pyarrow (the ``parquet`` extra): without it the export stops
+  with a clear message before anything is written.
 
 Off-grid point lists (the ``points`` sub-group) are not exported. Every file is written to
 a temporary name beside the target and renamed into place, so a failed export leaves no
@@ -38,12 +42,21 @@ from sweepshell.store.catalog import read_axis_order
 from sweepshell.store.metadata import ATTR
 from sweepshell.store.reader import check_readable_store
 
-__all__ = ["EXPORT_FORMATS", "ExportError", "export_store", "iter_point_rows", "point_columns"]
+__all__ = [
+    "EXPORT_FORMATS",
+    "NETCDF_ENGINES",
+    "ExportError",
+    "export_store",
+    "iter_point_rows",
+    "point_columns",
+]
 
 log = logging.getLogger(__name__)
 
 #: format name → default file suffix
 EXPORT_FORMATS = {"netcdf": ".nc", "csv": ".csv", "parquet": ".parquet"}
+#: netCDF writers: h5netcdf (netCDF4, optional) and scipy (netCDF3)
+NETCDF_ENGINES = ("h5netcdf", "scipy")
 
 
 class ExportError(SweepshellError, ValueError):
@@ -142,36 +155,56 @@ def _netcdf_attr(value: Any) -> Any:
     return value
 
 
-def _write_netcdf(store: Path, target: Path) -> str:
+def _write_netcdf(store: Path, target: Path, engine: str) -> str:
     from sweepshell.store.reader import open_sweep
 
-    engine = "h5netcdf" if importlib.util.find_spec("h5netcdf") is not None else "scipy"
     ds = open_sweep(store)
-    for var in ds.variables.values():
-        var.encoding = {}
-        var.attrs = {k: _netcdf_attr(v) for k, v in var.attrs.items()}
-    ds.attrs = {k: _netcdf_attr(v) for k, v in ds.attrs.items()}
     if engine == "scipy":
         # netCDF3 has no unsigned types; status codes are small, so int8 holds them exactly
         ds[metadata.STATUS_VAR] = ds[metadata.STATUS_VAR].astype(np.int8)
+    for var in ds.variables.values():
+        var.encoding = {}
+        attrs = {k: _netcdf_attr(v) for k, v in var.attrs.items()}
+        if "flag_values" in attrs and var.dtype.kind in "iu":  # CF: flag values in the variable's own type
+            attrs["flag_values"] = np.asarray(var.attrs["flag_values"], dtype=var.dtype)
+        if var.dtype.kind in "OUS":  # names carry no units
+            attrs.pop("units", None)
+        var.attrs = attrs
+    ds.attrs = {k: _netcdf_attr(v) for k, v in ds.attrs.items()}
+    if engine == "scipy":
         ds.to_netcdf(target, engine="scipy", format="NETCDF3_64BIT")
-    else:  # pragma: no cover - h5netcdf is not installed in the test environment
+    else:
         ds.to_netcdf(target, engine="h5netcdf")
     return engine
 
 
 def _write_parquet(store: Path, target: Path) -> None:
     import pandas as pd
+    import pyarrow as pa
+    import pyarrow.parquet as pq
+
+    from sweepshell.store.reader import open_sweep
 
     frames = [pd.DataFrame(cols) for cols in iter_point_rows(store)]
     table = pd.concat(frames, ignore_index=True)
     for name in (metadata.REGIME_VAR, metadata.STATUS_VAR):
         table[name] = table[name].astype("category")
-    table.to_parquet(target, engine="pyarrow", index=False)
+    ds = open_sweep(store)
+    arrow = pa.Table.from_pandas(table, preserve_index=False)
+    fields = []
+    for field in arrow.schema:
+        meta = {}
+        if field.name in ds.variables:
+            attrs = ds[field.name].attrs
+            meta = {key: str(attrs[key]) for key in ("units", "long_name") if attrs.get(key)}
+        fields.append(field.with_metadata({k.encode(): v.encode() for k, v in meta.items()}) if meta else field)
+    arrow = arrow.cast(pa.schema(fields, metadata=arrow.schema.metadata))
+    pq.write_table(arrow, target)
 
 
 def export_store(store: str | os.PathLike[str], fmt: str, output: str | os.PathLike[str] | None = None, *,
-                 overwrite: bool = False, stdout: IO[str] | None = None) -> Path | None:
+                 overwrite: bool = False, stdout: IO[str] | None = None,
+                 engine: str | None = None) -> Path | None:
     """Write a store as netCDF, CSV or Parquet.
 
     Parameters
@@ -187,6 +220,8 @@ def export_store(store: str | os.PathLike[str], fmt: str, output: str | os.PathL
         Replace an existing file.
     stdout
         Stream for ``output="-"`` (CSV only).
+    engine
+        netCDF writer, ``"h5netcdf"`` or ``"scipy"``; ``None``: h5netcdf when installed.
 
     Returns
     -------
@@ -206,6 +241,14 @@ def export_store(store: str | os.PathLike[str], fmt: str, output: str | os.PathL
                           field="format", value=fmt, allowed=", ".join(EXPORT_FORMATS))
     source = Path(store)
     check_readable_store(source, chunks=True)
+    if engine is not None and (fmt != "netcdf" or engine not in NETCDF_ENGINES):
+        raise ExportError(f"engine={engine!r} is not a netCDF engine; use one of {', '.join(NETCDF_ENGINES)} "
+                          "with --format netcdf", field="engine", value=engine, allowed=", ".join(NETCDF_ENGINES))
+    has_h5 = all(importlib.util.find_spec(m) is not None for m in ("h5netcdf", "h5py"))
+    if engine == "h5netcdf" and not has_h5:
+        raise ExportError("engine h5netcdf needs the h5netcdf and h5py packages, which are not installed; run "
+                          "`pip install sweepshell[h5netcdf]` or use --engine scipy", field="engine", value=engine)
+    nc_engine = engine or ("h5netcdf" if has_h5 else "scipy")
     if fmt == "parquet" and importlib.util.find_spec("pyarrow") is None:
         raise ExportError("parquet export needs the pyarrow package, which is not installed; run `pip install "
                           "pyarrow` or export with --format csv or --format netcdf", field="format", value=fmt)
@@ -232,7 +275,7 @@ def export_store(store: str | os.PathLike[str], fmt: str, output: str | os.PathL
             with open(tmp, "w", newline="", encoding="utf-8") as handle:
                 _write_csv(source, handle)
         elif fmt == "netcdf":
-            _write_netcdf(source, tmp)
+            _write_netcdf(source, tmp, nc_engine)
         else:
             _write_parquet(source, tmp)
         os.replace(tmp, target)

@@ -80,6 +80,8 @@ class ATTR:
     schema = "sweepshell_schema"
     model = "model"
     model_version = "model_version"
+    model_package = "model_package"                # distribution providing the model (sweepshell for built-ins)
+    model_package_version = "model_package_version"
     settings = "model_settings_json"
     fixed = "fixed_parameters_json"
     axes = "axes_json"

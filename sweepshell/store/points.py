@@ -93,12 +93,16 @@ def _create_group(path: Path, grid_attrs: Mapping[str, Any], axes: Mapping[str, 
     axis_values: dict[str, list[Any]] = metadata.read_record(grid_attrs, ATTR.axes)
     for name in axes:
         values = axis_values[name]
+        # the grid coordinate's description and units (a categorical axis has names, no units)
+        described = {k: v for k, v in dict(root[name].attrs).items() if k in ("units", "long_name", "symbol")} \
+            if name in root else {}
         if values and isinstance(values[0], str):
+            described.pop("units", None)
             group.create_array(name, shape=(0,), chunks=(_CHUNK,), dtype="int16", fill_value=-1,
-                               dimension_names=dims, attributes={"categories": list(values)})
+                               dimension_names=dims, attributes={"categories": list(values), **described})
         else:
             group.create_array(name, shape=(0,), chunks=(_CHUNK,), dtype="float64", fill_value=np.nan,
-                               dimension_names=dims)
+                               dimension_names=dims, attributes=described)
     for name, (extra_shape, out_attrs) in outputs.items():
         extra_dims = tuple(out_attrs.get("_dims", ()))
         group.create_array(name, shape=(0, *extra_shape), chunks=(_CHUNK, *extra_shape), dtype="float64",

@@ -30,7 +30,8 @@ def check_readable_store(path: str | os.PathLike[str], *, chunks: bool = False) 
     final block holding trusted points has all its chunks (a listing, no decoding) — for commands
     that answer with values.
     """
-    from sweepshell.store.integrity import check_store_chunks, check_store_metadata, read_root_metadata
+    from sweepshell.store.chunk_checks import check_store_chunks
+    from sweepshell.store.integrity import check_store_metadata, read_root_metadata
 
     p = Path(path)
     if not p.exists():
@@ -62,8 +63,17 @@ def read_attrs(path: str | os.PathLike[str]) -> dict[str, Any]:
     return check_readable_store(path)
 
 
-def open_sweep(path: str | os.PathLike[str]) -> xr.Dataset:
+def open_sweep(path: str | os.PathLike[str], *, chunks: Any = "auto") -> xr.Dataset:
     """Open a sweep store as a lazy :class:`xarray.Dataset`.
+
+    Parameters
+    ----------
+    path
+        The store folder.
+    chunks
+        dask chunking, as for :func:`xarray.open_zarr`: ``"auto"`` (the store's blocks,
+        merged up to dask's preferred size), ``{}`` (exactly the store's blocks), a mapping
+        of dimension → size, or ``None`` (no dask: numpy arrays loaded on access).
 
     Raises
     ------
@@ -73,7 +83,7 @@ def open_sweep(path: str | os.PathLike[str]) -> xr.Dataset:
     import xarray as xr
 
     check_readable_store(path, chunks=True)
-    return xr.open_zarr(str(path), consolidated=True, zarr_format=3)
+    return xr.open_zarr(str(path), consolidated=True, zarr_format=3, chunks=chunks)
 
 
 def read_ledger(path: str | os.PathLike[str], block_shape: tuple[int, ...] | None = None) -> np.ndarray:

@@ -43,6 +43,8 @@ def summarize_store(path: str | os.PathLike[str]) -> dict[str, Any]:
         "sweep": attrs.get(ATTR.sweep_name),
         "model": attrs.get(ATTR.model),
         "model_version": attrs.get(ATTR.model_version),
+        "model_package": attrs.get(ATTR.model_package),
+        "model_package_version": attrs.get(ATTR.model_package_version),
         "sweepshell_version": attrs.get(ATTR.tool),
         "created": attrs.get(ATTR.created),
         "axes": axes,
@@ -81,7 +83,7 @@ def _count_off_grid(path: str | os.PathLike[str]) -> dict[str, int]:
 
 def _count_lost_blocks(path: str | os.PathLike[str], ledger: np.ndarray, block_shape: tuple[int, ...]) -> int:
     """Return how many final blocks lost an output or regime chunk (a listing; no model import, no decoding)."""
-    from sweepshell.store.integrity import consolidated_outputs, find_blocks_missing_chunks
+    from sweepshell.store.chunk_checks import consolidated_outputs, find_blocks_missing_chunks
     from sweepshell.store.metadata import REGIME_VAR
 
     names = [*consolidated_outputs(path), REGIME_VAR]

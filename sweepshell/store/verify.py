@@ -45,7 +45,7 @@ import numpy as np
 from sweepshell.errors import StoreDamagedError, StoreNotFoundError, StoreSchemaError
 from sweepshell.models.base import TRUSTED_STATUSES, Status
 from sweepshell.plan import iter_blocks
-from sweepshell.store import integrity, metadata
+from sweepshell.store import chunk_checks, integrity, metadata
 from sweepshell.store.catalog import read_axis_order
 from sweepshell.store.metadata import ATTR
 
@@ -357,7 +357,7 @@ def _verify(root: Path, *, repair: bool) -> VerifyReport:
     not_nullable = {n for n, spec in (declared or {}).items() if not spec.nullable}
     # lost chunks of final blocks: found by listing the array folders (a missing array misses them all)
     checked = [*(declared or outputs), metadata.REGIME_VAR]
-    lost = integrity.find_blocks_missing_chunks(root, _read_ledger_quietly(root, block_shape), block_shape, checked)
+    lost = chunk_checks.find_blocks_missing_chunks(root, _read_ledger_quietly(root, block_shape), block_shape, checked)
     counts = np.zeros(256, dtype=np.int64)
     recompute: list[tuple[int, ...]] = []
     recompute_points = 0

@@ -26,6 +26,7 @@ import numpy as np
 
 from sweepshell.about import CAUTION, __version__
 from sweepshell.errors import StoreMismatchError, StoreSchemaError
+from sweepshell.models import get_model_origin
 from sweepshell.models.base import BatchResult, SweepModel
 from sweepshell.plan import Block, SweepPlan
 from sweepshell.store import metadata
@@ -45,11 +46,14 @@ log = logging.getLogger(__name__)
 
 def plan_attrs(plan: SweepPlan, model: SweepModel, block_shape: Sequence[int]) -> dict[str, Any]:
     """Return the provenance attributes of a store made from ``plan``."""
+    origin = get_model_origin(plan.model)
     return {
         ATTR.tool: __version__,
         ATTR.schema: metadata.SCHEMA_VERSION,
         ATTR.model: plan.model,
         ATTR.model_version: plan.model_version,
+        ATTR.model_package: origin.distribution,
+        ATTR.model_package_version: origin.version,
         ATTR.settings: canonical_json(model.settings),
         ATTR.fixed: canonical_json(plan.fixed),
         ATTR.axes: canonical_json({a.name: list(a.values) for a in plan.axes}),
@@ -192,7 +196,9 @@ def create_store(plan: SweepPlan, model: SweepModel, block_shape: Sequence[int])
     coords: dict[str, Any] = {}
     for axis in plan.axes:
         param = model.get_parameter(axis.name)
-        attrs = {"units": param.units, "long_name": param.doc, "spacing": axis.spacing}
+        attrs = {"long_name": param.doc, "spacing": axis.spacing}
+        if not param.is_categorical:  # names carry no units
+            attrs["units"] = param.units
         if param.symbol:
             attrs["symbol"] = param.symbol
         coords[axis.name] = xr.Variable((axis.name,), axis.to_array(), attrs)

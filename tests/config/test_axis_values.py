@@ -7,7 +7,7 @@ import logging
 
 import numpy as np
 
-from sweepshell.config.loader import _expand_form, snap_decimals
+from sweepshell.config.plan_builder import _expand_form, snap_decimals
 from sweepshell.store.writer import _same_axes
 
 

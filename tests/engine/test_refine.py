@@ -57,6 +57,9 @@ def test_more_levels_reuse_the_stored_points_and_the_store_stays_readable(store,
         listed = xr.open_zarr(store, group="points")
     assert list(grid.status.dims) == ["stiffness_ratio", "load_ratio"]
     assert listed.sizes["point"] == read_points(store)["status"].size
+    for axis in ("stiffness_ratio", "load_ratio"):  # off-grid axes described like the grid's
+        assert listed[axis].attrs["units"] == grid[axis].attrs["units"] == "1"
+        assert listed[axis].attrs["long_name"] == grid[axis].attrs["long_name"]
     ds = open_sweep(store)
     table = ds.sweep.query('source == "points" and regime == "buckled"', fields=["critical_load", "source"])
     assert len(table) > 0

@@ -5,13 +5,13 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
-from sweepshell.numerics.radial_chebyshev import get_cluster_width, make_radial_grid, to_chebyshev_coordinate
+from sweepshell.numerics.radial_chebyshev import build_radial_grid, get_cluster_width, to_chebyshev_coordinate
 
 
 @pytest.mark.parametrize("stretch", [0.0, 0.5, 0.85])
 def test_derivatives_and_weights_of_smooth_functions(stretch):
     # odd u = sin(3x) x and even v = cos(2x): derivatives, ∫₀¹ u dx and ∫₀¹ v x² dx in closed form
-    g = make_radial_grid(40, stretch)
+    g = build_radial_grid(40, stretch)
     x = g.x
     u = np.sin(3 * x) * x**2  # odd
     du = 3 * np.cos(3 * x) * x**2 + 2 * x * np.sin(3 * x)
@@ -30,21 +30,21 @@ def test_derivatives_and_weights_of_smooth_functions(stretch):
 
 
 def test_stretch_moves_nodes_towards_the_axis():
-    plain, stretched = make_radial_grid(24), make_radial_grid(24, 0.5)
+    plain, stretched = build_radial_grid(24), build_radial_grid(24, 0.5)
     assert plain.stretch == 0.0 and stretched.stretch == 0.5
     assert stretched.x[0] == 1.0 and np.all(np.diff(stretched.x) < 0) and stretched.x[-1] > 0
     # spacing at the axis shrinks by 1 − β, at the edge grows by 1 + 2β
     assert stretched.x[-1] / plain.x[-1] == pytest.approx(0.5, rel=1e-2)
     assert (1 - stretched.x[1]) / (1 - plain.x[1]) == pytest.approx(2.0, rel=1e-2)
     with pytest.raises(ValueError, match="stretch"):
-        make_radial_grid(24, 1.0)
+        build_radial_grid(24, 1.0)
 
 
 @pytest.mark.parametrize(("m", "centre"), [(48, 0.5), (34, 0.3), (64, 0.9), (48, 0.05)])
 def test_clustered_grid_has_a_node_on_the_centre_and_exact_calculus_of_smooth_functions(m, centre):
     # common practice, no source: the clustered map is smooth, so smooth functions keep (mapped)
     # spectral accuracy, less than on plain nodes because the clusters take a share of them
-    g = make_radial_grid(m, 0.0, centre)
+    g = build_radial_grid(m, 0.0, centre)
     x = g.x
     assert g.centre == centre and np.count_nonzero(x == centre) == 1
     assert x[0] == 1.0 and np.all(np.diff(x) < 0) and x[-1] > 0
@@ -67,23 +67,23 @@ def test_clustered_grid_refines_around_the_centre_as_the_square_of_the_node_coun
     # 1/M² (plain nodes: 1/M), 2.4 (24 nodes) to 6 times (48) finer than plain nodes there
     spacing = []
     for m in (24, 48, 96):
-        x = make_radial_grid(m, 0.0, 0.5).x
+        x = build_radial_grid(m, 0.0, 0.5).x
         k = int(np.nonzero(x == 0.5)[0][0])
         spacing.append(min(x[k - 1] - x[k], x[k] - x[k + 1]))
-        plain = make_radial_grid(m).x
+        plain = build_radial_grid(m).x
         assert spacing[-1] < 0.5 * np.min(np.diff(plain[(plain > 0.4) & (plain < 0.6)][::-1]))
     order = -np.polyfit(np.log([24, 48, 96]), np.log(spacing), 1)[0]
     assert order > 2.0
     assert get_cluster_width(96) == pytest.approx(0.0025)
     with pytest.raises(ValueError, match="centre"):
-        make_radial_grid(24, 0.5, 0.5)
+        build_radial_grid(24, 0.5, 0.5)
     with pytest.raises(ValueError, match="centre"):
-        make_radial_grid(24, 0.0, 1.0)
+        build_radial_grid(24, 0.0, 1.0)
 
 
 def test_chebyshev_coordinate_inverts_every_map():
     # common practice, no source: round trip x → ξ for the plain, the cubic and the clustered map
     for stretch, centre in ((0.0, 0.0), (0.5, 0.0), (0.0, 0.4)):
-        g = make_radial_grid(30, stretch, centre)
+        g = build_radial_grid(30, stretch, centre)
         xi = np.cos(np.pi * np.arange(30) / 59)
         np.testing.assert_allclose(to_chebyshev_coordinate(g.x, 30, stretch, centre), xi, atol=1e-13)

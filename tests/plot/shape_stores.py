@@ -95,7 +95,7 @@ def make_cap_store(folder: Path) -> Path:
     }
     data_vars = {
         "shape": xr.Variable((*dims, "shape_radius", "shape_angle"), shape, {"units": "1", "long_name": "w/h"}),
-        "wave_number": xr.Variable(dims, wave, {"units": "1"}),
+        "branch_wave_number": xr.Variable(dims, wave, {"units": "1"}),
         "ridges": xr.Variable(dims, wave, {"units": "1"}),
         metadata.STATUS_VAR: status, metadata.REGIME_VAR: regime,
     }

@@ -102,10 +102,10 @@ def test_corrupted_foreign_or_forged_index_is_rebuilt_or_ignored(results, damage
 
 
 def test_a_busy_index_is_left_alone_and_the_listing_still_works(results, monkeypatch):
-    from sweepshell.store import catalog
+    from sweepshell.store import catalog_index
 
     first = read_catalog(results)
-    monkeypatch.setattr(catalog, "_LOCK_TIMEOUT_SECONDS", 0.05)
+    monkeypatch.setattr(catalog_index, "_LOCK_TIMEOUT_SECONDS", 0.05)
     holder = sqlite3.connect(results / CATALOG_FILE)
     holder.execute("BEGIN EXCLUSIVE")  # another process is writing the index
     try:

@@ -65,17 +65,38 @@ def test_csv_has_one_row_per_point_with_exact_values_and_names(store, tmp_path):
     assert sum(r["status"] == "outside_validity" for r in rows) == 4  # eta 5000 x loads 0.5, 40 x 2 ends
 
 
-def test_netcdf_round_trips_every_variable_and_coordinate(store, tmp_path):
-    target = export_store(store, "netcdf", tmp_path / "e.nc")
-    back = xr.open_dataset(target, engine="scipy").load()
+@pytest.mark.parametrize("engine", ["scipy", "h5netcdf"])
+def test_netcdf_round_trips_every_variable_and_coordinate(store, tmp_path, engine):
+    target = export_store(store, "netcdf", tmp_path / "e.nc", engine=engine)
+    back = xr.open_dataset(target, engine=engine).load()
     ds = open_sweep(store).load()
     assert back.end.values.tolist() == END
     for name in ds.data_vars:
         np.testing.assert_array_equal(back[name].values, ds[name].values.astype(back[name].dtype))
-    assert back.status.dtype == np.int8 and back.load_path.dims[-1] == "path_sample"
+    # netCDF3 has no unsigned bytes; netCDF4 keeps the ledger's uint8
+    assert back.status.dtype == (np.int8 if engine == "scipy" else np.uint8)
+    assert back.load_path.dims[-1] == "path_sample"
+    for name in ("status", "regime"):  # CF: flag values in the variable's own type
+        flags = np.asarray(back[name].attrs["flag_values"])
+        assert flags.dtype == back[name].dtype, (name, flags.dtype)
+    assert back.status.attrs["flag_values"].tolist() == [0, 1, 2, 3, 4, 5]
+    assert back.regime.attrs["flag_meanings"].split() == ["none", "stable", "buckled"]
     assert back.attrs["regimes"] == "stable buckled" and back.attrs["model"] == "winkler_column"
     assert "Caution" in back.attrs["caution"] and back.critical_load.attrs["units"] == "1"
+    assert "units" not in back.end.attrs and back.stiffness_ratio.attrs["units"] == "1"
+    # the exported file answers the same questions as the store
+    where = 'regime == "buckled" and end == "pinned"'
+    mine = ds.sweep.query(where, ["critical_load"])
+    theirs = back.sweep.query(where, ["critical_load"])
+    assert len(theirs) == len(mine) > 0
+    np.testing.assert_array_equal(theirs["critical_load"].to_numpy(), mine["critical_load"].to_numpy())
     back.close()
+
+
+def test_netcdf_engine_choice_is_checked(store, tmp_path, capsys):
+    assert main(["export", str(store), "--format", "csv", "--engine", "scipy", "-o", str(tmp_path / "e.csv")]) == 2
+    assert "not a netCDF engine" in capsys.readouterr().err
+    assert list(tmp_path.iterdir()) == []
 
 
 def test_parquet_holds_one_row_per_point(store, tmp_path):
@@ -85,6 +106,12 @@ def test_parquet_holds_one_row_per_point(store, tmp_path):
     target = export_store(store, "parquet", tmp_path / "e.parquet")
     table = pd.read_parquet(target)
     assert len(table) == 30 and set(table["status"]) == {"ok", "no_instability", "failed", "outside_validity"}
+    import pyarrow.parquet as pq
+
+    schema = pq.read_schema(target)
+    assert schema.field("critical_load").metadata[b"units"] == b"1"
+    assert schema.field("stiffness_ratio").metadata[b"long_name"].startswith(b"foundation parameter")
+    assert schema.field("end").metadata is None or b"units" not in schema.field("end").metadata
 
 
 def test_parquet_without_pyarrow_is_a_clear_exit_2(store, tmp_path, capsys, monkeypatch):

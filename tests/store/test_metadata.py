@@ -13,7 +13,8 @@ from sweepshell.store import metadata
 ROOT = Path(__file__).resolve().parents[2] / "sweepshell"
 
 #: modules that parse JSON files of their own (not store metadata): claim files, the catalog's cache
-OWN_JSON = {"sweepshell/engine/claims.py", "sweepshell/store/catalog.py"}
+OWN_JSON = {"sweepshell/engine/claims.py", "sweepshell/store/catalog.py", "sweepshell/store/catalog_index.py",
+            "sweepshell/store/leftovers.py"}
 
 
 def _offences(path: Path) -> list[str]:

@@ -22,7 +22,8 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from sweepshell.models.cap_postbuckling.operators import DenseBordered, HarmonicCapProblem
-from sweepshell.numerics.arclength import TRACE_DONE, correct_on_arc, refine_on_arc, trace_paths
+from sweepshell.numerics.arc_refine import refine_on_arc
+from sweepshell.numerics.arclength import TRACE_DONE, correct_on_arc, trace_paths
 
 __all__ = ["CapBranchResult", "follow_cap"]
 

@@ -94,8 +94,9 @@ class CapPostbucklingModel(SweepModel):
     @property
     def outputs(self) -> tuple[OutputSpec, ...]:
         return (
-            OutputSpec("wave_number", "1", "circumferential wave number n of the followed branch (0: axisymmetric "
-                       "only)"),
+            # not named wave_number: that is the parameter, and a store cannot hold a variable named like an axis
+            OutputSpec("branch_wave_number", "1", "circumferential wave number n of the followed branch "
+                       "(0: axisymmetric only)"),
             OutputSpec("bifurcation_load", "1", "load at the bifurcation (limit point for regime limit_point), as "
                        "shallow_cap's critical_load: pressure over p_cl or apex force over E h^3/R; NaN when stable",
                        nullable=True),
@@ -252,7 +253,7 @@ def _fill(res: BatchResult, i: int, b: CapBranchResult, apex: bool, samples: int
     if not b.finished:
         res.status[i] = Status.not_converged
         return
-    out["wave_number"][i] = b.wave_number
+    out["branch_wave_number"][i] = b.wave_number
     out["bifurcation_load"][i] = b.bifurcation_load
     out["postbuckling_slope"][i] = b.postbuckling_slope
     out["load_drop"][i] = b.load_drop

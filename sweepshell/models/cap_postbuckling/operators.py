@@ -4,7 +4,7 @@ Notation of ``theory.md``: x = r/a, scaled unknowns ``W = ω/λ²`` and ``P = Φ
 Φ = F/D), ε = 1/λ², the stress-free surface ``ζ₀/λ² = −x²/2 − (2c δ_d/λ²) exp(−(λx/b)²)``.
 Each field is a cosine series in ``jnθ``, ``j = 0 … K``, with radial coefficients on the half
 grid of :mod:`sweepshell.numerics.radial_chebyshev`. Harmonic ``m = jn ≥ 2`` uses the
-substitution ``u = x² v`` of :func:`sweepshell.models.shallow_cap.modes.make_mode_operators`
+substitution ``u = x² v`` of :func:`sweepshell.models.shallow_cap.modes.build_mode_operators`
 (which excludes the non-smooth ``x⁰ cos 2θ``); harmonic 0 uses the even polynomial itself.
 The equations, multiplied by x², are collocated in ``x`` and projected on ``cos(lnθ)`` by a
 midpoint rule with ``Q > 3K/2`` points, which integrates the quadratic brackets exactly
@@ -24,8 +24,8 @@ from functools import lru_cache
 
 import numpy as np
 
-from sweepshell.models.shallow_cap.modes import make_mode_operators
-from sweepshell.numerics.radial_chebyshev import make_interpolation_matrix, make_radial_grid
+from sweepshell.models.shallow_cap.modes import build_mode_operators
+from sweepshell.numerics.radial_chebyshev import build_interpolation_matrix, build_radial_grid
 
 __all__ = ["HarmonicCapProblem", "RadialField", "make_radial_fields"]
 
@@ -50,7 +50,7 @@ class RadialField:
 
 
 def _axisymmetric(size: int, stretch: float) -> tuple[np.ndarray, ...]:
-    g = make_radial_grid(size, stretch)
+    g = build_radial_grid(size, stretch)
     x = g.x
     eye = np.eye(size)
     d1, d2, d3 = g.d1[1], g.d2[1], g.d3[1]
@@ -62,7 +62,7 @@ def _axisymmetric(size: int, stretch: float) -> tuple[np.ndarray, ...]:
 @lru_cache(maxsize=64)
 def make_radial_fields(size: int, wave_number: int, harmonics: int, stretch: float) -> tuple[RadialField, RadialField]:
     """Return the deflection and stress operators of harmonics ``0, n, …, Kn`` (cached)."""
-    x = make_radial_grid(size, stretch).x
+    x = build_radial_grid(size, stretch).x
     parts: dict[str, list[list[np.ndarray]]] = {"w": [[] for _ in range(7)], "f": [[] for _ in range(7)]}
     for j in range(harmonics + 1):
         m = j * wave_number
@@ -70,7 +70,7 @@ def make_radial_fields(size: int, wave_number: int, harmonics: int, stretch: flo
             w0, w1, w2, bil, w3 = _axisymmetric(size, stretch)
             fields = {"w": (w0, w1, w2, bil, w3), "f": (w0, w1, w2, bil, w3)}
         else:
-            ops = make_mode_operators(size, m, stretch)
+            ops = build_mode_operators(size, m, stretch)
             fields = {key: (fo.w0, fo.w1, fo.w2, fo.bilaplacian, fo.w3_edge)
                       for key, fo in (("w", ops.deflection), ("f", ops.stress))}
         for key, (w0, w1, w2, bil, w3) in fields.items():
@@ -120,7 +120,7 @@ class HarmonicCapProblem:
     wave_number, harmonics
         n and K of the subspace ``cos jnθ``, j = 0 … K (any n for K = 0).
     nodes, stretch
-        Radial grid (:func:`~sweepshell.numerics.radial_chebyshev.make_radial_grid`).
+        Radial grid (:func:`~sweepshell.numerics.radial_chebyshev.build_radial_grid`).
     contact
         Width of the apex force's Gaussian over ℓ.
     """
@@ -131,7 +131,7 @@ class HarmonicCapProblem:
         self.lam, self.nu = float(lam), float(nu)
         self.clamped, self.immovable, self.apex = bool(clamped), bool(immovable), bool(apex)
         self.n, self.k, self.size = int(wave_number), int(harmonics), int(nodes)
-        self.grid = make_radial_grid(self.size, float(stretch))
+        self.grid = build_radial_grid(self.size, float(stretch))
         x = self.grid.x
         self.x = x
         self.c = float(np.sqrt(3.0 * (1.0 - self.nu**2)))
@@ -154,7 +154,7 @@ class HarmonicCapProblem:
             self.load_scale = 1.0
             self.load_rows = 4.0 * x**2
         self._dimple = (d, s)
-        self.apex_row = make_interpolation_matrix(self.size, 1, np.zeros(1))[0]
+        self.apex_row = build_interpolation_matrix(self.size, 1, np.zeros(1))[0]
         self.block = (self.k + 1) * self.size
         self.unknowns = 2 * self.block
         self._edge_w = self._deflection_edge_rows()
@@ -311,7 +311,7 @@ class HarmonicCapProblem:
             m = j * self.n
             power = 0 if m == 0 else 2
             parity = 1 if (m - power) % 2 == 0 else -1
-            e = make_interpolation_matrix(self.size, parity, xi)
+            e = build_interpolation_matrix(self.size, parity, xi)
             out[j] = self.lam**2 * radius**power * (e @ w[j])
         return out
 
@@ -325,8 +325,8 @@ class HarmonicCapProblem:
             m = j * self.n
             power = 0 if m == 0 else 2
             par = 1 if (m - power) % 2 == 0 else -1
-            same = make_interpolation_matrix(self.size, par, xi)
-            other = make_interpolation_matrix(self.size, -par, xi)
+            same = build_interpolation_matrix(self.size, par, xi)
+            other = build_interpolation_matrix(self.size, -par, xi)
             v = w[j]
             d2 = same @ (g.d2[par] @ v)
             if power == 0:

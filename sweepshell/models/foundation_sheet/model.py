@@ -89,12 +89,11 @@ import numpy as np
 from sweepshell.errors import ParameterError
 from sweepshell.models.base import BatchResult, OutputSpec, ParameterSpec, Status, SweepModel
 from sweepshell.models.foundation_sheet.energy import (
-    SheetMinimum,
+    build_sheet_problem,
     compute_height_field,
-    make_sheet_problem,
-    minimize_sheet_energy,
     project_field_to_modes,
 )
+from sweepshell.models.foundation_sheet.minimize import SheetMinimum, minimize_sheet_energy
 from sweepshell.models.foundation_sheet.patterns import (
     PATTERN_NAMES,
     classify_pattern,
@@ -331,7 +330,7 @@ class FoundationSheetModel(SweepModel):
             b, ratio = scales["height_scale"][i], scales["height_scale"][i] / h[i]
             try:
                 with np.errstate(all="raise", under="ignore"):
-                    problem = make_sheet_problem(int(modes[i]), int(cells[i]), str(substrate[i]),
+                    problem = build_sheet_problem(int(modes[i]), int(cells[i]), str(substrate[i]),
                                                  float(nu[i]), (float(s1[i]), float(s2[i])))
                     flat_amplitude = s["flat_tolerance"] / ratio
                     if problem.linear_stability_margin() >= 0.0:
@@ -340,7 +339,7 @@ class FoundationSheetModel(SweepModel):
                     else:
                         mirrored = None
                         if s["mirror_starts"] and s1[i] != s2[i]:
-                            mirrored = make_sheet_problem(int(modes[i]), int(cells[i]), str(substrate[i]),
+                            mirrored = build_sheet_problem(int(modes[i]), int(cells[i]), str(substrate[i]),
                                                           float(nu[i]), (float(s2[i]), float(s1[i])))
                         found = self._solve_point(problem, mirrored, ratio, seed_energies[i])
                         if not found:

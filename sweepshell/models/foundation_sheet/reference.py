@@ -88,7 +88,7 @@ def minimize_reference_energy(n: int, cells: int, substrate: str, poisson_ratio:
     Parameters
     ----------
     n, cells, substrate, poisson_ratio, overstrain
-        As in :func:`sweepshell.models.foundation_sheet.energy.make_sheet_problem`.
+        As in :func:`sweepshell.models.foundation_sheet.energy.build_sheet_problem`.
     height0
         Scaled start height (n × n).
     gradient_tolerance

@@ -30,22 +30,27 @@ reports how it ended.
 from __future__ import annotations
 
 import math
-import warnings
 from dataclasses import dataclass, field
+from typing import Any
 
 import numpy as np
-from scipy.linalg import LinAlgWarning, lu_factor, lu_solve, svd
 
+from sweepshell.models.foundation_strip.bordered import (
+    build_weights,
+    compute_jacobian,
+    factor_bordered,
+    get_det_sign,
+    solve_newton,
+    solve_tangent,
+)
+from sweepshell.models.foundation_strip.branches import keeps_mirror_symmetry, locate_bifurcation, switch_branch
 from sweepshell.models.foundation_strip.elastica import (
     StripProblem,
     compute_crest_contrast,
     compute_critical_mode,
-    compute_gradient,
     compute_hessian,
     compute_node_heights,
 )
-
-PHI_WEIGHT = 30.0
 
 __all__ = ["PathEnd", "StripPath", "follow_confinement_path", "solve_at_confinement"]
 
@@ -90,95 +95,6 @@ class StripPath:
     passed: list[float] = field(default_factory=list)
 
 
-def _residual(problem: StripProblem, X: np.ndarray) -> np.ndarray:
-    g = problem.grid
-    n, h, L = g.n, g.h, g.length
-    phi, P, R, d = X[:n], X[n], X[n + 1], X[n + 2]
-    sin, cos = np.sin(phi), np.cos(phi)
-    r = np.empty(n + 2)
-    r[:n] = compute_gradient(problem, phi) / h - P * sin + R * cos
-    r[n] = (h * np.sum(1.0 - cos) - problem.slack0) / L - d
-    r[n + 1] = h * np.sum(sin) / L
-    return r
-
-
-def _jacobian(problem: StripProblem, X: np.ndarray) -> np.ndarray:
-    g = problem.grid
-    n, h, L = g.n, g.h, g.length
-    phi, P, R = X[:n], X[n], X[n + 1]
-    sin, cos = np.sin(phi), np.cos(phi)
-    J = np.zeros((n + 2, n + 3))
-    H = compute_hessian(problem, phi) / h
-    H[np.diag_indices(n)] += -P * cos - R * sin
-    J[:n, :n] = H
-    J[:n, n] = -sin
-    J[:n, n + 1] = cos
-    J[n, :n] = h * sin / L
-    J[n, n + 2] = -1.0
-    J[n + 1, :n] = h * cos / L
-    return J
-
-
-def _weights(n: int) -> np.ndarray:
-    w = np.empty(n + 3)
-    w[:n] = PHI_WEIGHT / n
-    w[n] = 1.0
-    w[n + 1] = 1e-4
-    w[n + 2] = 100.0
-    return w
-
-
-def _factor(J: np.ndarray, row: np.ndarray):
-    """LU factors of the bordered matrix [J; row], or None if singular or not finite."""
-    A = np.vstack([J, row])
-    if not np.all(np.isfinite(A)):
-        return None
-    with np.errstate(all="ignore"), warnings.catch_warnings():
-        warnings.simplefilter("ignore", LinAlgWarning)
-        lu = lu_factor(A, check_finite=False)
-    if not np.all(np.isfinite(lu[0])) or np.min(np.abs(np.diag(lu[0]))) == 0.0:
-        return None
-    return lu
-
-
-def _tangent(lu, W: np.ndarray) -> np.ndarray | None:
-    rhs = np.zeros(lu[0].shape[0])
-    rhs[-1] = 1.0
-    t = lu_solve(lu, rhs, check_finite=False)
-    norm = math.sqrt(float(np.sum(W * t * t)))
-    if not math.isfinite(norm) or norm == 0.0:
-        return None
-    return t / norm
-
-
-def _newton(problem: StripProblem, X: np.ndarray, row: np.ndarray, value: float, lu, tol: float,
-            max_iter: int) -> tuple[np.ndarray | None, int]:
-    """Solve the N + 2 equations plus ``row·X = value`` by Newton with occasional refactoring.
-
-    ``lu`` (factors of [J; row] near X, or None) is reused as a chord matrix; it is
-    refreshed at the current iterate whenever the update stops shrinking fast, which keeps
-    most iterations at the cost of one O(N²) back-substitution.
-    """
-    last = math.inf
-    for it in range(1, max_iter + 1):
-        if lu is None:
-            lu = _factor(_jacobian(problem, X), row)
-            if lu is None:
-                return None, it
-        b = -np.concatenate([_residual(problem, X), [float(row @ X) - value]])
-        dX = lu_solve(lu, b, check_finite=False)
-        size = float(np.max(np.abs(dX))) if np.all(np.isfinite(dX)) else math.inf
-        if size > 10.0:
-            return None, it
-        X = X + dX
-        if size < tol:
-            return X, it
-        if size > 0.25 * last:
-            lu = None  # slow contraction: refresh the Jacobian
-        last = size
-    return None, max_iter
-
-
 def _shape_turn(t: np.ndarray, t_new: np.ndarray, n: int) -> float:
     """Cosine between the shape parts (angles) of two tangents."""
     a, b = t[:n], t_new[:n]
@@ -216,14 +132,6 @@ def _record(problem: StripProblem, path: StripPath, X: np.ndarray, compliance: f
     return X[n] <= 0.0 or _touches(y, x, g.h)
 
 
-def _det_sign(lu) -> int:
-    """Sign of the determinant of an LU-factored matrix (pivots and the diagonal of U)."""
-    lu_mat, piv = lu
-    swaps = int(np.count_nonzero(piv != np.arange(piv.size)))
-    negative = int(np.count_nonzero(np.diag(lu_mat) < 0.0))
-    return -1 if (swaps + negative) % 2 else 1
-
-
 def _start_on_wrinkled_branch(problem: StripProblem, path: StripPath, compliance: float,
                               W: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """Record the flat states of a perfect strip up to its first bifurcation; return (X*, t).
@@ -248,104 +156,6 @@ def _start_on_wrinkled_branch(problem: StripProblem, path: StripPath, compliance
     t[:n] = v
     t[n + 1] = -float(np.mean(Hv))
     return X, t / math.sqrt(float(np.sum(W * t * t)))
-
-
-def _orient_switch(problem: StripProblem, X: np.ndarray, z: np.ndarray) -> np.ndarray:
-    """Sign the secondary mode z so that the wrinkle grows in the middle third of the strip.
-
-    A deterministic choice (the imperfection shape localises at mid-length too); where the
-    mode is orthogonal to the wrinkle there (a sideways shift of the envelope) the first
-    node height larger than half the largest is made positive instead.
-    """
-    g = problem.grid
-    n = g.n
-    y = compute_node_heights(X[:n], g.h)
-    dy = compute_node_heights(X[:n] + 1e-6 * z[:n], g.h) - y
-    mid = slice(n // 3, n - n // 3)
-    score = float(np.sum(y[mid] * dy[mid]))
-    if abs(score) <= 1e-3 * float(np.linalg.norm(y)) * float(np.linalg.norm(dy)):
-        first = int(np.nonzero(np.abs(dy) > 0.5 * np.max(np.abs(dy)))[0][0])
-        score = float(dy[first])
-    return z if score >= 0.0 else -z
-
-
-def _keeps_mirror_symmetry(problem: StripProblem, X: np.ndarray, z: np.ndarray) -> bool:
-    """Whether the mode z has the wrinkle's own parity under the mirror x → L − x.
-
-    Such a mode changes the envelope symmetrically (it localises the wrinkle at
-    mid-length or spreads it to both ends); the other kind shifts the envelope towards
-    one end.
-    """
-    g = problem.grid
-    y = compute_node_heights(X[: g.n], g.h)
-    dy = compute_node_heights(z[: g.n], g.h)
-    parity = 1.0 if float(y @ y[::-1]) >= 0.0 else -1.0
-    return float(np.linalg.norm(dy - parity * dy[::-1])) < float(np.linalg.norm(dy + parity * dy[::-1]))
-
-
-def _locate_bifurcation(problem: StripProblem, X: np.ndarray, t: np.ndarray, ds: float, W: np.ndarray,
-                        tol: float):
-    """Locate a simple bifurcation between X and the step ``ds`` along t; return (X_b, z) or None.
-
-    The determinant of [J; tᵀW] changes sign across the bifurcation (it keeps its sign
-    through limit points); bisection in the arclength on the followed branch brackets
-    the sign change to 1e-3 of the step. The bifurcating direction z is the right
-    singular vector of [J; tᵀW] with the smallest singular value, W-orthogonal to the
-    branch and W-normalised.
-    """
-    tw = t * W
-
-    def solve_at(sigma: float) -> tuple[np.ndarray | None, int]:
-        Xs, _ = _newton(problem, X + sigma * t, tw, float(tw @ (X + sigma * t)), None, tol, 16)
-        if Xs is None:
-            return None, 0
-        lu = _factor(_jacobian(problem, Xs), tw)
-        return Xs, 0 if lu is None else _det_sign(lu)
-
-    lu0 = _factor(_jacobian(problem, X), tw)
-    if lu0 is None:
-        return None
-    sign_lo = _det_sign(lu0)
-    lo, hi = 0.0, ds
-    X_lo = X
-    while hi - lo > 1e-3 * ds:
-        mid = 0.5 * (lo + hi)
-        Xm, sign_m = solve_at(mid)
-        if Xm is None or sign_m == 0:
-            return None
-        if sign_m == sign_lo:
-            lo, X_lo = mid, Xm
-        else:
-            hi = mid
-    Xb, _ = solve_at(0.5 * (lo + hi))
-    Xb = X_lo if Xb is None else Xb
-    z = svd(np.vstack([_jacobian(problem, Xb), tw]), check_finite=False)[2][-1]
-    z = z - float(z @ (W * t)) * t
-    norm = math.sqrt(float(np.sum(W * z * z)))
-    if not math.isfinite(norm) or norm == 0.0:
-        return None
-    return Xb, z / norm
-
-
-def _switch_branch(problem: StripProblem, Xb: np.ndarray, z: np.ndarray, W: np.ndarray, tol: float,
-                   eps: float):
-    """Step from the bifurcation X_b onto the branch along z; return (X_new, t_new) or None.
-
-    A corrector from X_b + ε z holding zᵀW(X − X_b) = ε, which excludes the followed
-    branch (W-orthogonal to z).
-    """
-    z = _orient_switch(problem, Xb, z)
-    zw = z * W
-    X_new, _ = _newton(problem, Xb + eps * z, zw, float(zw @ (Xb + eps * z)), None, tol, 16)
-    if X_new is None:
-        return None
-    lu = _factor(_jacobian(problem, X_new), zw)
-    t_new = None if lu is None else _tangent(lu, W)
-    if t_new is None:
-        return None
-    if float(np.sum(W * t_new * z)) < 0.0:
-        t_new = -t_new
-    return X_new, t_new
 
 
 def follow_confinement_path(problem: StripProblem, *, compliance: float, stop, tol: float = 1e-9,
@@ -380,25 +190,14 @@ def follow_confinement_path(problem: StripProblem, *, compliance: float, stop, t
         The converged states and why the path ended.
     """
     n = problem.grid.n
-    W = _weights(n)
+    W = build_weights(n)
     path = StripPath()
     perfect = not np.any(problem.phi0) and not np.any(problem.kappa0)
-    if perfect:
-        # the flat state is an equilibrium at every P: start at its first bifurcation
-        X, t = _start_on_wrinkled_branch(problem, path, compliance, W)
-        lu = None
-    else:
-        X = np.concatenate([problem.phi0, [0.0, 0.0, 0.0]])
-        _record(problem, path, X, compliance)
-        t = np.zeros(n + 3)
-        t[n] = 1.0  # load first
-        lu = _factor(_jacobian(problem, X), t * W)
-        t_maybe = None if lu is None else _tangent(lu, W)
-        if t_maybe is None:
-            path.end = PathEnd.stalled
-            return path
-        t = t_maybe
-        lu = _factor(_jacobian(problem, X), t * W)
+    start = _start_path(problem, path, compliance, W, perfect)
+    if start is None:
+        path.end = PathEnd.stalled
+        return path
+    X, t, lu = start
     watch_sign: int | None = None
     watching = perfect
     ds = ds_first
@@ -406,17 +205,81 @@ def follow_confinement_path(problem: StripProblem, *, compliance: float, stop, t
         if stop(path):
             path.end = PathEnd.reached
             return path
-        X_new = t_new = lu_new = None
-        its = 0
-        while ds >= ds_min:
-            X_pred = X + ds * t
-            tw = t * W
-            X_new, its = _newton(problem, X_pred, tw, float(tw @ X_pred), lu, tol, 16)
-            path.newton_iterations += its
-            if X_new is not None:
-                lu_new = _factor(_jacobian(problem, X_new), t * W)
-                t_new = None if lu_new is None else _tangent(lu_new, W)
-            if X_new is not None and t_new is not None:
+        step, ds = _corrected_step(problem, path, X, t, lu, ds, ds_min, W, tol)
+        if step is None:
+            path.end = PathEnd.stalled
+            return path
+        if watching:
+            # det [J; tᵀW] keeps its sign along a branch (also through limit points) and
+            # changes it at a simple bifurcation: the wrinkle branch's first one is taken
+            sign = get_det_sign(step.lu)
+            if watch_sign is not None and sign != watch_sign:
+                stalled, switched = _at_sign_change(problem, path, X, t, ds, W, tol, compliance, switch_step)
+                if stalled:
+                    path.end = PathEnd.stalled
+                    return path
+                if switched is not None:
+                    watching = False
+                    step, ds = switched, ds_first / 1.6  # restart as from a fresh state
+            watch_sign = sign
+        lu, X, t = step.lu, step.X, step.t
+        if _record(problem, path, X, compliance):
+            path.end = PathEnd.contact
+            return path
+        grow = step.its <= 6 and step.turn >= 0.98 and step.drift <= 0.1 * ds
+        # short steps while watching, so that two bifurcations never share one step
+        ds = min(watch_step if watching else ds_max, ds * (1.6 if grow else (1.0 if step.its <= 10 else 0.6)))
+    path.end = PathEnd.reached if stop(path) else PathEnd.max_steps
+    return path
+
+
+@dataclass(frozen=True)
+class _Step:
+    """An accepted continuation step: the new state, its unit tangent and LU factors, and how it went."""
+
+    X: np.ndarray
+    t: np.ndarray
+    lu: Any
+    its: int
+    turn: float
+    drift: float
+
+
+def _start_path(problem: StripProblem, path: StripPath, compliance: float, W: np.ndarray,
+                perfect: bool) -> tuple[np.ndarray, np.ndarray, Any] | None:
+    """Return the first state, its tangent and LU factors (None: no tangent there)."""
+    n = problem.grid.n
+    if perfect:
+        # the flat state is an equilibrium at every P: start at its first bifurcation
+        X, t = _start_on_wrinkled_branch(problem, path, compliance, W)
+        return X, t, None
+    X = np.concatenate([problem.phi0, [0.0, 0.0, 0.0]])
+    _record(problem, path, X, compliance)
+    t = np.zeros(n + 3)
+    t[n] = 1.0  # load first
+    lu = factor_bordered(compute_jacobian(problem, X), t * W)
+    t_maybe = None if lu is None else solve_tangent(lu, W)
+    if t_maybe is None:
+        return None
+    return X, t_maybe, factor_bordered(compute_jacobian(problem, X), t_maybe * W)
+
+
+def _corrected_step(problem: StripProblem, path: StripPath, X: np.ndarray, t: np.ndarray, lu: Any, ds: float,
+                    ds_min: float, W: np.ndarray, tol: float) -> tuple[_Step | None, float]:
+    """Take one predictor-corrector step from X along t, halving ``ds`` until it is accepted.
+
+    Returns the step (None: stalled below ``ds_min``) and the step length used.
+    """
+    n = problem.grid.n
+    while ds >= ds_min:
+        X_pred = X + ds * t
+        tw = t * W
+        X_new, its = solve_newton(problem, X_pred, tw, float(tw @ X_pred), lu, tol, 16)
+        path.newton_iterations += its
+        if X_new is not None:
+            lu_new = factor_bordered(compute_jacobian(problem, X_new), t * W)
+            t_new = None if lu_new is None else solve_tangent(lu_new, W)
+            if t_new is not None:
                 turn = float(np.sum(W * t_new * t))
                 if turn < 0.0:
                     t_new, turn = -t_new, -turn
@@ -425,46 +288,34 @@ def follow_confinement_path(problem: StripProblem, *, compliance: float, stop, t
                 # jumped to another branch (near a limit load the load barely changes while
                 # the shape does, so the shape gets its own test)
                 if turn >= 0.9 and _shape_turn(t, t_new, n) >= 0.8 and drift <= 0.3 * ds:
-                    break
-            X_new = t_new = None
-            ds *= 0.5
-            lu = None
-        if X_new is None or t_new is None or lu_new is None:
-            path.end = PathEnd.stalled
-            return path
-        if watching:
-            # det [J; tᵀW] keeps its sign along a branch (also through limit points) and
-            # changes it at a simple bifurcation: the wrinkle branch's first one is taken
-            sign = _det_sign(lu_new)
-            if watch_sign is not None and sign != watch_sign:
-                found = _locate_bifurcation(problem, X, t, ds, W, tol)
-                if found is None:
-                    path.end = PathEnd.stalled
-                    return path
-                Xb, z = found
-                path.passed.append(float(Xb[n + 2] + compliance * Xb[n]))
-                if _keeps_mirror_symmetry(problem, Xb, z):
-                    switched = _switch_branch(problem, Xb, z, W, tol, switch_step)
-                    if switched is None:
-                        path.end = PathEnd.stalled
-                        return path
-                    watching = False
-                    X_new, t_new = switched
-                    _record(problem, path, Xb, compliance)
-                    path.bifurcations.append(len(path.load) - 1)
-                    lu_new = _factor(_jacobian(problem, X_new), t_new * W)
-                    ds, its, turn, drift = ds_first / 1.6, 0, 1.0, 0.0  # restart as from a fresh state
-            watch_sign = sign
-        lu = lu_new
-        X, t = X_new, t_new
-        if _record(problem, path, X, compliance):
-            path.end = PathEnd.contact
-            return path
-        grow = its <= 6 and turn >= 0.98 and drift <= 0.1 * ds
-        # short steps while watching, so that two bifurcations never share one step
-        ds = min(watch_step if watching else ds_max, ds * (1.6 if grow else (1.0 if its <= 10 else 0.6)))
-    path.end = PathEnd.reached if stop(path) else PathEnd.max_steps
-    return path
+                    return _Step(X_new, t_new, lu_new, its, turn, drift), ds
+        ds *= 0.5
+        lu = None
+    return None, ds
+
+
+def _at_sign_change(problem: StripProblem, path: StripPath, X: np.ndarray, t: np.ndarray, ds: float,
+                    W: np.ndarray, tol: float, compliance: float,
+                    switch_step: float) -> tuple[bool, _Step | None]:
+    """Handle a sign change of det [J; tᵀW] in the step from X: locate it, switch if it keeps the mirror symmetry.
+
+    Returns (stalled, the first step on the new branch or None when the bifurcation is passed).
+    """
+    n = problem.grid.n
+    found = locate_bifurcation(problem, X, t, ds, W, tol)
+    if found is None:
+        return True, None
+    Xb, z = found
+    path.passed.append(float(Xb[n + 2] + compliance * Xb[n]))
+    if not keeps_mirror_symmetry(problem, Xb, z):
+        return False, None
+    switched = switch_branch(problem, Xb, z, W, tol, switch_step)
+    if switched is None:
+        return True, None
+    X_new, t_new = switched
+    _record(problem, path, Xb, compliance)
+    path.bifurcations.append(len(path.load) - 1)
+    return False, _Step(X_new, t_new, factor_bordered(compute_jacobian(problem, X_new), t_new * W), 0, 1.0, 0.0)
 
 
 def solve_at_confinement(problem: StripProblem, path: StripPath, target: float, *, compliance: float,
@@ -490,5 +341,5 @@ def solve_at_confinement(problem: StripProblem, path: StripPath, target: float, 
     row[n + 2] = 1.0
     row[n] = compliance
 
-    X, _ = _newton(problem, X0, row, target, None, tol, 16)
+    X, _ = solve_newton(problem, X0, row, target, None, tol, 16)
     return X

@@ -33,6 +33,8 @@ import numpy as np
 __all__ = [
     "StripGrid",
     "StripProblem",
+    "build_strip_grid",
+    "build_strip_problem",
     "compute_crest_contrast",
     "compute_critical_mode",
     "compute_discrete_onset",
@@ -41,8 +43,6 @@ __all__ = [
     "compute_hessian",
     "compute_node_heights",
     "count_half_waves",
-    "make_strip_grid",
-    "make_strip_problem",
 ]
 
 
@@ -69,7 +69,7 @@ class StripProblem:
     slack0: float  # h Σ (1 − cos φ⁰): end-shortening already taken by the imperfection
 
 
-def make_strip_grid(length: float, segments: int) -> StripGrid:
+def build_strip_grid(length: float, segments: int) -> StripGrid:
     """Return the grid of a strip of ``length`` (units of ℓ) cut into ``segments`` segments."""
     idx = np.arange(segments)
     lower = np.tril(np.ones((segments, segments)), -1) + 0.5 * np.eye(segments)
@@ -77,7 +77,7 @@ def make_strip_grid(length: float, segments: int) -> StripGrid:
                      max_index=np.maximum.outer(idx, idx))
 
 
-def make_strip_problem(grid: StripGrid, *, imperfection: float, width: float, cubic: float) -> StripProblem:
+def build_strip_problem(grid: StripGrid, *, imperfection: float, width: float, cubic: float) -> StripProblem:
     """Return a strip whose stress-free shape is a localised wrinkle at mid-length.
 
     Parameters
@@ -232,7 +232,7 @@ def compute_discrete_onset(grid: StripGrid) -> tuple[float, float]:
     :func:`compute_critical_mode`); the wavelength is 2L over the number of sign changes
     of the mode's heights plus one. Units: P in √(BK), wavelength in ℓ.
     """
-    problem = make_strip_problem(grid, imperfection=0.0, width=1.0, cubic=0.0)
+    problem = build_strip_problem(grid, imperfection=0.0, width=1.0, cubic=0.0)
     p, _, mode = compute_critical_mode(problem)
     return p, 2.0 * grid.length / count_half_waves(compute_node_heights(mode, grid.h))
 

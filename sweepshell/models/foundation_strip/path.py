@@ -32,10 +32,10 @@ from sweepshell.models.foundation_strip.continuation import (
     solve_at_confinement,
 )
 from sweepshell.models.foundation_strip.elastica import (
+    build_strip_grid,
+    build_strip_problem,
     compute_crest_contrast,
     compute_node_heights,
-    make_strip_grid,
-    make_strip_problem,
 )
 
 __all__ = ["FoldWatch", "StripOutcome", "compute_pinned_onset", "solve_strip"]
@@ -113,7 +113,7 @@ def solve_strip(*, length: float, segments: int, imperfection: float, width: flo
     Parameters
     ----------
     length, segments, imperfection, width, cubic, compliance
-        Strip definition in units of ℓ (see :func:`make_strip_problem`), s = √(BK)/A.
+        Strip definition in units of ℓ (see :func:`build_strip_problem`), s = √(BK)/A.
     onset_confinement
         c_on of the perfect strip.
     targets
@@ -129,8 +129,8 @@ def solve_strip(*, length: float, segments: int, imperfection: float, width: flo
     the path's steps do not depend on the targets, so answers are the same whatever
     other targets share the path (batch invariance).
     """
-    grid = make_strip_grid(length, segments)
-    problem = make_strip_problem(grid, imperfection=imperfection, width=width, cubic=cubic)
+    grid = build_strip_grid(length, segments)
+    problem = build_strip_problem(grid, imperfection=imperfection, width=width, cubic=cubic)
     watch = FoldWatch(fold_contrast)
     goal = float(np.max(targets))
 

@@ -322,7 +322,7 @@ class CapLinearization:
         """Return the sign of ``det [J; row]`` over that of the fixed stretching block, ``(k,)``.
 
         It is the sign of the reduced ``(M+1)``-square matrix (the stretching block's own
-        determinant does not change along a path); see ``shallow_cap_compiled._correct``.
+        determinant does not change along a path); see ``compiled_newton.correct_one``.
         """
         return np.sign(np.linalg.det(self._reduced(row)[0]))
 

@@ -4,217 +4,39 @@ Governing equations
 -------------------
 A spherical cap of base radius a, sphere radius R, thickness h, Young's modulus E and
 Poisson's ratio ν, edge at r = a. Marguerre's shallow-shell (Föppl–von Kármán) equations for
-the deflection W (positive upwards, away from the sphere's centre), the Airy stress function
-F and the stress-free surface Z₀ = −r²/(2R) − w₀(r) (sphere minus an inward apex dimple w₀)::
+the deflection W, the Airy stress function F and the stress-free surface Z₀ = −r²/(2R) − w₀(r)
+(sphere minus an inward apex dimple w₀)::
 
     D ∇⁴W − [F, Z] = q_z,        ∇⁴F / (E h) = −½ ([Z, Z] − [Z₀, Z₀]),     Z = Z₀ + W,
 
-with [A, B] = A_xx B_yy + A_yy B_xx − 2 A_xy B_xy and D = E h³/(12(1−ν²)).
+with [A, B] = A_xx B_yy + A_yy B_xx − 2 A_xy B_xy and D = E h³/(12(1−ν²)). A mismatch
+(eigen)strain ε*(r) in a disc or annulus enters compatibility like a thermal strain.
 
-Non-dimensionalisation: x = r/a, W = h ω/(2c), F = D Φ, c = √(3(1−ν²)), which turns both
-equations into ``∇⁴ω − [Φ, ζ] = q̂`` and ``∇⁴Φ = −½([ζ,ζ] − [ζ₀,ζ₀])`` with the perfect
-sphere ζ₀ = −λ²x²/2. The single geometric parameter is the shell parameter
-
-    λ = [12(1−ν²)]^{1/4} a / √(R h),   λ² = 2c a²/(R h),   λ⁴ = 12(1−ν²) a⁴/(R h)²,
-    a²/(R h) = λ²/(2c),   H/h = λ²/(4c)   (H = a²/(2R) the rise),
-
-so λ = k_c a with k_c = [12(1−ν²)]^{1/4}/√(Rh) the classical critical wavenumber of the
-sphere (Budiansky 1959; Huang 1964 use the same λ). Axisymmetric states are solved in the
-once-integrated form for y = ω' and f = −Φ' (both odd in x)::
-
-    x L[f] = −s₀ y + y²/2,      −x L[y] + f (s₀ − y) = 2 λ⁴ q x² + κ λ² P,
-    L[u] = u'' + u'/x − u/x²,   s₀ = λ² x − g(x),   κ = 2c²/π,
-
-where q = p/p_cl is the pressure over the classical buckling pressure of the complete
-sphere p_cl = 2 E h²/(R² c) (Zoelly 1915) and P = F_apex R/(E h³) the apex force.
-
-Mismatch strain (``load = mismatch``): an isotropic in-plane eigenstrain ε*(r) = ε₀ χ(r/a),
-uniform through the thickness (no natural curvature: a one-sided coating's bending is not
-modelled), in the disc r < ρa (``mismatch_region = disc``, a coated central patch) or the
-annulus ρa < r < a (``annulus``); ε₀ < 0 is shrinkage, ε₀ > 0 swelling. With
-N_r = (Eh/(1−ν²))[(ε_r − ε*) + ν(ε_θ − ε*)] it enters compatibility like a thermal strain,
-∇⁴F/(Eh) = −∇²ε* − ½([Z,Z] − [Z₀,Z₀]), i.e. once integrated ``x L[f] = … + 4 e x χ'``.
-The load parameter is e = ε₀/ε_cl, ε_cl = 2h/(R c): at e = 1 a small disc in a large flat sheet
-carries the membrane stress of the classical sphere, N = −E h ε₀/2 = −E h²/(R c). The edge of
-the region is sharp by default (``mismatch_step_width`` w = 0): the particular stress is then
-in closed form (F_p = 2x inside, 2ρ²/x outside the disc: continuous, its slope and the hoop
-stress jump at ρ) and the response has a kink there (the slope's third derivative jumps). On
-plain Chebyshev nodes that converges only at first order and oscillates with where ρ falls
-between nodes (λ = 8 disc below: −3.75, −3.94, −3.80, −3.91, −3.87 on 34 … 128 nodes), so
-sharp-edged points use nodes clustered around ±ρ with a node on ρ (the odd sinh map of
-:mod:`sweepshell.numerics.radial_chebyshev`, cluster width ∝ 1/nodes²), where the hoop
-stress takes the mean of its one-sided values. The critical load then converges at observed
-order ≈ 6 (λ = 8 disc: −3.87073, −3.86888, −3.86861, −3.86856 on 34, 48, 64, 96 nodes;
-λ = 6 swelling annulus: 7.086669, 7.086306, 7.086273, 7.086263), about 10⁻⁴ relative with the
-automatic 44 + 1.8λ nodes (48 … 96), and agrees with the sharp-edge extrapolation of smoothed
-edges to ≈ 10⁻⁴. Points with different ρ do not share a grid (one batch per ρ). A positive
-w smooths the step by a Gaussian, χ = ½[erf((x+ρ)/w) − erf((x−ρ)/w)] (even in x), a coating
-whose edge tapers over ≈ 2w (10–90 %), on plain nodes: results converge spectrally in
-``nodes`` for fixed w, with max(``nodes`` or 34, ⌈3.4/w⌉) nodes (about 10⁻⁶ relative); the
-sharp-edge limit w → 0 is approached roughly as w² (observed w^1.8 … w^2.7) and matters where a mode sits at the
-region's edge: a shrinking disc (ρ = 0.5, clamped, λ = 8) wrinkles at e = −4.46 with w = 0.1,
-−4.04 with w = 0.05, −3.91 with w = 0.025, −3.880 with w = 0.0125 and −3.8686 with a sharp
-edge; a swelling annulus (λ = 6) moves by 0.7 % between w = 0.1 and the sharp edge (7.039 →
-7.0863). In a flat sheet a shrinking disc
-puts its surroundings in hoop compression (the sheet wrinkles around the disc), a swelling
-disc is itself in equibiaxial compression. On a cap the mismatch stress times the curvature
-is a normal load: a shrinking (tensed) disc pulls the apex in, a swelling one pushes it out,
-so a swelling full-width region bulges stably instead of bifurcating as a flat plate would.
-``critical_load`` is the signed critical e; ``mismatch_strain`` is the signed end of the
-load range (its sign chooses shrinkage or swelling). The dimple
-w₀ = δ_d h exp(−(r/(b ℓ))²), ℓ = √(Rh)/[12(1−ν²)]^{1/4} = a/λ, enters through
-g = 4c δ_d (λ/b)² x exp(−(λx/b)²) (``dimple_amplitude`` δ_d, ``dimple_width`` b).
-
-Conventions
------------
-* Pressure is a dead load along the cap axis (shallow-shell sense), positive inwards.
-* The apex force acts inwards along the axis; its whole path is traced by pseudo-arclength
-  continuation in (state, force), i.e. as under displacement control, snap-backs included.
-  Its critical state is the first force maximum (snap-through under force control) or an
-  earlier ``cos nθ`` bifurcation. The apex curvature of a point-loaded state grows like log x:
-  its stability operators are those of the polynomial interpolant of the state, on a grid of
-  3×``nodes`` (:mod:`.modes`); on the state's own grid they have spurious n = 2, 3
-  modes (determinant sign changes at the first loaded step). Observed with the defaults
-  (clamped immovable): no bifurcation for λ = 4, 6, 8; n = 4 at δ = 18.7 h, F R/(E h³) = 9.447 for
-  λ = 10 (version 1.8 reported n = 5 at 9.76: its sparser stability samples missed the n = 4
-  window); n = 3 at δ ≈ 15.2–15.3 h, F R/(E h³) ≈ 6.25–6.30 for λ = 20–30 (nearly independent of λ:
-  the dimple is local), well before the force maximum; pinned caps with λ = 6–8 bifurcate in n = 1
-  just before it.
-  Deep indented shells do buckle into polygonal shapes once the inverted dimple is deep
-  (Vaziri & Mahadevan 2008, PNAS 105:7913; Pauchard & Rica 1998, Phil. Mag. B 78:225; value
-  from memory, qualitative only); the values above are not checked against a published source.
-  The force unit is E h³/R; the linear stiffness unit is Reissner's k_R = 4 E h²/(R c)
-  (Reissner 1946).
-* Edge r = a: W = 0 and clamped (W' = 0) or pinned (M_r = 0). In-plane: ``immovable``
-  (u_r = 0, and u_θ = 0 for asymmetric modes) by default, or ``sliding`` (N_r = N_rθ = 0).
-* Asymmetric bifurcation: the linearised equations for w(r) cos nθ, Φ(r) cos nθ about the
-  axisymmetric state, n = 1…N; a zero crossing of the determinant of the discretised
-  problem marks a bifurcation (dead pressure: no load-stiffness term).
-* Mismatch strain: the eigenstrain does not follow the deformation (no load-stiffness term in
-  the stability problem); the immovable edge holds u_r = 0 with the eigenstrain acting there
-  (a region reaching the edge pushes against it), the sliding edge N_r = 0. ``knockdown``
-  compares with the same cap without a dimple; ``stiffness`` is the initial apex deflection
-  rate d(δ/h)/de (negative: a shrinking disc, e < 0, pulls the apex in).
-* ``critical_deflection`` is the apex deflection δ/h; ``critical_volume_change`` the swept
-  volume over the cap volume π a² H/2 (2 at mirror inversion).
-* ``bistable`` (common practice, no source): the axisymmetric path is continued past the
-  first limit point (longer steps there) until the load returns to zero while rising along
-  the path, the deflection passes 1.5·2H/h + 2 (pressure; ``max_indentation``·2H/h for apex
-  force), or the load falls below −2. The zero-load state is refined and counts as a second
-  stable equilibrium when (i) dμ/ds > 0 there — the stability index changes by one at each
-  fold, so this is an even index (a parity test, sound while at most one axisymmetric
-  eigenvalue is negative) — and (ii) no ``cos nθ`` operator, n = 1…N, has a negative
-  eigenvalue (an eigenvalue count, not a determinant parity). Caps without a limit point are
-  not bistable; NaN where the path ended (step limit, stall) before a decision. A path that
-  fills ``max_points`` past its first limit point is followed again with five times the
-  capacity (clamped sliding caps with λ ≈ 13–22 wind through 350–830 points there; with 400
-  about 8 % of them were left undecided before version 1.9). Only the
-  connected path from the unloaded cap is searched. Observed with the defaults: no cap with
-  λ ≤ 6 is bistable; clamped immovable caps are not bistable up to λ = 20 (the load stays
-  positive along the whole inversion); pinned immovable caps are bistable in bands of λ
-  (≈ 8–11, 14.5–16.5), elsewhere their near-inverted shape needs outward pressure and the path
-  turns back — not monotone in λ, and not checked against a published source.
-
-Numerics
---------
-Chebyshev collocation on the odd half grid (``nodes`` points in 0 < x ≤ 1; see "Resolution"
-below), Newton with the analytic Jacobian and the stretching block eliminated (Schur
-complement), pseudo-arclength continuation with step control on Newton work and tangent
-turning: each step is sized for 60 % of the turn limit at the turning rate extrapolated from
-the last two steps. Each cap's whole path and every Newton corrector run in compiled per-cap
-kernels (:mod:`.compiled`; the batched numpy versions in
-:mod:`.kernels` and :mod:`sweepshell.numerics.arclength` are the specification they
-are tested against). Limit points (zeros of dq/ds) and determinant sign changes are refined
-by secant/regula-falsi steps along the arc (limit points to 10⁻⁴ of their step, where the
-load is stationary: about 10⁻⁹ relative). Each Newton solve carries the tangent as a second
-right-hand side; steps are also rejected when the corrector lands far from the predictor (a
-fold pair inside the step) and when they change the path's orientation, the sign of
-det [∂R/∂z; tᵀ] (Keller 1977), which stays constant along a path, through limit points too,
-and flips only across a branch point. Paths of slightly imperfect caps turn through tight
-corners where a neighbouring branch passes within a step (a nearly broken bifurcation): a step
-across such a corner lands on the other branch with a nearly parallel tangent, so neither the
-turn limit nor the drift test sees it, but the orientation does. Before version 1.9 such jumps
-overestimated the first limit pressure by up to 16 % for about one cap in a thousand (small
-narrow dimples, e.g. λ = 19.54, ν = 0.25, amplitude 0.042 h, width 1.28: 1.0089 instead of
-0.8703). A step shorter than 4·10⁻⁷ may change the orientation: it crosses a branch point of
-its own path. The turn limit ``max_turn_deg`` is 12° (validated with the orientation test
-against a 2.5° continuation on 9,000 random caps for the first limit point, 1,400 with the
-scan, and on λ 23.5 … 27 in steps of 0.025, where the first pressure maximum changes folds;
-version 1.8 needed 8° without the orientation test). Past the first limit point the search for
-a return to zero load allows twice the turn: on 3,000 random caps (axisymmetric stability
-only) one flag differed from the 2.5° search (λ = 22.16, clamped, sliding, ν = 0.3: 0 instead
-of 1; 8° gave 0 as well; with the asymmetric check it is 0 either way).
-The
-stability determinants are those of ``A − B S⁻¹ C`` (the fixed stress block ``S`` eliminated;
-assembled per state in a compiled kernel);
-all n = 1…N are evaluated at every ``scan_stride``-th path point (default 1, every point; the
-steps are short where the state changes fast), only the flipped wave numbers in between. Several wave numbers
-often flip within one step (about six per cap on deep caps, the sphere's nearly degenerate
-spectrum): their determinants are evaluated at four interior points of the step, and only those
-flipping in its earliest flipped part are refined (the same critical states as refining all, at
-about 60 % of the scan's cost; tested).
-A wave number whose determinant changes sign twice between evaluations is missed: stride 3
-(the default before version 1.9) missed the first bifurcation of the apex-force λ = 10 cap
-(n = 4 at F R/(E h³) = 9.447; it reported n = 5 at 9.763) and of deep pinned caps (n = 22 for
-21, 0.05–0.1 % high, in 2 of 600 random caps with 8° steps, 20 of 600 with 16°), while stride 1
-costs no more, since the scan stops at a cap's first flip. For sliding edges, n = 1 has one
-in-plane edge condition (N_r and N_rθ both reduce to F' − F). The apex-force singularity
-y ∝ x log x is subtracted analytically in the axisymmetric problem; apex-force stability
-operators are evaluated on 3×``nodes`` (see Conventions; 2× leaves spurious sign changes at
-small forces, also on the stretched grid). The apex-force critical force converges
-algebraically in ``nodes`` (see Resolution): on the stretched grid to ~10⁻⁵ (bifurcation,
-λ = 10, immovable) and ~3·10⁻⁴ (force maximum); on plain Chebyshev nodes an immovable edge
-converged at about first order and picked n = 4 instead of 5 at λ = 10.
-
-Resolution
-----------
-``nodes`` = 0 (default) picks each point's grid (:func:`choose_grids`): the count grows linearly
-with λ (14 + λ with the asymmetric scan, max(14 + λ, 8 + 1.5λ) without; dimpled caps also
-4 + 2λ/b; apex forces 16 + 1.4λ; even, 16 … 96), fitted to the measured need for 3·10⁻⁷
-relative accuracy of the critical load over λ = 3.5 … 30 and checked against grids twice as
-fine (tests/models/shallow_cap/test_resolution.py). The rule for perfect caps without the scan
-was checked at every 0.1 of λ = 3.5 … 30 for clamped and pinned, immovable and sliding edges,
-ν = 0.3 and 0.45, against 84 nodes: within 4.8·10⁻⁷ (2,128 points). Dimpled caps and apex forces use nodes stretched
-towards the axis, x = (1 − β)ξ + βξ³ of the Chebyshev points ξ (β = ``dimple_grid_stretch``
-0.5, ``apex_grid_stretch`` 0.85), because their solutions vary fastest there; perfect caps keep
-Chebyshev points (the asymmetric modes live at the edge, where the stretch coarsens the grid).
-Apex-force results converge only algebraically: after the x log x singularity is removed the
-nonlinear state keeps weaker singular terms at the apex, and the force maximum is resolved to
-about 3·10⁻⁴ (on 34 plain nodes, as before version 1.8, it was off by 1–2 %). A positive
-``nodes`` fixes the count for all points (stretches still apply).
-
-The continuation limits the tangent's turn per step to ``max_turn_deg`` = 12° (see Numerics).
-Before the orientation test (version 1.9) 12° turns stepped
-over a small first fold near λ ≈ 25 (δ ≈ 0.4 h) and bolder step sizing stepped onto a
-neighbouring branch at λ = 24.46 (0.991 instead of 0.974 p_cl); both were jumps across a
-corner of the path, which the orientation test now rejects (tested, with other λ where the
-first pressure maximum changes fold). ``benchmarks/check_first_fold.py`` compares random caps
-against a 2.5° continuation; re-run it after any change to the step rules.
+Non-dimensionalisation: x = r/a, W = h ω/(2c), F = D Φ, c = √(3(1−ν²)); the single geometric
+parameter is the shell parameter λ = [12(1−ν²)]^{1/4} a/√(R h) (H/h = λ²/(4c), H the rise).
+Loads: q = p/p_cl with p_cl = 2 E h²/(R² c) (Zoelly 1915); the apex force F_apex R/(E h³);
+the mismatch strain over ε_cl = 2h/(R c). Axisymmetric states are solved in the once-integrated
+form for y = ω' and f = −Φ'; ``cos nθ`` bifurcations, n = 1…N, from the linearised equations
+about them. ``critical_load`` is the first limit point (snap-through) or an earlier bifurcation
+along the path traced by pseudo-arclength continuation; ``bistable`` (common practice, no
+source) flags a stable zero-load state past the first limit point.
 
 Range of validity
 -----------------
 Shallow caps (a/R ≲ 0.5; points with physical dimensions and a/R > ``max_base_ratio`` get
 ``outside_validity``), elastic, moderate rotations, axisymmetric stress-free shape; λ ≤ 30.
 
+The full statement of equations and conventions (loads, edges, mismatch regions, dimples,
+bistability), the numerics, the resolution rules and the validation record are in this
+package's ``theory.md``.
+
 References checked by the tests
 -------------------------------
-Mismatch strain: the plane-stress disc inclusion (Lamé problem; Timoshenko & Goodier 1951,
-thermal stresses in a thin circular disc; re-derived for the immovable and the free edge) for
-the linear in-plane response of a nearly flat cap, with a nearly sharp smoothed edge and with
-the sharp edge (there at every node, the edge node included); the clamped circular plate under
-equibiaxial compression, N_cr = j₁,₁² D/a² = 14.682 D/a², pinned 4.198 D/a² at ν = 0.3,
-asymmetric n = 1 j₂,₁² = 26.375 (Timoshenko & Gere 1961; Bessel zeros recomputed) for the
-λ → 0 limit of the stability operators.
-
-Vaziri & Mahadevan 2008, PNAS 105:7913 and Pauchard & Rica 1998, Phil. Mag. B 78:225 (value
-from memory, qualitative: indented spheres stay axisymmetric at small indentation, polygonal
-buckling once the dimple is deep).
-
 Zoelly 1915 (p_cl); Reissner 1946, J. Math. Phys. 25 (apex stiffness); Budiansky 1959,
-Weinitschke 1960 J. Math. Phys. 38:209, Huang 1964 J. Appl. Mech. 31:447 (clamped caps:
-onset of snapping near λ ≈ 3.2–3.4, limit pressure, asymmetric bifurcation first above λ ≈
-5.5); Hutchinson 2016 Proc. R. Soc. A 472:20160577 and Lee et al. 2016 J. Appl. Mech.
-83:111005 (knock-down against dimple amplitude).
+Weinitschke 1960 J. Math. Phys. 38:209, Huang 1964 J. Appl. Mech. 31:447 (clamped caps);
+Hutchinson 2016 Proc. R. Soc. A 472:20160577 and Lee et al. 2016 J. Appl. Mech. 83:111005
+(knock-down against dimple amplitude); Timoshenko & Goodier 1951 (disc inclusion) and
+Timoshenko & Gere 1961 (plate buckling) for the mismatch load.
 """
 
 from __future__ import annotations
@@ -226,7 +48,8 @@ from typing import Any, ClassVar
 import numpy as np
 
 from sweepshell.models.base import BatchResult, OutputSpec, ParameterSpec, Status, SweepModel
-from sweepshell.models.shallow_cap.solver import CapSolution, solve_caps
+from sweepshell.models.shallow_cap.grids import choose_grid_centres, choose_grids
+from sweepshell.models.shallow_cap.solver import CapInputs, CapSolution, solve_caps
 
 __all__ = ["ShallowCapModel"]
 
@@ -277,17 +100,19 @@ class ShallowCapModel(SweepModel):
 
     @classmethod
     def kernels_to_compile(cls) -> bool:
-        # numba writes its cache (index *.nbi) beside the kernels' module; an index older than the module is stale
+        # numba writes each kernel module's cache (index *.nbi) beside it; an index older than its module is stale
         from pathlib import Path
 
         from sweepshell.models.shallow_cap import compiled
 
-        source = Path(compiled.__file__)
-        index = list((source.parent / "__pycache__").glob(f"{source.stem}.*.nbi"))
-        return not index or min(p.stat().st_mtime for p in index) < source.stat().st_mtime
-    # measured (one core, wall, benchmarks/bench_shallow_cap.py, λ = 3.5 … 20): ~1 ms axisymmetric, ~12 ms
-    # with the scan, ~15 ms with bistability; apex-force points 0.1–0.3 s (λ 6–30) with the scan (its 3x
-    # stability grid); sharp-edged mismatch points 45–100 ms with the scan
+        folder = Path(compiled.__file__).parent
+        for source in folder.glob("compiled*.py"):
+            index = list((folder / "__pycache__").glob(f"{source.stem}.*.nbi"))
+            if not index or min(p.stat().st_mtime for p in index) < source.stat().st_mtime:
+                return True
+        return False
+
+    # seconds per point with the scan and bistability (benchmarks/bench_shallow_cap.py; theory.md)
     cost_hint: ClassVar[float] = 0.025
 
     def __init__(self, *, nodes: int = 0, asymmetric_modes: int = 30, max_pressure: float = 2.0,
@@ -450,84 +275,6 @@ def _get(inputs: Mapping[str, np.ndarray], key: str, n: int) -> np.ndarray:
     return np.full(n, np.nan)
 
 
-_FIXED_NODES = 34  # smoothed-edge mismatch points' base grid when ``nodes`` is automatic
-
-
-def get_mismatch_nodes(settings: Mapping[str, Any], lam: np.ndarray) -> np.ndarray:
-    """Return the grid size of mismatch-strain points with shell parameters ``lam``.
-
-    Sharp edge (``mismatch_step_width`` 0), on the grid clustered at the edge
-    (:func:`choose_grid_centres`): ``nodes``, or when automatic 44 + 1.8λ (even, 48 … 96), the
-    measured need for 10⁻⁴ relative accuracy of the critical load (against 160 nodes: 48 nodes
-    leave 2·10⁻⁴ at λ = 8 and 12, 10⁻³ at λ = 20; 64 nodes 4·10⁻⁵ at λ = 12, 80 nodes 7·10⁻⁵ at
-    λ = 20; tests/models/shallow_cap/test_mismatch_sharp.py). Smoothed edge: the edge sits
-    inside the cap, where the Chebyshev grid is coarsest; below w·nodes ≈ 3.4 the results lose
-    digits fast (10⁻⁶ relative at 3.4, 10⁻³ at 2), so ``nodes`` (when automatic max(34,
-    16 + 1.5λ), even) is raised until w·nodes ≥ 3.4.
-    """
-    width = float(settings["mismatch_step_width"])
-    if width == 0.0:
-        if int(settings["nodes"]):
-            return np.full(lam.shape, int(settings["nodes"]))
-        return np.clip(np.ceil((44.0 + 1.8 * lam) / 2.0) * 2.0, 48, 96).astype(int)
-    if int(settings["nodes"]):
-        return np.full(lam.shape, max(int(settings["nodes"]), math.ceil(3.4 / width)))
-    # on deep caps the mismatch state needs more than 34 nodes whatever the width: at λ = 20 a
-    # shrinking disc (ρ = 0.5) showed a spurious n = 2 bifurcation on 34 nodes, none on 40 … 80
-    return np.maximum(math.ceil(3.4 / width),
-                      np.maximum(_FIXED_NODES, np.ceil((16.0 + 1.5 * lam) / 2.0) * 2.0)).astype(int)
-
-
-def choose_grid_centres(settings: Mapping[str, Any], eigen: np.ndarray, radius: np.ndarray) -> np.ndarray:
-    """Return each point's clustering centre ρ of the radial grid (0: none; see ``make_radial_grid``).
-
-    Mismatch points with a sharp edge inside the cap (``mismatch_step_width`` 0, ρ < 1) get the
-    grid clustered around x = ±ρ with a node on ρ: their response has a kink there (a jump of
-    the hoop prestress and of the third derivative of the slope), which a plain grid resolves
-    only to first order, oscillating with where ρ falls between nodes.
-    """
-    sharp = eigen & (float(settings["mismatch_step_width"]) == 0.0) & (radius < 1.0)
-    return np.where(sharp, radius, 0.0)
-
-
-def choose_grids(settings: Mapping[str, Any], lam: np.ndarray, apex: np.ndarray, eigen: np.ndarray,
-                 amplitude: np.ndarray, width: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-    """Return each point's radial grid: node count and stretch β (see ``make_radial_grid``).
-
-    With ``nodes`` 0 (automatic) the count follows the measured need for 3·10⁻⁷ relative
-    accuracy of the critical load (tests/models/shallow_cap/test_resolution.py; theory.md).
-    It grows about linearly with λ (edge and ridge layers of width ∝ 1/λ; a dimple of width b
-    over a/λ has width b/λ in x). Grids are stretched towards the axis where the solution
-    varies fastest there: dimpled caps (``dimple_grid_stretch``) and apex forces
-    (``apex_grid_stretch``); perfect caps under pressure keep Chebyshev points, whose edge
-    clustering the asymmetric modes need; mismatch points use :func:`get_mismatch_nodes` (and
-    sharp-edged ones the clustered map of :func:`choose_grid_centres`).
-    Counts are even, from 16 to 96.
-    """
-    scan = int(settings["asymmetric_modes"]) > 0
-    dimpled = (amplitude != 0.0) & ~apex & ~eigen
-    beta = np.where(apex, float(settings["apex_grid_stretch"]),
-                    np.where(dimpled, float(settings["dimple_grid_stretch"]), 0.0))
-    if int(settings["nodes"]):
-        nodes = np.full(lam.shape, int(settings["nodes"]))
-    else:
-        perfect = 14.0 + lam if scan else np.maximum(14.0 + lam, 8.0 + 1.5 * lam)
-        stretched = 12.0 + 1.5 * lam if scan else 14.0 + 1.2 * lam
-        dimple = np.where(amplitude != 0.0, 4.0 + 2.0 * lam / np.maximum(width, 0.25), 0.0)
-        need = np.where(apex, np.maximum(16.0 + 1.4 * lam, dimple),
-                        np.where(dimpled, np.maximum(stretched, dimple), perfect))
-        nodes = np.clip(np.ceil(need / 2.0) * 2.0, 16, 96).astype(int)
-    mismatch_nodes = get_mismatch_nodes(settings, lam)
-    if not int(settings["nodes"]):
-        # a dimple on a mismatch grid (no axis stretch there): the plain-grid need of a dimple,
-        # 2 + 4.6λ/b (measured for pressure; not separately measured for mismatch loads)
-        plain_dimple = np.where(amplitude != 0.0, 2.0 + 4.6 * lam / np.maximum(width, 0.25), 0.0)
-        mismatch_nodes = np.maximum(mismatch_nodes,
-                                    np.clip(np.ceil(plain_dimple / 2.0) * 2.0, 0, 96).astype(int))
-    nodes = np.where(eigen, mismatch_nodes, nodes)
-    return nodes, np.where(eigen, 0.0, beta)
-
-
 def _solve_by_grid(s: Mapping[str, Any], eigen: np.ndarray, *args: np.ndarray) -> CapSolution:
     """Solve the points in groups that share a radial grid (:func:`choose_grids`)."""
     lam, nu, clamped, immovable, apex, amp, width, strain, radius, annulus = args
@@ -540,10 +287,10 @@ def _solve_by_grid(s: Mapping[str, Any], eigen: np.ndarray, *args: np.ndarray) -
     for k, (size, beta, rho) in enumerate(groups):
         rows = np.nonzero(inverse == k)[0]
         settings = {**s, "nodes": int(size), "grid_stretch": float(beta), "grid_centre": float(rho)}
-        parts.append((rows, solve_caps(
-            lam[rows], nu[rows], clamped[rows], immovable[rows], apex[rows], amp[rows], width[rows],
-            settings=settings, mismatch=eigen[rows], mismatch_strain=strain[rows],
-            mismatch_radius=radius[rows], annulus=annulus[rows])))
+        caps = CapInputs(lam[rows], nu[rows], clamped[rows], immovable[rows], apex[rows], amp[rows], width[rows],
+                         mismatch=eigen[rows], mismatch_strain=strain[rows], mismatch_radius=radius[rows],
+                         annulus=annulus[rows])
+        parts.append((rows, solve_caps(caps, settings=settings)))
     if len(parts) == 1:
         return parts[0][1]
     out = {}

@@ -49,18 +49,18 @@ from functools import lru_cache
 
 import numpy as np
 
-from sweepshell.models.shallow_cap.compiled import assemble_reduced_stability
+from sweepshell.models.shallow_cap.compiled_modes import assemble_reduced_stability
 from sweepshell.models.shallow_cap.kernels import CapPathProblem
-from sweepshell.numerics.radial_chebyshev import make_interpolation_matrix, make_radial_grid, to_chebyshev_coordinate
+from sweepshell.numerics.radial_chebyshev import build_interpolation_matrix, build_radial_grid, to_chebyshev_coordinate
 
 __all__ = [
     "APEX_STABILITY_REFINEMENT",
     "ModeCoefficients",
     "build_mode_matrices",
+    "build_mode_operators",
     "compute_mode_coefficients",
     "compute_mode_determinants",
     "count_unstable_modes",
-    "make_mode_operators",
     "select_stability_nodes",
 ]
 
@@ -94,7 +94,7 @@ class ModeOperators:
 
 
 def _field_operators(size: int, n: int, m: int, stretch: float, centre: float) -> FieldOperators:
-    g = make_radial_grid(size, stretch, centre)
+    g = build_radial_grid(size, stretch, centre)
     x = g.x
     pv = 1 if (n - m) % 2 == 0 else -1
     pn = 1 if n % 2 == 0 else -1
@@ -112,11 +112,11 @@ def _field_operators(size: int, n: int, m: int, stretch: float, centre: float) -
 
 
 @lru_cache(maxsize=512)
-def make_mode_operators(size: int, n: int, stretch: float = 0.0, centre: float = 0.0) -> ModeOperators:
+def build_mode_operators(size: int, n: int, stretch: float = 0.0, centre: float = 0.0) -> ModeOperators:
     """Return the operators of wave number ``n ≥ 1`` on a half grid of ``size`` nodes (cached).
 
     ``stretch`` and ``centre`` choose the grid map (see
-    :func:`~sweepshell.numerics.radial_chebyshev.make_radial_grid`).
+    :func:`~sweepshell.numerics.radial_chebyshev.build_radial_grid`).
     """
     return ModeOperators(n=n, deflection=_field_operators(size, n, 1 if n == 1 else 2, stretch, centre),
                          stress=_field_operators(size, n, 3 if n == 1 else 2, stretch, centre))
@@ -143,14 +143,14 @@ def _stress_edge_rows(ops: ModeOperators, nu: float, immovable: bool) -> tuple[n
 
 
 @lru_cache(maxsize=2048)
-def _make_stress_reduction(size: int, n: int, nu: float, immovable: bool, stretch: float = 0.0,
+def _build_stress_reduction(size: int, n: int, nu: float, immovable: bool, stretch: float = 0.0,
                            centre: float = 0.0) -> np.ndarray:
     """Return ``[P₁; P₂] S⁻¹`` (``2M × M``), the fixed part of ``B S⁻¹`` (cached).
 
     ``B = −(diag(ζ'') P₁ + diag(x ζ') P₂)`` with ``P₁ = x φ' − n² φ``, ``P₂ = φ''`` operators on
     the stress function, zero on the two edge rows.
     """
-    ops = make_mode_operators(size, n, stretch, centre)
+    ops = build_mode_operators(size, n, stretch, centre)
     so = ops.stress
     s = so.bilaplacian.copy()
     s[0], s[1] = _stress_edge_rows(ops, nu, immovable)
@@ -189,7 +189,7 @@ def select_stability_nodes(problem: CapPathProblem, idx: np.ndarray) -> np.ndarr
 
 
 @lru_cache(maxsize=32)
-def _make_refinement(size: int, nodes: int, stretch: float = 0.0,
+def _build_refinement(size: int, nodes: int, stretch: float = 0.0,
                      centre: float = 0.0) -> tuple[np.ndarray, np.ndarray]:
     """Return ``(E, D E)``: values and slopes at the ``nodes`` grid of the odd interpolant on ``size`` nodes.
 
@@ -197,9 +197,9 @@ def _make_refinement(size: int, nodes: int, stretch: float = 0.0,
     ``stretch`` is the same for every node count, so there the fine grid's ξ are its unstretched
     nodes; the clustered map of ``centre`` depends on the node count, so its ξ are computed.
     """
-    fine = make_radial_grid(nodes, stretch, centre)
-    xi = make_radial_grid(nodes).x if centre == 0.0 else to_chebyshev_coordinate(fine.x, size, stretch, centre)
-    e = make_interpolation_matrix(size, -1, xi)
+    fine = build_radial_grid(nodes, stretch, centre)
+    xi = build_radial_grid(nodes).x if centre == 0.0 else to_chebyshev_coordinate(fine.x, size, stretch, centre)
+    e = build_interpolation_matrix(size, -1, xi)
     de = fine.d1[-1] @ e
     e.setflags(write=False)
     de.setflags(write=False)
@@ -228,7 +228,7 @@ def compute_mode_coefficients(problem: CapPathProblem, z: np.ndarray, idx: np.nd
     ybar = y + (kap * p)[:, None] * problem.sigma[None, :]
     imp = problem.imperfection[idx]
     if nodes is not None and nodes != g.size:
-        e, de = _make_refinement(g.size, int(nodes), g.stretch, g.centre)
+        e, de = _build_refinement(g.size, int(nodes), g.stretch, g.centre)
         slope = ybar - (x[None, :] - imp)
         return ModeCoefficients(
             f=lam2[:, None] * (fs @ e.T), df=lam2[:, None] * (fs @ de.T),
@@ -280,16 +280,16 @@ def _reduced_matrices(problem: CapPathProblem, co: ModeCoefficients, modes: np.n
     """Yield ``(j, n, A − B S⁻¹ C)`` ``(k, M, M)`` for each wave number of ``modes`` (on the grid of ``co``)."""
     stretch, centre = problem.grid.stretch, problem.grid.centre
     m = co.f.shape[1]
-    x = problem.grid.x if m == problem.size else make_radial_grid(m, stretch, centre).x
+    x = problem.grid.x if m == problem.size else build_radial_grid(m, stretch, centre).x
     keys = list(zip(co.nu.tolist(), co.immovable.tolist(), strict=True))
     unique = sorted(set(keys))
     group = np.array([unique.index(key) for key in keys], dtype=np.int64) if len(unique) > 1 \
         else np.zeros(len(keys), dtype=np.int64)
     f, df, zeta1, zeta2 = (np.ascontiguousarray(v) for v in (co.f, co.df, co.zeta1, co.zeta2))
     for j, n in enumerate(modes):
-        ops = make_mode_operators(m, int(n), stretch, centre)
+        ops = build_mode_operators(m, int(n), stretch, centre)
         wo = ops.deflection
-        reduction = np.stack([_make_stress_reduction(m, int(n), nu, im, stretch, centre) for nu, im in unique])
+        reduction = np.stack([_build_stress_reduction(m, int(n), nu, im, stretch, centre) for nu, im in unique])
         a = assemble_reduced_stability(wo.bilaplacian, wo.bracket, wo.w2, wo.w0[0].copy(), wo.w1[0].copy(),
                                        wo.w2[0].copy(), x, reduction, group, f, df, zeta1, zeta2,
                                        co.nu.astype(float), co.clamped.astype(bool), co.immovable.astype(bool),
@@ -349,7 +349,7 @@ def count_unstable_modes(problem: CapPathProblem, z: np.ndarray, idx: np.ndarray
     """
     out = np.zeros((z.shape[0], len(modes)), dtype=int)
     for rows, co in _group_coefficients(problem, z, idx):
-        x = make_radial_grid(co.f.shape[1], problem.grid.stretch, problem.grid.centre).x
+        x = build_radial_grid(co.f.shape[1], problem.grid.stretch, problem.grid.centre).x
         for j, n, a in _reduced_matrices(problem, co, modes):
             edge, edge_in = a[:, :2, :2], a[:, :2, 2:]
             inner = a[:, 2:, 2:] - a[:, 2:, :2] @ np.linalg.solve(edge, edge_in)

@@ -113,7 +113,7 @@ def test_pressure_branch_load_drops_and_polygon_appears():
     assert res.status[0] == Status.ok
     assert model.regimes[res.regime[0]] == "unstable_postbuckling"
     assert res.outputs["load_drop"][0] < 0.95
-    assert res.outputs["wave_number"][0] == 4
+    assert res.outputs["branch_wave_number"][0] == 4
 
 
 @pytest.mark.slow

@@ -15,13 +15,13 @@ from sweepshell.errors import ParameterError
 from sweepshell.models import Status, get_model, make_model
 from sweepshell.models.base import TRUSTED_STATUSES
 from sweepshell.models.foundation_sheet.energy import (
+    build_sheet_problem,
     compute_height_field,
     compute_variable_of_height,
     evaluate_sheet_energy,
-    make_sheet_problem,
-    minimize_sheet_energy,
     project_field_to_modes,
 )
+from sweepshell.models.foundation_sheet.minimize import minimize_sheet_energy
 from sweepshell.models.foundation_sheet.model import FoundationSheetModel, compute_sheet_scales
 from tests.conftest import model_inputs
 
@@ -148,7 +148,7 @@ def test_scales_match_closed_forms_for_both_substrates() -> None:
 
 @pytest.mark.parametrize("substrate", ["half_space", "winkler"])
 def test_energy_gradient_matches_finite_differences(substrate: str) -> None:
-    problem = make_sheet_problem(16, 2, substrate, 0.3, (1.5, 0.7))
+    problem = build_sheet_problem(16, 2, substrate, 0.3, (1.5, 0.7))
     rng = np.random.default_rng(3)
     z = 0.5 * rng.standard_normal(problem.size)
     d = rng.standard_normal(problem.size)
@@ -160,7 +160,7 @@ def test_energy_gradient_matches_finite_differences(substrate: str) -> None:
 
 
 def test_energy_decreases_monotonically_in_the_minimiser() -> None:
-    problem = make_sheet_problem(24, 3, "half_space", 0.3, (1.2, 1.2))
+    problem = build_sheet_problem(24, 3, "half_space", 0.3, (1.2, 1.2))
     z0 = 0.05 * np.random.default_rng(1).standard_normal(problem.size)
     found = minimize_sheet_energy(problem, z0, gradient_tolerance=1e-6, record=True)
     history = np.array(found.history)
@@ -171,11 +171,11 @@ def test_energy_decreases_monotonically_in_the_minimiser() -> None:
 
 
 def test_flat_start_stays_flat_and_zero_energy() -> None:
-    problem = make_sheet_problem(16, 2, "half_space", 0.3, (2.0, 0.0))
+    problem = build_sheet_problem(16, 2, "half_space", 0.3, (2.0, 0.0))
     f, grad = evaluate_sheet_energy(problem, np.zeros(problem.size))
     assert f == 0.0 and np.all(grad == 0.0)
     assert problem.linear_stability_margin() < 0.0
-    assert make_sheet_problem(16, 2, "half_space", 0.3, (0.99, 0.0)).linear_stability_margin() > 0.0
+    assert build_sheet_problem(16, 2, "half_space", 0.3, (0.99, 0.0)).linear_stability_margin() > 0.0
     z = np.random.default_rng(0).standard_normal(problem.size)
     assert compute_height_field(problem, z).mean() == pytest.approx(0.0, abs=1e-12)
     # unit metric: the variable of a grid field has the field's band-limited sum of squares
@@ -204,7 +204,7 @@ def test_airy_reduction_agrees_with_displacement_form(substrate: str) -> None:
     from sweepshell.models.foundation_sheet.reference import minimize_reference_energy
 
     n, s = 12, 2.0 / 1.3
-    problem = make_sheet_problem(n, 1, substrate, 0.3, (s, s))
+    problem = build_sheet_problem(n, 1, substrate, 0.3, (s, s))
     x = np.arange(n) / n * 2 * np.pi
     X, Y = np.meshgrid(x, x)
     start = 0.5 * (np.cos(X) + np.cos(Y))
@@ -232,7 +232,7 @@ def test_numerical_trouble_is_status_failed_not_an_exception(monkeypatch: pytest
 
 
 def test_huge_start_backtracks_instead_of_failing() -> None:
-    problem = make_sheet_problem(16, 2, "half_space", 0.3, (1.5, 0.0))
+    problem = build_sheet_problem(16, 2, "half_space", 0.3, (1.5, 0.0))
     z0 = 1e3 * np.random.default_rng(2).standard_normal(problem.size)
     with np.errstate(all="raise", under="ignore"):
         found = minimize_sheet_energy(problem, z0, gradient_tolerance=1e-6)

@@ -15,10 +15,10 @@ import pytest
 
 from sweepshell.models import Status
 from sweepshell.models.foundation_sheet.energy import (
+    build_sheet_problem,
     compute_variable_of_height,
-    make_sheet_problem,
-    minimize_sheet_energy,
 )
+from sweepshell.models.foundation_sheet.minimize import minimize_sheet_energy
 from sweepshell.models.foundation_sheet.model import FoundationSheetModel
 from tests.models.foundation_sheet.test_model import sheet_inputs
 
@@ -92,7 +92,7 @@ def test_checkerboard_energy_converges_spectrally() -> None:
     # equibiaxial overstress 4 on a one-wavelength cell (strong harmonics)
     def energy(n: int) -> float:
         s = 4.0 / 1.3
-        problem = make_sheet_problem(n, 1, "half_space", 0.3, (s, s))
+        problem = build_sheet_problem(n, 1, "half_space", 0.3, (s, s))
         x = np.arange(n) / n * 2 * np.pi
         X, Y = np.meshgrid(x, x)
         z0 = compute_variable_of_height(problem, 0.5 * (np.cos(X) + np.cos(Y)))

@@ -8,13 +8,13 @@ import pytest
 from sweepshell.models import TRUSTED_STATUSES, Status, get_model, make_model
 from sweepshell.models.foundation_strip.continuation import StripPath
 from sweepshell.models.foundation_strip.elastica import (
+    build_strip_grid,
+    build_strip_problem,
     compute_crest_contrast,
     compute_discrete_onset,
     compute_energy,
     compute_gradient,
     compute_hessian,
-    make_strip_grid,
-    make_strip_problem,
 )
 from sweepshell.models.foundation_strip.model import FoundationStripModel
 from sweepshell.models.foundation_strip.path import FoldWatch, solve_strip
@@ -86,8 +86,8 @@ def test_extensible_strip_is_flat_below_onset_and_can_skip_the_path():
 
 
 def test_energy_derivatives_match_finite_differences(rng):
-    grid = make_strip_grid(20.0, 40)
-    problem = make_strip_problem(grid, imperfection=0.1, width=3.0, cubic=-0.3)
+    grid = build_strip_grid(20.0, 40)
+    problem = build_strip_problem(grid, imperfection=0.1, width=3.0, cubic=-0.3)
     phi = problem.phi0 + 0.3 * rng.standard_normal(grid.n)
     eps = 1e-6
     eye = np.eye(grid.n)
@@ -104,7 +104,7 @@ def test_energy_derivatives_match_finite_differences(rng):
 def test_onset_converges_at_second_order():
     # exact value 2 (Hetényi 1946); observed order from a fit of log error vs log N
     Ns = np.array([8, 12, 16, 24, 32])
-    err = [abs(compute_discrete_onset(make_strip_grid(4 * TWO_PI, 4 * n))[0] - 2.0) for n in Ns]
+    err = [abs(compute_discrete_onset(build_strip_grid(4 * TWO_PI, 4 * n))[0] - 2.0) for n in Ns]
     order = -np.polyfit(np.log(Ns), np.log(err), 1)[0]
     assert 1.9 < order < 2.1
 

@@ -7,11 +7,11 @@ import pytest
 
 from sweepshell.models import Status, make_model
 from sweepshell.models.foundation_strip.elastica import (
+    build_strip_grid,
     compute_crest_contrast,
     compute_discrete_onset,
     compute_node_heights,
     count_half_waves,
-    make_strip_grid,
 )
 from sweepshell.models.foundation_strip.path import solve_strip
 from tests.conftest import model_inputs
@@ -29,7 +29,7 @@ def test_perfect_strip_wrinkles_at_the_finite_strip_onset():
     # Timoshenko & Gere 1961 (finite pinned beam on a Winkler foundation), REFERENCES.md [drv]:
     # η = 1000 → P_cr L²/(π² B) = 63.778 with m = 6 half-waves
     L = np.pi * 1000.0 ** 0.25
-    grid = make_strip_grid(L, 240)
+    grid = build_strip_grid(L, 240)
     out = follow_perfect(L, 240, 2e-4)
     path = out.path
     assert path.bifurcations[0] == 1 and path.load[0] == 0.0

@@ -8,7 +8,7 @@ from scipy.integrate import solve_bvp
 from scipy.optimize import brentq
 
 from sweepshell.models import Status, make_model
-from sweepshell.models.foundation_strip.elastica import compute_discrete_onset, make_strip_grid
+from sweepshell.models.foundation_strip.elastica import build_strip_grid, compute_discrete_onset
 from sweepshell.models.foundation_strip.path import compute_pinned_onset, solve_strip
 
 TWO_PI = 2.0 * np.pi
@@ -41,7 +41,7 @@ def test_discrete_onset_matches_classical():
     # Hetényi 1946: P_c = 2√(BK) (= 2 in units B = K = 1), wavelength 2π(B/K)^{1/4}.
     # The discrete onset is P_c − h²/4 + O(h⁴) (derived from the lattice dispersion), so
     # 0.5 % needs about 32 segments per wavelength; we use 40 (0.3 %)
-    grid = make_strip_grid(8 * TWO_PI, 8 * 40)
+    grid = build_strip_grid(8 * TWO_PI, 8 * 40)
     p, lam = compute_discrete_onset(grid)
     assert abs(p / 2.0 - 1.0) < 5e-3
     assert abs(lam / TWO_PI - 1.0) < 5e-3
@@ -54,7 +54,7 @@ def test_finite_pinned_strip(eta, expected):
     L = np.pi * eta ** 0.25  # η = K L⁴/(π⁴ B) with B = K = 1
     p_closed, _ = compute_pinned_onset(L)
     assert abs(float(p_closed) * L ** 2 / np.pi ** 2 - expected) < 1e-3 * expected
-    p_num, _ = compute_discrete_onset(make_strip_grid(L, 240))
+    p_num, _ = compute_discrete_onset(build_strip_grid(L, 240))
     assert abs(p_num * L ** 2 / np.pi ** 2 - expected) < 2e-3 * expected
 
 

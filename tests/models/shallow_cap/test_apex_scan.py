@@ -16,7 +16,7 @@ from sweepshell.models.shallow_cap.modes import (
     count_unstable_modes,
     select_stability_nodes,
 )
-from sweepshell.models.shallow_cap.solver import make_problem
+from sweepshell.models.shallow_cap.problem import build_problem
 from tests.conftest import cap_inputs
 from tests.models.shallow_cap.test_model import make_initial_tangent
 
@@ -28,7 +28,7 @@ MODES = np.arange(1, 31)
 def trace_apex_paths(lam, clamped, immovable, nodes, max_deflection):  # type: ignore[no-untyped-def]
     """Return the problem and the traced apex-force paths ``(z, count)`` up to ``max_deflection`` (over h)."""
     n = lam.size
-    pb = make_problem(lam, np.full(n, NU), clamped, immovable, np.ones(n, bool), np.zeros(n), np.full(n, 2.0), nodes)
+    pb = build_problem(lam, np.full(n, NU), clamped, immovable, np.ones(n, bool), np.zeros(n), np.full(n, 2.0), nodes)
     w, z0, t0 = make_initial_tangent(pb)
     zh, _, _, count, _, _ = trace_cap_paths(
         pb, z0, t0, w, first_step=0.1, max_step=0.25, min_step=1e-7, max_points=400, max_turn_deg=12.0, tol=1e-10,
@@ -39,10 +39,10 @@ def trace_apex_paths(lam, clamped, immovable, nodes, max_deflection):  # type: i
 
 def lowest_eigenvalues(pb, z, idx, modes, nodes):  # type: ignore[no-untyped-def]
     """Return the lowest real part of the eigenvalues of each ``cos nθ`` operator on a ``nodes`` grid."""
-    from sweepshell.numerics.radial_chebyshev import make_radial_grid
+    from sweepshell.numerics.radial_chebyshev import build_radial_grid
 
     co = compute_mode_coefficients(pb, z, idx, nodes)
-    x = make_radial_grid(nodes).x
+    x = build_radial_grid(nodes).x
     out = np.empty((z.shape[0], len(modes)))
     for j, n, a in _reduced_matrices(pb, co, modes):
         inner = a[:, 2:, 2:] - a[:, 2:, :2] @ np.linalg.solve(a[:, :2, :2], a[:, :2, 2:])
@@ -52,7 +52,7 @@ def lowest_eigenvalues(pb, z, idx, modes, nodes):  # type: ignore[no-untyped-def
 
 
 def test_apex_states_use_the_refined_grid_and_pressure_states_their_own():
-    pb = make_problem(np.array([8.0, 8.0]), np.full(2, NU), np.ones(2, bool), np.ones(2, bool),
+    pb = build_problem(np.array([8.0, 8.0]), np.full(2, NU), np.ones(2, bool), np.ones(2, bool),
                       np.array([False, True]), np.zeros(2), np.full(2, 2.0), 24)
     np.testing.assert_array_equal(select_stability_nodes(pb, np.arange(2)), [24, APEX_STABILITY_REFINEMENT * 24])
 
@@ -61,7 +61,7 @@ def test_refined_grid_reproduces_the_state_grid_for_smooth_pressure_states():
     # common practice, no source: for a smooth (pressure) state the interpolant is exact to rounding, so the
     # operator on a 3x grid must have the state grid's low eigenvalues
     lam = np.array([9.0])
-    pb = make_problem(lam, np.full(1, NU), np.ones(1, bool), np.ones(1, bool), np.zeros(1, bool), np.zeros(1),
+    pb = build_problem(lam, np.full(1, NU), np.ones(1, bool), np.ones(1, bool), np.zeros(1, bool), np.zeros(1),
                       np.full(1, 2.0), 24)
     m = pb.size
     z = np.zeros((1, 2 * m + 1))
@@ -97,7 +97,7 @@ def test_asymmetric_stiffness_rises_under_a_small_apex_force():
     # and 34 nodes); on the state's own grid it is negative and grows with the nodes (n = 2: −70, −109)
     slopes = {}
     for nodes in (24, 34):
-        pb = make_problem(np.array([10.0]), np.full(1, NU), np.ones(1, bool), np.ones(1, bool), np.ones(1, bool),
+        pb = build_problem(np.array([10.0]), np.full(1, NU), np.ones(1, bool), np.ones(1, bool), np.ones(1, bool),
                           np.zeros(1), np.full(1, 2.0), nodes)
         _, z0, t0 = make_initial_tangent(pb)
         z1 = 1e-4 * t0 / (t0[0, -1] * pb.force_scale[0])  # the state at P = 1e-4, to first order
@@ -196,13 +196,13 @@ def test_deep_cap_bifurcation_is_local_to_the_indenter():
 def test_scanning_in_rounds_finds_the_same_first_flip(monkeypatch):
     # common practice, no source: evaluating the path samples in rounds and stopping each cap at its first
     # flip gives the same critical states as evaluating every sample at once
-    from sweepshell.models.shallow_cap import solver
+    from sweepshell.models.shallow_cap import scan
 
     model = make_model("shallow_cap", {"check_bistability": False, "path_samples": 8})
     inputs = cap_inputs([10.0, 20.0, 8.0], load=np.array(["apex_force", "apex_force", "pressure"]))
-    monkeypatch.setattr(solver, "_SCAN_ROUND", 2)  # several rounds before every flip here
+    monkeypatch.setattr(scan, "_SCAN_ROUND", 2)  # several rounds before every flip here
     rounds = model.solve_batch(inputs).outputs
-    monkeypatch.setattr(solver, "_SCAN_ROUND", 10**6)
+    monkeypatch.setattr(scan, "_SCAN_ROUND", 10**6)
     at_once = model.solve_batch(inputs).outputs
     np.testing.assert_array_equal(rounds["critical_wavenumber"], at_once["critical_wavenumber"])
     np.testing.assert_array_equal(rounds["critical_load"], at_once["critical_load"])

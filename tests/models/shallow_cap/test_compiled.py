@@ -5,7 +5,7 @@ from __future__ import annotations
 import numpy as np
 
 from sweepshell.models.shallow_cap.compiled import correct_caps_on_arc, trace_cap_paths
-from sweepshell.models.shallow_cap.solver import make_problem
+from sweepshell.models.shallow_cap.problem import build_problem
 from sweepshell.numerics.arclength import compute_tangent, correct_on_arc, trace_paths
 
 NU = 0.3
@@ -19,7 +19,7 @@ def make_mixed_problem():  # type: ignore[no-untyped-def]
     immovable = np.array([1, 1, 0, 0, 1, 1], bool)
     apex = np.array([0, 0, 0, 1, 1, 0], bool)
     mismatch = np.array([0, 0, 0, 0, 0, 1], bool)
-    pb = make_problem(lam, np.full(n, NU), clamped, immovable, apex, np.array([0.0, 0.3, 0.1, 0.2, 0.0, 0.2]),
+    pb = build_problem(lam, np.full(n, NU), clamped, immovable, apex, np.array([0.0, 0.3, 0.1, 0.2, 0.0, 0.2]),
                       np.full(n, 2.0), 34, mismatch=mismatch, mismatch_strain=np.full(n, -8.0),
                       mismatch_radius=np.full(n, 0.5), annulus=np.zeros(n, bool))
     m = pb.unknowns
@@ -88,7 +88,7 @@ def test_compiled_tracing_is_batch_invariant():
     mu_max = np.full(idx.size, 2.0)
     defl_max = np.full(idx.size, 50.0)
     full = trace_cap_paths(pb, z0, t0, w, mu_max=mu_max, defl_max=defl_max, **kw)
-    sub = make_problem(pb.lam[:1], pb.nu[:1], pb.clamped[:1], pb.immovable[:1], pb.apex[:1],
+    sub = build_problem(pb.lam[:1], pb.nu[:1], pb.clamped[:1], pb.immovable[:1], pb.apex[:1],
                        np.zeros(1), np.full(1, 2.0), 34)
     one = trace_cap_paths(sub, z0[:1], t0[:1], w, mu_max=mu_max[:1], defl_max=defl_max[:1], **kw)
     c0 = one[3][0]
@@ -101,12 +101,12 @@ def test_compiled_reduced_stability_matrix_is_the_schur_complement_of_the_full_m
     from sweepshell.models.shallow_cap.modes import (
         _reduced_matrices,
         build_mode_matrices,
+        build_mode_operators,
         compute_mode_coefficients,
-        make_mode_operators,
     )
 
     k, m = 6, 24
-    pb = make_problem(np.full(k, 9.0), np.array([NU, NU, 0.25, NU, 0.25, NU]), np.array([True, False] * 3),
+    pb = build_problem(np.full(k, 9.0), np.array([NU, NU, 0.25, NU, 0.25, NU]), np.array([True, False] * 3),
                       np.array([True, True, False] * 2), np.zeros(k, dtype=bool), np.full(k, 0.2),
                       np.full(k, 2.0), m)
     idx = np.arange(k)
@@ -116,7 +116,7 @@ def test_compiled_reduced_stability_matrix_is_the_schur_complement_of_the_full_m
     co = compute_mode_coefficients(pb, z, idx)
     modes = np.array([1, 2, 5])
     for j, n, got in _reduced_matrices(pb, co, modes):
-        full = build_mode_matrices(make_mode_operators(m, n), pb.grid.x, co)
+        full = build_mode_matrices(build_mode_operators(m, n), pb.grid.x, co)
         a, b, c, s = full[:, :m, :m], full[:, :m, m:], full[:, m:, :m], full[:, m:, m:]
         want = a - b @ np.linalg.solve(s, c)
         scale = np.abs(want).max(axis=(1, 2), keepdims=True)
@@ -126,7 +126,7 @@ def test_compiled_reduced_stability_matrix_is_the_schur_complement_of_the_full_m
 
 def test_compiled_fold_refinement_matches_refine_on_arc():
     from sweepshell.models.shallow_cap.compiled import refine_caps_on_arc
-    from sweepshell.numerics.arclength import refine_on_arc
+    from sweepshell.numerics.arc_refine import refine_on_arc
 
     pb, w, idx, z0, t0 = make_mixed_problem()
     zh, th, sh, _, _, _ = trace_cap_paths(pb, z0, t0, w, first_step=0.1, max_step=0.25, min_step=1e-7,
@@ -150,14 +150,14 @@ def test_compiled_fold_refinement_matches_refine_on_arc():
 
 
 def test_compiled_lu_returns_the_sign_of_the_determinant(rng):
-    from sweepshell.models.shallow_cap.compiled import _lu_solve
+    from sweepshell.models.shallow_cap.compiled_newton import lu_solve
 
     for n in (1, 2, 5, 17, 40):
         for _ in range(20):
             a = rng.standard_normal((n, n))
             g = np.concatenate([a, rng.standard_normal((n, 2))], axis=1)
             rhs = g[:, n:].copy()
-            sign = _lu_solve(g, n, np.empty(n + 2))
+            sign = lu_solve(g, n, np.empty(n + 2))
             assert sign == np.sign(np.linalg.det(a))
             np.testing.assert_allclose(a @ g[:, n:], rhs, atol=1e-8 * max(1.0, np.abs(rhs).max()))
 

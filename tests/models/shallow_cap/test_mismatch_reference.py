@@ -13,7 +13,7 @@ import pytest
 from scipy import optimize, special
 
 from sweepshell.models.shallow_cap.modes import compute_mode_determinants
-from sweepshell.models.shallow_cap.solver import make_problem
+from sweepshell.models.shallow_cap.problem import build_problem
 from sweepshell.numerics.arclength import compute_tangent
 
 NU = 0.3
@@ -21,7 +21,7 @@ NU = 0.3
 
 def make_mismatch_problem(lam, *, clamped=True, immovable=True, radius=1.0, annulus=False, width=0.1, nodes=34):
     one = np.ones(1, dtype=bool)
-    return make_problem(np.array([lam]), np.array([NU]), clamped * one, immovable * one, ~one, np.zeros(1),
+    return build_problem(np.array([lam]), np.array([NU]), clamped * one, immovable * one, ~one, np.zeros(1),
                         np.full(1, 2.0), nodes, mismatch=one, mismatch_strain=np.ones(1),
                         mismatch_radius=np.array([radius]), annulus=annulus * one, step_width=width)
 

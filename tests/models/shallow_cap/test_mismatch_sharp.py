@@ -13,8 +13,9 @@ import numpy as np
 import pytest
 
 from sweepshell.models import make_model
-from sweepshell.models.shallow_cap.model import choose_grid_centres, choose_grids
-from sweepshell.models.shallow_cap.solver import make_problem, solve_caps
+from sweepshell.models.shallow_cap.grids import choose_grid_centres, choose_grids
+from sweepshell.models.shallow_cap.problem import build_problem
+from sweepshell.models.shallow_cap.solver import CapInputs, solve_caps
 from tests.conftest import cap_inputs
 from tests.models.shallow_cap.test_mismatch_reference import NU, disc_inclusion_stress, linear_state
 
@@ -55,10 +56,10 @@ def test_plain_nodes_resolve_the_sharp_edge_only_at_low_order():
     model = make_model("shallow_cap", {**FAST, "asymmetric_modes": 8})
     one = np.ones(1, dtype=bool)
     for m, want in ((48, -3.9369), (64, -3.8016)):
-        sol = solve_caps(np.array([8.0]), np.array([NU]), one, one, ~one, np.zeros(1), np.full(1, 2.0),
-                         settings={**model.settings, "nodes": m, "grid_stretch": 0.0, "grid_centre": 0.0},
+        caps = CapInputs(np.array([8.0]), np.array([NU]), one, one, ~one, np.zeros(1), np.full(1, 2.0),
                          mismatch=one, mismatch_strain=np.array([-6.0]), mismatch_radius=np.array([0.5]),
                          annulus=~one)
+        sol = solve_caps(caps, settings={**model.settings, "nodes": m, "grid_stretch": 0.0, "grid_centre": 0.0})
         assert sol.critical_load[0] == pytest.approx(want, abs=1e-3)
         assert abs(sol.critical_load[0] / -3.86855 - 1) > 1e-2
 
@@ -104,7 +105,7 @@ def test_flat_plate_with_a_sharp_disc_is_the_lame_inclusion(immovable, annulus):
     # hoop stress is the mean of its one-sided values; λ = 0.01 (curvature coupling O(λ⁴))
     rho = 0.6
     one = np.ones(1, dtype=bool)
-    pb = make_problem(np.array([0.01]), np.array([NU]), one, immovable * one, ~one, np.zeros(1),
+    pb = build_problem(np.array([0.01]), np.array([NU]), one, immovable * one, ~one, np.zeros(1),
                       np.full(1, 2.0), 48, mismatch=one, mismatch_strain=np.ones(1),
                       mismatch_radius=np.array([rho]), annulus=annulus * one, step_width=0.0, centre=rho)
     x = pb.grid.x

@@ -8,7 +8,7 @@ from scipy import special
 
 from sweepshell.models import Status, make_model
 from sweepshell.models.shallow_cap.kernels import CapPathProblem
-from sweepshell.models.shallow_cap.solver import make_problem
+from sweepshell.models.shallow_cap.problem import build_problem
 from sweepshell.numerics.arclength import compute_tangent
 from tests.conftest import cap_inputs
 
@@ -54,7 +54,7 @@ def exact_linear_pressure_deflection(lam: float, nu: float = NU) -> float:
 @pytest.mark.parametrize("lam", [2.0, 6.0, 15.0])
 def test_linear_pressure_response_matches_bessel_solution(lam):
     # linear shallow-shell theory of the clamped cap (Reissner 1946 Bessel-function solution, re-derived)
-    pb = make_problem(np.array([lam]), np.array([NU]), np.array([True]), np.array([True]), np.array([False]),
+    pb = build_problem(np.array([lam]), np.array([NU]), np.array([True]), np.array([True]), np.array([False]),
                       np.zeros(1), np.full(1, 2.0), 32)
     got = linear_apex_deflection(pb)[0]
     assert got == pytest.approx(exact_linear_pressure_deflection(lam), rel=1e-8)
@@ -136,7 +136,7 @@ def test_path_orientation_keeps_its_sign_through_a_limit_point():
     # of a path, limit points included, while det ∂R/∂u changes sign at every limit point
     from sweepshell.models.shallow_cap.compiled import trace_cap_paths
 
-    pb = make_problem(np.array([9.0]), np.array([NU]), np.array([True]), np.array([True]), np.array([False]),
+    pb = build_problem(np.array([9.0]), np.array([NU]), np.array([True]), np.array([True]), np.array([False]),
                       np.zeros(1), np.full(1, 2.0), 24)
     w, z0, t0 = make_initial_tangent(pb)
     zh, th, _, count, _, _ = trace_cap_paths(pb, z0, t0, w, first_step=0.1, max_step=0.25, min_step=1e-7,
@@ -185,7 +185,7 @@ def test_unstable_mode_count_has_the_parity_of_the_determinant_sign(rng):
     from sweepshell.models.shallow_cap.modes import compute_mode_determinants, count_unstable_modes
 
     k = 6
-    pb = make_problem(np.full(k, 12.0), np.full(k, NU), np.array([True, False] * 3), np.array([True, True, False] * 2),
+    pb = build_problem(np.full(k, 12.0), np.full(k, NU), np.array([True, False] * 3), np.array([True, True, False] * 2),
                       np.zeros(k, dtype=bool), np.zeros(k), np.full(k, 2.0), 24)
     idx = np.arange(k)
     modes = np.arange(1, 13)
@@ -227,20 +227,20 @@ def test_pinned_deep_cap_is_bistable_with_a_near_mirror_inverted_state():
 def test_locating_crossings_inside_the_step_keeps_the_first_bifurcation(monkeypatch):
     # common practice, no source: refining only the wave numbers that change sign in the earliest
     # sampled part of the flipped step gives the same critical state as refining all of them
-    from sweepshell.models.shallow_cap import solver
+    from sweepshell.models.shallow_cap import scan
 
     lam = np.array([6.0, 8.5, 11.0, 14.0, 17.0, 20.0])
     inputs = cap_inputs(lam, dimple_amplitude=np.array([0.0, 0.1, 0.0, 0.3, 0.0, 0.05]))
     model = make_model("shallow_cap", {"check_bistability": False})
     kept: list[tuple[int, int]] = []
-    real = solver._bracket_first_crossings
+    real = scan.bracket_first_crossings
 
     def recording(*args):  # type: ignore[no-untyped-def]
         out = real(*args)
         kept.append((int(out[0].sum()), out[0].size))
         return out
 
-    monkeypatch.setattr(solver, "_bracket_first_crossings", recording)
+    monkeypatch.setattr(scan, "bracket_first_crossings", recording)
     pruned = model.solve_batch(inputs).outputs
     assert sum(k for k, _ in kept) < sum(n for _, n in kept)  # crossings were dropped
 
@@ -249,7 +249,7 @@ def test_locating_crossings_inside_the_step_keeps_the_first_bifurcation(monkeypa
         n = crossings.point.size
         return np.ones(n, dtype=bool), np.zeros(n), step, np.ones(n), crossings.ratio
 
-    monkeypatch.setattr(solver, "_bracket_first_crossings", keep_all)
+    monkeypatch.setattr(scan, "bracket_first_crossings", keep_all)
     full = model.solve_batch(inputs).outputs
     assert np.sum(full["critical_wavenumber"] > 0) >= 4  # bifurcations: the pruning was exercised
     np.testing.assert_array_equal(pruned["critical_wavenumber"], full["critical_wavenumber"])

@@ -11,7 +11,7 @@ import numpy as np
 import pytest
 
 from sweepshell.models import make_model
-from sweepshell.models.shallow_cap.model import choose_grids
+from sweepshell.models.shallow_cap.grids import choose_grids
 from tests.conftest import cap_inputs
 
 AXISYMMETRIC = {"asymmetric_modes": 0, "check_bistability": False, "max_pressure": 3.0}

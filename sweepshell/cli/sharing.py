@@ -66,14 +66,17 @@ def register(subparsers: Any) -> None:
 
     export = subparsers.add_parser(
         "export", help="write a store as netCDF, CSV or Parquet",
-        description="Write a store for tools outside the zarr world. netcdf: the whole Dataset (netCDF3 through "
-                    "scipy; status stored as int8, list attributes joined into strings). csv and parquet: one "
+        description="Write a store for tools outside the zarr world. netcdf: the whole Dataset (netCDF4 through "
+                    "h5netcdf when installed, else netCDF3 through scipy with status stored as int8; list "
+                    "attributes joined into strings). csv and parquet: one "
                     "row per grid point with the axis values, every output without extra dimensions, the regime "
                     "name and the status name (parquet needs pyarrow).")
     export.add_argument("store", metavar="STORE", help=STORE_HELP)
     export.add_argument("--format", required=True, choices=("netcdf", "csv", "parquet"), help="file format")
     add_out_option(export, "output file (default: STORE with .nc/.csv/.parquet); '-' writes CSV to stdout")
     export.add_argument("--force", action="store_true", help="replace FILE if it exists")
+    export.add_argument("--engine", choices=("h5netcdf", "scipy"),
+                        help="netCDF writer (default: h5netcdf when installed, else scipy)")
     export.set_defaults(func=_cmd_export)
 
 
@@ -146,7 +149,7 @@ def _cmd_export(args: argparse.Namespace) -> int:
     from sweepshell.store.export import export_store
 
     target = export_store(args.store, args.format, args.out, overwrite=args.force,
-                          stdout=sys.stdout if args.out == "-" else None)
+                          stdout=sys.stdout if args.out == "-" else None, engine=args.engine)
     if target is not None:
         print(f"wrote {target}", file=sys.stderr if args.out == "-" else sys.stdout)
     return EXIT_OK

@@ -1,4 +1,4 @@
-"""Throughput of the ways to run one sweep (issue: team results database, scale-out).
+"""Throughput of the ways to run one sweep (several runners on one store, scale-out).
 
 Prints, measured in the same run on the same 2-axis sweep of a model costing ~``--work`` seconds per point:
 
@@ -7,7 +7,7 @@ Prints, measured in the same run on the same 2-axis sweep of a model costing ~``
 2. one runner with 1 worker vs two concurrent runners with 1 worker each on the same store: the wall-time ratio
    (expect about 0.5).
 
-Usage: python benchmarks/bench_team.py [--points 4000] [--work 0.005]
+Usage: python benchmarks/bench_shared_runs.py [--points 4000] [--work 0.005]
 """
 
 from __future__ import annotations

@@ -1,0 +1,58 @@
+"""Compiled assembly of the shallow-cap stability matrices (numba)."""
+
+from __future__ import annotations
+
+import numpy as np
+from numba import njit
+
+__all__ = ["assemble_reduced_stability"]
+
+
+@njit(cache=True)
+def assemble_reduced_stability(bilap: np.ndarray, bracket: np.ndarray, w2: np.ndarray, w0e: np.ndarray,
+                               w1e: np.ndarray, w2e: np.ndarray, x: np.ndarray, reduction: np.ndarray,
+                               group: np.ndarray, f: np.ndarray, df: np.ndarray, zeta1: np.ndarray,
+                               zeta2: np.ndarray, nu: np.ndarray, clamped: np.ndarray, immovable: np.ndarray,
+                               keep_row1: bool) -> np.ndarray:
+    """Return the reduced stability matrices ``A − B S⁻¹ C`` ``(k, M, M)`` of one wave number.
+
+    Compiled form of ``shallow_cap_modes._deflection_blocks`` and the stress elimination of
+    ``_reduced_matrices`` (same formulas, fused per state). ``bilap``, ``bracket``, ``w2`` are
+    the deflection operators, ``w0e``, ``w1e``, ``w2e`` their edge rows; ``reduction[g]`` is
+    ``[P₁; P₂] S⁻¹`` of the state's (ν, in-plane edge) group ``group[p]``; ``keep_row1``:
+    sliding n = 1 keeps the interior equation in row 1 of ``C``.
+    """
+    k, m = f.shape
+    out = np.empty((k, m, m))
+    c = np.empty((m, m))
+    g = np.empty((m, m))
+    for p in range(k):
+        a = out[p]
+        for i in range(m):
+            dfi = df[p, i]
+            xfi = x[i] * f[p, i]
+            z2i = zeta2[p, i]
+            xz1i = x[i] * zeta1[p, i]
+            for j in range(m):
+                a[i, j] = bilap[i, j] + dfi * bracket[i, j] + xfi * w2[i, j]
+                c[i, j] = z2i * bracket[i, j] + xz1i * w2[i, j]
+        for j in range(m):
+            a[0, j] = w0e[j]
+            a[1, j] = w1e[j] if clamped[p] else w2e[j] + nu[p] * w1e[j]
+            c[0, j] = 0.0
+            if immovable[p]:
+                c[1, j] = zeta1[p, 0] * w1e[j]
+            elif not keep_row1:
+                c[1, j] = 0.0
+        # rows 0, 1 of B are edge rows (zero)
+        red = reduction[group[p]]
+        for j in range(m):
+            g[0, j] = 0.0
+            g[1, j] = 0.0
+        for i in range(2, m):
+            z2i = zeta2[p, i]
+            xz1i = x[i] * zeta1[p, i]
+            for j in range(m):
+                g[i, j] = z2i * red[i, j] + xz1i * red[m + i, j]
+        a += np.dot(g, c)
+    return out

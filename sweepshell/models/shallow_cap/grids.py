@@ -1,0 +1,92 @@
+"""Radial grid of each shallow-cap point: node count, axis stretch and clustering centre.
+
+The automatic node counts follow the measured need for the stated accuracy of the critical
+load (``theory.md``; ``tests/models/shallow_cap/test_resolution.py``).
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Mapping
+from typing import Any
+
+import numpy as np
+
+__all__ = ["choose_grid_centres", "choose_grids", "get_mismatch_nodes"]
+
+_FIXED_NODES = 34  # smoothed-edge mismatch points' base grid when ``nodes`` is automatic
+
+
+def get_mismatch_nodes(settings: Mapping[str, Any], lam: np.ndarray) -> np.ndarray:
+    """Return the grid size of mismatch-strain points with shell parameters ``lam``.
+
+    Sharp edge (``mismatch_step_width`` 0), on the grid clustered at the edge
+    (:func:`choose_grid_centres`): ``nodes``, or when automatic 44 + 1.8λ (even, 48 … 96), the
+    measured need for 10⁻⁴ relative accuracy of the critical load (against 160 nodes: 48 nodes
+    leave 2·10⁻⁴ at λ = 8 and 12, 10⁻³ at λ = 20; 64 nodes 4·10⁻⁵ at λ = 12, 80 nodes 7·10⁻⁵ at
+    λ = 20; tests/models/shallow_cap/test_mismatch_sharp.py). Smoothed edge: the edge sits
+    inside the cap, where the Chebyshev grid is coarsest; below w·nodes ≈ 3.4 the results lose
+    digits fast (10⁻⁶ relative at 3.4, 10⁻³ at 2), so ``nodes`` (when automatic max(34,
+    16 + 1.5λ), even) is raised until w·nodes ≥ 3.4.
+    """
+    width = float(settings["mismatch_step_width"])
+    if width == 0.0:
+        if int(settings["nodes"]):
+            return np.full(lam.shape, int(settings["nodes"]))
+        return np.clip(np.ceil((44.0 + 1.8 * lam) / 2.0) * 2.0, 48, 96).astype(int)
+    if int(settings["nodes"]):
+        return np.full(lam.shape, max(int(settings["nodes"]), math.ceil(3.4 / width)))
+    # on deep caps the mismatch state needs more than 34 nodes whatever the width: at λ = 20 a
+    # shrinking disc (ρ = 0.5) showed a spurious n = 2 bifurcation on 34 nodes, none on 40 … 80
+    return np.maximum(math.ceil(3.4 / width),
+                      np.maximum(_FIXED_NODES, np.ceil((16.0 + 1.5 * lam) / 2.0) * 2.0)).astype(int)
+
+
+def choose_grid_centres(settings: Mapping[str, Any], eigen: np.ndarray, radius: np.ndarray) -> np.ndarray:
+    """Return each point's clustering centre ρ of the radial grid (0: none; see ``build_radial_grid``).
+
+    Mismatch points with a sharp edge inside the cap (``mismatch_step_width`` 0, ρ < 1) get the
+    grid clustered around x = ±ρ with a node on ρ: their response has a kink there (a jump of
+    the hoop prestress and of the third derivative of the slope), which a plain grid resolves
+    only to first order, oscillating with where ρ falls between nodes.
+    """
+    sharp = eigen & (float(settings["mismatch_step_width"]) == 0.0) & (radius < 1.0)
+    return np.where(sharp, radius, 0.0)
+
+
+def choose_grids(settings: Mapping[str, Any], lam: np.ndarray, apex: np.ndarray, eigen: np.ndarray,
+                 amplitude: np.ndarray, width: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Return each point's radial grid: node count and stretch β (see ``build_radial_grid``).
+
+    With ``nodes`` 0 (automatic) the count follows the measured need for 3·10⁻⁷ relative
+    accuracy of the critical load (tests/models/shallow_cap/test_resolution.py; theory.md).
+    It grows about linearly with λ (edge and ridge layers of width ∝ 1/λ; a dimple of width b
+    over a/λ has width b/λ in x). Grids are stretched towards the axis where the solution
+    varies fastest there: dimpled caps (``dimple_grid_stretch``) and apex forces
+    (``apex_grid_stretch``); perfect caps under pressure keep Chebyshev points, whose edge
+    clustering the asymmetric modes need; mismatch points use :func:`get_mismatch_nodes` (and
+    sharp-edged ones the clustered map of :func:`choose_grid_centres`).
+    Counts are even, from 16 to 96.
+    """
+    scan = int(settings["asymmetric_modes"]) > 0
+    dimpled = (amplitude != 0.0) & ~apex & ~eigen
+    beta = np.where(apex, float(settings["apex_grid_stretch"]),
+                    np.where(dimpled, float(settings["dimple_grid_stretch"]), 0.0))
+    if int(settings["nodes"]):
+        nodes = np.full(lam.shape, int(settings["nodes"]))
+    else:
+        perfect = 14.0 + lam if scan else np.maximum(14.0 + lam, 8.0 + 1.5 * lam)
+        stretched = 12.0 + 1.5 * lam if scan else 14.0 + 1.2 * lam
+        dimple = np.where(amplitude != 0.0, 4.0 + 2.0 * lam / np.maximum(width, 0.25), 0.0)
+        need = np.where(apex, np.maximum(16.0 + 1.4 * lam, dimple),
+                        np.where(dimpled, np.maximum(stretched, dimple), perfect))
+        nodes = np.clip(np.ceil(need / 2.0) * 2.0, 16, 96).astype(int)
+    mismatch_nodes = get_mismatch_nodes(settings, lam)
+    if not int(settings["nodes"]):
+        # a dimple on a mismatch grid (no axis stretch there): the plain-grid need of a dimple,
+        # 2 + 4.6λ/b (measured for pressure; not separately measured for mismatch loads)
+        plain_dimple = np.where(amplitude != 0.0, 2.0 + 4.6 * lam / np.maximum(width, 0.25), 0.0)
+        mismatch_nodes = np.maximum(mismatch_nodes,
+                                    np.clip(np.ceil(plain_dimple / 2.0) * 2.0, 0, 96).astype(int))
+    nodes = np.where(eigen, mismatch_nodes, nodes)
+    return nodes, np.where(eigen, 0.0, beta)

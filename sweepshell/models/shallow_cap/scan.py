@@ -1,0 +1,267 @@
+"""The asymmetric scan of the shallow-cap model: stability determinants along each traced path.
+
+All wave numbers n = 1…N are evaluated at sampled path points up to the first limit point;
+the first step where a determinant changes sign brackets a ``cos nθ`` bifurcation, which is
+then located inside the step and refined along the arc.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from sweepshell.models.shallow_cap.compiled import correct_caps_on_arc
+from sweepshell.models.shallow_cap.kernels import CapPathProblem
+from sweepshell.models.shallow_cap.modes import compute_mode_determinants, select_stability_nodes
+from sweepshell.numerics.arc_refine import refine_on_arc
+from sweepshell.numerics.arclength import PathHistory
+
+__all__ = ["ModeCrossings", "refine_bifurcations", "scan_modes"]
+
+_DET_CHUNK = 1024
+_DET_CHUNK_ELEMENTS = 12_500_000  # ~100 MB per (states, M, M) float64 stack of stability matrices
+_SCAN_ROUND = 8  # sampled path points per cap evaluated before looking for a flip
+_CROSSING_SAMPLES = 4  # interior points of a flipped step at which its crossings are located
+
+
+@dataclass(frozen=True)
+class ModeCrossings:
+    """Wave numbers whose stability determinant changed sign in a cap's first flipped step.
+
+    Arrays over crossings: the cap (``point``), the wave number, the determinant ratio across
+    the step and the determinant's sign and log|det| at the step before.
+    """
+
+    point: np.ndarray
+    mode: np.ndarray
+    ratio: np.ndarray
+    sign: np.ndarray
+    logdet: np.ndarray
+
+    def take(self, keep: np.ndarray) -> ModeCrossings:
+        """Return the crossings selected by ``keep``."""
+        return ModeCrossings(*(np.asarray(v)[keep] for v in vars(self).values()))
+
+
+_NO_CROSSINGS = ModeCrossings(*(np.zeros(0, dtype=t) for t in (int, int, float, float, float)))
+
+
+def _modes_determinants(pb: CapPathProblem, z: np.ndarray, idx: np.ndarray,
+                        modes: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    sign = np.empty((z.shape[0], modes.size))
+    logdet = np.empty_like(sign)
+    if z.shape[0] == 0:
+        return sign, logdet
+    # apex-force states are analysed on a 3x grid: fewer states per chunk keeps the matrices in memory bounds
+    size = int(select_stability_nodes(pb, idx).max())
+    chunk = int(max(32, min(_DET_CHUNK, _DET_CHUNK_ELEMENTS // (size * size))))
+    for lo in range(0, z.shape[0], chunk):
+        sl = slice(lo, lo + chunk)
+        sign[sl], logdet[sl] = compute_mode_determinants(pb, z[sl], idx[sl], modes)
+    return sign, logdet
+
+
+def _ratio_to(crossings: ModeCrossings, rows: np.ndarray, sg: np.ndarray, ld: np.ndarray) -> np.ndarray:
+    """Signed determinant ratio of the states (sign ``sg``, log|det| ``ld``) to the crossings' step start."""
+    return sg * crossings.sign[rows] * np.exp(np.clip(ld - crossings.logdet[rows], -700, 700))
+
+
+def _evaluate_in_rounds(pb: CapPathProblem, zh: np.ndarray, sampled: np.ndarray,
+                        modes: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Evaluate the sampled states ``_SCAN_ROUND`` per cap at a time, each cap up to its first flip.
+
+    A deep cap under an apex force bifurcates long before its path ends, so its later samples
+    are skipped. Returns the signs and log|det| ``(n, S, modes)`` (NaN where not evaluated) and
+    the evaluated mask ``(n, S)``.
+    """
+    n = zh.shape[0]
+    sg_all = np.full((n, zh.shape[1], modes.size), np.nan)
+    ld_all = np.full_like(sg_all, np.nan)
+    rank = np.cumsum(sampled, axis=1) - 1
+    last_rank = rank[:, -1]
+    evaluated = np.zeros_like(sampled)
+    active = np.asarray(sampled.any(axis=1))
+    start = 0
+    while active.any():
+        chunk = sampled & active[:, None] & (rank >= start) & (rank < start + _SCAN_ROUND)
+        pi, pj = np.nonzero(chunk)
+        sg_all[pi, pj], ld_all[pi, pj] = _modes_determinants(pb, zh[pi, pj], pi, modes)
+        evaluated |= chunk
+        flipped_now = (sg_all[pi, pj] != sg_all[pi, 0]).any(axis=1)
+        active[pi[flipped_now]] = False
+        start += _SCAN_ROUND
+        active &= last_rank >= start
+    return sg_all, ld_all, evaluated
+
+
+def _fill_between_samples(pb: CapPathProblem, zh: np.ndarray, rows: np.ndarray, j_lo: np.ndarray,
+                          j_hi: np.ndarray, flipped: np.ndarray, modes: np.ndarray, stride: int,
+                          sg_all: np.ndarray, ld_all: np.ndarray) -> None:
+    """Evaluate the steps strictly between two samples, only for the wave numbers that flipped."""
+    for col in np.nonzero(flipped.any(axis=0))[0]:
+        sel = flipped[:, col]
+        ri = np.repeat(rows[sel], stride)
+        rj = (j_lo[sel][:, None] + np.arange(1, stride + 1)[None, :]).ravel()
+        keep = rj < np.repeat(j_hi[sel], stride)
+        ri, rj = ri[keep], rj[keep]
+        if ri.size:
+            s1, l1 = _modes_determinants(pb, zh[ri, rj], ri, modes[col:col + 1])
+            sg_all[ri, rj, col], ld_all[ri, rj, col] = s1[:, 0], l1[:, 0]
+
+
+def scan_modes(pb: CapPathProblem, zh: np.ndarray, scanned: np.ndarray, scan_end: np.ndarray,
+               modes: np.ndarray, stride: int) -> tuple[np.ndarray, ModeCrossings]:
+    """Return the first path step where a stability determinant changed sign, per cap.
+
+    All wave numbers are evaluated at every ``stride``-th accepted step (and at the last one);
+    path steps are short where the state changes fast (near folds), so this sampling is
+    densest where determinants move fastest. The samples are evaluated in rounds along the
+    path and a cap's later samples are skipped once one has flipped (same result). Inside the
+    first sampled interval whose end has a flipped sign, only the flipped wave numbers are
+    evaluated at the steps in between, and the first step with a flip is kept. A wave number
+    whose determinant changes sign twice between two evaluations (two eigenvalues crossing) is
+    missed: ``stride = 1`` (every step) is the safe default.
+
+    Returns
+    -------
+    step, crossings
+        ``(n,)`` index of the first step with a flip (-1: none), and the wave numbers that
+        flipped in that step.
+    """
+    n = zh.shape[0]
+    jb = np.full(n, -1)
+    if modes.size == 0 or not scanned.any():
+        return jb, _NO_CROSSINGS
+    steps = np.arange(zh.shape[1])
+    inside = (steps[None, :] <= scan_end[:, None]) & scanned[:, None]
+    sampled = inside & ((steps[None, :] % stride == 0) | (steps[None, :] == scan_end[:, None]))
+    sg_all, ld_all, evaluated = _evaluate_in_rounds(pb, zh, sampled, modes)
+    ref = sg_all[:, 0]
+    flip_at = (sg_all != ref[:, None, :]) & evaluated[:, :, None]
+    any_flip = flip_at.any(axis=2)
+    rows = np.nonzero(any_flip.any(axis=1))[0]
+    if rows.size == 0:
+        return jb, _NO_CROSSINGS
+    j_hi = np.argmax(any_flip[rows], axis=1)
+    j_lo = (j_hi - 1) // stride * stride
+    flipped = flip_at[rows, j_hi]  # (r, modes)
+    if stride > 1:
+        _fill_between_samples(pb, zh, rows, j_lo, j_hi, flipped, modes, stride, sg_all, ld_all)
+    out: list[tuple[int, int, float, float, float]] = []
+    for r, i in enumerate(rows):
+        cand = flipped[r]
+        seg = sg_all[i, j_lo[r] + 1:j_hi[r] + 1][:, cand] != ref[i, cand][None, :]
+        j = int(j_lo[r] + 1 + np.argmax(seg.any(axis=1)))
+        prev_s, prev_l = sg_all[i, j - 1], ld_all[i, j - 1]
+        now_s, now_l = sg_all[i, j], ld_all[i, j]
+        jb[i] = j
+        for k in np.nonzero(cand & (now_s != prev_s))[0]:
+            ratio = prev_s[k] * now_s[k] * np.exp(np.clip(now_l[k] - prev_l[k], -700, 700))
+            out.append((int(i), int(modes[k]), float(ratio), float(prev_s[k]), float(prev_l[k])))
+    cols = list(zip(*out, strict=True))
+    return jb, ModeCrossings(*(np.asarray(c) for c in cols))
+
+
+def bracket_first_crossings(pb: CapPathProblem, hist: PathHistory, jb: np.ndarray, crossings: ModeCrossings,
+                            w: np.ndarray, tol: float,
+                            ) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+    """Locate each crossing inside its step and keep the earliest ones per cap.
+
+    The determinants of a cap's crossing wave numbers are evaluated at ``_CROSSING_SAMPLES``
+    evenly spaced points of the flipped step (on the same arc as the refinement). Each crossing
+    gets the sub-interval of its first sign change; a cap keeps the crossings of its earliest
+    sub-interval (several if they share it: their order inside is left to the refinement).
+    Caps whose samples do not all converge keep every crossing and the whole step.
+
+    Returns
+    -------
+    keep, s_lo, s_hi, g_lo, g_hi
+        Per crossing: kept or not, and the bracket (arclengths from the step's start, and the
+        determinant ratios to the step's start at both ends).
+    """
+    cp, cm = crossings.point, crossings.mode
+    caps, cap_of = np.unique(cp, return_inverse=True)
+    cap_of = cap_of.reshape(-1)
+    q = _CROSSING_SAMPLES
+    frac = np.arange(1, q + 1) / (q + 1)
+    jr = jb[caps]
+    step = hist.step[caps, jr]
+    anchor = np.repeat(hist.z[caps, jr - 1], q, axis=0)
+    tangent = np.repeat(hist.t[caps, jr - 1], q, axis=0)
+    sample_cap = np.repeat(caps, q)
+    z, conv, _, _ = correct_caps_on_arc(pb, anchor, tangent, (step[:, None] * frac[None, :]).ravel(),
+                                        sample_cap, w, tol=tol, max_iter=8)
+    settled = np.asarray(np.asarray(conv, dtype=bool).reshape(-1, q).all(axis=1))
+    rows = (cap_of[:, None] * q + np.arange(q)[None, :]).ravel()  # each crossing's samples
+    crossing_of = np.repeat(np.arange(cp.size), q)
+    g_flat = np.full(rows.size, np.nan)
+    mode_rows = np.repeat(cm, q)
+    for mode in np.unique(cm):
+        sel = mode_rows == mode
+        sg, ld = compute_mode_determinants(pb, np.nan_to_num(z[rows[sel]]), sample_cap[rows[sel]],
+                                           np.array([mode]))
+        g_flat[sel] = _ratio_to(crossings, crossing_of[sel], sg[:, 0], ld[:, 0])
+    g = g_flat.reshape(cp.size, q)
+    flipped = np.asarray(g <= 0)
+    sub = np.where(flipped.any(axis=1), np.argmax(flipped, axis=1), q)  # crossing in (s_sub, s_sub+1)
+    earliest = np.full(caps.size, q)
+    np.minimum.at(earliest, cap_of, sub)
+    ok = settled[cap_of]
+    keep = ~ok | (sub == earliest[cap_of])
+    bounds = np.concatenate([[0.0], frac, [1.0]])
+    row = np.arange(cp.size)
+    s_step = step[cap_of]
+    s_lo = np.where(ok, bounds[sub] * s_step, 0.0)
+    s_hi = np.where(ok, bounds[sub + 1] * s_step, s_step)
+    g_lo = np.where(ok & (sub > 0), g[row, np.maximum(sub - 1, 0)], 1.0)
+    g_hi = np.where(ok & (sub < q), g[row, np.minimum(sub, q - 1)], crossings.ratio)
+    return keep, s_lo, s_hi, g_lo, g_hi
+
+
+def refine_bifurcations(pb: CapPathProblem, hist: PathHistory, jb: np.ndarray, crossings: ModeCrossings,
+                        w: np.ndarray, tol: float) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+    """Refine each cap's first determinant zero along the arc of its flipped step.
+
+    Several wave numbers often change sign within one step (deep caps, the sphere's nearly
+    degenerate spectrum): sampling the step first keeps only those that change sign in its
+    earliest flipped part, and the earliest refined zero per cap wins.
+
+    Returns
+    -------
+    z, s, mode, ok
+        Per cap ``(n, m+1)`` state at the bifurcation (NaN: none), its arclength from the start
+        of the step before (inf: none), its wave number (0: none) and whether the refinement
+        converged (True where there was nothing to refine).
+    """
+    n, _, m1 = hist.z.shape
+    z_bif = np.full((n, m1), np.nan)
+    s_bif = np.full(n, np.inf)
+    mode_bif = np.zeros(n, dtype=int)
+    ok = np.ones(n, dtype=bool)
+    if not crossings.point.size:
+        return z_bif, s_bif, mode_bif, ok
+    keep, s_lo, s_hi, g_lo, g_hi = bracket_first_crossings(pb, hist, jb, crossings, w, tol)
+    crossings = crossings.take(keep)
+    s_lo, s_hi, g_lo, g_hi = s_lo[keep], s_hi[keep], g_lo[keep], g_hi[keep]
+    cp, cm = crossings.point, crossings.mode
+    jr = jb[cp]
+
+    def measure(z: np.ndarray, t: np.ndarray, pos: np.ndarray) -> np.ndarray:
+        out = np.empty(z.shape[0])
+        for mode in np.unique(cm[pos]):
+            sel = cm[pos] == mode
+            sg, ld = compute_mode_determinants(pb, z[sel], cp[pos[sel]], np.array([mode]))
+            out[sel] = _ratio_to(crossings, pos[sel], sg[:, 0], ld[:, 0])
+        return out
+
+    zb, _, sb, okb = refine_on_arc(
+        pb, hist.z[cp, jr - 1], hist.t[cp, jr - 1], s_hi, g_lo, g_hi, cp, w,
+        measure, tol=tol, max_iter=8, iterations=40, s_tol=1e-9, corrector=correct_caps_on_arc, s_lo=s_lo)
+    sb = np.where(okb, sb, np.inf)
+    order = np.lexsort((sb, cp))
+    first = order[np.r_[True, cp[order][1:] != cp[order][:-1]]]
+    pts = cp[first]
+    z_bif[pts], s_bif[pts], mode_bif[pts] = zb[first], sb[first], cm[first]
+    ok[pts] &= np.isfinite(sb[first])
+    return z_bif, s_bif, mode_bif, ok
