@@ -17,13 +17,13 @@ from typing import Any
 import numpy as np
 
 from sweepshell.engine.claims import ClaimBook, remove_stale_claims
-from sweepshell.engine.inprocess import drive_in_process
 from sweepshell.engine.executors import (
     check_scheduler_reachable,
     dashboard_link,
     describe_outside_fault,
     start_client_early,
 )
+from sweepshell.engine.inprocess import drive_in_process
 from sweepshell.engine.observers import RunObserver, SilentObserver
 from sweepshell.engine.reuse import Donor, find_donors
 from sweepshell.engine.worker import compute_block
