@@ -10,6 +10,7 @@ from __future__ import annotations
 import logging
 import os
 import time
+from collections.abc import Callable
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
@@ -180,23 +181,11 @@ def run_plan(plan: SweepPlan, *, observer: RunObserver | None = None, claim_ttl:
             to_compute = sum(b.n_points for b in pending)
             claims = ClaimBook(path, ttl=claim_ttl)
             donors = find_donors(plan, model) if plan.reuse else []
-            # a caller's client is used as given; otherwise executor auto computes small work here
-            in_process = client is None and plan.executor.runs_in_process(plan.estimated_seconds(to_compute))
-            tally["executor"] = "in-process" if in_process else plan.executor.kind
-            log.info("%s", plan.describe_executor(to_compute))
             note = "compiling the model's kernels (once); the ETA follows the first computed blocks" \
                 if model.kernels_to_compile() else ""
-            if in_process:
-                observer.start(plan.n_points, plan.n_points - to_compute, to_compute, note=note)
-                drive_in_process(plan, pending, claims, observer, tally, donors)
-            else:
-                active = get_client()
-                link = dashboard_link(active)
-                if link:
-                    log.info("dask dashboard: %s", link)
-                observer.connected(link)
-                observer.start(plan.n_points, plan.n_points - to_compute, to_compute, note=note)
-                _drive(active, plan, pending, claims, observer, tally, donors)
+            # a caller's client is used as given; otherwise executor auto computes small work here
+            in_process = client is None and plan.executor.runs_in_process(plan.estimated_seconds(to_compute))
+            _compute(plan, None if in_process else get_client, pending, claims, observer, tally, donors, note)
     except KeyboardInterrupt:
         if claims is None or not block_shape:
             raise
@@ -219,6 +208,25 @@ def run_plan(plan: SweepPlan, *, observer: RunObserver | None = None, claim_ttl:
     remove_stale_claims(path, claim_ttl)
     observer.close()
     return _final_summary(plan, block_shape, tally, t0)
+
+
+def _compute(plan: SweepPlan, get_client: Callable[[], Any] | None, pending: list[Block], claims: ClaimBook,
+             observer: RunObserver, tally: dict[str, Any], donors: list[Donor], note: str) -> None:
+    """Compute the pending blocks on the dask client, or in this process when ``get_client`` is ``None``."""
+    to_compute = sum(b.n_points for b in pending)
+    tally["executor"] = "in-process" if get_client is None else plan.executor.kind
+    log.info("%s", plan.describe_executor(to_compute))
+    if get_client is None:
+        observer.start(plan.n_points, plan.n_points - to_compute, to_compute, note=note)
+        drive_in_process(plan, pending, claims, observer, tally, donors)
+        return
+    active = get_client()
+    link = dashboard_link(active)
+    if link:
+        log.info("dask dashboard: %s", link)
+    observer.connected(link)
+    observer.start(plan.n_points, plan.n_points - to_compute, to_compute, note=note)
+    _drive(active, plan, pending, claims, observer, tally, donors)
 
 
 def _reset_blocks_missing_chunks(path: str, ledger: np.ndarray, block_shape: tuple[int, ...],
