@@ -226,3 +226,21 @@ def subprocess_env(*paths: Path) -> dict[str, str]:
 def ring_plugin_site(tmp_path_factory: pytest.TempPathFactory) -> Path:
     """A folder holding the installed example plug-in ``fenwick-rings`` (put it on ``PYTHONPATH``)."""
     return pip_install_target(RING_PLUGIN, tmp_path_factory.mktemp("plugin-site"))
+
+
+#: a 4 x 3 column grid in blocks of 3 (one per stiffness): the small store the fault and hostile-input tests damage
+SMALL_COLUMN_ETA = [0.1, 1.0, 10.0, 100.0]
+SMALL_COLUMN_LOAD = [0.5, 5.0, 40.0]
+SMALL_COLUMN_STORE = "results/column.zarr"
+SMALL_COLUMN_SWEEP = """\
+name: column
+model: winkler_column
+fixed: {end: pinned}
+axes:
+  stiffness_ratio: [0.1, 1.0, 10.0, 100.0]
+  load_ratio: [0.5, 5.0, 40.0]
+store: {path: results/column.zarr}
+executor: {kind: threads, workers: 1}
+block: {points: 3}
+reuse: false
+"""

@@ -17,25 +17,14 @@ import pytest
 import xarray as xr
 
 from sweepshell.cli.main import main
+from tests.conftest import SMALL_COLUMN_ETA as ETA
+from tests.conftest import SMALL_COLUMN_LOAD as LOAD
+from tests.conftest import SMALL_COLUMN_STORE as STORE
+from tests.conftest import SMALL_COLUMN_SWEEP as SWEEP
 from tests.conftest import run_column_store
 
 pytestmark = pytest.mark.faults
 
-ETA = [0.1, 1.0, 10.0, 100.0]
-LOAD = [0.5, 5.0, 40.0]
-STORE = "results/column.zarr"
-SWEEP = """\
-name: column
-model: winkler_column
-fixed: {end: pinned}
-axes:
-  stiffness_ratio: [0.1, 1.0, 10.0, 100.0]
-  load_ratio: [0.5, 5.0, 40.0]
-store: {path: results/column.zarr}
-executor: {kind: threads, workers: 1}
-block: {points: 3}
-reuse: false
-"""
 RUN = ["run", "col.yaml", "--progress", "none"]
 OUTPUTS = ("critical_load", "mode_number", "margin", "load_path")
 

@@ -11,6 +11,7 @@ from matplotlib.figure import Figure
 
 from sweepshell import open_sweep
 from sweepshell.errors import QueryError
+from sweepshell.plot.layout import find_layout_problems
 from sweepshell.plot.shape import (
     draw_shapes,
     engineering_scale,
@@ -19,7 +20,6 @@ from sweepshell.plot.shape import (
     pick_representative_points,
 )
 from sweepshell.plot.shape_panels import draw_cap_panel, meridian
-from tests.plot.clipping import texts_outside_canvas
 from tests.plot.shape_stores import cap_field
 
 
@@ -31,18 +31,12 @@ def all_text(fig):
     return " ".join(t.get_text() for t in fig.findobj(lambda a: hasattr(a, "get_text") and hasattr(a, "get_fontsize")))
 
 
-def test_clipping_check_can_fail():
-    fig = Figure(figsize=(4, 3))
-    fig.text(0.98, 0.5, "a label running off the right edge")
-    assert texts_outside_canvas(fig) == ["a label running off the right edge"]
-
-
 def test_cap_point_shaded_from_above_with_its_meridians(shape_stores):
     ds = open_sweep(shape_stores["cap"])
     result = draw_shapes(ds, [{"shell_parameter": "9.4", "max_indentation": "8"}])
     fig = result.figure
     assert len(panels(fig, "shape-field")) == 1 and len(panels(fig, "shape-meridian")) == 1
-    assert texts_outside_canvas(fig) == []
+    assert find_layout_problems(fig) == []
     field = panels(fig, "shape-field")[0]
     assert field.get_aspect() == 1.0
     radius = np.linspace(0, 1, 24)
@@ -93,7 +87,7 @@ def test_a_field_with_holes_leaves_them_grey():
     draw_cap_panel(fig, field, radius, angle, 4)
     cells = fig.axes[0].collections[0].get_array()
     assert cells.shape == (24, 72) and int(np.ma.count_masked(cells)) == 1
-    assert texts_outside_canvas(fig) == []
+    assert find_layout_problems(fig) == []
 
 
 def test_several_points_side_by_side_with_a_panel_for_the_missing_one(shape_stores):
@@ -106,7 +100,7 @@ def test_several_points_side_by_side_with_a_panel_for_the_missing_one(shape_stor
     assert len(panels(fig, "shape-missing")) == 1
     assert "no shape: status not converged" in all_text(fig)
     assert "no shape at shell_parameter = 20, max_indentation = 20: status not converged" in result.notes
-    assert texts_outside_canvas(fig) == []
+    assert find_layout_problems(fig) == []
     # an axisymmetric limit-point cap: only the θ = 0 meridian
     last = panels(fig, "shape-meridian")[-1]
     assert [line.get_label() for line in last.get_lines() if not line.get_label().startswith("_")] == ["θ = 0"]
@@ -119,7 +113,7 @@ def test_strip_sections_in_millimetres_equal_aspect(shape_stores):
     fig = result.figure
     sections = panels(fig, "shape-section")
     assert len(sections) == 2 and len(panels(fig, "shape-missing")) == 1
-    assert texts_outside_canvas(fig) == []
+    assert find_layout_problems(fig) == []
     folded, stiff = sections
     assert folded.get_xlabel() == "transverse coordinate y  [mm]" and folded.get_ylabel() == "height z  [mm]"
     assert folded.get_aspect() == 1.0
