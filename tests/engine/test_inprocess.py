@@ -12,8 +12,9 @@ from sweepshell.config.loader import load_plan
 from sweepshell.models.base import Status
 from tests.conftest import COLUMN_SWEEP, write_sweep
 
-#: COLUMN_SWEEP without its explicit executor: the default (auto) applies
-AUTO_SWEEP = COLUMN_SWEEP.replace("executor: {kind: threads, workers: 2}\n", "")
+#: the shared column sweep names no executor: the default (auto) applies
+AUTO_SWEEP = COLUMN_SWEEP
+assert "executor" not in AUTO_SWEEP
 
 
 def test_small_sweep_runs_in_process_and_matches_worker_processes(workdir):
@@ -62,7 +63,7 @@ def test_explicit_executors_are_obeyed_and_dry_run_says_where(workdir, capsys, o
 
 
 def test_explicit_threads_executor_starts_a_cluster(workdir):
-    sweep = write_sweep(workdir, COLUMN_SWEEP)  # executor: {kind: threads, workers: 2}
+    sweep = write_sweep(workdir, COLUMN_SWEEP + "executor: {kind: threads, workers: 2}\n")
     summary = run_sweep(str(sweep))
     assert summary.extra["executor"] == "threads"
     assert not np.any(open_sweep(workdir / "results" / "column.zarr").status.values == Status.pending)
