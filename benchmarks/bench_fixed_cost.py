@@ -117,7 +117,7 @@ def bench_breakdown(folder: Path) -> None:
         t = _wall([py, "-c", f"import {lib}"], folder)
         print(f"[import] {lib}: {t - bare:.2f} s above `python -c pass` ({bare:.2f} s)")
     code = ("import time; t=time.perf_counter(); "
-            "from sweepshell.engine.runner import start_client; from sweepshell.plan import ExecutorSpec; "
+            "from sweepshell.engine.executors import start_client; from sweepshell.plan import ExecutorSpec; "
             "t1=time.perf_counter(); c,k=start_client(ExecutorSpec('local', 2)); t2=time.perf_counter(); "
             "c.close(); k.close(); t3=time.perf_counter(); "
             "print(f'{t1-t:.2f} {t2-t1:.2f} {t3-t2:.2f}')")
