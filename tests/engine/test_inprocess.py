@@ -74,3 +74,21 @@ def test_in_process_seconds_must_be_a_number(workdir, capsys):
     assert main(["run", str(sweep), "executor.in_process_seconds=-1"]) == 2
     assert "executor.in_process_seconds=-1" in capsys.readouterr().err
     assert not (workdir / "results").exists()
+
+
+def test_refine_and_boundary_evaluate_in_this_process(store, monkeypatch):
+    """``refine`` and ``boundary`` evaluations run the model here: no cluster is ever started for them."""
+    import sweepshell.engine.executors as executors
+    from sweepshell.engine.evaluate import store_evaluator
+    from sweepshell.engine.refine import refine_store
+    from sweepshell.query.boundary import find_boundary
+
+    def refuse(*args, **kwargs):
+        raise AssertionError("a dask cluster was started")
+
+    monkeypatch.setattr(executors, "start_client", refuse)
+    assert refine_store(store, levels=1).evaluations > 0
+    ds = open_sweep(store)
+    boundary, _ = find_boundary(ds, "stiffness_ratio", "load_ratio", ("stable", "buckled"), bisections=2,
+                                evaluator=store_evaluator(ds))
+    assert boundary.evaluations > 0
