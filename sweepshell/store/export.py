@@ -241,17 +241,7 @@ def export_store(store: str | os.PathLike[str], fmt: str, output: str | os.PathL
                           field="format", value=fmt, allowed=", ".join(EXPORT_FORMATS))
     source = Path(store)
     check_readable_store(source, chunks=True)
-    if engine is not None and (fmt != "netcdf" or engine not in NETCDF_ENGINES):
-        raise ExportError(f"engine={engine!r} is not a netCDF engine; use one of {', '.join(NETCDF_ENGINES)} "
-                          "with --format netcdf", field="engine", value=engine, allowed=", ".join(NETCDF_ENGINES))
-    has_h5 = all(importlib.util.find_spec(m) is not None for m in ("h5netcdf", "h5py"))
-    if engine == "h5netcdf" and not has_h5:
-        raise ExportError("engine h5netcdf needs the h5netcdf and h5py packages, which are not installed; run "
-                          "`pip install sweepshell[h5netcdf]` or use --engine scipy", field="engine", value=engine)
-    nc_engine = engine or ("h5netcdf" if has_h5 else "scipy")
-    if fmt == "parquet" and importlib.util.find_spec("pyarrow") is None:
-        raise ExportError("parquet export needs the pyarrow package, which is not installed; run `pip install "
-                          "pyarrow` or export with --format csv or --format netcdf", field="format", value=fmt)
+    nc_engine = _choose_writer(fmt, engine)
     if output is not None and str(output) == "-":
         if fmt != "csv" or stdout is None:
             raise ExportError(f"-o - (standard output) works for csv only; give a file name for {fmt}",
@@ -260,14 +250,7 @@ def export_store(store: str | os.PathLike[str], fmt: str, output: str | os.PathL
         log.info("exported %d rows of %s to standard output", rows, source)
         return None
     target = Path(output) if output is not None else _default_output(source, fmt)
-    if target.resolve().is_relative_to(source.resolve()):
-        raise ExportError(f"output {str(target)!r} is inside the store; write the export elsewhere",
-                          field="output", value=str(target))
-    if (target.exists() or target.is_symlink()) and not overwrite:
-        raise ExportError(f"output {str(target)!r} exists; give another -o path or --force to replace it",
-                          field="output", value=str(target))
-    if target.is_dir():
-        raise ExportError(f"output {str(target)!r} is a folder; give a file name", field="output", value=str(target))
+    _check_target(source, target, overwrite)
     target.parent.mkdir(parents=True, exist_ok=True)
     tmp = target.with_name(f".{target.name}.sweepshell-tmp-{os.getpid()}")
     try:
@@ -283,3 +266,30 @@ def export_store(store: str | os.PathLike[str], fmt: str, output: str | os.PathL
         with contextlib.suppress(FileNotFoundError):
             tmp.unlink()
     return target
+
+
+def _choose_writer(fmt: str, engine: str | None) -> str:
+    """Return the netCDF engine to use, after checking the packages the format and engine need are installed."""
+    if engine is not None and (fmt != "netcdf" or engine not in NETCDF_ENGINES):
+        raise ExportError(f"engine={engine!r} is not a netCDF engine; use one of {', '.join(NETCDF_ENGINES)} "
+                          "with --format netcdf", field="engine", value=engine, allowed=", ".join(NETCDF_ENGINES))
+    has_h5 = all(importlib.util.find_spec(m) is not None for m in ("h5netcdf", "h5py"))
+    if engine == "h5netcdf" and not has_h5:
+        raise ExportError("engine h5netcdf needs the h5netcdf and h5py packages, which are not installed; run "
+                          "`pip install sweepshell[h5netcdf]` or use --engine scipy", field="engine", value=engine)
+    if fmt == "parquet" and importlib.util.find_spec("pyarrow") is None:
+        raise ExportError("parquet export needs the pyarrow package, which is not installed; run `pip install "
+                          "pyarrow` or export with --format csv or --format netcdf", field="format", value=fmt)
+    return engine or ("h5netcdf" if has_h5 else "scipy")
+
+
+def _check_target(source: Path, target: Path, overwrite: bool) -> None:
+    """Refuse an output inside the store, an existing one (unless ``overwrite``) and a folder."""
+    if target.resolve().is_relative_to(source.resolve()):
+        raise ExportError(f"output {str(target)!r} is inside the store; write the export elsewhere",
+                          field="output", value=str(target))
+    if (target.exists() or target.is_symlink()) and not overwrite:
+        raise ExportError(f"output {str(target)!r} exists; give another -o path or --force to replace it",
+                          field="output", value=str(target))
+    if target.is_dir():
+        raise ExportError(f"output {str(target)!r} is a folder; give a file name", field="output", value=str(target))

@@ -33,6 +33,7 @@ import logging
 import os
 import shutil
 import warnings
+from collections.abc import Callable
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
@@ -232,37 +233,74 @@ def merge_stores(a: str | os.PathLike[str], b: str | os.PathLike[str], output: s
         Points final in both with different values, and ``prefer`` is ``None``.
     """
     import xarray as xr
-    import yaml
     import zarr
 
     a, b, out_path = str(a), str(b), Path(output)
-    check_store_path(str(output), "-o")  # a URL or system path is refused before anything is read or written
+    _check_request(output, out_path, prefer)
+    attrs_a, attrs_b = check_readable_store(a, chunks=True), check_readable_store(b, chunks=True)
+    _check_same_definition(a, b, attrs_a, attrs_b)
+    names, union, pos_a, pos_b = _union_grid(a, b, attrs_a, attrs_b)
+    group_a = zarr.open_group(a, mode="r", zarr_format=3)
+    group_b = zarr.open_group(b, mode="r", zarr_format=3)
+    ds_a = xr.open_zarr(a, consolidated=True, zarr_format=3)
+    ds_b = xr.open_zarr(b, consolidated=True, zarr_format=3)
+    data_vars = _check_same_variables(a, b, ds_a, ds_b, names)
+    outputs = [v for v in data_vars if v not in (metadata.STATUS_VAR, metadata.REGIME_VAR)]
+    block_shape = tuple(int(x) for x in attrs_a[ATTR.block_shape])
+    if len(block_shape) != len(names):
+        raise StoreSchemaError(f"store {a!r} has a block shape {block_shape} for {len(names)} axes",
+                               field="store", value=a)
+    attrs = _merged_attributes(out_path, (a, attrs_a), (b, attrs_b), names, union)
+    spacing = {}
+    for n in names:
+        sa, sb = ds_a[n].attrs.get("spacing"), ds_b[n].attrs.get("spacing")
+        spacing[n] = str(sa) if sa == sb and sa is not None else "list"
+
+    def build(tmp: Path) -> dict[str, int]:
+        _build_template(tmp, ds_a, names, union, data_vars, group_a, block_shape, attrs, spacing)
+        return fill_merged(tmp, a, b, group_a, group_b, names, union, pos_a, pos_b, outputs, block_shape, prefer,
+                           rtol)
+
+    counts = _write_into_place(out_path, build)
+    skipped = tuple(p for p in (a, b) if metadata.has_node(Path(p) / metadata.POINTS_GROUP))
+    if skipped:
+        log.warning("off-grid points of %s were not carried over into %s", ", ".join(skipped), out_path)
+    return MergeReport(output=str(out_path), total=int(np.prod([len(union[n]) for n in names])),
+                       points_not_merged=skipped, **counts)
+
+
+def _check_request(output: str | os.PathLike[str], out_path: Path, prefer: str | None) -> None:
+    """Refuse a URL or system output path, an unknown ``prefer`` and an existing output, before any reading."""
+    check_store_path(str(output), "-o")
     if prefer not in (None, "a", "b"):
         raise StoreMismatchError(f"prefer={prefer!r}; use 'a' or 'b'", field="prefer", value=prefer)
     if out_path.exists() or out_path.is_symlink():
         raise StoreMismatchError(f"output {str(out_path)!r} exists; merge writes a new store, choose another -o path",
                                  field="output", value=str(out_path))
-    attrs_a, attrs_b = check_readable_store(a, chunks=True), check_readable_store(b, chunks=True)
-    _check_same_definition(a, b, attrs_a, attrs_b)
+
+
+def _union_grid(a: str, b: str, attrs_a: dict[str, Any], attrs_b: dict[str, Any]) -> tuple[
+        list[str], dict[str, list[Any]], list[np.ndarray], list[np.ndarray]]:
+    """Return the axis names, the union axes and, per axis, each union value's index in A and in B (-1: absent)."""
     names_a, axes_a = _parse_axes(a, attrs_a)
     names_b, axes_b = _parse_axes(b, attrs_b)
     if names_a != names_b:
         raise StoreMismatchError(f"stores {a!r} and {b!r} have different axes ({', '.join(names_a)} vs "
                                  f"{', '.join(names_b)}); only stores over the same axes, in the same order, merge",
                                  field="axes", value=(names_a, names_b))
-    names = names_a
     union: dict[str, list[Any]] = {}
     pos_a: list[np.ndarray] = []
     pos_b: list[np.ndarray] = []
-    for n in names:
+    for n in names_a:
         values, pa, pb = union_axis_values(axes_a[n], axes_b[n])
         union[n] = values
         pos_a.append(pa)
         pos_b.append(pb)
-    group_a = zarr.open_group(a, mode="r", zarr_format=3)
-    group_b = zarr.open_group(b, mode="r", zarr_format=3)
-    ds_a = xr.open_zarr(a, consolidated=True, zarr_format=3)
-    ds_b = xr.open_zarr(b, consolidated=True, zarr_format=3)
+    return names_a, union, pos_a, pos_b
+
+
+def _check_same_variables(a: str, b: str, ds_a: Any, ds_b: Any, names: list[str]) -> list[str]:
+    """Return the data variables, after checking both stores hold the same ones over the same dimensions."""
     data_vars = sorted(str(v) for v in ds_a.data_vars)
     if sorted(str(v) for v in ds_b.data_vars) != data_vars:
         raise StoreMismatchError(f"stores {a!r} and {b!r} hold different variables; they are not one sweep",
@@ -278,15 +316,18 @@ def merge_stores(a: str | os.PathLike[str], b: str | os.PathLike[str], output: s
                 raise StoreMismatchError(f"extra dimension {d} differs between {a!r} and {b!r} "
                                          f"({ds_a.sizes[d]} vs {ds_b.sizes[d]} values); they are not one sweep",
                                          field=d)
-    outputs = [v for v in data_vars if v not in (metadata.STATUS_VAR, metadata.REGIME_VAR)]
-    block_shape = tuple(int(x) for x in attrs_a[ATTR.block_shape])
-    if len(block_shape) != len(names):
-        raise StoreSchemaError(f"store {a!r} has a block shape {block_shape} for {len(names)} axes",
-                               field="store", value=a)
+    return data_vars
 
+
+def _merged_attributes(out_path: Path, source_a: tuple[str, dict[str, Any]], source_b: tuple[str, dict[str, Any]],
+                       names: list[str], union: dict[str, list[Any]]) -> dict[str, Any]:
+    """Return C's attributes: A's, with the union axes, a new time, a sweep over the union and the sources."""
+    import yaml
+
+    attrs_a = source_a[1]
     now = _dt.datetime.now(_dt.UTC).isoformat(timespec="seconds")
     sources = []
-    for path, attrs in ((a, attrs_a), (b, attrs_b)):
+    for path, attrs in (source_a, source_b):
         record: dict[str, Any] = {"path": os.path.abspath(path), "created": attrs.get(ATTR.created),
                                   "sweep_name": attrs.get(ATTR.sweep_name), "axes_json": attrs.get(ATTR.axes),
                                   "sweep_yaml": attrs.get(ATTR.sweep_yaml)}
@@ -304,24 +345,21 @@ def merge_stores(a: str | os.PathLike[str], b: str | os.PathLike[str], output: s
                      "store": {"path": str(out_path)}})
     if "model" not in resolved:
         resolved["model"] = attrs_a.get(ATTR.model)
-    attrs = {**attrs_a, ATTR.tool: __version__, ATTR.created: now, ATTR.sweep_name: sweep_name,
-             ATTR.axes: json.dumps(union, sort_keys=True),
-             ATTR.sweep_yaml: yaml.safe_dump(resolved, sort_keys=False),
-             MERGED_FROM_ATTR: json.dumps(sources, sort_keys=True)}
-    spacing = {}
-    for n in names:
-        sa, sb = ds_a[n].attrs.get("spacing"), ds_b[n].attrs.get("spacing")
-        spacing[n] = str(sa) if sa == sb and sa is not None else "list"
+    return {**attrs_a, ATTR.tool: __version__, ATTR.created: now, ATTR.sweep_name: sweep_name,
+            ATTR.axes: json.dumps(union, sort_keys=True),
+            ATTR.sweep_yaml: yaml.safe_dump(resolved, sort_keys=False),
+            MERGED_FROM_ATTR: json.dumps(sources, sort_keys=True)}
 
+
+def _write_into_place(out_path: Path, build: Callable[[Path], dict[str, int]]) -> dict[str, int]:
+    """Build the store in a temporary folder beside ``out_path`` and rename it into place; nothing is left on error."""
     clean_stale_temporaries(out_path)  # a killed merge's half-built store
     tmp = out_path.with_name(out_path.name + metadata.TEMP_SUFFIX + f"-{os.getpid()}")
     out_path.parent.mkdir(parents=True, exist_ok=True)
     if tmp.exists():
         shutil.rmtree(tmp)
     try:
-        _build_template(tmp, ds_a, names, union, data_vars, group_a, block_shape, attrs, spacing)
-        counts = fill_merged(tmp, a, b, group_a, group_b, names, union, pos_a, pos_b, outputs, block_shape, prefer,
-                             rtol)
+        counts = build(tmp)
         try:
             os.rename(tmp, out_path)
         except OSError:
@@ -330,8 +368,4 @@ def merge_stores(a: str | os.PathLike[str], b: str | os.PathLike[str], output: s
     except BaseException:
         shutil.rmtree(tmp, ignore_errors=True)
         raise
-    skipped = tuple(p for p in (a, b) if metadata.has_node(Path(p) / metadata.POINTS_GROUP))
-    if skipped:
-        log.warning("off-grid points of %s were not carried over into %s", ", ".join(skipped), out_path)
-    return MergeReport(output=str(out_path), total=int(np.prod([len(union[n]) for n in names])),
-                       points_not_merged=skipped, **counts)
+    return counts
