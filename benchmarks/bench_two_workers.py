@@ -10,7 +10,10 @@ work (shallow_cap pressure points with the full analysis, the default settings):
 2. the sweep: ``run_sweep`` with ``executor=local`` and 1 and 2 worker processes (new store each,
    reuse off, cluster start included); sweep ratio = wall of 1 worker / wall of 2 workers, and the
    same with the cluster start (measured beside it) taken off both;
-3. the sweep ratio as a fraction of the limit (1.0: two workers reach what two processes reach).
+3. the sweep ratio as a fraction of the limit (1.0: two workers reach what two processes reach);
+4. the CPU seconds of each sweep, its worker processes included: on a machine whose load changes
+   during the run, equal CPU for 1 and 2 workers shows the engine adds no work per worker even when
+   the wall-time ratios are noise.
 
 Runs alternate (limit, sweeps, limit, sweeps ...) ``--repeat`` times and the medians are printed,
 since other processes' load changes during the run. Prints the load average at start and end.
@@ -22,6 +25,7 @@ from __future__ import annotations
 
 import argparse
 import os
+import resource
 import statistics
 import subprocess
 import sys
@@ -88,8 +92,14 @@ def measure_limit(folder: Path, points: int) -> tuple[float, float]:
     return one, two
 
 
-def measure_sweeps(folder: Path, points: int, run: int) -> tuple[float, float, float]:
-    """Wall seconds of the sweep on 1 and 2 local worker processes, and of starting + closing 2 workers."""
+def _cpu_children() -> float:
+    use = resource.getrusage(resource.RUSAGE_CHILDREN)
+    return use.ru_utime + use.ru_stime
+
+
+def measure_sweeps(folder: Path, points: int, run: int) -> tuple[float, float, float, list[float]]:
+    """Wall seconds of the sweep on 1 and 2 local worker processes, of starting + closing 2 workers, and
+    the CPU seconds of each sweep (its process and the worker processes it started)."""
     code = textwrap.dedent("""\
         import sys, time
         from sweepshell import run_sweep
@@ -106,18 +116,20 @@ def measure_sweeps(folder: Path, points: int, run: int) -> tuple[float, float, f
           shell_parameter: {{linspace: [4, 20, {points}]}}
         block: {{points: 25}}
         """))
-    walls = []
+    walls, cpus = [], []
     for workers in (1, 2):
+        cpu0 = _cpu_children()
         out = subprocess.run([sys.executable, "-c", code, str(sweep), str(workers),
                               str(folder / f"s{run}-{workers}.zarr")], env=_env(), cwd=folder, check=True,
                              capture_output=True, text=True)
         walls.append(float(out.stdout.split()[-1]))
+        cpus.append(_cpu_children() - cpu0)
     start = ("import time; from sweepshell.engine.executors import start_client; from sweepshell.plan import "
              "ExecutorSpec; t=time.perf_counter(); c,k=start_client(ExecutorSpec('local', 2)); c.close(); k.close(); "
              "print(time.perf_counter()-t)")
     out = subprocess.run([sys.executable, "-c", start], env=_env(), cwd=folder, check=True, capture_output=True,
                          text=True)
-    return walls[0], walls[1], float(out.stdout.split()[-1])
+    return walls[0], walls[1], float(out.stdout.split()[-1]), cpus
 
 
 def main() -> None:
@@ -131,13 +143,14 @@ def main() -> None:
         folder = Path(tmp)
         for run in range(args.repeat):
             one, two = measure_limit(folder, args.points)
-            w1, w2, cluster = measure_sweeps(folder, args.points, run)
+            w1, w2, cluster, cpus = measure_sweeps(folder, args.points, run)
             limits.append(one / two)
             ratios.append(w1 / w2)
             net_ratios.append((w1 - cluster) / max(w2 - cluster, 1e-9))
             print(f"[run {run + 1}] limit: 1 process {one:.2f} s, 2 processes {two:.2f} s -> {one / two:.2f}x; "
                   f"sweep: 1 worker {w1:.2f} s, 2 workers {w2:.2f} s -> {w1 / w2:.2f}x "
-                  f"({net_ratios[-1]:.2f}x without the {cluster:.2f} s cluster start)")
+                  f"({net_ratios[-1]:.2f}x without the {cluster:.2f} s cluster start); CPU of the sweeps "
+                  f"{cpus[0]:.1f} s and {cpus[1]:.1f} s (equal: the second worker adds no work)")
     limit, ratio, net = (statistics.median(v) for v in (limits, ratios, net_ratios))
     print(f"[result] {args.points} points: two processes reach {limit:.2f}x one; two workers {ratio:.2f}x one worker "
           f"= {ratio / limit:.0%} of the limit ({net / limit:.0%} without the cluster start)")
