@@ -21,15 +21,9 @@ ALLOWED: dict[str, int] = {
     # not yet split: the two new models and the figure, export and store work landed with these
     "sweepshell/models/cap_postbuckling/branches.py:follow_cap": 163,
     "sweepshell/models/cap_postbuckling/operators.py": 426,
-    "sweepshell/models/curved_strip/model.py": 423,
-    # foundation_strip flexure and the plots changed on other branches meanwhile
+    # foundation_strip flexure changed on another branch meanwhile
     "sweepshell/models/foundation_sheet/model.py": 432,
     "sweepshell/models/foundation_strip/flexure.py:compute_flexure": 83,
-    "sweepshell/plot/paths.py:draw_load_paths": 136,
-    "sweepshell/plot/regime_map.py": 587,
-    "sweepshell/plot/regime_map.py:draw_output_lines": 90,
-    "sweepshell/plot/regime_map.py:draw_regime_map": 153,
-    "sweepshell/plot/report.py:write_report": 87,
 }
 
 #: phrases that narrate past versions instead of stating what the code is (history goes to theory.md or
@@ -41,6 +35,12 @@ HISTORY = (
     r"\bused to\b",
     r"\bpreviously\b",
     r"\bformerly\b",
+    r"\b(was|were|has been|have been) (changed|replaced|rewritten|renamed)\b",
+    r"\b(in|since|until|than) (an? |the )?(earlier|older|previous|last) (version|release|code)s?\b",
+    r"\b(earlier|older|previous) versions?\b",
+    r"\bthe old (code|version|solver|implementation|behaviou?r)\b",
+    r"\bmeasured on\b",
+    r"\b(on|of) (this|my|our) machine\b",
 )
 
 
@@ -94,6 +94,8 @@ def test_no_version_history_in_the_package():
 def test_history_patterns_catch_narration():
     # the patterns must be able to fail: each example line is caught
     examples = ("version 1.8 reported n = 5", "before version 1.9 it stalled", "step 0.25 (was 0.1)",
-                "this used to be slower", "previously the grid was plain")
+                "this used to be slower", "previously the grid was plain", "the tolerance was changed to 1e-8",
+                "slower than the previous release", "older versions stalled here", "the old solver missed it",
+                "measured on the mismatch strain: 4.6e-5", "2 ms per point on this machine")
     for line in examples:
         assert any(re.search(p, line, re.IGNORECASE) for p in HISTORY), line

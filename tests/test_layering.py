@@ -88,16 +88,39 @@ def upward_edges(root: Path = ROOT) -> list[str]:
     return bad
 
 
-def package_graph() -> dict[str, set[str]]:
-    """Return layer → the layers it imports (printed when this file is run as a script)."""
+def package_graph(root: Path = ROOT) -> dict[str, set[str]]:
+    """Return layer → the layers it imports, for the package at ``root`` (printed when run as a script)."""
     graph: dict[str, set[str]] = {}
-    for path in sorted(ROOT.rglob("*.py")):
-        src = layer_of(module_name(path)) or "sweepshell"
-        for _, target in imports_of(path):
+    for path in sorted(root.rglob("*.py")):
+        src = layer_of(module_name(path, root)) or "sweepshell"
+        for _, target in imports_of(path, root):
             dst = layer_of(target) or "sweepshell"
             if dst != src:
                 graph.setdefault(src, set()).add(dst)
     return graph
+
+
+def graph_lines(root: Path = ROOT) -> list[str]:
+    """Return the import graph between layers as text, bottom layer first; an upward edge is marked ``(up)``."""
+    def rank(layer: str) -> int:
+        return RANK.get("" if layer == "sweepshell" else layer, 10)
+
+    lines = []
+    for layer, targets in sorted(package_graph(root).items(), key=lambda kv: (rank(kv[0]), kv[0])):
+        shown = [t + (" (up)" if rank(t) >= rank(layer) else "") for t in sorted(targets, key=lambda t: (rank(t), t))]
+        lines.append(f"{layer:10s} -> {', '.join(shown)}")
+    return lines
+
+
+def test_the_graph_text_marks_upward_edges(tmp_path):
+    fake = tmp_path / "sweepshell"
+    for layer in ("store", "engine"):
+        (fake / layer).mkdir(parents=True)
+        (fake / layer / "__init__.py").write_text("")
+    (fake / "__init__.py").write_text("")
+    (fake / "store" / "a.py").write_text("from sweepshell.engine import run\n")
+    (fake / "engine" / "b.py").write_text("from sweepshell.store import a\n")
+    assert graph_lines(fake) == ["store      -> engine (up)", "engine     -> store"]
 
 
 def test_imports_point_down_only():
@@ -162,6 +185,8 @@ def test_registry_names_match_the_model_classes():
         assert module == f"sweepshell.models.{name}.model", f"model {name!r} lives outside its package"
 
 
-if __name__ == "__main__":  # print the import graph between layers: python tests/test_layering.py
-    for layer, targets in sorted(package_graph().items(), key=lambda kv: RANK.get(kv[0], 10)):
-        print(f"{layer:10s} -> {', '.join(sorted(targets, key=lambda t: RANK.get(t, 10)))}")
+if __name__ == "__main__":
+    # print the import graph between layers: python -m tests.test_layering [PATH/TO/sweepshell]
+    import sys
+
+    print("\n".join(graph_lines(Path(sys.argv[1]).resolve() if len(sys.argv) > 1 else ROOT)))

@@ -153,9 +153,9 @@ def get_cluster_width(m: int) -> float:
     """Return the cluster width ε (over the radius) of the clustered map on ``m`` nodes.
 
     ε ∝ 1/M² (capped at 0.04): with a node at ρ and the mean of a jumping coefficient there,
-    the error of a kinked problem is O(ε²) at a fixed share of nodes (measured on the
-    sharp-edged mismatch strain: 4.6·10⁻⁵ vs 1.8·10⁻⁴ for ε = 0.005 vs 0.01 at 64 nodes), so
-    the error falls like M⁻⁴ or faster while the smooth part keeps its nodes.
+    the error of a kinked problem is O(ε²) at a fixed share of nodes (the measurement on the
+    sharp-edged mismatch strain is in ``models/shallow_cap/theory.md``), so the error falls
+    like M⁻⁴ or faster while the smooth part keeps its nodes.
     """
     return min(0.04, 0.01 * (48.0 / m) ** 2)
 

@@ -8,6 +8,7 @@ extra dimensions (a height field over a cell) is drawn as one image per point.
 from __future__ import annotations
 
 from collections.abc import Mapping, Sequence
+from dataclasses import dataclass
 from typing import TYPE_CHECKING
 
 import numpy as np
@@ -15,15 +16,16 @@ import numpy as np
 from sweepshell.errors import QueryError
 from sweepshell.models.base import TRUSTED_STATUSES, Status
 from sweepshell.plot.layout import finish_figure
-from sweepshell.plot.regime_map import MapResult
 from sweepshell.plot.style import OKABE_ITO, axis_label, describe_value, make_figure, study_subtitle, title_lines
 from sweepshell.plot.units import is_integer_valued, set_axis_format
-from sweepshell.query.slicing import slice_sweep
+from sweepshell.plot.views import MapResult
+from sweepshell.query.slicing import SweepSlice, slice_sweep
 from sweepshell.query.table import describe_fields, regime_names
 from sweepshell.store import metadata
 
 if TYPE_CHECKING:
     import xarray as xr
+    from matplotlib.axes import Axes
 
 __all__ = ["draw_load_paths", "parse_point"]
 
@@ -87,90 +89,14 @@ def draw_load_paths(ds: xr.Dataset, points: Sequence[Mapping[str, str]], *, y: s
             raise QueryError(f"{y_name} is a field over two dimensions and is drawn as an image; leave out --x",
                              field="x", value=x_name)
         return draw_fields(ds, points, y_name, caution=caution)
-    y_dim = _component_dim(ds, y_name, info.axes)
-    if y_dim is not None:
-        components = [str(c) for c in ds[y_dim].values]
-        if y_comp is None:
-            y_comp = "load" if "load" in components else components[0]
-            if x_name is None and len(components) > 1:
-                x_name, x_comp = y_name, next(c for c in components if c != y_comp)
-    specs = [(y_name, y_comp)] + ([(x_name, x_comp)] if x_name else [])
-    for name, comp in specs:
-        dim = _component_dim(ds, name, info.axes)
-        known = [str(c) for c in ds[dim].values] if dim else []
-        if (comp is None) != (dim is None) or (comp is not None and comp not in known):
-            allowed = ", ".join(f"{name}:{c}" for c in known) if known else name
-            raise QueryError(f"{name}{':' + comp if comp else ''} does not name one sampled curve; use {allowed}",
-                             field="y", value=name)
-
-    def curve(view_ds: xr.Dataset, name: str, comp: str | None) -> np.ndarray:
-        values = view_ds[name]
-        if comp is not None:
-            dim = _component_dim(ds, name, info.axes)
-            values = values.sel({dim: comp})
-        return np.asarray(values.values, float).reshape(-1)
-
-    def words_of(name: str, comp: str | None) -> str:
-        return (comp or name).replace("_", " ")
-
-    if not points:
-        points = [{}]
+    curves = _Curves.resolve(ds, info.axes, y_name, y_comp, x_name, x_comp)
     fig = make_figure(7.4, 5.0)
     ax = fig.add_axes((0.085, 0.22, 0.88, 0.62))
-    trusted = sorted(int(s) for s in TRUSTED_STATUSES)
-    regimes = ("none", *regime_names(ds))
-    notes: list[str] = []
-    drawn = 0
-    marked = False
-    view = None
-    xs: list[np.ndarray] = []
-    ys: list[np.ndarray] = []
-    for k, at in enumerate(points):
-        view = slice_sweep(ds, [], at)
-        status = int(view.ds[metadata.STATUS_VAR].values)
-        where = ", ".join(c.describe().split(" (")[0] for c in view.cuts) or "the only point"
-        if status not in trusted:
-            notes.append(f"no trusted path at {where} (status {Status(status).name})")
-            continue
-        yv = curve(view.ds, y_name, y_comp)
-        xv = curve(view.ds, x_name, x_comp) if x_name else np.arange(yv.size, dtype=float)
-        regime = regimes[int(view.ds[metadata.REGIME_VAR].values) + 1]
-        label = ", ".join(describe_value(c.name, c.value, dict(ds[c.name].attrs)) for c in view.cuts
-                          if ds.sizes[c.name] > 1)
-        color = OKABE_ITO[(k + 5) % len(OKABE_ITO)]
-        ax.plot(xv, yv, color=color, linewidth=1.6, marker="o", markersize=2.5,
-                label=f"{label or where}  ({regime.replace('_', ' ')})")
-        xs.append(xv)
-        ys.append(yv)
-        critical = _critical_point(view.ds, xv, yv, y_comp, x_name is not None and x_comp is not None)
-        if critical is not None:
-            ax.plot(*critical, marker="*", markersize=13, color=color, markeredgecolor="#1A1A1A",
-                    markeredgewidth=0.8, linestyle="none", zorder=5)
-            marked = True
-        drawn += 1
-        notes.extend(f"point {k + 1}: {c.describe()}" for c in view.cuts)
-    if drawn == 0:
-        raise QueryError("none of the chosen points has a trusted result; pick other points (see `sweepshell "
-                         "query STORE --all`)", field="at")
-    sample_dim = next(str(d) for d in ds[y_name].dims if d not in info.axes and d != _component_dim(ds, y_name,
-                                                                                                   info.axes))
-    all_x, all_y = np.concatenate(xs), np.concatenate(ys)
-    y_units = str(ds[y_name].attrs.get("units", "")) if y_comp is None else ""
-    shown_y = set_axis_format(ax.yaxis, y_units, all_y[np.isfinite(all_y)], integer=is_integer_valued(all_y))
-    ax.set_ylabel(axis_label(y_name, dict(ds[y_name].attrs), shown_y) if y_comp is None else words_of(y_name, y_comp))
-    if x_name:
-        x_units = str(ds[x_name].attrs.get("units", "")) if x_comp is None else ""
-        shown_x = set_axis_format(ax.xaxis, x_units, all_x[np.isfinite(all_x)])
-        ax.set_xlabel(axis_label(x_name, dict(ds[x_name].attrs), shown_x) if x_comp is None
-                      else words_of(x_name, x_comp))
-    else:
-        set_axis_format(ax.xaxis, "", all_x, integer=True)
-        ax.set_xlabel(f"{sample_dim.replace('_', ' ')} (index)")
-    ax.grid(True, color="#E5E5E5", linewidth=0.6)
-    ax.tick_params(direction="out", labelsize=9)
-    what = f"{y_name.replace('_', ' ')}: {words_of(y_name, y_comp)}" if y_comp else words_of(y_name, None)
-    if x_name:
-        what += f" against {words_of(x_name, x_comp)}"
+    view, notes, xs, ys, marked = _draw_paths(ax, ds, curves, points or [{}])
+    _label_path_axes(ax, ds, curves, np.concatenate(xs), np.concatenate(ys))
+    what = f"{y_name.replace('_', ' ')}: {_words(y_name, curves.y_comp)}" if curves.y_comp else _words(y_name, None)
+    if curves.x_name:
+        what += f" against {_words(curves.x_name, curves.x_comp)}"
     ax.set_title(title_lines(dict(ds.attrs), what, study_subtitle(ds)), fontsize=10, loc="left")
     if marked:
         from matplotlib.lines import Line2D
@@ -182,8 +108,113 @@ def draw_load_paths(ds: xr.Dataset, points: Sequence[Mapping[str, str]], *, y: s
     else:
         ax.legend(fontsize=8.5, frameon=True, framealpha=0.9, edgecolor="#CCCCCC", loc="best")
     finish_figure(fig, caution=caution)
-    assert view is not None
     return MapResult(fig, view, tuple(notes))
+
+
+def _words(name: str, comp: str | None) -> str:
+    return (comp or name).replace("_", " ")
+
+
+@dataclass(frozen=True)
+class _Curves:
+    """The curves a load-path figure draws: ``y`` against ``x`` (the sample index when ``x_name`` is None)."""
+
+    axes: tuple[str, ...]
+    y_name: str
+    y_comp: str | None
+    x_name: str | None
+    x_comp: str | None
+
+    @classmethod
+    def resolve(cls, ds: xr.Dataset, axes: Sequence[str], y_name: str, y_comp: str | None, x_name: str | None,
+                x_comp: str | None) -> _Curves:
+        """Fill in the default components (``load`` against the other one) and check each names one curve."""
+        y_dim = _component_dim(ds, y_name, axes)
+        if y_dim is not None:
+            components = [str(c) for c in ds[y_dim].values]
+            if y_comp is None:
+                y_comp = "load" if "load" in components else components[0]
+                if x_name is None and len(components) > 1:
+                    x_name, x_comp = y_name, next(c for c in components if c != y_comp)
+        specs = [(y_name, y_comp)] + ([(x_name, x_comp)] if x_name else [])
+        for name, comp in specs:
+            dim = _component_dim(ds, name, axes)
+            known = [str(c) for c in ds[dim].values] if dim else []
+            if (comp is None) != (dim is None) or (comp is not None and comp not in known):
+                allowed = ", ".join(f"{name}:{c}" for c in known) if known else name
+                raise QueryError(f"{name}{':' + comp if comp else ''} does not name one sampled curve; use {allowed}",
+                                 field="y", value=name)
+        return cls(tuple(axes), y_name, y_comp, x_name, x_comp)
+
+    def values(self, ds: xr.Dataset, view_ds: xr.Dataset, name: str, comp: str | None) -> np.ndarray:
+        """Return one sampled curve of one point (its component selected)."""
+        values = view_ds[name]
+        if comp is not None:
+            dim = _component_dim(ds, name, self.axes)
+            values = values.sel({dim: comp})
+        return np.asarray(values.values, float).reshape(-1)
+
+
+def _draw_paths(ax: Axes, ds: xr.Dataset, curves: _Curves, points: Sequence[Mapping[str, str]]) -> tuple[
+        SweepSlice, list[str], list[np.ndarray], list[np.ndarray], bool]:
+    """Draw the path of each trusted point, its critical point starred; return the last view, notes and curves."""
+    trusted = sorted(int(s) for s in TRUSTED_STATUSES)
+    regimes = ("none", *regime_names(ds))
+    notes: list[str] = []
+    marked = False
+    view = None
+    xs: list[np.ndarray] = []
+    ys: list[np.ndarray] = []
+    for k, at in enumerate(points):
+        view = slice_sweep(ds, [], at)
+        status = int(view.ds[metadata.STATUS_VAR].values)
+        where = ", ".join(c.describe().split(" (")[0] for c in view.cuts) or "the only point"
+        if status not in trusted:
+            notes.append(f"no trusted path at {where} (status {Status(status).name})")
+            continue
+        yv = curves.values(ds, view.ds, curves.y_name, curves.y_comp)
+        xv = curves.values(ds, view.ds, curves.x_name, curves.x_comp) if curves.x_name else \
+            np.arange(yv.size, dtype=float)
+        regime = regimes[int(view.ds[metadata.REGIME_VAR].values) + 1]
+        label = ", ".join(describe_value(c.name, c.value, dict(ds[c.name].attrs)) for c in view.cuts
+                          if ds.sizes[c.name] > 1)
+        color = OKABE_ITO[(k + 5) % len(OKABE_ITO)]
+        ax.plot(xv, yv, color=color, linewidth=1.6, marker="o", markersize=2.5,
+                label=f"{label or where}  ({regime.replace('_', ' ')})")
+        xs.append(xv)
+        ys.append(yv)
+        critical = _critical_point(view.ds, xv, yv, curves.y_comp,
+                                   curves.x_name is not None and curves.x_comp is not None)
+        if critical is not None:
+            ax.plot(*critical, marker="*", markersize=13, color=color, markeredgecolor="#1A1A1A",
+                    markeredgewidth=0.8, linestyle="none", zorder=5)
+            marked = True
+        notes.extend(f"point {k + 1}: {c.describe()}" for c in view.cuts)
+    if not xs:
+        raise QueryError("none of the chosen points has a trusted result; pick other points (see `sweepshell "
+                         "query STORE --all`)", field="at")
+    assert view is not None
+    return view, notes, xs, ys, marked
+
+
+def _label_path_axes(ax: Axes, ds: xr.Dataset, curves: _Curves, all_x: np.ndarray, all_y: np.ndarray) -> None:
+    """Format and label both axes: an output by its units, a component by its name, else the sample index."""
+    y_name, y_comp, x_name, x_comp = curves.y_name, curves.y_comp, curves.x_name, curves.x_comp
+    y_units = str(ds[y_name].attrs.get("units", "")) if y_comp is None else ""
+    shown_y = set_axis_format(ax.yaxis, y_units, all_y[np.isfinite(all_y)], integer=is_integer_valued(all_y))
+    ax.set_ylabel(axis_label(y_name, dict(ds[y_name].attrs), shown_y) if y_comp is None else _words(y_name, y_comp))
+    if x_name:
+        x_units = str(ds[x_name].attrs.get("units", "")) if x_comp is None else ""
+        shown_x = set_axis_format(ax.xaxis, x_units, all_x[np.isfinite(all_x)])
+        ax.set_xlabel(axis_label(x_name, dict(ds[x_name].attrs), shown_x) if x_comp is None
+                      else _words(x_name, x_comp))
+    else:
+        sample_dim = next(str(d) for d in ds[y_name].dims
+                          if d not in curves.axes and d != _component_dim(ds, y_name, curves.axes))
+        set_axis_format(ax.xaxis, "", all_x, integer=True)
+        ax.set_xlabel(f"{sample_dim.replace('_', ' ')} (index)")
+    ax.grid(True, color="#E5E5E5", linewidth=0.6)
+    ax.tick_params(direction="out", labelsize=9)
 
 
 def _critical_point(point: xr.Dataset, xv: np.ndarray, yv: np.ndarray, y_comp: str | None,

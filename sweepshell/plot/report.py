@@ -83,7 +83,7 @@ def _map_views(ds: xr.Dataset, info: Any) -> list[tuple[str, str, dict[str, str]
 
 def _line_plots(ds: xr.Dataset, info: Any) -> str:
     """Line plots of the first outputs for stores with a single numeric axis."""
-    from sweepshell.plot.regime_map import draw_output_lines
+    from sweepshell.plot.output_lines import draw_output_lines
 
     numeric = [a for a in info.axes if ds[a].dtype.kind in "fiu" and ds.sizes[a] > 1]
     if not numeric or not info.scalar_outputs:
@@ -131,24 +131,38 @@ def _shape_section(ds: xr.Dataset) -> list[str]:
 
 def write_report(ds: xr.Dataset, store_path: str) -> str:
     """Return the HTML report of a store as one self-contained string."""
-    from sweepshell.plot.regime_map import draw_regime_map
-    from sweepshell.store.points import read_count
     from sweepshell.store.summary import summarize_store
 
     info = describe_fields(ds)
     summary = summarize_store(store_path)
     attrs = dict(ds.attrs)
     title = f"{attrs.get(ATTR.sweep_name, 'sweep')}: {attrs.get(ATTR.model)} {attrs.get(ATTR.model_version)}"
+    caution = f"<div class='caution'><strong>Caution.</strong> {html.escape(CAUTION.removeprefix('Caution: '))}</div>"
     parts = [f"<!DOCTYPE html><html lang='en'><head><meta charset='utf-8'><title>{html.escape(title)}</title>"
              f"<style>{_STYLE}</style></head><body>",
              f"<h1>{html.escape(title)}</h1>",
              f"<p class='muted'>store {html.escape(store_path)} · created {html.escape(str(attrs.get(ATTR.created)))}"
              f" · sweepshell {html.escape(str(attrs.get(ATTR.tool)))}</p>",
-             f"<div class='caution'><strong>Caution.</strong> {html.escape(CAUTION.removeprefix('Caution: '))}</div>"]
+             caution]
+    parts += _computed_section(ds, info, summary, store_path)
+    parts += _maps_and_boundaries(ds, info)
+    parts.extend(_shape_section(ds))
+    parts += _extremes_section(ds, info)
+    parts.append("<h2>Provenance</h2>")
+    parts.append(f"<pre>{html.escape(str(attrs.get(ATTR.sweep_yaml, '')))}</pre>")
+    parts.append(f"<p class='muted'>model settings {html.escape(json.dumps(summary['settings']))}</p>")
+    parts.append(caution + "</body></html>")
+    return "\n".join(parts)
 
-    parts.append("<h2>What was computed</h2>")
+
+def _computed_section(ds: xr.Dataset, info: Any, summary: dict[str, Any], store_path: str) -> list[str]:
+    """What was computed: model, settings and fixed values, the axes, and the points by status."""
+    from sweepshell.store.points import read_count
+
+    attrs = dict(ds.attrs)
+    parts = ["<h2>What was computed</h2>"]
     model_rows: list[list[Any]] = [["model", attrs.get(ATTR.model)], ["model version", attrs.get(ATTR.model_version)],
-                  ["regimes", ", ".join(info.regimes)]]
+                                   ["regimes", ", ".join(info.regimes)]]
     model_rows += [[f"setting {k}", v] for k, v in summary["settings"].items()]
     model_rows += [[f"fixed {k}", v] for k, v in summary["fixed"].items()]
     parts.append(_table(["", "value"], model_rows))
@@ -165,8 +179,14 @@ def write_report(ds: xr.Dataset, store_path: str) -> str:
                  f"{'' if summary['complete'] else ' (run the sweep again to finish)'}; {off_grid} points "
                  "evaluated off the grid (refinement, boundary bisection).</p>")
     parts.append(_table(["status", "points"], counts))
+    return parts
 
-    parts.append("<h2>Regime maps</h2>")
+
+def _maps_and_boundaries(ds: xr.Dataset, info: Any) -> list[str]:
+    """Regime maps (or output lines for one numeric axis) and the vertices of the boundaries on them."""
+    from sweepshell.plot.regime_map import draw_regime_map
+
+    parts = ["<h2>Regime maps</h2>"]
     views = _map_views(ds, info)
     if not views:
         parts.append(_line_plots(ds, info))
@@ -177,29 +197,38 @@ def write_report(ds: xr.Dataset, store_path: str) -> str:
         parts.append(f"<figure><img alt='regime map over {html.escape(x)} and {html.escape(y)}' "
                      f"src='data:image/png;base64,{_png(result.figure)}'><figcaption class='muted'>"
                      f"{html.escape(cut or 'all axes shown')}</figcaption></figure>")
-        for a, b in itertools.combinations(info.regimes, 2):
-            boundary, _ = find_boundary(ds, x, y, (a, b), at=at, bisections=0)
-            if not boundary.lines:
-                continue
-            rows = []
-            for i, line in enumerate(boundary.lines):
-                for k in range(len(line.x)):
-                    rows.append([i, float(line.x[k]), float(line.y[k]), float(line.low[k]), float(line.high[k]),
-                                 (x, y)[int(line.along[k])]])
-            shown = rows[:_MAX_VERTICES]
-            more = f" (first {_MAX_VERTICES} of {len(rows)} vertices; export all with `sweepshell boundary`)" \
-                if len(rows) > _MAX_VERTICES else ""
-            boundary_sections.append(
-                f"<h3>{html.escape(a)} / {html.escape(b)}{' — ' + html.escape(cut) if cut else ''}</h3>"
-                f"<p class='muted'>{len(boundary.lines)} polyline(s){html.escape(more)}</p>"
-                + _table(["line", x, y, "bracket low", "bracket high", "bracket along"], shown))
+        boundary_sections += _boundary_tables(ds, info, x, y, at, cut)
     parts.append("<h2>Boundaries</h2>")
     parts.extend(boundary_sections or ["<p>No boundary between two regimes on these maps.</p>"])
+    return parts
 
-    parts.extend(_shape_section(ds))
 
-    parts.append("<h2>Extreme points</h2><p class='muted'>Smallest and largest value of each scalar output over "
-                 "the points with a trustworthy status.</p>")
+def _boundary_tables(ds: xr.Dataset, info: Any, x: str, y: str, at: dict[str, str], cut: str) -> list[str]:
+    """One table of vertices per pair of regimes with a boundary on this map (the first few vertices)."""
+    sections = []
+    for a, b in itertools.combinations(info.regimes, 2):
+        boundary, _ = find_boundary(ds, x, y, (a, b), at=at, bisections=0)
+        if not boundary.lines:
+            continue
+        rows = []
+        for i, line in enumerate(boundary.lines):
+            for k in range(len(line.x)):
+                rows.append([i, float(line.x[k]), float(line.y[k]), float(line.low[k]), float(line.high[k]),
+                             (x, y)[int(line.along[k])]])
+        shown = rows[:_MAX_VERTICES]
+        more = f" (first {_MAX_VERTICES} of {len(rows)} vertices; export all with `sweepshell boundary`)" \
+            if len(rows) > _MAX_VERTICES else ""
+        sections.append(
+            f"<h3>{html.escape(a)} / {html.escape(b)}{' — ' + html.escape(cut) if cut else ''}</h3>"
+            f"<p class='muted'>{len(boundary.lines)} polyline(s){html.escape(more)}</p>"
+            + _table(["line", x, y, "bracket low", "bracket high", "bracket along"], shown))
+    return sections
+
+
+def _extremes_section(ds: xr.Dataset, info: Any) -> list[str]:
+    """The smallest and largest value of each scalar output over the trusted points, and where."""
+    parts = ["<h2>Extreme points</h2><p class='muted'>Smallest and largest value of each scalar output over "
+             "the points with a trustworthy status.</p>"]
     rows = []
     for output in info.scalar_outputs:
         for label, sort in (("min", output), ("max", "-" + output)):
@@ -209,10 +238,4 @@ def write_report(ds: xr.Dataset, store_path: str) -> str:
                 where = ", ".join(f"{a} = {_fmt(row[a])}" for a in info.axes)
                 rows.append([output, label, float(row[output]), str(row["regime"]), where])
     parts.append(_table(["output", "", "value", "regime", "at"], rows) if rows else "<p>No trusted points.</p>")
-
-    parts.append("<h2>Provenance</h2>")
-    parts.append(f"<pre>{html.escape(str(attrs.get(ATTR.sweep_yaml, '')))}</pre>")
-    parts.append(f"<p class='muted'>model settings {html.escape(json.dumps(summary['settings']))}</p>")
-    parts.append(f"<div class='caution'><strong>Caution.</strong> {html.escape(CAUTION.removeprefix('Caution: '))}"
-                 "</div></body></html>")
-    return "\n".join(parts)
+    return parts

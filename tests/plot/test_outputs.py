@@ -135,14 +135,14 @@ def test_points_most_starts_miss_are_marked_multistable(column):
 
 
 def test_regime_fills_end_halfway_between_grid_points_not_in_cell_staircases():
-    from sweepshell.plot.regime_map import _bilinear_classes
+    from sweepshell.plot.map_fill import bilinear_classes
 
     # regime 1 on the points with i + j >= 3 of a 3 × 3 grid: the region ends on the diagonal through the
     # midpoints of the edges joining the two regimes, where the boundary line runs
     values = np.add.outer(np.arange(3), np.arange(3)) >= 3
     grid = np.arange(3.0)
     centres = np.linspace(0.01, 1.99, 100)
-    raster = _bilinear_classes(grid, grid, values.astype(float), centres, centres)
+    raster = bilinear_classes(grid, grid, values.astype(float), centres, centres)
     u, v = np.meshgrid(centres, centres, indexing="ij")
     clear = np.abs(u + v - 2.5) > 0.1
     np.testing.assert_array_equal(raster[clear], (u + v > 2.5)[clear].astype(float))

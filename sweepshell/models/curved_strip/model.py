@@ -19,8 +19,8 @@ k = κw²/h, m = M w/(D h); the only numbers left are ν and the curvature param
 c = w²/(R_t h) (the strip's "shell parameter"; c²/60 is the stiffening at small loads).
 
 Numerics: a Ritz expansion of the section in even Legendre polynomials (``modes``; see
-:mod:`.section`). For fixed k the energy is a positive definite quadratic in the section,
-so each curvature has exactly one equilibrium section, found by one linear solve; the
+:mod:`.section`, the path in :mod:`.moment_path`). For fixed k the energy is a positive
+definite quadratic in the section, so each curvature has exactly one equilibrium section, found by one linear solve; the
 moment–curvature path is sampled on a geometric grid of ``curvature_samples`` curvatures
 from k = 0.05 to k = ``curvature_range``·(c + 20), the limit point is bracketed by the sign
 change of dm/dk and refined by regula falsi, the fold by the Maxwell construction (min Û/k
@@ -75,26 +75,15 @@ from typing import Any, ClassVar
 import numpy as np
 
 from sweepshell.models.base import BatchResult, OutputSpec, ParameterSpec, Status, SweepModel
-from sweepshell.models.curved_strip.section import (
-    find_fold,
-    find_peak,
-    make_section_operators,
-    solve_sections,
-    trace_section_shapes,
-)
+from sweepshell.models.curved_strip.cantilever import solve_cantilever
+from sweepshell.models.curved_strip.moment_path import solve_paths
+from sweepshell.models.curved_strip.section import make_section_operators, trace_section_shapes
 
 __all__ = ["CurvedStripModel"]
 
 _INF = math.inf
 _STATIONS = 41
 _LOADS = ("bend_opposite", "bend_equal", "cantilever")
-#: curvature k = κw²/h added to the natural curvature c when sizing the path (plate bending of a flat strip)
-_FLAT_RANGE = 20.0
-#: Gauss points along a cantilever for its tip deflection
-_CANTILEVER_GAUSS = 32
-#: first curvature k = κw²/h of the search grid
-_GRID_START = 0.05
-_NEWTON_STEPS = 30
 
 
 class CurvedStripModel(SweepModel):
@@ -151,8 +140,7 @@ class CurvedStripModel(SweepModel):
                       bounds=(0.0, _INF), closed=(True, False), symbol="P"),
     )
     regimes: ClassVar[tuple[str, ...]] = ("stiff", "folded", "collapsed")
-    # measured (benchmarks/bench_curved_strip.py, one core, default settings): 1.2 ms per bending point and
-    # 1.8-2.7 ms per cantilever point in blocks of 400; 15 ms for a single-point call
+    # seconds per point at the default settings, for block sizing (the measurement: theory.md, Speed)
     cost_hint: ClassVar[float] = 0.002
 
     def __init__(self, *, modes: int = 24, curvature_range: float = 2.5, curvature_samples: int = 160,
@@ -259,7 +247,7 @@ class CurvedStripModel(SweepModel):
         sign = -p  # public sign: opposite sense positive
         keys = np.column_stack([c[work], nu[work], p[work]])
         uniq, inverse = np.unique(keys, axis=0, return_inverse=True)
-        paths = _solve_paths(s, uniq[:, 0], uniq[:, 1], uniq[:, 2])
+        paths = solve_paths(s, uniq[:, 0], uniq[:, 1], uniq[:, 2])
         at = inverse.reshape(-1)
         d_mod = e_mod * h**3 / (12.0 * (1.0 - nu**2))
         m_unit = (d_mod * h / w)[work]
@@ -286,8 +274,8 @@ class CurvedStripModel(SweepModel):
         regime[work] = np.where(bending & has_peak, 1, 0)
         cant = work[~bending]
         if cant.size:
-            self._solve_cantilever(inputs, cant, paths, inverse.reshape(-1)[~bending], m_unit[~bending],
-                                   k_unit[~bending], out, status, regime)
+            solve_cantilever(s, inputs, cant, paths, inverse.reshape(-1)[~bending], m_unit[~bending],
+                             k_unit[~bending], out, status, regime)
         status[work[~converged]] = Status.not_converged
         # never pass a NaN off as a result: a trusted point missing a required output is a failure
         trusted = (status == Status.ok) | (status == Status.no_instability)
@@ -300,124 +288,3 @@ class CurvedStripModel(SweepModel):
         for v in out.values():
             v[~trusted] = np.nan
         return res
-
-    def _solve_cantilever(self, inputs: Mapping[str, np.ndarray], idx: np.ndarray, paths: dict[str, np.ndarray],
-                          at: np.ndarray, m_unit: np.ndarray, k_unit: np.ndarray, out: dict[str, np.ndarray],
-                          status: np.ndarray, regime: np.ndarray) -> None:
-        s = self._settings
-
-        def get(name: str) -> np.ndarray:
-            return np.asarray(inputs[name], dtype=float)[idx]
-
-        w, h, length = get("width"), get("thickness"), get("length")
-        q = get("density") * get("gravity") * h * w
-        tip = get("tip_load")
-        m_peak = paths["m_peak"][at] * m_unit
-        # the positive root of qL²/2 + PL = M_peak, written without cancellation for large P
-        with np.errstate(invalid="ignore"):
-            l_crit = 2.0 * m_peak / (np.sqrt(tip**2 + 2.0 * q * m_peak) + tip)
-        out["critical_length"][idx] = l_crit
-        collapsed = length > l_crit  # False where l_crit is NaN (no limit point)
-        regime[idx] = np.where(collapsed, 2, 0)
-        holds = ~collapsed
-        if not holds.any():
-            return
-        sel = np.nonzero(holds)[0]
-        xg, wg = np.polynomial.legendre.leggauss(_CANTILEVER_GAUSS)
-        xi = 0.5 * (xg + 1.0)[None, :] * length[sel, None]  # distance from the tip
-        weights = 0.5 * wg[None, :] * length[sel, None]
-        target = (0.5 * q[sel, None] * xi**2 + tip[sel, None] * xi) / m_unit[sel, None]
-        u = at[sel]
-        k_top = np.where(paths["has_peak"][u], paths["k_peak"][u], paths["k_max"][u])
-        m_top = np.where(paths["has_peak"][u], paths["m_peak"][u], paths["m_max"][u])
-        beyond = (target > m_top[:, None]).any(axis=1)
-        k = _invert_moment(s["modes"], paths["c"][u], paths["nu"][u], paths["p"][u],
-                           np.minimum(target, m_top[:, None]), k_top, paths["gain"][u] * (1.0 - paths["nu"][u] ** 2))
-        kappa = k * k_unit[sel, None]
-        out["tip_deflection"][idx[sel]] = np.sum(kappa * xi * weights, axis=1)
-        rotation = np.sum(kappa * weights, axis=1)
-        too_steep = beyond | (rotation > s["max_tip_rotation"])
-        status[idx[sel[too_steep]]] = Status.outside_validity
-
-
-def _invert_moment(modes: int, c: np.ndarray, nu: np.ndarray, p: np.ndarray,
-                   clipped: np.ndarray, k_top: np.ndarray, stiffness0: np.ndarray) -> np.ndarray:
-    """Return k with m(k) = target on the rising branch [0, k_top] (bracketed Newton, vectorised).
-
-    ``clipped`` is the target limited to the branch's top; rows of shape ``(n, G)``.
-    """
-    ops = make_section_operators(modes)
-    shape = clipped.shape
-    cc, nn, pp = (np.broadcast_to(v[:, None], shape) for v in (c, nu, p))
-    lo = np.zeros(shape)
-    hi = np.broadcast_to(k_top[:, None], shape).copy()
-    k = np.minimum(clipped / stiffness0[:, None], hi)
-    active = np.ones(shape, dtype=bool)
-    for _ in range(_NEWTON_STEPS):
-        st = solve_sections(ops, cc, nn, pp, k)
-        f = st.moment - clipped
-        lo = np.where(active & (f < 0.0), k, lo)
-        hi = np.where(active & (f >= 0.0), k, hi)
-        with np.errstate(divide="ignore", invalid="ignore"):
-            step = k - f / st.tangent
-        inside = (st.tangent > 0.0) & (step > lo) & (step < hi)
-        k_new = np.where(active, np.where(inside, step, 0.5 * (lo + hi)), k)
-        # a converged entry stops moving, so its answer never depends on the batch
-        active &= np.abs(k_new - k) > 1e-13 * np.maximum(k, 1.0)
-        k = k_new
-        if not active.any():
-            break
-    return k
-
-
-def _solve_paths(s: dict[str, Any], c: np.ndarray, nu: np.ndarray, p: np.ndarray) -> dict[str, np.ndarray]:
-    """Follow the moment–curvature path of each distinct (c, ν, sense); non-dimensional results."""
-    ops = make_section_operators(s["modes"])
-    m = c.size
-    k_max = s["curvature_range"] * (c + _FLAT_RANGE)
-    # geometric from k = 0.05: the limit point sits at k ≈ 4–6 whatever c, the fold near k = c
-    grid = np.exp(np.linspace(np.log(_GRID_START), np.log(k_max), s["curvature_samples"], axis=-1))
-    cc, nn, pp = (v[:, None] for v in (c, nu, p))
-    dense = solve_sections(ops, cc, nn, pp, grid)
-    initial = solve_sections(ops, c, nu, p, np.zeros(m))
-    gain = initial.tangent / (1.0 - nu**2)
-    k_peak, has_peak = find_peak(ops, c, nu, p, grid, dense.tangent)
-    k_fold, _ = find_fold(ops, c, nu, p, grid, dense.moment, dense.energy, k_peak)
-    nan_k = np.where(np.isfinite(k_peak), k_peak, 0.0)
-    nan_f = np.where(np.isfinite(k_fold), k_fold, 0.0)
-    peak = solve_sections(ops, c, nu, p, nan_k)
-    fold = solve_sections(ops, c, nu, p, nan_f)
-    m_peak = np.where(has_peak, peak.moment, np.nan)
-    m_fold = np.where(np.isfinite(k_fold), fold.moment, np.nan)
-    # discretisation error: the same moments on the leading 3/4 of the basis
-    low = max(2, (3 * s["modes"]) // 4)
-    probe = np.stack([nan_k, nan_f, k_max], axis=1)
-    full = solve_sections(ops, cc, nn, pp, probe).moment
-    coarse = solve_sections(make_section_operators(low), cc, nn, pp, probe).moment
-    with np.errstate(invalid="ignore", divide="ignore"):
-        change = np.abs(coarse - full) / np.maximum(np.abs(full), 1e-300)
-    change = np.where(probe > 0.0, change, 0.0)
-    # both bases miss an edge layer thinner than the basis can represent: require it resolved outright
-    layer = (12.0 * (1.0 - nu**2)) ** -0.25 / np.sqrt(np.maximum(np.maximum(nan_f, c), 1.0))
-    resolved = layer * (2.0 * s["modes"]) ** 2 >= s["layer_resolution"]
-    converged = np.all(change <= s["tolerance"], axis=1) & resolved
-    # stored path: samples even in the arc length of (k/k_end, m/m_top), re-solved exactly
-    k_end = np.where(np.isfinite(k_fold), np.minimum(2.0 * nan_f, k_max), k_max)
-    knots = np.concatenate([np.zeros((m, 1)), grid], axis=1)
-    moments = np.concatenate([np.zeros((m, 1)), dense.moment], axis=1)
-    inside = knots <= k_end[:, None]
-    top = np.max(np.where(inside, moments, 0.0), axis=1)
-    dk = np.diff(knots, axis=1) / k_end[:, None]
-    dm = np.diff(moments, axis=1) / top[:, None]
-    seg = np.where(inside[:, 1:], np.hypot(dk, dm), 0.0)
-    arc = np.concatenate([np.zeros((m, 1)), np.cumsum(seg, axis=1)], axis=1)
-    want = np.linspace(0.0, 1.0, s["path_samples"])[None, :] * arc[:, -1:]
-    path_k = np.stack([np.interp(want[i], arc[i], np.minimum(knots[i], k_end[i])) for i in range(m)])
-    path_m = solve_sections(ops, cc, nn, pp, path_k).moment
-    natural = c[:, None] * ops.natural[None, :]
-    a_peak = np.where(has_peak[:, None], peak.modal, np.nan)
-    a_fold = np.where(np.isfinite(k_fold)[:, None], fold.modal, np.nan)
-    return {"c": c, "nu": nu, "p": p, "gain": gain, "k_peak": k_peak, "m_peak": m_peak, "has_peak": has_peak,
-            "k_fold": k_fold, "m_fold": m_fold, "converged": converged, "path_k": path_k, "path_m": path_m,
-            "a_natural": natural, "a_peak": a_peak, "a_fold": a_fold, "k_max": k_max,
-            "m_max": dense.moment[:, -1]}
