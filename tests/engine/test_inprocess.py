@@ -78,7 +78,7 @@ def test_in_process_seconds_must_be_a_number(workdir, capsys):
 
 def test_refine_and_boundary_evaluate_in_this_process(store, monkeypatch):
     """``refine`` and ``boundary`` evaluations run the model here: no cluster is ever started for them."""
-    import sweepshell.engine.executors as executors
+    from sweepshell.engine import executors
     from sweepshell.engine.evaluate import store_evaluator
     from sweepshell.engine.refine import refine_store
     from sweepshell.query.boundary import find_boundary
