@@ -12,8 +12,8 @@ work (shallow_cap pressure points with the full analysis, the default settings):
    same with the cluster start (measured beside it) taken off both;
 3. the sweep ratio as a fraction of the limit (1.0: two workers reach what two processes reach);
 4. the CPU seconds of each sweep, its worker processes included: on a machine whose load changes
-   during the run, equal CPU for 1 and 2 workers shows the engine adds no work per worker even when
-   the wall-time ratios are noise.
+   during the run these stay meaningful when the wall-time ratios do not; their difference is what a
+   second worker process costs (its imports, kernel loading and operator caches).
 
 Runs alternate (limit, sweeps, limit, sweeps ...) ``--repeat`` times and the medians are printed,
 since other processes' load changes during the run. Prints the load average at start and end.
@@ -150,7 +150,7 @@ def main() -> None:
             print(f"[run {run + 1}] limit: 1 process {one:.2f} s, 2 processes {two:.2f} s -> {one / two:.2f}x; "
                   f"sweep: 1 worker {w1:.2f} s, 2 workers {w2:.2f} s -> {w1 / w2:.2f}x "
                   f"({net_ratios[-1]:.2f}x without the {cluster:.2f} s cluster start); CPU of the sweeps "
-                  f"{cpus[0]:.1f} s and {cpus[1]:.1f} s (equal: the second worker adds no work)")
+                  f"{cpus[0]:.1f} s and {cpus[1]:.1f} s (the difference: what the second worker process adds)")
     limit, ratio, net = (statistics.median(v) for v in (limits, ratios, net_ratios))
     print(f"[result] {args.points} points: two processes reach {limit:.2f}x one; two workers {ratio:.2f}x one worker "
           f"= {ratio / limit:.0%} of the limit ({net / limit:.0%} without the cluster start)")
