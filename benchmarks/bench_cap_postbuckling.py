@@ -51,7 +51,7 @@ def main() -> None:
     out = res.outputs  # type: ignore[attr-defined]
     print(f"apex path to 20 h, lambda = 20 (default K = {post.settings['harmonics']}): {t_post:.2f} s per point "
           f"(target 2 s); shallow_cap scan alone {t_base:.2f} s, ratio {t_post / t_base:.1f}")
-    print(f"  n = {out['wave_number'][0]:.0f}, bifurcation load {out['bifurcation_load'][0]:.4f}, "
+    print(f"  n = {out['branch_wave_number'][0]:.0f}, bifurcation load {out['bifurcation_load'][0]:.4f}, "
           f"load at the last path point (δ ≥ 20 h) {out['load_path'][0, -1, 0]:.4f}, ridges {out['ridges'][0]:.0f}")
     nodes, _ = choose_grid(20.0, True, 0.0, 2.0, 0)
     sizes, times = [], []

@@ -32,9 +32,15 @@ RANK = {
 MODEL_SEAM = ("sweepshell.models.base", "sweepshell.errors", "sweepshell.numerics")
 
 #: declared uses of another model's public code (stated in the using model's theory.md): cap_postbuckling
-#: takes shallow_cap's asymmetric scan (its model class) and its cos(n theta) mode operators
+#: takes shallow_cap's asymmetric scan (its model class), its cos(n theta) mode operators and stability
+#: determinants, its axisymmetric problem's pieces (point-force slope, eigenstrain stress) and its mismatch grid rule
 MODEL_USES = {"cap_postbuckling": ("sweepshell.models.shallow_cap.model.ShallowCapModel",
-                                   "sweepshell.models.shallow_cap.modes.build_mode_operators")}
+                                   "sweepshell.models.shallow_cap.modes.build_mode_operators",
+                                   "sweepshell.models.shallow_cap.modes.compute_mode_determinants",
+                                   "sweepshell.models.shallow_cap.problem.build_problem",
+                                   "sweepshell.models.shallow_cap.kernels.eigenstrain_stress",
+                                   "sweepshell.models.shallow_cap.kernels.singular_slope",
+                                   "sweepshell.models.shallow_cap.grids.get_mismatch_nodes")}
 
 #: the query layer only reads: it never runs a model (the registry builds models) nor writes a store
 QUERY_FORBIDDEN = ("sweepshell.models", "sweepshell.store.writer", "sweepshell.store.merge",

@@ -2,16 +2,18 @@
 
 Steps (see ``theory.md``):
 
-1. continue the axisymmetric path (the ``K = 0`` problem) by pseudo-arclength from the
-   unloaded cap, watching the sign of the determinant of the harmonic-``n`` block of the
-   Jacobian (at an axisymmetric state the harmonics decouple, so that block is the ``cos nθ``
-   stability operator) and the load component of the tangent (limit points);
-2. refine the first sign change by regula falsi along the arc;
+1. trace the axisymmetric path (:mod:`.fundamental`), watching the ``cos nθ`` stability
+   determinant and the load component of the tangent (limit points);
+2. refine the first sign change along the arc: the bifurcation load;
 3. switch branches: predictor along the null vector of the harmonic-``n`` block, corrected on
    the arc ``tᵀW(z − z_b) = s`` (which the axisymmetric branch cannot meet), then
    pseudo-arclength on the ``K``-harmonic problem until the apex deflection reaches
-   ``max_indentation``;
+   ``max_indentation``. A branch that rejoins the axisymmetric path is followed on along it;
 4. put the last point exactly on ``δ/h = max_indentation`` and measure the shape there.
+
+Under an apex force the axisymmetric path and the bifurcation load are the point force's
+(``shallow_cap``'s); the branch is that of the force spread over a small Gaussian contact,
+whose collocated ``cos nθ`` operators are well posed (``theory.md``).
 """
 
 from __future__ import annotations
@@ -21,18 +23,35 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from sweepshell.models.cap_postbuckling.operators import DenseBordered, HarmonicCapProblem
-from sweepshell.numerics.arc_refine import refine_on_arc
-from sweepshell.numerics.arclength import TRACE_DONE, correct_on_arc, trace_paths
+from sweepshell.models.cap_postbuckling.fundamental import (
+    Fundamental,
+    block_determinant,
+    embed,
+    initial_tangent,
+    mode_block,
+    point_force_determinant,
+    refine_bifurcation,
+    refine_fold,
+    trace,
+    trace_fundamental,
+    weights,
+)
+from sweepshell.models.cap_postbuckling.measure import (
+    SHAPE_ANGLES,
+    SHAPE_RADII,
+    asymmetry,
+    land_on_deflection,
+    ridge_measures,
+    shape,
+)
+from sweepshell.models.cap_postbuckling.operators import HarmonicCapProblem, Mismatch
+from sweepshell.numerics.arclength import TRACE_DONE, correct_on_arc
 
-__all__ = ["CapBranchResult", "follow_cap"]
+__all__ = ["SHAPE_ANGLES", "SHAPE_RADII", "CapBranchResult", "follow_cap"]
 
-_FIRST_STEP, _MAX_STEP, _MIN_STEP = 0.1, 0.25, 1e-7
-_SWITCH_STEP = 1e-2  # arclength of the branch-switching predictor along the critical mode
+_SWITCH_STEPS = (1e-2, 5e-3, 2e-3)  # arclengths of the branch-switching predictor along the critical mode
 _SLOPE_STEPS = (2e-3, 4e-3)  # two short arcs on the new branch whose secant slopes give its initial slope
-_ASYM_ANGLES = 16  # angles in [0, π/n] at which path points' asymmetry is measured
-_RETURN_SHARE = 0.2  # a branch whose asymmetry falls below this share of its peak has turned back
-SHAPE_RADII, SHAPE_ANGLES = 24, 72
+_RETURN_SHARE = 0.05  # a branch whose asymmetry falls below this share of its peak has rejoined the axisymmetric path
 
 
 @dataclass
@@ -53,231 +72,123 @@ class CapBranchResult:
     path: np.ndarray = field(default_factory=lambda: np.zeros((0, 3)))
     reached_end: bool = False
     load_falls: bool = False
+    rejoined: bool = False
 
 
-def _weights(pb: HarmonicCapProblem) -> np.ndarray:
-    w = np.full(pb.unknowns + 1, 1.0 / (2 * pb.size))
-    w[-1] = 1.0
-    return w
+@dataclass
+class _Cap:
+    """One cap's problems and targets (the common part of every step)."""
 
+    common: dict
+    settings: dict
+    n: int
+    target: float
+    apex: bool
+    mismatch: Mismatch | None
+    max_load: float
 
-def _embed(z0: np.ndarray, small: HarmonicCapProblem, big: HarmonicCapProblem) -> np.ndarray:
-    """Return the state ``z0`` of ``small`` (fewer harmonics) in the layout of ``big``."""
-    out = np.zeros(big.unknowns + 1)
-    nb_s, nb_b = small.block, big.block
-    out[:nb_s] = z0[:nb_s]
-    out[nb_b:nb_b + nb_s] = z0[nb_s:2 * nb_s]
-    out[-1] = z0[-1]
-    return out
+    def problem(self, harmonics: int, *, point_force: bool = False) -> HarmonicCapProblem:
+        contact = 0.0 if point_force else self.common["contact"]
+        return HarmonicCapProblem(wave_number=max(self.n, 2) if harmonics == 0 else self.n, harmonics=harmonics,
+                                  **{**self.common, "contact": contact})
 
-
-def _mode_block(pb1: HarmonicCapProblem, z1: np.ndarray) -> np.ndarray:
-    """Return the harmonic-1 block ``(2M, 2M)`` of the Jacobian of the ``K = 1`` problem at ``z1``."""
-    _, jac = pb1.evaluate(z1)
-    m, nb = pb1.size, pb1.block
-    rows = np.r_[m:2 * m, nb + m:nb + 2 * m]
-    return jac[np.ix_(rows, rows)]
-
-
-def _asymmetry(pb: HarmonicCapProblem, z: np.ndarray) -> float:
-    """Return max |ω − ω₀|/(2c) over the nodes and a fan of angles: the non-axisymmetric amplitude over h."""
-    if pb.k == 0:
-        return 0.0
-    w, _, _ = pb.split(z)
-    values = np.einsum("jab,jb->ja", pb.fw.value[1:], w[1:]) * pb.lam**2
-    theta = np.linspace(0.0, np.pi / pb.n, _ASYM_ANGLES)
-    field_ = np.cos(np.outer(theta, pb.n * np.arange(1, pb.k + 1))) @ values
-    return float(np.abs(field_).max() / (2.0 * pb.c))
-
-
-def _trace(pb: HarmonicCapProblem, z0: np.ndarray, t0: np.ndarray, settings: dict, finished, *,  # type: ignore[no-untyped-def]
-           orientation: bool) -> tuple[np.ndarray, np.ndarray, np.ndarray, int, int]:
-    w = _weights(pb)
-    hist = trace_paths(pb, z0[None], t0[None], np.zeros(1, dtype=int), w, first_step=_FIRST_STEP,
-                       max_step=_MAX_STEP, min_step=_MIN_STEP, max_points=int(settings["max_points"]),
-                       max_angle_deg=float(settings["max_turn_deg"]), tol=float(settings["tolerance"]), max_iter=8,
-                       is_finished=finished, orientation=pb.orientation if orientation else None)
-    n = int(hist.count[0])
-    return hist.z[0, :n], hist.t[0, :n], hist.step[0, :n], n, int(hist.state[0])
-
-
-def _initial_tangent(pb: HarmonicCapProblem, z0: np.ndarray) -> np.ndarray:
-    _, lin = pb.linearize(z0[None], np.zeros(1, dtype=int))
-    row = np.zeros((1, pb.unknowns + 1))
-    row[0, -1] = 1.0
-    t = lin.solve_bordered(row, np.zeros((1, pb.unknowns)), np.ones(1))[0]
-    w = _weights(pb)
-    return t / math.sqrt(float(np.sum(w * t * t)))
-
-
-def _slope(pb: HarmonicCapProblem, t: np.ndarray) -> float:
-    """Return d(load)/d(conjugate displacement) along tangent ``t`` (see :meth:`HarmonicCapProblem.conjugate`)."""
-    dd = float(pb.conjugate(t))
-    return float(pb.load(t[-1])) / dd if dd != 0.0 else math.nan
-
-
-def _land_on_deflection(pb: HarmonicCapProblem, za: np.ndarray, zb: np.ndarray, target: float,
-                        tol: float) -> np.ndarray | None:
-    """Return the state with δ/h = ``target`` between path points ``za`` and ``zb`` (Newton, bordered)."""
-    da, db = float(pb.apex_deflection(za)), float(pb.apex_deflection(zb))
-    frac = 0.5 if db == da else min(max((target - da) / (db - da), 0.0), 1.0)
-    z = za + frac * (zb - za)
-    row = np.zeros(pb.unknowns + 1)
-    row[:pb.size] = -(pb.lam**2 / (2.0 * pb.c)) * pb.apex_row
-    for _ in range(12):
-        r, jac = pb.evaluate(z)
-        lin = DenseBordered(jac[None])
-        dz = lin.solve_bordered(row[None], -r[None], np.array([target - float(pb.apex_deflection(z))]))[0]
-        z = z + dz
-        # a Newton step this small leaves an error of its square: far below the path's own tolerance
-        if np.sqrt(np.mean(dz * dz)) < max(100.0 * tol, 1e-8) * max(1.0, float(np.sqrt(np.mean(z * z)))):
-            return z
-    return None
-
-
-def _ridge(pb: HarmonicCapProblem, z: np.ndarray, contact: float) -> tuple[float, float]:
-    """Return the ridge radius (mean over θ, over a) and its relative spread over θ; NaN without an inverted region.
-
-    The ridge is where the meridional curvature of the deformed surface is most convex
-    (most negative) outside the loaded contact and the edge zone (0 < r < 0.9a); there is
-    one only where the surface inside it is inverted (concave somewhere).
-    """
-    radius = np.linspace(0.0, 0.9, 721)[1:]
-    inner = radius > min(0.3, 3.0 * contact / pb.lam)
-    theta = np.linspace(0.0, np.pi / max(pb.n, 1), 33)
-    curv = pb.curvature_profile(z, radius[inner], theta)
-    at = np.argmin(curv, axis=1)
-    full = pb.curvature_profile(z, radius, theta)
-    cut = np.searchsorted(radius, radius[inner][at])
-    inverted = all(bool((full[q, :cut[q]] > 0.0).any()) for q in range(theta.size))
-    if not inverted:
-        return math.nan, math.nan
-    where = radius[inner][at]
-    mean = float(np.mean(0.5 * (where[1:] + where[:-1])))
-    return mean, float((where.max() - where.min()) / mean)
-
-
-def _shape(pb: HarmonicCapProblem, z: np.ndarray) -> np.ndarray:
-    radius = np.linspace(0.0, 1.0, SHAPE_RADII)
-    angle = 2.0 * np.pi * np.arange(SHAPE_ANGLES) / SHAPE_ANGLES
-    coef = pb.sample(z, radius)  # (K+1, R)
-    m = max(pb.n, 1) * np.arange(pb.k + 1)
-    omega = np.einsum("jr,aj->ra", coef, np.cos(np.outer(angle, m)))
-    return -omega / (2.0 * pb.c)
+    def stop(self, deflection: float, load: float) -> bool:
+        return deflection >= self.target or deflection < -self.target or abs(load) > self.max_load
 
 
 def follow_cap(*, lam: float, nu: float, clamped: bool, immovable: bool, apex: bool, amplitude: float,
                width: float, wave_number: int, max_indentation: float, settings: dict,
-               follow_branch: bool = True) -> CapBranchResult:
+               follow_branch: bool = True, mismatch: Mismatch | None = None) -> CapBranchResult:
     """Follow one cap to ``max_indentation`` (δ/h), through its ``cos nθ`` bifurcation if it has one.
 
     ``wave_number`` 0 follows the axisymmetric path only (no bifurcation is looked for).
     ``follow_branch`` False stops after the bifurcation and the initial post-buckling slope.
-    ``settings`` are the model settings plus the grid, ``nodes_used`` and ``stretch_used``.
+    ``settings`` are the model settings plus the grid (``nodes_used``, ``stretch_used``,
+    ``centre_used``); ``mismatch`` = (direction, radius, annulus) for a mismatch load, whose
+    range ends at ``settings["max_mismatch"]`` (|e|).
     """
     s = settings
-    out = CapBranchResult()
-    nodes, stretch = int(s["nodes_used"]), float(s["stretch_used"])
-    contact = float(s["contact_width"])
     common = {"lam": lam, "nu": nu, "clamped": clamped, "immovable": immovable, "apex": apex,
-              "amplitude": amplitude, "width": width, "nodes": nodes, "stretch": stretch, "contact": contact}
-    n = int(wave_number)
-    pb0 = HarmonicCapProblem(wave_number=max(n, 2), harmonics=0, **common)  # type: ignore[arg-type]
-    pb1 = HarmonicCapProblem(wave_number=n, harmonics=1, **common) if n >= 2 else None  # type: ignore[arg-type]
-    z0 = np.zeros(pb0.unknowns + 1)
-    t0 = _initial_tangent(pb0, z0)
-    max_load = float(s["max_pressure"]) if not apex else math.inf
-    state = {"sign": None, "flipped": False, "fold": False, "logdet": 0.0}
-
-    def block_det(z: np.ndarray) -> tuple[float, float]:
-        assert pb1 is not None
-        sign, logdet = np.linalg.slogdet(_mode_block(pb1, _embed(z, pb0, pb1)))
-        return float(sign), float(logdet)
-
-    if pb1 is not None:
-        state["sign"], state["logdet"] = block_det(z0)
-
-    def finished(z_prev, z_new, t_new, rows):  # type: ignore[no-untyped-def]
-        done = np.zeros(z_new.shape[0], dtype=bool)
-        for i in range(z_new.shape[0]):
-            zn = z_new[i]
-            if t_new[i, -1] <= 0.0 and not state["fold"] and not state["flipped"]:
-                state["fold"] = True
-                if not apex:
-                    done[i] = True
-                    continue
-            watching = pb1 is not None and not (state["fold"] and not apex)
-            if watching and block_det(zn)[0] != state["sign"]:
-                state["flipped"] = True
-                done[i] = True
-                continue
-            d = float(pb0.apex_deflection(zn))
-            done[i] = d >= max_indentation or float(pb0.load(zn[-1])) > max_load or d < -max_indentation
-        return done
-
-    zs, ts, steps, count, trace_state = _trace(pb0, z0, t0, s, finished, orientation=True)
-    out.limit_first = bool(state["fold"])
-    defl = pb0.apex_deflection(zs)
-    loads = pb0.load(zs[:, -1])
-    path = [np.stack([loads, defl, np.zeros(count)], axis=1)]
-    if trace_state != TRACE_DONE:
-        out.path = path[0]
+              "amplitude": amplitude, "width": width, "nodes": int(s["nodes_used"]),
+              "stretch": float(s["stretch_used"]), "centre": float(s.get("centre_used", 0.0)),
+              "contact": float(s["contact_width"]), "mismatch": mismatch}
+    max_load = math.inf if apex else float(s["max_mismatch"] if mismatch else s["max_pressure"])
+    cap = _Cap(common, s, int(wave_number), float(max_indentation), apex, mismatch, max_load)
+    out = CapBranchResult()
+    pb0 = cap.problem(0, point_force=apex)
+    n = cap.n
+    det = None if n < 2 else (point_force_determinant(pb0, n) if apex else block_determinant(pb0, cap.problem(1)))
+    fund = trace_fundamental(pb0, det, s, cap.stop, displacement_control=apex)
+    out.limit_first = fund.fold
+    out.path = _path_of(pb0, fund.zs)
+    if not fund.done:
         return out
-    if state["fold"]:
-        limit = _refine_fold(pb0, zs, ts, steps, s)
+    if fund.fold:
+        limit = refine_fold(pb0, fund, s)
         if limit is None:
-            out.path = path[0]
             return out
         out.bifurcation_load, out.bifurcation_deflection = limit
-    if not state["flipped"]:
-        out.path = path[0]
-        if state["fold"] and not apex:
-            out.finished = True  # the cap snaps at its pressure maximum
+    if not fund.flipped:
+        if fund.fold and not apex:
+            out.finished = True  # the cap snaps at its load maximum
             return out
-        return _finish_on_axis(out, pb0, zs, s, max_indentation, contact)
-    # -- the bifurcation: refine the determinant's sign change along the last step ------------
-    assert pb1 is not None
-    w0 = _weights(pb0)
-    anchor, tangent = zs[-2][None], ts[-2][None]
-    ref = state["logdet"]
-
-    def measure(z, t, rows):  # type: ignore[no-untyped-def]
-        vals = np.empty(z.shape[0])
-        for i in range(z.shape[0]):
-            sg, ld = block_det(z[i])
-            vals[i] = sg * math.exp(min(ld - ref, 600.0))
-        return vals
-
-    g_lo = measure(zs[-2][None], None, None)
-    g_hi = measure(zs[-1][None], None, None)
-    zb, tb, _, ok = refine_on_arc(pb0, anchor, tangent, steps[-1:], g_lo, g_hi, np.zeros(1, dtype=int), w0, measure,
-                                  tol=float(s["tolerance"]), max_iter=8, iterations=40, s_tol=1e-8)
-    if not ok[0]:
-        out.path = path[0][:-1]
+        return _finish_on_axis(out, pb0, fund, cap)
+    assert det is not None
+    found = refine_bifurcation(pb0, fund, det, s)
+    if found is None:
+        out.path = out.path[:-1]
         return out
-    zb, tb = zb[0], tb[0]
+    zb, _ = found
     out.wave_number = n
-    out.bifurcation_load = float(pb0.load(zb[-1]))
-    out.bifurcation_deflection = float(pb0.apex_deflection(zb))
-    pre_slope = _slope(pb0, tb)
+    out.bifurcation_load, out.bifurcation_deflection = float(pb0.load(zb[-1])), float(pb0.apex_deflection(zb))
     # the trace stopped at the first point past the sign change: the path ends at the bifurcation instead
-    path = [np.concatenate([path[0][:-1], [[out.bifurcation_load, out.bifurcation_deflection, 0.0]]])]
-    # -- branch switching ------------------------------------------------------------------------
-    pbk = HarmonicCapProblem(wave_number=n, harmonics=int(s["harmonics"]), **common)  # type: ignore[arg-type]
-    block = _mode_block(pb1, _embed(zb, pb0, pb1))
-    _, _, vt = np.linalg.svd(block)
+    out.path = np.concatenate([out.path[:-1], [[out.bifurcation_load, out.bifurcation_deflection, 0.0]]])
+    return _follow_branch(out, cap, pb0 if not apex else None, found, follow_branch)
+
+
+def _path_of(pb: HarmonicCapProblem, zs: np.ndarray) -> np.ndarray:
+    amp = np.array([asymmetry(pb, z) for z in zs]) if pb.k else np.zeros(zs.shape[0])
+    return np.stack([pb.load(zs[:, -1]), pb.apex_deflection(zs), amp], axis=1)
+
+
+def _branch_start(cap: _Cap, pb0_exact: HarmonicCapProblem | None,
+                  found: tuple[np.ndarray, np.ndarray]) -> tuple[HarmonicCapProblem, np.ndarray, np.ndarray] | None:
+    """Return the axisymmetric problem, bifurcation state and tangent the branch starts from.
+
+    Pressure and mismatch: the refined bifurcation itself. Apex force: the bifurcation of the
+    contact-spread force, traced and refined on its own axisymmetric path.
+    """
+    if pb0_exact is not None:
+        return pb0_exact, found[0], found[1]
+    pb0 = cap.problem(0)
+    det = block_determinant(pb0, cap.problem(1))
+    fund = trace_fundamental(pb0, det, cap.settings, cap.stop, displacement_control=True)
+    if not (fund.done and fund.flipped):
+        return None
+    again = refine_bifurcation(pb0, fund, det, cap.settings)
+    return None if again is None else (pb0, again[0], again[1])
+
+
+def _critical_mode(pb0: HarmonicCapProblem, pb1: HarmonicCapProblem, pbk: HarmonicCapProblem,
+                   zb: np.ndarray) -> np.ndarray:
+    """Return the null vector of the harmonic-n block at ``zb`` in the layout of ``pbk`` (unit weighted norm)."""
+    _, _, vt = np.linalg.svd(mode_block(pb1, embed(zb, pb0, pb1)))
     phi = vt[-1]
     phi = phi * (1.0 if phi[np.argmax(np.abs(phi))] > 0 else -1.0)
-    zbk = _embed(zb, pb0, pbk)
     mode = np.zeros(pbk.unknowns + 1)
     m = pbk.size
     mode[m:2 * m] = phi[:m]
     mode[pbk.block + m:pbk.block + 2 * m] = phi[m:]
-    wk = _weights(pbk)
-    mode /= math.sqrt(float(np.sum(wk * mode * mode)))
-    idx = np.zeros(1, dtype=int)
-    tol = float(s["tolerance"])
-    # initial post-buckling slope from two short secants (error O(s²) each, extrapolated)
+    return mode / math.sqrt(float(np.sum(weights(pbk) * mode * mode)))
+
+
+def _initial_slope(out: CapBranchResult, pb0: HarmonicCapProblem, pbk: HarmonicCapProblem, zb: np.ndarray,
+                   tb: np.ndarray, mode: np.ndarray, tol: float) -> None:
+    """Set the post-buckling slope ratio and whether the load falls, from two short secants on the branch."""
+    zbk, idx, wk = embed(zb, pb0, pbk), np.zeros(1, dtype=int), weights(pbk)
+    load_b = float(pb0.load(zb[-1]))
+    dd_pre = float(pb0.conjugate(tb))
+    pre_slope = float(pb0.load(tb[-1])) / dd_pre if dd_pre != 0.0 else math.nan
     secants: list[float] = []
     falls: list[bool] = []
     for arc in _SLOPE_STEPS:
@@ -285,91 +196,127 @@ def follow_cap(*, lam: float, nu: float, clamped: bool, immovable: bool, apex: b
         if not conv[0]:
             break
         dd = float(pbk.conjugate(zc[0]) - pb0.conjugate(zb))
-        dl = float(pbk.load(zc[0, -1])) - out.bifurcation_load
+        dl = float(pbk.load(zc[0, -1])) - load_b
         secants.append(dl / dd if dd != 0.0 else math.nan)
-        falls.append(dl < 0.0)
+        falls.append(dl * math.copysign(1.0, load_b) < 0.0)  # its magnitude falls (a mismatch strain may be < 0)
     out.load_falls = bool(falls and falls[0])
     if len(secants) == 2 and np.isfinite(pre_slope) and pre_slope != 0.0:
+        # each secant errs by O(s²): the Richardson pair by O(s⁴)
         out.postbuckling_slope = float((4.0 * secants[0] - secants[1]) / 3.0 / pre_slope)
-    if not follow_branch:
-        out.path = path[0]
+
+
+def _follow_branch(out: CapBranchResult, cap: _Cap, pb0_exact: HarmonicCapProblem | None,
+                   found: tuple[np.ndarray, np.ndarray], follow: bool) -> CapBranchResult:
+    start = _branch_start(cap, pb0_exact, found)
+    if start is None:
         return out
-    zc, conv, _, tc = correct_on_arc(pbk, zbk[None], mode[None], np.array([_SWITCH_STEP]), idx, wk, tol=tol,
-                                     max_iter=12)
-    if not conv[0]:
-        out.path = path[0]
+    pb0, zb, tb = start
+    pbk = cap.problem(int(cap.settings["harmonics"]))
+    mode = _critical_mode(pb0, cap.problem(1), pbk, zb)
+    tol = float(cap.settings["tolerance"])
+    _initial_slope(out, pb0, pbk, zb, tb, mode, tol)
+    if not follow:
+        return out
+    wk, idx = weights(pbk), np.zeros(1, dtype=int)
+    for step in _SWITCH_STEPS:  # the first predictor step the corrector takes
+        zc, conv, _, tc = correct_on_arc(pbk, embed(zb, pb0, pbk)[None], mode[None], np.array([step]), idx, wk,
+                                         tol=tol, max_iter=12)
+        if conv[0]:
+            break
+    else:
         return out
     # the branch is followed away from the bifurcation point (growing critical-mode amplitude)
-    if float(np.sum(wk * tc[0] * mode)) < 0.0:
-        tc = -tc
+    t_start = tc[0] if float(np.sum(wk * tc[0] * mode)) >= 0.0 else -tc[0]
+    zk, state_k, back = _trace_branch(cap, pbk, zc[0], t_start)
+    out.path = np.concatenate([out.path, _path_of(pbk, zk)])
+    if zk.shape[0] == 0:
+        return out
+    base = float(pb0.load(zb[-1]))
+    out.load_drop = float(np.min(pbk.load(zk[:, -1]) / base)) if base != 0.0 else math.nan
+    if back:
+        return _rejoin(out, cap, pb0, pbk, zk[-1])
+    if state_k == TRACE_DONE and abs(float(pbk.load(zk[-1, -1]))) > cap.max_load:
+        out.finished = True  # the load range ended before max_indentation: nothing to measure there
+        return out
+    if state_k != TRACE_DONE or zk.shape[0] < 2 or pbk.apex_deflection(zk[-1]) < cap.target:
+        return out
+    zf = land_on_deflection(pbk, zk[-2], zk[-1], cap.target, tol)
+    return out if zf is None else _measure(out, pbk, zf, cap)
 
+
+def _trace_branch(cap: _Cap, pbk: HarmonicCapProblem, z0: np.ndarray,
+                  t0: np.ndarray) -> tuple[np.ndarray, int, bool]:
+    """Trace the bifurcated branch; return its states, the trace state and whether it rejoined the axisymmetric path.
+
+    A branch rejoins when its asymmetry falls below ``_RETURN_SHARE`` of its peak: it has come
+    back to the axisymmetric path, at the other end of an instability window (λ = 10 under an
+    apex force: n = 4 from δ = 18.7 h, the branch rises to 23.1 h, turns back and rejoins at
+    20.1 h, where the axisymmetric path is stable again) or at its own bifurcation.
+    """
     peak = [0.0]
+    back = [False]
 
-    def finished_k(z_prev, z_new, t_new, rows):  # type: ignore[no-untyped-def]
+    def finished(z_prev, z_new, t_new, rows):  # type: ignore[no-untyped-def]
         d = pbk.apex_deflection(z_new)
-        # a branch that comes back to its bifurcation point (the asymmetry falls from its peak towards
-        # zero there) does not reach max_indentation: stop rather than go round the loop again
-        amp = np.array([_asymmetry(pbk, zz) for zz in z_new])
+        amp = np.array([asymmetry(pbk, zz) for zz in z_new])
         peak[0] = max(peak[0], float(amp.max()))
-        near = (np.abs(d - out.bifurcation_deflection) < 0.02 * max(abs(out.bifurcation_deflection), 1.0)) & \
-            (np.abs(pbk.load(z_new[:, -1]) - out.bifurcation_load) < 0.02 * abs(out.bifurcation_load))
-        back = (amp < _RETURN_SHARE * peak[0]) & (peak[0] > 0.05) & near
-        return (d >= max_indentation) | (d < -max_indentation) | back
+        rejoined = (amp < _RETURN_SHARE * peak[0]) & (peak[0] > 0.05)
+        back[0] = back[0] or bool(rejoined.any())
+        return (d >= cap.target) | (d < -cap.target) | rejoined | (np.abs(pbk.load(z_new[:, -1])) > cap.max_load)
 
-    zk, _, _, count_k, state_k = _trace(pbk, zc[0], tc[0], s, finished_k, orientation=False)
-    dk = pbk.apex_deflection(zk)
-    lk = pbk.load(zk[:, -1])
-    ak = np.array([_asymmetry(pbk, zz) for zz in zk])
-    path.append(np.stack([lk, dk, ak], axis=1))
-    out.path = np.concatenate(path)
-    if state_k != TRACE_DONE or count_k < 2 or dk[-1] < max_indentation:
+    zk, _, _, _, state = trace(pbk, z0, t0, cap.settings, finished, orientation=False)
+    return zk, state, back[0]
+
+
+def _rejoin(out: CapBranchResult, cap: _Cap, pb0: HarmonicCapProblem, pbk: HarmonicCapProblem,
+            z_back: np.ndarray) -> CapBranchResult:
+    """Follow the axisymmetric path on from where the branch rejoined it, up to ``max_indentation``.
+
+    The path is watched for another ``cos nθ`` instability; there the point ends with what it
+    reached (a second branch is not followed).
+    """
+    out.rejoined = True
+    guess = np.concatenate([z_back[:pb0.size], z_back[pbk.block:pbk.block + pb0.size], z_back[-1:]])
+    defl = float(pb0.apex_deflection(guess))
+    z0 = land_on_deflection(pb0, guess, guess, defl, float(cap.settings["tolerance"]))
+    if z0 is None:
         return out
-    out.load_drop = float(np.min(lk) / out.bifurcation_load) if out.bifurcation_load != 0.0 else math.nan
-    zf = _land_on_deflection(pbk, zk[-2], zk[-1], max_indentation, tol)
-    if zf is None:
+    t0 = initial_tangent(pb0, z0)
+    if float(pb0.deflection_row() @ t0) < 0.0:
+        t0 = -t0
+    det = block_determinant(pb0, cap.problem(1))
+    sign0 = det(z0)[0]
+    flipped = [False]
+
+    def finished(z_prev, z_new, t_new, rows):  # type: ignore[no-untyped-def]
+        done = np.zeros(z_new.shape[0], dtype=bool)
+        for i, z in enumerate(z_new):
+            flipped[0] = flipped[0] or det(z)[0] != sign0
+            done[i] = flipped[0] or cap.stop(float(pb0.apex_deflection(z)), float(pb0.load(z[-1])))
+        return done
+
+    zs, _, _, count, state = trace(pb0, z0, t0, cap.settings, finished, orientation=False)
+    out.path = np.concatenate([out.path, _path_of(pb0, zs)])
+    # a second instability of the axisymmetric path is not followed: what was reached is kept
+    if state != TRACE_DONE or flipped[0] or count < 2 or pb0.apex_deflection(zs[-1]) < cap.target:
         return out
-    return _measure(out, pbk, zf, contact)
+    zf = land_on_deflection(pb0, zs[-2], zs[-1], cap.target, float(cap.settings["tolerance"]))
+    return out if zf is None else _measure(out, pb0, zf, cap)
 
 
-def _refine_fold(pb0: HarmonicCapProblem, zs: np.ndarray, ts: np.ndarray, steps: np.ndarray,
-                 s: dict) -> tuple[float, float] | None:
-    """Return (load, δ/h) at the path's first limit point (zero of the tangent's load component)."""
-    j = int(np.argmax(ts[1:, -1] <= 0.0)) + 1
-    w0 = _weights(pb0)
-
-    def measure(z, t, rows):  # type: ignore[no-untyped-def]
-        return t[:, -1]
-
-    zf, _, _, ok = refine_on_arc(pb0, zs[j - 1][None], ts[j - 1][None], steps[j:j + 1], ts[j - 1:j, -1],
-                                 ts[j:j + 1, -1], np.zeros(1, dtype=int), w0, measure, tol=float(s["tolerance"]),
-                                 max_iter=8, iterations=40, s_tol=1e-6)
-    if not ok[0]:
-        return None
-    return float(pb0.load(zf[0, -1])), float(pb0.apex_deflection(zf[0]))
-
-
-def _finish_on_axis(out: CapBranchResult, pb0: HarmonicCapProblem, zs: np.ndarray, s: dict, target: float,
-                    contact: float) -> CapBranchResult:
-    d = pb0.apex_deflection(zs)
-    if d[-1] < target:
+def _finish_on_axis(out: CapBranchResult, pb0: HarmonicCapProblem, fund: Fundamental, cap: _Cap) -> CapBranchResult:
+    zs = fund.zs
+    if pb0.apex_deflection(zs[-1]) < cap.target:
         out.finished = True  # the load range ended before max_indentation: stable within it
         return out
-    zf = _land_on_deflection(pb0, zs[-2], zs[-1], target, float(s["tolerance"]))
-    if zf is None:
-        return out
-    return _measure(out, pb0, zf, contact)
+    zf = land_on_deflection(pb0, zs[-2], zs[-1], cap.target, float(cap.settings["tolerance"]))
+    return out if zf is None else _measure(out, pb0, zf, cap)
 
 
-def _measure(out: CapBranchResult, pb: HarmonicCapProblem, zf: np.ndarray, contact: float) -> CapBranchResult:
-    ridge, spread = _ridge(pb, zf, contact)
-    out.ridge_radius = ridge * pb.lam / math.sqrt(2.0 * pb.c)
-    out.asymmetry = _asymmetry(pb, zf) if pb.k > 0 else 0.0
-    out.ridges = float(pb.n) if (pb.k > 0 and spread > RIDGE_SPREAD) else 0.0  # NaN spread: no ridge, 0
-    out.shape = _shape(pb, zf)
+def _measure(out: CapBranchResult, pb: HarmonicCapProblem, zf: np.ndarray, cap: _Cap) -> CapBranchResult:
+    out.ridge_radius, out.ridges = ridge_measures(pb, zf, float(cap.common["contact"]))
+    out.asymmetry = asymmetry(pb, zf)
+    out.shape = shape(pb, zf)
     out.finished = True
     out.reached_end = True
     return out
-
-
-#: relative spread (max − min)/mean over θ of the ridge radius above which the ridge counts as polygonal
-RIDGE_SPREAD = 0.02

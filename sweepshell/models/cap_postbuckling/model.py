@@ -22,9 +22,10 @@ import numpy as np
 from sweepshell.errors import ParameterError
 from sweepshell.models.base import BatchResult, OutputSpec, ParameterSpec, Status, SweepModel
 from sweepshell.models.cap_postbuckling.branches import SHAPE_ANGLES, SHAPE_RADII, CapBranchResult, follow_cap
+from sweepshell.models.shallow_cap.grids import get_mismatch_nodes
 from sweepshell.models.shallow_cap.model import ShallowCapModel
 
-__all__ = ["CapPostbucklingModel", "choose_grid"]
+__all__ = ["CapPostbucklingModel", "choose_grid", "choose_mismatch_grid"]
 
 REGIMES = ("stable", "limit_point", "stable_postbuckling", "unstable_postbuckling")
 _STABLE, _LIMIT, _STABLE_PB, _UNSTABLE_PB = range(4)
@@ -51,11 +52,22 @@ def choose_grid(lam: float, apex: bool, amplitude: float, width: float, nodes: i
     return int(min(max(math.ceil(need / 2.0) * 2, 24), 96)), beta
 
 
+def choose_mismatch_grid(lam: float, radius: float, nodes: int) -> tuple[int, float]:
+    """Return the radial grid (node count, clustering centre) of a mismatch point: ``shallow_cap``'s.
+
+    The sharp edge of the strained region needs nodes clustered around it with one on it
+    (``shallow_cap``'s ``get_mismatch_nodes``: 44 + 1.8λ, even, 48 … 96); ``nodes`` > 0 fixes
+    the count. A region reaching the edge (ρ = 1) has no inner edge and keeps Chebyshev points.
+    """
+    count = get_mismatch_nodes({"mismatch_step_width": 0.0, "nodes": int(nodes)}, np.array([float(lam)]))
+    return int(count[0]), (float(radius) if radius < 1.0 else 0.0)
+
+
 class CapPostbucklingModel(SweepModel):
     """Shallow spherical cap followed through its first bifurcation: ridges, polygons, stability."""
 
     name: ClassVar[str] = "cap_postbuckling"
-    version: ClassVar[str] = "1.0"
+    version: ClassVar[str] = "1.1"
     summary: ClassVar[str] = ("shallow spherical cap after buckling (Föppl–von Kármán, n-fold symmetric): "
                               "bifurcated branch, ridges and polygons, stable or unstable post-buckling")
     parameters: ClassVar[tuple[ParameterSpec, ...]] = (
@@ -66,12 +78,13 @@ class CapPostbucklingModel(SweepModel):
                       default=10.0, bounds=(0.0, 200.0), closed=(False, True), symbol="δ/h"),
     )
     regimes: ClassVar[tuple[str, ...]] = REGIMES
+    parameter_groups: ClassVar[Mapping[str, Mapping[str, tuple[str, ...]]]] = ShallowCapModel.parameter_groups
     # measured (one core, benchmarks/bench_cap_postbuckling.py): see theory.md; a few seconds per path
     cost_hint: ClassVar[float] = 3.0
 
     def __init__(self, *, harmonics: int = 3, nodes: int = 0, tolerance: float = 1e-10, max_points: int = 400,
                  max_turn_deg: float = 12.0, path_samples: int = 64, max_pressure: float = 2.0,
-                 contact_width: float = 0.25, asymmetric_modes: int = 30) -> None:
+                 contact_width: float = 0.25, asymmetric_modes: int = 30, max_base_ratio: float = 0.5) -> None:
         super().__init__()
         if not 1 <= int(harmonics) <= 12:
             raise ValueError(f"settings.harmonics must be a whole number in [1, 12]; got {harmonics}")
@@ -89,6 +102,7 @@ class CapPostbucklingModel(SweepModel):
             "max_points": int(max_points), "max_turn_deg": float(max_turn_deg),
             "path_samples": int(path_samples), "max_pressure": float(max_pressure),
             "contact_width": float(contact_width), "asymmetric_modes": int(asymmetric_modes),
+            "max_base_ratio": float(max_base_ratio),
         }
 
     @property
@@ -98,7 +112,8 @@ class CapPostbucklingModel(SweepModel):
             OutputSpec("branch_wave_number", "1", "circumferential wave number n of the followed branch "
                        "(0: axisymmetric only)"),
             OutputSpec("bifurcation_load", "1", "load at the bifurcation (limit point for regime limit_point), as "
-                       "shallow_cap's critical_load: pressure over p_cl or apex force over E h^3/R; NaN when stable",
+                       "shallow_cap's critical_load: pressure over p_cl, apex force over E h^3/R or mismatch strain "
+                       "over 2h/(R c); NaN when stable",
                        nullable=True),
             OutputSpec("postbuckling_slope", "1", "initial d(load)/d(conjugate displacement) on the bifurcated "
                        "branch over that of the pre-buckling path (negative: unstable); NaN without a branch",
@@ -118,6 +133,12 @@ class CapPostbucklingModel(SweepModel):
             OutputSpec("load_path", "1", "equilibrium path sampled evenly along its length: load (as "
                        "bifurcation_load), apex deflection over h, asymmetric amplitude over h (kept at "
                        "not_converged points as far as reached)", dims=("path_sample", "path_component")),
+            OutputSpec("bifurcation_pressure_si", "Pa", "bifurcation_load as a pressure; NaN unless E, h, R are "
+                       "given and the load is pressure", nullable=True),
+            OutputSpec("bifurcation_force_si", "N", "bifurcation_load as an apex force; NaN unless E, h, R are "
+                       "given and the load is an apex force", nullable=True),
+            OutputSpec("bifurcation_mismatch_strain", "1", "bifurcation_load as a plain mismatch strain (negative "
+                       "= shrinkage); NaN unless h and R are given and the load is mismatch", nullable=True),
         )
 
     @property
@@ -144,16 +165,6 @@ class CapPostbucklingModel(SweepModel):
             raise ParameterError(f"{where}=1 is not followed (a tilt of the whole dimple, outside the n-fold "
                                  "symmetric subspace); use 0 (the critical wave number) or an integer of 2 or more",
                                  field=where, value=1)
-        loads = np.atleast_1d(axes["load"]) if "load" in axes else np.atleast_1d(fixed.get("load", "pressure"))
-        if "mismatch" in [str(v) for v in loads]:
-            where = "axes.load" if "load" in axes else "fixed.load"
-            raise ParameterError(f"{where}=mismatch is not followed by cap_postbuckling (version 1.0 follows "
-                                 "pressure and apex_force); use shallow_cap for mismatch loads",
-                                 field=where, value="mismatch")
-        for key in ("thickness", "sphere_radius", "base_radius", "youngs_modulus"):
-            if key in axes or (key in fixed and not _is_nan(fixed[key])):
-                raise ParameterError(f"{key} is not used by cap_postbuckling (its results are dimensionless); "
-                                     "remove it and give shell_parameter", field=key)
 
     @classmethod
     def sample_inputs(cls) -> dict[str, np.ndarray]:
@@ -173,21 +184,15 @@ class CapPostbucklingModel(SweepModel):
 
     def solve_batch(self, inputs: Mapping[str, np.ndarray]) -> BatchResult:
         s = self._settings
-        lam = np.asarray(inputs["shell_parameter"], dtype=float)
-        n = lam.shape[0]
+        n = np.asarray(inputs["shell_parameter"]).shape[0]
         res = self.empty_result(n)
+        lam, geometry = _shell_parameter(inputs, s["max_base_ratio"])
         load = np.asarray(inputs["load"]).astype(str)
-        apex = load == "apex_force"
         wave = np.asarray(inputs["wave_number"], dtype=float)
         target = np.asarray(inputs["max_indentation"], dtype=float)
-        valid = (load != "mismatch") & (lam > 0) & (lam <= 30.0) & (wave != 1.0) & (target > 0)
+        valid = geometry & (lam > 0) & (lam <= 30.0) & (wave != 1.0) & (target > 0)
         res.status[~valid] = Status.outside_validity
         critical = self._scan(inputs, valid & (wave == 0.0))
-        nu = np.asarray(inputs["poisson_ratio"], dtype=float)
-        clamped = np.asarray(inputs["edge"]).astype(str) == "clamped"
-        immovable = np.asarray(inputs["edge_inplane"]).astype(str) == "immovable"
-        amp = np.asarray(inputs["dimple_amplitude"], dtype=float)
-        width = np.asarray(inputs["dimple_width"], dtype=float)
         for i in np.nonzero(valid)[0]:
             follow = int(wave[i]) if wave[i] else int(critical[i])
             if follow < 0:
@@ -196,18 +201,36 @@ class CapPostbucklingModel(SweepModel):
             if follow == 1:
                 res.status[i] = Status.outside_validity  # critical mode n = 1: not in the n-fold subspace
                 continue
-            nodes, beta = choose_grid(float(lam[i]), bool(apex[i]), float(amp[i]), float(width[i]), s["nodes"])
-            settings = {**s, "nodes_used": nodes, "stretch_used": beta}
             try:
-                branch = follow_cap(lam=float(lam[i]), nu=float(nu[i]), clamped=bool(clamped[i]),
-                                    immovable=bool(immovable[i]), apex=bool(apex[i]), amplitude=float(amp[i]),
-                                    width=float(width[i]), wave_number=follow, max_indentation=float(target[i]),
-                                    settings=settings)
+                branch = self._follow(inputs, int(i), float(lam[i]), follow, str(load[i]))
             except (np.linalg.LinAlgError, FloatingPointError, ZeroDivisionError):
                 res.status[i] = Status.not_converged
                 continue
-            _fill(res, int(i), branch, bool(apex[i]), s["path_samples"])
+            _fill(res, int(i), branch, s["path_samples"])
+        _fill_si(res, inputs, load)
         return res
+
+    def _follow(self, inputs: Mapping[str, np.ndarray], i: int, lam: float, wave: int, load: str) -> CapBranchResult:
+        """Follow point ``i`` of ``inputs`` (shell parameter ``lam``) on the branch of wave number ``wave``."""
+        s = self._settings
+        get = {k: np.asarray(inputs[k])[i] for k in ("poisson_ratio", "edge", "edge_inplane", "dimple_amplitude",
+                                                     "dimple_width", "mismatch_strain", "mismatch_radius",
+                                                     "mismatch_region", "max_indentation")}
+        apex, amp, width = load == "apex_force", float(get["dimple_amplitude"]), float(get["dimple_width"])
+        mismatch = None
+        settings = dict(s)
+        if load == "mismatch":
+            strain, radius = float(get["mismatch_strain"]), float(get["mismatch_radius"])
+            mismatch = (strain, radius, str(get["mismatch_region"]) == "annulus")
+            nodes, centre = choose_mismatch_grid(lam, radius, s["nodes"])
+            settings.update(nodes_used=nodes, stretch_used=0.0, centre_used=centre, max_mismatch=abs(strain))
+        else:
+            nodes, beta = choose_grid(lam, apex, amp, width, s["nodes"])
+            settings.update(nodes_used=nodes, stretch_used=beta, centre_used=0.0)
+        return follow_cap(lam=lam, nu=float(get["poisson_ratio"]), clamped=str(get["edge"]) == "clamped",
+                          immovable=str(get["edge_inplane"]) == "immovable", apex=apex, amplitude=amp, width=width,
+                          wave_number=wave, max_indentation=float(get["max_indentation"]), settings=settings,
+                          mismatch=mismatch)
 
     def _scan(self, inputs: Mapping[str, np.ndarray], rows: np.ndarray) -> np.ndarray:
         """Return the critical wave number of ``shallow_cap`` per point (0: limit point or none; -1: failed)."""
@@ -225,13 +248,6 @@ class CapPostbucklingModel(SweepModel):
         return out
 
 
-def _is_nan(v: Any) -> bool:
-    try:
-        return math.isnan(float(v))
-    except (TypeError, ValueError):
-        return False
-
-
 def sample_path(path: np.ndarray, samples: int) -> np.ndarray:
     """Return ``(samples, 3)`` points evenly spaced along ``path`` (load and deflection scaled by their ranges)."""
     if path.shape[0] == 0:
@@ -247,7 +263,42 @@ def sample_path(path: np.ndarray, samples: int) -> np.ndarray:
     return np.stack([np.interp(u, arc, path[:, k]) for k in range(3)], axis=1)
 
 
-def _fill(res: BatchResult, i: int, b: CapBranchResult, apex: bool, samples: int) -> None:
+def _shell_parameter(inputs: Mapping[str, np.ndarray], max_ratio: float) -> tuple[np.ndarray, np.ndarray]:
+    """Return λ per point (set by base_radius, thickness and sphere_radius when all are given, as shallow_cap)
+    and whether the point is shallow enough (a/R ≤ ``max_ratio`` where the geometry is given)."""
+    lam = np.asarray(inputs["shell_parameter"], dtype=float).copy()
+    nu = np.asarray(inputs["poisson_ratio"], dtype=float)
+    c = np.sqrt(3.0 * (1.0 - nu**2))
+    h, big_r, a = (_optional(inputs, k, lam.shape[0]) for k in ("thickness", "sphere_radius", "base_radius"))
+    geometric = np.isfinite(a) & np.isfinite(h) & np.isfinite(big_r)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        lam = np.where(geometric, np.sqrt(np.abs(2.0 * c * a**2 / (big_r * h))), lam)
+        shallow = ~(geometric & (a / np.where(geometric, big_r, 1.0) > max_ratio))
+    return lam, shallow
+
+
+def _optional(inputs: Mapping[str, np.ndarray], key: str, n: int) -> np.ndarray:
+    return np.asarray(inputs[key], dtype=float) if key in inputs else np.full(n, np.nan)
+
+
+def _fill_si(res: BatchResult, inputs: Mapping[str, np.ndarray], load: np.ndarray) -> None:
+    """Fill the SI outputs from bifurcation_load where E, h and R (h and R for a strain) are given (as shallow_cap)."""
+    n = load.shape[0]
+    nu = np.asarray(inputs["poisson_ratio"], dtype=float)
+    c = np.sqrt(3.0 * (1.0 - nu**2))
+    h, big_r, e_mod = (_optional(inputs, k, n) for k in ("thickness", "sphere_radius", "youngs_modulus"))
+    crit = res.outputs["bifurcation_load"]
+    trusted = (res.status == Status.ok) | (res.status == Status.no_instability)
+    with np.errstate(invalid="ignore"):
+        res.outputs["bifurcation_pressure_si"][:] = np.where(trusted & (load == "pressure"),
+                                                             crit * 2.0 * e_mod * h**2 / (big_r**2 * c), np.nan)
+        res.outputs["bifurcation_force_si"][:] = np.where(trusted & (load == "apex_force"),
+                                                          crit * e_mod * h**3 / big_r, np.nan)
+        res.outputs["bifurcation_mismatch_strain"][:] = np.where(trusted & (load == "mismatch"),
+                                                                 crit * 2.0 * h / (big_r * c), np.nan)
+
+
+def _fill(res: BatchResult, i: int, b: CapBranchResult, samples: int) -> None:
     out = res.outputs
     out["load_path"][i] = sample_path(b.path, samples)
     if not b.finished:
