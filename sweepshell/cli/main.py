@@ -25,7 +25,7 @@ from sweepshell.about import CAUTION, __version__
 from sweepshell.cli.options import STORE_HELP, add_format_option
 from sweepshell.errors import SweepshellError
 
-__all__ = ["build_parser", "main"]
+__all__ = ["build_parser", "limit_blas_threads", "main"]
 
 EXIT_OK = 0
 EXIT_FAILED = 1
@@ -278,6 +278,22 @@ def _explain_failure(args: argparse.Namespace, exc: Exception) -> tuple[str, int
             "details and report them", EXIT_FAILED)
 
 
+#: thread-count variables of the BLAS libraries numpy and scipy may load
+BLAS_THREAD_VARIABLES = ("OPENBLAS_NUM_THREADS", "OMP_NUM_THREADS", "MKL_NUM_THREADS")
+
+
+def limit_blas_threads() -> None:
+    """Default the BLAS libraries to one thread, unless the user chose a count (before numpy loads).
+
+    A run computes one block per core: on local worker processes (dask limits their BLAS to one
+    thread) or, for small sweeps, in this process. A multi-threaded BLAS here would spin a second
+    core on the models' small matrices without finishing sooner, and slow everything else on a
+    shared machine.
+    """
+    for name in BLAS_THREAD_VARIABLES:
+        os.environ.setdefault(name, "1")
+
+
 def entry() -> None:
     """Console-script entry: run :func:`main` and exit with its code.
 
@@ -285,6 +301,7 @@ def entry() -> None:
     at once with 130 instead of letting library shutdown hooks (dask, zarr's event-loop thread) see a second
     interrupt and turn the exit code into a signal death.
     """
+    limit_blas_threads()
     code = main()
     if code == EXIT_INTERRUPTED:
         sys.stdout.flush()

@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import os
+
 import numpy as np
 import pytest
 import xarray as xr
@@ -92,3 +94,15 @@ def test_refine_and_boundary_evaluate_in_this_process(store, monkeypatch):
     boundary, _ = find_boundary(ds, "stiffness_ratio", "load_ratio", ("stable", "buckled"), bisections=2,
                                 evaluator=store_evaluator(ds))
     assert boundary.evaluations > 0
+
+
+def test_command_line_defaults_blas_to_one_thread_and_keeps_a_users_choice(monkeypatch):
+    """In-process blocks use one core, as dask's worker processes do; a count the user set is kept."""
+    from sweepshell.cli.main import BLAS_THREAD_VARIABLES, limit_blas_threads
+
+    for name in BLAS_THREAD_VARIABLES:
+        monkeypatch.delenv(name, raising=False)
+    monkeypatch.setenv("MKL_NUM_THREADS", "4")
+    limit_blas_threads()
+    assert os.environ["OPENBLAS_NUM_THREADS"] == "1" and os.environ["OMP_NUM_THREADS"] == "1"
+    assert os.environ["MKL_NUM_THREADS"] == "4"
