@@ -60,7 +60,6 @@ fixed: {end: pinned}
 axes:
   stiffness_ratio: {logspace: [-1, 3, 20]}
   load_ratio: {linspace: [0.5, 40, 15]}
-executor: {kind: threads, workers: 2}
 block: {points: 40}
 """
 
@@ -115,7 +114,7 @@ def compute_column_store(folder: Path, name: str = "column", overrides: Sequence
 def run_column_store(path: Path, stiffness_ratio: list[Any], load_ratio: list[Any], *,
                      settings: dict[str, Any] | None = None, fixed: dict[str, Any] | None = None,
                      block_points: int = 10, name: str = "column", reuse: bool = False) -> Path:
-    """Run the cheap winkler_column model over a grid into ``path`` (threads executor); return the path.
+    """Run the cheap winkler_column model over a grid into ``path`` (in this process); return the path.
 
     Used by the store tests (catalog, merge, verify) and the CLI tests. Reuse of points from
     sibling stores is off by default, so every store is an independent computation (a
@@ -127,7 +126,7 @@ def run_column_store(path: Path, stiffness_ratio: list[Any], load_ratio: list[An
     plan = build_plan({"name": name, "model": "winkler_column", "settings": settings or {},
                        "fixed": fixed if fixed is not None else {"end": "pinned"},
                        "axes": {"stiffness_ratio": stiffness_ratio, "load_ratio": load_ratio},
-                       "store": {"path": str(path)}, "executor": {"kind": "threads", "workers": 1},
+                       "store": {"path": str(path)},
                        "block": {"points": block_points}, "reuse": reuse})
     summary = run_sweep(plan)
     assert summary.complete and summary.computed == summary.total
@@ -236,7 +235,6 @@ axes:
   stiffness_ratio: [0.1, 1.0, 10.0, 100.0]
   load_ratio: [0.5, 5.0, 40.0]
 store: {path: results/column.zarr}
-executor: {kind: threads, workers: 1}
 block: {points: 3}
 reuse: false
 """

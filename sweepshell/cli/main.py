@@ -25,7 +25,7 @@ from sweepshell.about import CAUTION, __version__
 from sweepshell.cli.options import STORE_HELP, add_format_option
 from sweepshell.errors import SweepshellError
 
-__all__ = ["build_parser", "main"]
+__all__ = ["build_parser", "limit_blas_threads", "main"]
 
 EXIT_OK = 0
 EXIT_FAILED = 1
@@ -63,7 +63,8 @@ def build_parser() -> argparse.ArgumentParser:
                     "continues from the sweep recorded in it, e.g. a merged store). Running it again "
                     "continues where it stopped. Overrides use hydra's grammar, e.g. fixed.poisson_ratio=0.25 "
                     "axes.shell_parameter=range(3,12,0.5) axes.edge=clamped,pinned store.path=scratch/x.zarr "
-                    "executor=threads executor.workers=1.",
+                    "executor=threads executor.workers=1. The default executor (auto) computes small sweeps in this "
+                    "process and starts local worker processes for larger ones.",
         epilog=EXIT_CODES_HELP + ". " + _CAUTION_HELP)
     run.add_argument("sweep", metavar="SWEEP", help="sweep name, sweep YAML file, or store to continue")
     run.add_argument("overrides", nargs="*", metavar="OVERRIDE", help="key=value in hydra's grammar (see above)")
@@ -104,7 +105,7 @@ def _cmd_run(args: argparse.Namespace) -> int:
         store_note = _describe_existing_store(plan)  # a store the run would refuse is refused here too
         shape = " x ".join(f"{a.name}[{len(a)}]" for a in plan.axes)
         print(f"sweep {plan.name}: model {plan.model} {plan.model_version}, {plan.n_points} points ({shape}), "
-              f"store {plan.store_path}, executor {plan.executor.kind}")
+              f"store {plan.store_path}; {plan.describe_executor()}")
         print(plan.resolved_yaml, end="")
         print(store_note, file=sys.stderr)
         return EXIT_OK
@@ -283,6 +284,22 @@ def _explain_failure(args: argparse.Namespace, exc: Exception) -> tuple[str, int
             "details and report them", EXIT_FAILED)
 
 
+#: thread-count variables of the BLAS libraries numpy and scipy may load
+BLAS_THREAD_VARIABLES = ("OPENBLAS_NUM_THREADS", "OMP_NUM_THREADS", "MKL_NUM_THREADS")
+
+
+def limit_blas_threads() -> None:
+    """Default the BLAS libraries to one thread, unless the user chose a count (before numpy loads).
+
+    A run computes one block per core: on local worker processes (dask limits their BLAS to one
+    thread) or, for small sweeps, in this process. A multi-threaded BLAS here would spin a second
+    core on the models' small matrices without finishing sooner, and slow everything else on a
+    shared machine.
+    """
+    for name in BLAS_THREAD_VARIABLES:
+        os.environ.setdefault(name, "1")
+
+
 def entry() -> None:
     """Console-script entry: run :func:`main` and exit with its code.
 
@@ -290,6 +307,7 @@ def entry() -> None:
     at once with 130 instead of letting library shutdown hooks (dask, zarr's event-loop thread) see a second
     interrupt and turn the exit code into a signal death.
     """
+    limit_blas_threads()
     code = main()
     if code == EXIT_INTERRUPTED:
         sys.stdout.flush()

@@ -26,7 +26,7 @@ from omegaconf import DictConfig, ListConfig, OmegaConf
 from sweepshell.errors import ConfigError, ParameterError, SweepshellError, UnknownModelError
 from sweepshell.models import get_model
 from sweepshell.models.base import SweepModel
-from sweepshell.plan import Axis, ExecutorSpec, SweepPlan
+from sweepshell.plan import IN_PROCESS_SECONDS, Axis, ExecutorSpec, SweepPlan
 from sweepshell.store.integrity import check_model_limits
 from sweepshell.store.location import public_options, read_store_config
 
@@ -36,7 +36,7 @@ __all__ = ["DEFAULT_MAX_POINTS", "EXECUTOR_KINDS", "MAX_WORKERS", "SWEEP_KEYS", 
 
 SWEEP_KEYS = ("name", "model", "settings", "fixed", "axes", "store", "executor", "block", "limits",
               "description", "reuse", "refine")
-EXECUTOR_KINDS = ("local", "threads", "distributed")
+EXECUTOR_KINDS = ("auto", "local", "threads", "distributed")
 DEFAULT_MAX_POINTS = 20_000_000
 MAX_WORKERS = 512
 _NAME_RE = re.compile(r"^[A-Za-z0-9][A-Za-z0-9_.-]*$")
@@ -79,7 +79,8 @@ def build_plan(cfg: Mapping[str, Any], *, source: str = "<dict>") -> SweepPlan:
         "fixed": {k: _plain(v) for k, v in fixed.items()},
         "axes": {a.name: [_plain(v) for v in a.values] for a in axes},
         "store": {"path": str(store_path), **({"options": public_options(store_options)} if store_options else {})},
-        "executor": {"kind": executor.kind, "workers": executor.workers, "address": executor.address},
+        "executor": {"kind": executor.kind, "workers": executor.workers, "address": executor.address,
+                     "in_process_seconds": executor.in_process_seconds},
         "block": {"points": block_points},
         "limits": {"max_points": max_points},
         "reuse": reuse,
@@ -90,6 +91,7 @@ def build_plan(cfg: Mapping[str, Any], *, source: str = "<dict>") -> SweepPlan:
         axes=tuple(axes), store_path=str(store_path), executor=executor, block_points=block_points,
         resolved_yaml=yaml.safe_dump(resolved, sort_keys=False), reuse=reuse, refine=refine,
         store_options=store_options,
+        point_seconds=float(model.estimated_cost()),
     )
 
 
@@ -370,7 +372,7 @@ def _build_refine(spec: Any, axis_names: list[str]) -> dict[str, Any] | None:
 
 
 def _build_executor(spec: Mapping[str, Any]) -> ExecutorSpec:
-    kind = spec.get("kind", "local")
+    kind = spec.get("kind", "auto")
     if kind not in EXECUTOR_KINDS:
         raise ConfigError(f"executor.kind={kind!r} is unknown; use one of {', '.join(EXECUTOR_KINDS)}",
                           field="executor.kind", value=kind)
@@ -385,4 +387,8 @@ def _build_executor(spec: Mapping[str, Any]) -> ExecutorSpec:
     if kind == "distributed" and not address:
         raise ConfigError("executor=distributed needs an address; add executor.address=tcp://HOST:PORT",
                           field="executor.address")
-    return ExecutorSpec(kind=kind, workers=workers, address=address)
+    seconds = spec.get("in_process_seconds", IN_PROCESS_SECONDS)
+    if isinstance(seconds, bool) or not isinstance(seconds, (int, float)) or not 0 <= seconds < math.inf:
+        raise ConfigError(f"executor.in_process_seconds={seconds!r} must be a number of seconds ≥ 0",
+                          field="executor.in_process_seconds", value=seconds)
+    return ExecutorSpec(kind=kind, workers=workers, address=address, in_process_seconds=float(seconds))

@@ -7,11 +7,11 @@ import errno
 import logging
 import os
 from collections.abc import Callable, Iterator
-from pathlib import Path
 from typing import Any
 
 from sweepshell.errors import ConfigError
 from sweepshell.plan import ExecutorSpec, SweepPlan
+from sweepshell.store.writer import store_exists
 
 __all__ = ["check_scheduler_reachable", "dashboard_link", "describe_outside_fault", "open_client", "start_client",
            "start_client_early"]
@@ -70,7 +70,9 @@ def start_client_early(plan: SweepPlan, given: Any = None) -> Iterator[Callable[
         return
 
     pool = ThreadPoolExecutor(1, thread_name_prefix="sweepshell-start")
-    early = None if Path(plan.store_path).exists() else pool.submit(start_client, plan.executor)
+    # a new store of small estimated work is computed in this process (executor auto): nothing starts early
+    small = plan.executor.runs_in_process(plan.estimated_seconds())
+    early = None if store_exists(plan.store_path) or small else pool.submit(start_client, plan.executor)
     started: list[tuple[Any, Any]] = []
 
     def get() -> Any:

@@ -9,6 +9,7 @@ from __future__ import annotations
 
 import logging
 import time
+from collections.abc import Callable
 from dataclasses import dataclass, field
 from typing import Any
 
@@ -21,6 +22,7 @@ from sweepshell.engine.executors import (
     describe_outside_fault,
     start_client_early,
 )
+from sweepshell.engine.inprocess import drive_in_process
 from sweepshell.engine.observers import RunObserver, SilentObserver
 from sweepshell.engine.reuse import Donor, find_donors
 from sweepshell.engine.worker import compute_block
@@ -83,6 +85,9 @@ class RunSummary:
         Wall time of the run, including start-up of workers.
     model_seconds
         Time spent inside the model, summed over workers.
+    extra
+        ``executor`` (``"in-process"`` when no cluster was started, else the executor kind; absent when nothing
+        was computed), ``by_other_runners``, ``damaged_blocks``.
     """
 
     store_path: str
@@ -158,7 +163,8 @@ def run_plan(plan: SweepPlan, *, observer: RunObserver | None = None, claim_ttl:
     existing = store_exists(path)
     # an existing store is checked (a store of another sweep is refused) before anything starts
     block_shape: tuple[int, ...] = prepare_store(plan, model)[0] if existing else ()
-    tally = {"model_seconds": 0.0, "computed": 0, "blocks": 0, "by_others": 0, "reused": 0, "damaged": 0}
+    tally: dict[str, Any] = {"model_seconds": 0.0, "computed": 0, "blocks": 0, "by_others": 0, "reused": 0,
+                             "damaged": 0}
     claims: ClaimBook | None = None
     try:
         with start_client_early(plan, client) as get_client:
@@ -175,15 +181,11 @@ def run_plan(plan: SweepPlan, *, observer: RunObserver | None = None, claim_ttl:
             to_compute = sum(b.n_points for b in pending)
             claims = open_claims(path, ttl=claim_ttl)
             donors = find_donors(plan, model) if plan.reuse else []
-            active = get_client()
-            link = dashboard_link(active)
-            if link:
-                log.info("dask dashboard: %s", link)
-            observer.connected(link)
             note = "compiling the model's kernels (once); the ETA follows the first computed blocks" \
                 if model.kernels_to_compile() else ""
-            observer.start(plan.n_points, plan.n_points - to_compute, to_compute, note=note)
-            _drive(active, plan, pending, claims, observer, tally, donors)
+            # a caller's client is used as given; otherwise executor auto computes small work here
+            in_process = client is None and plan.executor.runs_in_process(plan.estimated_seconds(to_compute))
+            _compute(plan, None if in_process else get_client, pending, claims, observer, tally, donors, note)
     except KeyboardInterrupt:
         if claims is None or not block_shape:
             raise
@@ -206,6 +208,25 @@ def run_plan(plan: SweepPlan, *, observer: RunObserver | None = None, claim_ttl:
     remove_stale_claims(path, claim_ttl)
     observer.close()
     return _final_summary(plan, block_shape, tally, t0)
+
+
+def _compute(plan: SweepPlan, get_client: Callable[[], Any] | None, pending: list[Block], claims: ClaimBook,
+             observer: RunObserver, tally: dict[str, Any], donors: list[Donor], note: str) -> None:
+    """Compute the pending blocks on the dask client, or in this process when ``get_client`` is ``None``."""
+    to_compute = sum(b.n_points for b in pending)
+    tally["executor"] = "in-process" if get_client is None else plan.executor.kind
+    log.info("%s", plan.describe_executor(to_compute))
+    if get_client is None:
+        observer.start(plan.n_points, plan.n_points - to_compute, to_compute, note=note)
+        drive_in_process(plan, pending, claims, observer, tally, donors)
+        return
+    active = get_client()
+    link = dashboard_link(active)
+    if link:
+        log.info("dask dashboard: %s", link)
+    observer.connected(link)
+    observer.start(plan.n_points, plan.n_points - to_compute, to_compute, note=note)
+    _drive(active, plan, pending, claims, observer, tally, donors)
 
 
 def _reset_blocks_missing_chunks(path: str, ledger: np.ndarray, block_shape: tuple[int, ...],
@@ -300,7 +321,8 @@ def _final_summary(plan: SweepPlan, block_shape: tuple[int, ...], tally: dict[st
     return RunSummary(store_path=plan.store_path, total=plan.n_points, counts=_counts(ledger),
                       computed=tally["computed"], blocks=tally["blocks"], wall_seconds=time.perf_counter() - t0,
                       model_seconds=tally["model_seconds"], reused=tally["reused"],
-                      extra={"by_other_runners": tally["by_others"], "damaged_blocks": tally["damaged"]})
+                      extra={"by_other_runners": tally["by_others"], "damaged_blocks": tally["damaged"],
+                             "executor": tally.get("executor")})
 
 
 def run_sweep(plan: SweepPlan, *, observer: RunObserver | None = None, client: Any = None) -> RunSummary:

@@ -10,6 +10,7 @@ unknown name is an error. A built-in name wins over a plug-in of the same name.
 from __future__ import annotations
 
 import importlib
+import importlib.machinery
 import importlib.metadata
 import importlib.util
 import logging
@@ -61,9 +62,17 @@ _REGISTRY: dict[str, tuple[str, str]] = {
 
 
 def _available() -> dict[str, tuple[str, str]]:
+    """The built-in models whose modules are present, found without importing any model package.
+
+    ``find_spec("a.b.c")`` would import the package ``a.b`` (a model's ``__init__`` may load its numba
+    kernels), so the package is located first and the module looked up in its folder.
+    """
     found = {}
     for name, (module, cls) in _REGISTRY.items():
-        if importlib.util.find_spec(module) is not None:
+        package, _, leaf = module.rpartition(".")
+        spec = importlib.util.find_spec(package)
+        locations = spec.submodule_search_locations if spec is not None else None
+        if locations is not None and importlib.machinery.PathFinder.find_spec(leaf, list(locations)) is not None:
             found[name] = (module, cls)
     return found
 

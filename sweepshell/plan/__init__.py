@@ -5,6 +5,6 @@ takes plans and blocks from here, and this package imports nothing else of sweep
 """
 
 from sweepshell.plan.blocks import Block, choose_block_shape, iter_blocks
-from sweepshell.plan.sweep import Axis, ExecutorSpec, SweepPlan
+from sweepshell.plan.sweep import IN_PROCESS_SECONDS, Axis, ExecutorSpec, SweepPlan
 
-__all__ = ["Axis", "Block", "ExecutorSpec", "SweepPlan", "choose_block_shape", "iter_blocks"]
+__all__ = ["IN_PROCESS_SECONDS", "Axis", "Block", "ExecutorSpec", "SweepPlan", "choose_block_shape", "iter_blocks"]

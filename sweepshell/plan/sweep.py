@@ -12,7 +12,11 @@ from typing import Any
 
 import numpy as np
 
-__all__ = ["Axis", "ExecutorSpec", "SweepPlan"]
+__all__ = ["IN_PROCESS_SECONDS", "Axis", "ExecutorSpec", "SweepPlan"]
+
+#: ``executor.kind: auto`` computes in the calling process when the estimated work is at most this many seconds:
+#: starting local worker processes (spawn, imports, loading compiled kernels) costs several seconds on its own.
+IN_PROCESS_SECONDS = 5.0
 
 
 @dataclass(frozen=True)
@@ -50,11 +54,20 @@ class Axis:
 
 @dataclass(frozen=True)
 class ExecutorSpec:
-    """Where blocks run: ``local`` worker processes, ``threads`` or a ``distributed`` cluster."""
+    """Where blocks run: ``auto``, ``local`` worker processes, ``threads`` or a ``distributed`` cluster.
 
-    kind: str = "local"
+    ``auto`` computes in the calling process (no cluster) when the estimated work is at most
+    ``in_process_seconds``, and on local worker processes otherwise; the other kinds are obeyed as given.
+    """
+
+    kind: str = "auto"
     workers: int | None = None
     address: str | None = None
+    in_process_seconds: float = IN_PROCESS_SECONDS
+
+    def runs_in_process(self, estimated_seconds: float) -> bool:
+        """Whether work of ``estimated_seconds`` (one core) is computed in the calling process."""
+        return self.kind == "auto" and estimated_seconds <= self.in_process_seconds
 
 
 @dataclass(frozen=True)
@@ -86,6 +99,8 @@ class SweepPlan:
         The fully resolved sweep as YAML (recorded in the store).
     reuse
         Whether points already computed in compatible stores beside this one are copied.
+    point_seconds
+        The model's estimated seconds per point on one core with these settings (``estimated_cost``).
     refine
         ``None``, or ``{"levels": L, "x": AXIS|None, "y": AXIS|None}``: after the grid is complete, evaluate
         new points along regime boundaries, level by level (see :mod:`sweepshell.engine.refine`).
@@ -107,6 +122,25 @@ class SweepPlan:
     reuse: bool = True
     refine: dict[str, Any] | None = None
     store_options: dict[str, Any] = field(default_factory=dict, repr=False)
+    point_seconds: float = 0.0
+
+    def estimated_seconds(self, points: int | None = None) -> float:
+        """Estimated work of ``points`` points (all of the sweep by default) in seconds on one core."""
+        return self.point_seconds * (self.n_points if points is None else points)
+
+    def describe_executor(self, points: int | None = None) -> str:
+        """Say where the blocks run, e.g. ``runs in this process: estimated 0.4 s of work``."""
+        seconds = self.estimated_seconds(points)
+        spec = self.executor
+        if spec.runs_in_process(seconds):
+            where = "runs in this process"
+        elif spec.kind in ("auto", "local"):
+            where = f"runs on {spec.workers or 'one per core'} local worker process(es)"
+        elif spec.kind == "threads":
+            where = f"runs on {spec.workers or 1} thread(s) of a dask cluster in this process"
+        else:
+            where = f"runs on the dask cluster at {spec.address}"
+        return f"{where}: estimated {seconds:.3g} s of work (executor {spec.kind})"
 
     @property
     def shape(self) -> tuple[int, ...]:

@@ -1,6 +1,6 @@
 """Store metadata: every name of the store layout, and the only code that reads ``zarr.json``.
 
-A store is one zarr (format 3) group written through xarray, so ``xr.open_zarr(path)``
+A store is one zarr (format 3) group laid out as xarray writes one, so ``xr.open_zarr(path)``
 works without sweepshell. Dimensions are the sweep axes in plan order, then any extra
 output dimensions of the model. Group attributes hold plain JSON types or JSON strings
 (the settings, fixed-parameter and axes records, written by :func:`canonical_json`).

@@ -14,10 +14,11 @@ Safety rules this module keeps (see DESIGN.md and STACK-NOTES.md):
 
 from __future__ import annotations
 
+import base64
 import datetime as _dt
 import json
 import logging
-import warnings
+import os
 from collections.abc import Sequence
 from typing import Any
 
@@ -41,6 +42,7 @@ __all__ = [
     "store_block_shape",
     "store_exists",
     "write_block",
+    "write_template",
 ]
 
 log = logging.getLogger(__name__)
@@ -170,58 +172,81 @@ def store_exists(path: AnyPath) -> bool:
 
 def create_store(plan: SweepPlan, model: SweepModel, block_shape: Sequence[int]) -> None:
     """Write the template of a new store (no values) and move it into place atomically."""
-    import dask.array as da
-    import xarray as xr
-    from zarr.codecs import ZstdCodec
-
     target = as_path(plan.store_path)
     tmp = temporary_folder(target)
-    block_shape = tuple(int(b) for b in block_shape)
-    shape = plan.shape
-    dims = plan.axis_names
-    extra = model.extra_dims
-    coords: dict[str, Any] = {}
+    write_template(tmp, plan, model, tuple(int(b) for b in block_shape))
+    if not publish_template(tmp, target):
+        # another runner created the store first; theirs is as good as ours if it matches
+        check_store_matches(target, plan, model)
+
+
+def write_template(folder: str | os.PathLike[str], plan: SweepPlan, model: SweepModel,
+                   block_shape: tuple[int, ...]) -> None:
+    """Write a store's template at ``folder`` with zarr alone: arrays, coordinates, attributes, no values.
+
+    The nodes are what ``xarray.Dataset.to_zarr(..., compute=False)`` writes for the same dataset
+    (coordinates with zarr's default compressor and xarray's ``_FillValue`` attribute on floats, outputs,
+    ``regime`` and ``status`` chunked by block with a checksummed compressor), so ``xr.open_zarr`` opens
+    it as before, without the cost of importing xarray and dask to create it. Consolidated metadata is
+    written last.
+    """
+    import zarr
+    from zarr.codecs import ZstdCodec
+
+    root: Any = zarr.open_group(str(folder), mode="w-", zarr_format=3,
+                                attributes=plan_attrs(plan, model, block_shape))
     for axis in plan.axes:
         param = model.get_parameter(axis.name)
-        attrs = {"long_name": param.doc, "spacing": axis.spacing}
+        attrs: dict[str, Any] = {"long_name": param.doc, "spacing": axis.spacing}
         if not param.is_categorical:  # names carry no units
             attrs["units"] = param.units
         if param.symbol:
             attrs["symbol"] = param.symbol
-        coords[axis.name] = xr.Variable((axis.name,), axis.to_array(), attrs)
+        _write_coordinate(root, axis.name, axis.to_array(), attrs)
     for dim, coord in model.extra_coords().items():
-        values = np.asarray(coord)
-        if values.dtype.kind == "U":  # fixed-width strings are an unstable zarr 3 extension; object strings are not
-            values = values.astype(object)
-        coords[dim] = xr.Variable((dim,), values)
-    data_vars: dict[str, xr.Variable] = {}
-    encoding: dict[str, dict[str, Any]] = {}
-    compressors = (ZstdCodec(level=3, checksum=True),)
+        _write_coordinate(root, dim, np.asarray(coord), {})
+    checked = (ZstdCodec(level=3, checksum=True),)
+    extra = model.extra_dims
     for out in model.outputs:
-        out_dims = dims + out.dims
-        out_shape = shape + tuple(extra[d] for d in out.dims)
-        chunks = block_shape + tuple(extra[d] for d in out.dims)
         attrs = {"units": out.units, "long_name": out.doc}
         if out.symbol:
             attrs["symbol"] = out.symbol
-        data_vars[out.name] = xr.Variable(out_dims, da.full(out_shape, np.nan, dtype=out.dtype, chunks=chunks),
-                                          attrs)
-        encoding[out.name] = {"chunks": chunks, "fill_value": np.nan, "compressors": compressors}
-    data_vars[metadata.REGIME_VAR] = xr.Variable(
-        dims, da.full(shape, -1, dtype=np.int8, chunks=block_shape), metadata.regime_attrs(model.regimes))
-    encoding[metadata.REGIME_VAR] = {"chunks": block_shape, "fill_value": -1, "compressors": compressors}
-    data_vars[metadata.STATUS_VAR] = xr.Variable(
-        dims, da.zeros(shape, dtype=np.uint8, chunks=block_shape), metadata.status_attrs())
-    encoding[metadata.STATUS_VAR] = {"chunks": block_shape, "fill_value": 0, "compressors": compressors}
-    ds = xr.Dataset(data_vars, coords=coords, attrs=plan_attrs(plan, model, block_shape))
-    with warnings.catch_warnings():
-        # consolidated metadata lets plain xr.open_zarr(path) open the store quietly and fast; zarr warns
-        # that it is an extension of format 3, which we accept: arrays are never added after creation
-        warnings.filterwarnings("ignore", message=".*[Cc]onsolidated metadata.*")
-        ds.to_zarr(tmp, mode="w-", compute=False, zarr_format=3, consolidated=True, encoding=encoding)
-    if not publish_template(tmp, target):
-        # another runner created the store first; theirs is as good as ours if it matches
-        check_store_matches(target, plan, model)
+        attrs.update(_cf_fill_attrs(np.dtype(out.dtype), np.nan))
+        root.create_array(out.name, shape=plan.shape + tuple(extra[d] for d in out.dims), dtype=out.dtype,
+                          chunks=block_shape + tuple(extra[d] for d in out.dims), fill_value=np.nan,
+                          compressors=checked, attributes=attrs, dimension_names=plan.axis_names + out.dims)
+    root.create_array(metadata.REGIME_VAR, shape=plan.shape, dtype=np.int8, chunks=block_shape, fill_value=-1,
+                      compressors=checked, attributes=metadata.regime_attrs(model.regimes),
+                      dimension_names=plan.axis_names)
+    root.create_array(metadata.STATUS_VAR, shape=plan.shape, dtype=np.uint8, chunks=block_shape, fill_value=0,
+                      compressors=checked, attributes=metadata.status_attrs(), dimension_names=plan.axis_names)
+    metadata.reconsolidate(folder)
+
+
+def _write_coordinate(root: Any, name: str, values: np.ndarray, attrs: dict[str, Any]) -> None:
+    """Write one coordinate array (one chunk) with its values, as xarray writes an index coordinate."""
+    if values.dtype.kind in "UO":  # variable-length strings: fixed-width ones are an unstable zarr 3 extension
+        arr = root.create_array(name, shape=values.shape, dtype=str, chunks=values.shape, attributes=attrs,
+                                dimension_names=(name,))
+        arr[...] = values.astype(object)
+        return
+    attrs = {**attrs, **_cf_fill_attrs(values.dtype)}
+    fill = np.nan if values.dtype.kind == "f" else 0
+    arr = root.create_array(name, shape=values.shape, dtype=values.dtype, chunks=values.shape, fill_value=fill,
+                            attributes=attrs, dimension_names=(name,))
+    arr[...] = values
+
+
+def _cf_fill_attrs(dtype: np.dtype[Any], fill: float = np.nan) -> dict[str, Any]:
+    """Return the ``_FillValue`` attribute xarray writes beside a zarr 3 array of ``dtype`` (floats only).
+
+    xarray records a float variable's missing value as the base64 text of its little-endian bytes;
+    integer and string variables carry none (their fill value lives in the array metadata only).
+    """
+    if dtype.kind != "f":
+        return {}
+    raw = np.array(fill, dtype=dtype.newbyteorder("<")).tobytes()
+    return {"_FillValue": base64.standard_b64encode(raw).decode("ascii")}
 
 
 def write_block(path: AnyPath, block: Block, result: BatchResult,

@@ -125,3 +125,29 @@ def test_stale_template_folder_is_cleaned_and_store_created(workdir):
     (stale / "zarr.json").write_text("{")
     summary = run_sweep(str(sweep), ["executor=threads"])
     assert summary.complete and not stale.exists()
+
+
+def test_in_process_run_survives_ctrl_c_and_sigkill(workdir):
+    """The in-process executor keeps the dask path's guarantees: Ctrl-C exits 130, SIGKILL loses nothing final."""
+    sweep = write_sweep(workdir, SLOW_SWEEP)
+    here = "executor.in_process_seconds=600"  # ~6 s of work: computed in the runner's own process
+    store = workdir / "results" / "slow_column.zarr"
+    done = lambda n: lambda: store.exists() and int(np.sum(open_sweep(store).status.values != 0)) >= n  # noqa: E731
+    proc = _start(sweep, workdir, here)
+    assert _wait_for(done(1), proc, timeout=120)
+    proc.send_signal(signal.SIGINT)
+    _, err = proc.communicate(timeout=120)
+    assert proc.returncode == 130, err.decode()
+    assert b"run the same command again to continue" in err
+    before = int(np.sum(open_sweep(store).status.values != 0))
+    proc = _start(sweep, workdir, here)
+    assert _wait_for(done(before + 50), proc, timeout=120)
+    _kill_group(proc)
+    proc = _start(sweep, workdir, here)
+    _, err = proc.communicate(timeout=300)
+    assert proc.returncode == 0, err.decode()
+    reference = run_sweep(str(sweep), ["executor=threads", "store.path=reference.zarr"])
+    assert reference.complete
+    got = open_sweep(store).load()
+    want = open_sweep(workdir / "reference.zarr").load()
+    xr.testing.assert_identical(got.drop_attrs(), want.drop_attrs())

@@ -128,7 +128,7 @@ def test_model_that_raises_marks_points_failed(workdir, monkeypatch):
 
 
 @pytest.mark.slow
-def test_local_worker_processes_match_threads(workdir):
+def test_local_worker_processes_match_in_process(workdir):
     sweep = write_sweep(workdir, COLUMN_SWEEP)
     run_sweep(str(sweep), ["executor=local", "executor.workers=2", "store.path=results/a.zarr"])
     run_sweep(str(sweep), ["store.path=results/b.zarr"])

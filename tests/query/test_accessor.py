@@ -11,8 +11,8 @@ import numpy as np
 import pytest
 
 from sweepshell import open_sweep, run_sweep
-from sweepshell.engine.observers import LineObserver
 from sweepshell.engine.executors import dashboard_link
+from sweepshell.engine.observers import LineObserver
 from sweepshell.testing import winkler_column_critical
 from tests.conftest import COLUMN_SWEEP, write_sweep
 

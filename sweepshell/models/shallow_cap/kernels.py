@@ -24,7 +24,6 @@ from __future__ import annotations
 from dataclasses import dataclass, field
 
 import numpy as np
-from scipy import special
 
 from sweepshell.numerics.radial_chebyshev import RadialGrid
 
@@ -44,6 +43,8 @@ def singular_slope(x: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
 
 def _weighted_step_integral(x: np.ndarray, rho: np.ndarray, w: float) -> np.ndarray:
     """Return ``∫₀ˣ s χ(s) ds`` for ``χ(s) = ½[erf((s+ρ)/w) − erf((s−ρ)/w)]`` (closed form)."""
+
+    from scipy import special  # only smoothed mismatch edges need erf: not imported on every model load
 
     def antiderivative(s: np.ndarray, shift: np.ndarray) -> np.ndarray:
         # ∫ s erf((s + shift)/w) ds with u = (s + shift)/w
@@ -91,6 +92,8 @@ def eigenstrain_stress(x: np.ndarray, rho: np.ndarray, annulus: np.ndarray, nu: 
     r = rho[:, None]
     whole = r >= 1.0
     if width > 0.0:
+        from scipy import special  # smoothed edges only: not imported on every model load
+
         chi = np.where(whole, 1.0, 0.5 * (special.erf((pts + r) / width) - special.erf((pts - r) / width)))
         f_disc = np.where(whole, 2.0 * pts, 4.0 * _weighted_step_integral(pts, r, width) / pts)
     else:
