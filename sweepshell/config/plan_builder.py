@@ -70,8 +70,10 @@ def build_plan(cfg: Mapping[str, Any], *, source: str = "<dict>") -> SweepPlan:
     if not isinstance(reuse, bool):
         raise ConfigError(f"reuse={reuse!r} must be true or false", field="reuse", value=reuse)
     refine = _build_refine(cfg.get("refine"), [a.name for a in axes])
+    point_seconds = float(model.estimated_cost())
+    in_process = executor.kind == "threads" or executor.runs_in_process(point_seconds * n_points)
     store_path, store_options = read_store_config(cfg.get("store"), os.path.join("results", f"{name}.zarr"),
-                                                  process_workers=executor.kind != "threads")
+                                                  process_workers=not in_process)
     resolved = {
         "name": name,
         "model": model_name,
@@ -91,7 +93,7 @@ def build_plan(cfg: Mapping[str, Any], *, source: str = "<dict>") -> SweepPlan:
         axes=tuple(axes), store_path=str(store_path), executor=executor, block_points=block_points,
         resolved_yaml=yaml.safe_dump(resolved, sort_keys=False), reuse=reuse, refine=refine,
         store_options=store_options,
-        point_seconds=float(model.estimated_cost()),
+        point_seconds=point_seconds,
     )
 
 
