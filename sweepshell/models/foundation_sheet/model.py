@@ -151,7 +151,7 @@ class FoundationSheetModel(SweepModel):
                       default=64, bounds=(8, 512), integer=True, symbol="n"),
     )
     regimes: ClassVar[tuple[str, ...]] = PATTERN_NAMES
-    #: measured: 0.23 s (stripes), 0.67 s (herringbone), 1.7 s (labyrinth) per point, one busy core
+    #: seconds per point on one core, between the stripe and labyrinth costs recorded in theory.md
     cost_hint: ClassVar[float] = 0.9
 
     def __init__(self, *, seeds: Sequence[int] = (1, 2, 3), perturbation: float = 0.01,

@@ -57,8 +57,8 @@ Accuracy at the default 16 segments per wavelength: the
 discrete onset is low by h²/4 (2 % of P_c; 0.3 % at 40), the fold-branch load within
 1.5 % of the exact law and second order in h; the reported ``critical_load`` and
 ``wavelength`` are the exact closed form. Points sharing (c₃, s, a) share one path, so a
-confinement axis costs one path per strip and block. Timing: about 0.1 s per path to the
-fold on one core (``benchmarks/bench_foundation_strip.py``).
+confinement axis costs one path per strip and block. The cost per path is measured by
+``benchmarks/bench_foundation_strip.py`` and recorded in ``theory.md``.
 
 References checked by the tests: Hetényi (1946) and Timoshenko & Gere (1961) for the
 onset 2√(BK), 2π(B/K)^{1/4} and the finite pinned strip; Diamant & Witten (2011) for the

@@ -22,12 +22,11 @@ def get_mismatch_nodes(settings: Mapping[str, Any], lam: np.ndarray) -> np.ndarr
 
     Sharp edge (``mismatch_step_width`` 0), on the grid clustered at the edge
     (:func:`choose_grid_centres`): ``nodes``, or when automatic 44 + 1.8λ (even, 48 … 96), the
-    measured need for 10⁻⁴ relative accuracy of the critical load (against 160 nodes: 48 nodes
-    leave 2·10⁻⁴ at λ = 8 and 12, 10⁻³ at λ = 20; 64 nodes 4·10⁻⁵ at λ = 12, 80 nodes 7·10⁻⁵ at
-    λ = 20; tests/models/shallow_cap/test_mismatch_sharp.py). Smoothed edge: the edge sits
-    inside the cap, where the Chebyshev grid is coarsest; below w·nodes ≈ 3.4 the results lose
-    digits fast (10⁻⁶ relative at 3.4, 10⁻³ at 2), so ``nodes`` (when automatic max(34,
-    16 + 1.5λ), even) is raised until w·nodes ≥ 3.4.
+    size that gives about 10⁻⁴ relative accuracy of the critical load (the measurements are in
+    ``theory.md`` and tests/models/shallow_cap/test_mismatch_sharp.py). Smoothed edge: the edge
+    sits inside the cap, where the Chebyshev grid is coarsest, and results lose digits fast when
+    w·nodes falls below about 3.4, so ``nodes`` (when automatic max(34, 16 + 1.5λ), even) is
+    raised until w·nodes ≥ 3.4.
     """
     width = float(settings["mismatch_step_width"])
     if width == 0.0:
