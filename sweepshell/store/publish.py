@@ -71,11 +71,13 @@ def _upload(tmp: Path, target: ObjectPath) -> bool:
     record = json.dumps({"runner": f"{socket.gethostname()}:{os.getpid()}", "started": time.time()}).encode()
     if metadata.has_node(target):
         return False
-    if target.find():  # something is there that is not a store, nor a creation we can tell apart
-        if not marker.exists():
-            raise StoreSchemaError(f"store.path={str(target)!r} holds objects that are not a sweepshell store; "
-                                   "choose another path", field="store.path", value=str(target))
-        return _wait_for_other(target)
+    if target.find():  # a creation in progress, one that finished since the check above, or foreign objects
+        if marker.exists():
+            return _wait_for_other(target)
+        if metadata.has_node(target):  # the other creator published its root and removed its marker meanwhile
+            return False
+        raise StoreSchemaError(f"store.path={str(target)!r} holds objects that are not a sweepshell store; "
+                               "choose another path", field="store.path", value=str(target))
     try:
         won = marker.create_exclusive(record)
     except NotImplementedError:  # no conditional writes: the last creator's template wins, all are equal
