@@ -68,6 +68,17 @@ def _interrupt_between_blocks() -> Iterator[threading.Event]:
         signal.signal(signal.SIGINT, previous)
 
 
+def finish_block(block: Block, info: dict[str, Any], claims: ClaimBook, observer: RunObserver,
+                 tally: dict[str, Any]) -> None:
+    """Release a computed block's claim and count it (points computed and reused, model time, progress)."""
+    claims.release(block.index)
+    tally["model_seconds"] += info["model_seconds"]
+    tally["reused"] += info["reused"]
+    tally["computed"] += info["points"]
+    tally["blocks"] += 1
+    observer.advance(info["points"])
+
+
 def _drive(plan: SweepPlan, pending: list[Block], claims: ClaimBook, observer: RunObserver, tally: dict[str, Any],
            donors: list[Donor], stop_requested: threading.Event) -> None:
     path = absolute_store_path(plan.store_path)
@@ -94,12 +105,7 @@ def _drive(plan: SweepPlan, pending: list[Block], claims: ClaimBook, observer: R
             info = compute_block(path, plan.model, plan.settings, plan.axis_names,
                                  [v[s] for v, s in zip(axis_values, block.slices, strict=True)], plan.fixed, block,
                                  donors)
-            claims.release(block.index)
-            tally["model_seconds"] += info["model_seconds"]
-            tally["reused"] += info["reused"]
-            tally["computed"] += info["points"]
-            tally["blocks"] += 1
-            observer.advance(info["points"])
+            finish_block(block, info, claims, observer, tally)
         waiting = []
         if held_elsewhere:  # another runner has them; drop the ones it finished, retry the rest shortly
             ledger = read_ledger(plan.store_path)

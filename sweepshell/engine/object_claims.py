@@ -26,6 +26,7 @@ import uuid
 from sweepshell.engine.claims import CLAIMS_DIR, ClaimBook
 from sweepshell.store.leftovers import claim_is_stale
 from sweepshell.store.location import ObjectPath, as_path
+from sweepshell.store.objectpath import NoConditionalWrites
 
 __all__ = ["ObjectClaimBook"]
 
@@ -62,7 +63,7 @@ class ObjectClaimBook(ClaimBook):
         try:
             first = probe.create_exclusive(b"1")
             second = probe.create_exclusive(b"2")
-        except NotImplementedError:
+        except NoConditionalWrites:
             return False
         finally:
             probe.unlink(missing_ok=True)

@@ -22,7 +22,7 @@ from sweepshell.engine.executors import (
     describe_outside_fault,
     start_client_early,
 )
-from sweepshell.engine.inprocess import drive_in_process
+from sweepshell.engine.inprocess import drive_in_process, finish_block
 from sweepshell.engine.observers import RunObserver, SilentObserver
 from sweepshell.engine.reuse import Donor, find_donors
 from sweepshell.engine.worker import compute_block
@@ -301,13 +301,7 @@ def _drive(client: Any, plan: SweepPlan, pending: list[Block], claims: ClaimBook
                     done = set()
                 for future in done:
                     block = in_flight.pop(future)
-                    info = future.result()
-                    claims.release(block.index)
-                    tally["model_seconds"] += info["model_seconds"]
-                    tally["reused"] += info["reused"]
-                    tally["computed"] += info["points"]
-                    tally["blocks"] += 1
-                    observer.advance(info["points"])
+                    finish_block(block, future.result(), claims, observer, tally)
             if time.monotonic() - last_beat >= heartbeat:
                 claims.heartbeat()
                 last_beat = time.monotonic()

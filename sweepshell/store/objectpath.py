@@ -28,6 +28,10 @@ def protocol_of(path: Any) -> str:
     return m.group(1).lower() if m else ""
 
 
+class NoConditionalWrites(Exception):
+    """The filesystem cannot create an object only if it is absent, so several writers cannot coordinate."""
+
+
 @dataclass(frozen=True)
 class _Stat:
     st_size: int
@@ -213,7 +217,7 @@ class ObjectPath:
 
         Raises
         ------
-        NotImplementedError
+        NoConditionalWrites
             If the filesystem cannot create conditionally (then several writers cannot coordinate).
         """
         try:
@@ -222,7 +226,7 @@ class ObjectPath:
         except FileExistsError:
             return False
         except (ValueError, TypeError) as exc:  # "xb" mode unknown to this filesystem
-            raise NotImplementedError(f"{self.protocol}:// has no create-if-absent write ({exc})") from None
+            raise NoConditionalWrites(f"{self.protocol}:// has no create-if-absent write ({exc})") from None
         return True
 
     def unlink(self, missing_ok: bool = False) -> None:

@@ -26,6 +26,7 @@ from pathlib import Path
 from sweepshell.errors import StoreSchemaError
 from sweepshell.store import metadata
 from sweepshell.store.location import AnyPath, ObjectPath, StorePath, as_path
+from sweepshell.store.objectpath import NoConditionalWrites
 
 __all__ = ["CREATING_MARKER", "STALE_SECONDS", "clean_stale_temporaries", "creation_abandoned", "publish_template",
            "temporary_folder"]
@@ -80,7 +81,7 @@ def _upload(tmp: Path, target: ObjectPath) -> bool:
                                "choose another path", field="store.path", value=str(target))
     try:
         won = marker.create_exclusive(record)
-    except NotImplementedError:  # no conditional writes: the last creator's template wins, all are equal
+    except NoConditionalWrites:  # no conditional writes: the last creator's template wins, all are equal
         marker.write_bytes(record)
         won = True
     if not won:
