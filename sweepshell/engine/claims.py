@@ -26,9 +26,10 @@ import time
 import uuid
 from pathlib import Path
 
-__all__ = ["CLAIMS_DIR", "ClaimBook", "open_claims", "remove_stale_claims"]
+from sweepshell.store.leftovers import CLAIMS_DIR
+from sweepshell.store.liveness import is_process_gone
 
-CLAIMS_DIR = ".claims"
+__all__ = ["CLAIMS_DIR", "ClaimBook", "open_claims", "remove_stale_claims"]
 
 
 class ClaimBook:
@@ -86,15 +87,7 @@ class ClaimBook:
             host, pid, _ = json.loads(path.read_text())["runner"].rsplit(":", 2)
         except (OSError, ValueError, KeyError, TypeError):
             return False  # being written, or unreadable: trust the heartbeat age instead
-        if host != socket.gethostname() or not pid.isdigit():
-            return False
-        try:
-            os.kill(int(pid), 0)
-        except ProcessLookupError:
-            return True
-        except PermissionError:
-            return False
-        return False
+        return is_process_gone(host, pid)
 
     def _create(self, path: Path) -> bool:
         for _ in range(5):

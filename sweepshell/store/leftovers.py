@@ -11,6 +11,7 @@ from pathlib import Path
 from typing import Any
 
 from sweepshell.store import metadata
+from sweepshell.store.liveness import is_process_gone
 from sweepshell.store.location import AnyPath, ObjectPath, StorePath, as_path
 from sweepshell.store.publish import CREATING_MARKER, clean_stale_temporaries, creation_abandoned
 
@@ -18,18 +19,6 @@ __all__ = ["CLAIMS_DIR", "claim_is_stale", "find_leftovers", "leftover_temporari
 
 #: the folder of block claims inside a store (see sweepshell.engine.claims)
 CLAIMS_DIR = ".claims"
-
-
-def _pid_gone(host: str, pid: str) -> bool:
-    if host != socket.gethostname() or not pid.isdigit():
-        return False
-    try:
-        os.kill(int(pid), 0)
-    except ProcessLookupError:
-        return True
-    except (PermissionError, OverflowError):
-        return False
-    return False
 
 
 def claim_is_stale(record: Any, now: float | None = None) -> bool:
@@ -40,7 +29,7 @@ def claim_is_stale(record: Any, now: float | None = None) -> bool:
         host, pid, _ = str(record["runner"]).rsplit(":", 2)
     except (TypeError, KeyError, ValueError):
         return True
-    return lease_until < now or _pid_gone(host, pid)
+    return lease_until < now or is_process_gone(host, pid)
 
 
 def stale_claim_files(store: AnyPath, ttl: float = 60.0) -> list[StorePath]:
@@ -72,7 +61,7 @@ def stale_claim_files(store: AnyPath, ttl: float = 60.0) -> list[StorePath]:
             host, pid, _ = json.loads(claim.read_text())["runner"].rsplit(":", 2)
         except (OSError, ValueError, KeyError, TypeError, AttributeError):
             host, pid, age = "", "", now - claim.stat().st_mtime if claim.exists() else 0.0
-        if age > ttl or _pid_gone(host, pid) or ".stale-" in claim.name:
+        if age > ttl or is_process_gone(host, pid) or ".stale-" in claim.name:
             stale.append(claim)
     return stale
 
@@ -82,7 +71,7 @@ def leftover_temporaries(folder: str | os.PathLike[str]) -> list[Path]:
     found = []
     for sub in sorted(Path(folder).glob("*" + metadata.TEMP_SUFFIX + "-*")):
         pid = sub.name.rsplit("-", 1)[-1]
-        if sub.is_dir() and not sub.is_symlink() and _pid_gone(socket.gethostname(), pid):
+        if sub.is_dir() and not sub.is_symlink() and is_process_gone(socket.gethostname(), pid):
             found.append(sub)
     return found
 

@@ -25,6 +25,7 @@ from pathlib import Path
 
 from sweepshell.errors import StoreSchemaError
 from sweepshell.store import metadata
+from sweepshell.store.liveness import is_process_gone
 from sweepshell.store.location import AnyPath, ObjectPath, StorePath, as_path
 from sweepshell.store.objectpath import NoConditionalWrites
 
@@ -113,7 +114,7 @@ def _creator_gone(marker: ObjectPath) -> bool:
         host, pid = str(record["runner"]).rsplit(":", 1)
     except (OSError, ValueError, KeyError, TypeError):
         return marker.exists() and marker.age() > STALE_SECONDS
-    if host == socket.gethostname() and pid.isdigit() and not _pid_alive(int(pid)):
+    if is_process_gone(host, pid):
         return True
     return marker.age() > STALE_SECONDS
 
@@ -138,18 +139,8 @@ def clean_stale_temporaries(path: AnyPath) -> bool:
     removed = False
     for tmp in target.parent.glob(target.name + metadata.TEMP_SUFFIX + "-*"):
         pid_text = tmp.name.rsplit("-", 1)[-1]
-        if pid_text.isdigit() and _pid_alive(int(pid_text)):
+        if pid_text.isdigit() and not is_process_gone(socket.gethostname(), pid_text):
             continue
         shutil.rmtree(tmp, ignore_errors=True)
         removed = True
     return removed
-
-
-def _pid_alive(pid: int) -> bool:
-    try:
-        os.kill(pid, 0)
-    except ProcessLookupError:
-        return False
-    except (PermissionError, OverflowError):
-        return True
-    return True
