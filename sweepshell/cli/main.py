@@ -117,8 +117,9 @@ def _cmd_run(args: argparse.Namespace) -> int:
     try:
         summary = run_plan(plan, observer=observer)
     except SweepInterrupted as stop:
-        print(f"interrupted: {stop.summary.to_line()}; run the same command again to continue",
-              file=sys.stderr)
+        then = "; run the same command again to continue" if not stop.summary.complete else \
+            " (every block was already written: the store is complete)"
+        print(f"interrupted: {stop.summary.to_line()}{then}", file=sys.stderr)
         return EXIT_INTERRUPTED
     print(summary.to_line())
     if plan.refine and summary.complete:

@@ -307,11 +307,22 @@ def _drive(client: Any, plan: SweepPlan, pending: list[Block], claims: ClaimBook
                 last_beat = time.monotonic()
     except KeyboardInterrupt:
         client.cancel(list(in_flight))
+        # a worker may have written a block whose result was never collected; the ledger says so at the end
+        tally["uncollected"] = list(in_flight.values())
         raise
 
 
 def _final_summary(plan: SweepPlan, block_shape: tuple[int, ...], tally: dict[str, Any], t0: float) -> RunSummary:
+    """Summarise the run from the store's ledger and the tally.
+
+    Blocks submitted but not collected when the run was interrupted count as computed by this run
+    when the ledger holds them final: their claims were this runner's, so its workers wrote them.
+    """
     ledger = read_ledger(plan.store_path, block_shape)
+    for block in tally.pop("uncollected", []):
+        if not np.any(ledger[block.slices] == Status.pending):
+            tally["computed"] += block.n_points
+            tally["blocks"] += 1
     return RunSummary(store_path=plan.store_path, total=plan.n_points, counts=_counts(ledger),
                       computed=tally["computed"], blocks=tally["blocks"], wall_seconds=time.perf_counter() - t0,
                       model_seconds=tally["model_seconds"], reused=tally["reused"],

@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import contextlib
 import os
+import re
 import signal
 import subprocess
 import sys
@@ -56,6 +57,13 @@ def _wait_for(predicate, proc: subprocess.Popen[bytes], timeout: float = 60.0) -
     return False
 
 
+def _computed_and_final(err: bytes, store: Path) -> tuple[int, int]:
+    """Points the interrupted run says it computed, and points final in its (new) store."""
+    said = re.search(rb"computed (\d+) points", err)
+    assert said, err.decode()
+    return int(said.group(1)), int(np.sum(open_sweep(store).status.values != Status.pending))
+
+
 def test_sigkill_at_random_instants_then_resume_is_identical(workdir, rng):
     sweep = write_sweep(workdir, SLOW_SWEEP)
     reference = run_sweep(str(sweep), ["executor=threads", "store.path=reference.zarr"])
@@ -99,6 +107,8 @@ def test_interrupt_exits_130_and_the_next_run_continues(workdir):
     assert proc.returncode == 130, err.decode()
     assert b"run the same command again to continue" in err
     assert b"Traceback" not in err, err.decode()  # the workers leave Ctrl-C to the runner
+    computed, final = _computed_and_final(err, store)
+    assert computed == final > 0  # blocks written by workers but not yet collected count too
     proc = _start(sweep, workdir, "executor.workers=2")
     _, err = proc.communicate(timeout=300)
     assert proc.returncode == 0, err.decode()
@@ -139,7 +149,8 @@ def test_in_process_run_survives_ctrl_c_and_sigkill(workdir):
     _, err = proc.communicate(timeout=120)
     assert proc.returncode == 130, err.decode()
     assert b"run the same command again to continue" in err
-    before = int(np.sum(open_sweep(store).status.values != 0))
+    computed, before = _computed_and_final(err, store)
+    assert computed == before > 0
     proc = _start(sweep, workdir, here)
     assert _wait_for(done(before + 50), proc, timeout=120)
     _kill_group(proc)
