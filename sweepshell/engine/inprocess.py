@@ -4,7 +4,9 @@ Small sweeps (``executor.kind: auto`` with little estimated work) spend far less
 model than starting local workers costs. Here each pending block goes through the same steps
 as on a dask worker: it is claimed, checked for having been finished by another runner, computed
 and written by :func:`sweepshell.engine.worker.compute_block` (the one block writer), and its
-claim released; the ledger, claims and progress therefore behave as in the dask drive loop.
+claim released; the ledger, claims and progress therefore behave as in the dask drive loop, which
+shares this module's block bookkeeping (:func:`take_block`, :func:`recheck_held_elsewhere`,
+:func:`finish_block`).
 
 A Ctrl-C stops the run after the block being computed (a second Ctrl-C at once), so the interrupt
 lands in this module between blocks rather than inside a library's write; a kill at any instant
@@ -31,7 +33,7 @@ from sweepshell.plan import Block, SweepPlan
 from sweepshell.store.location import absolute_store_path
 from sweepshell.store.reader import is_block_final, read_ledger
 
-__all__ = ["drive_in_process"]
+__all__ = ["drive_in_process", "finish_block", "recheck_held_elsewhere", "take_block"]
 
 
 def drive_in_process(plan: SweepPlan, pending: list[Block], claims: ClaimBook, observer: RunObserver,
@@ -79,6 +81,40 @@ def finish_block(block: Block, info: dict[str, Any], claims: ClaimBook, observer
     observer.advance(info["points"])
 
 
+def take_block(block: Block, store_path: str, claims: ClaimBook, observer: RunObserver,
+               tally: dict[str, Any]) -> bool | None:
+    """Claim a pending block for computing.
+
+    Returns ``True`` when it is ours to compute, ``False`` when another live runner holds it (look again
+    later with :func:`recheck_held_elsewhere`), ``None`` when another runner finished it since the ledger
+    was read (released and counted).
+    """
+    if not claims.try_claim(block.index):
+        return False
+    if is_block_final(store_path, block):
+        claims.release(block.index)
+        tally["by_others"] += block.n_points
+        observer.advance(block.n_points)
+        return None
+    return True
+
+
+def recheck_held_elsewhere(store_path: str, held: list[Block], observer: RunObserver,
+                           tally: dict[str, Any]) -> list[Block]:
+    """Return the blocks of ``held`` (claimed by other runners) still pending; count the ones they finished."""
+    if not held:
+        return []
+    ledger = read_ledger(store_path)
+    still: list[Block] = []
+    for block in held:
+        if np.any(ledger[block.slices] == Status.pending):
+            still.append(block)
+        else:
+            tally["by_others"] += block.n_points
+            observer.advance(block.n_points)
+    return still
+
+
 def _drive(plan: SweepPlan, pending: list[Block], claims: ClaimBook, observer: RunObserver, tally: dict[str, Any],
            donors: list[Donor], stop_requested: threading.Event) -> None:
     path = absolute_store_path(plan.store_path)
@@ -94,29 +130,18 @@ def _drive(plan: SweepPlan, pending: list[Block], claims: ClaimBook, observer: R
             if time.monotonic() - last_beat >= heartbeat:
                 claims.heartbeat()
                 last_beat = time.monotonic()
-            if not claims.try_claim(block.index):
+            taken = take_block(block, plan.store_path, claims, observer, tally)
+            if taken is False:
                 held_elsewhere.append(block)
-                continue
-            if is_block_final(plan.store_path, block):  # another runner finished it since we read the ledger
-                claims.release(block.index)
-                tally["by_others"] += block.n_points
-                observer.advance(block.n_points)
+            if not taken:
                 continue
             info = compute_block(path, plan.model, plan.settings, plan.axis_names,
                                  [v[s] for v, s in zip(axis_values, block.slices, strict=True)], plan.fixed, block,
                                  donors)
             finish_block(block, info, claims, observer, tally)
-        waiting = []
-        if held_elsewhere:  # another runner has them; drop the ones it finished, retry the rest shortly
-            ledger = read_ledger(plan.store_path)
-            for block in held_elsewhere:
-                if np.any(ledger[block.slices] == Status.pending):
-                    waiting.append(block)
-                else:
-                    tally["by_others"] += block.n_points
-                    observer.advance(block.n_points)
-            if waiting:
-                stop_requested.wait(min(1.0, heartbeat))
-                if time.monotonic() - last_beat >= heartbeat:
-                    claims.heartbeat()
-                    last_beat = time.monotonic()
+        waiting = recheck_held_elsewhere(plan.store_path, held_elsewhere, observer, tally)
+        if waiting:  # another runner still has them: retry shortly
+            stop_requested.wait(min(1.0, heartbeat))
+            if time.monotonic() - last_beat >= heartbeat:
+                claims.heartbeat()
+                last_beat = time.monotonic()

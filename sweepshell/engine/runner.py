@@ -22,7 +22,7 @@ from sweepshell.engine.executors import (
     describe_outside_fault,
     start_client_early,
 )
-from sweepshell.engine.inprocess import drive_in_process, finish_block
+from sweepshell.engine.inprocess import drive_in_process, finish_block, recheck_held_elsewhere, take_block
 from sweepshell.engine.observers import RunObserver, SilentObserver
 from sweepshell.engine.reuse import Donor, find_donors
 from sweepshell.engine.worker import compute_block
@@ -34,7 +34,7 @@ from sweepshell.store.chunk_checks import find_blocks_missing_chunks
 from sweepshell.store.integrity import check_store_metadata
 from sweepshell.store.location import absolute_store_path, as_path, zarr_store
 from sweepshell.store.metadata import REGIME_VAR, STATUS_VAR, has_node, is_store
-from sweepshell.store.reader import is_block_final, read_ledger
+from sweepshell.store.reader import read_ledger
 from sweepshell.store.writer import (
     check_store_matches,
     clean_stale_temporaries,
@@ -270,13 +270,10 @@ def _drive(client: Any, plan: SweepPlan, pending: list[Block], claims: ClaimBook
             held_elsewhere: list[Block] = []
             while waiting and len(in_flight) < slots:
                 block = waiting.pop(0)
-                if not claims.try_claim(block.index):
+                taken = take_block(block, path, claims, observer, tally)
+                if taken is False:
                     held_elsewhere.append(block)
-                    continue
-                if is_block_final(path, block):  # another runner finished it since we read the ledger
-                    claims.release(block.index)
-                    tally["by_others"] += block.n_points
-                    observer.advance(block.n_points)
+                if not taken:
                     continue
                 future = client.submit(
                     compute_block, absolute_store_path(path), plan.model, plan.settings, plan.axis_names,
@@ -284,14 +281,7 @@ def _drive(client: Any, plan: SweepPlan, pending: list[Block], claims: ClaimBook
                     key=f"sweepshell-block-{'-'.join(map(str, block.index))}-{claims.runner}", pure=False,
                     store_options=plan.store_options or None)
                 in_flight[future] = block
-            if held_elsewhere:  # another runner has them; drop the ones it finished, retry the rest later
-                ledger = read_ledger(path)
-                for block in held_elsewhere:
-                    if np.any(ledger[block.slices] == Status.pending):
-                        waiting.append(block)
-                    else:
-                        tally["by_others"] += block.n_points
-                        observer.advance(block.n_points)
+            waiting += recheck_held_elsewhere(path, held_elsewhere, observer, tally)  # others' blocks: retry later
             if not in_flight:
                 time.sleep(min(1.0, heartbeat))
             else:
