@@ -14,7 +14,9 @@ import importlib.machinery
 import importlib.metadata
 import importlib.util
 import logging
+import sys
 from dataclasses import dataclass
+from pathlib import Path
 from typing import Any
 
 from sweepshell.errors import UnknownModelError
@@ -149,6 +151,10 @@ def get_model(name: str) -> type[SweepModel]:
     """
     entry = _available().get(name) if isinstance(name, str) else None
     if entry is not None:
+        if entry[0] not in sys.modules:
+            from sweepshell.models.compiled_cache import ensure_compiled_cache
+
+            ensure_compiled_cache(Path(__file__).parent / entry[0].split(".")[2])  # before numba defines kernels
         module = importlib.import_module(entry[0])
         cls: type[SweepModel] = getattr(module, entry[1])
         return cls
