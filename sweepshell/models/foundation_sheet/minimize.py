@@ -119,18 +119,23 @@ def minimize_sheet_energy(problem: SheetProblem, z0: np.ndarray, *, gradient_tol
 
 
 def _compute_lbfgs_direction(g: np.ndarray, pairs: list[tuple[np.ndarray, np.ndarray, float]]) -> np.ndarray:
-    """Return the L-BFGS descent direction by the two-loop recursion."""
+    """Return the L-BFGS descent direction by the two-loop recursion.
+
+    The updates run in place on one work vector and one scratch vector (the same
+    arithmetic as ``q = q − a·y``, without a new array per pair).
+    """
     q = -g
+    scratch = np.empty_like(q)
     alphas = []
     for s_vec, y_vec, sy in reversed(pairs):
         a = float(s_vec @ q) / sy
         alphas.append(a)
-        q = q - a * y_vec
+        np.subtract(q, np.multiply(a, y_vec, out=scratch), out=q)
     if pairs:
         y_last = pairs[-1][1]
-        q = q * (pairs[-1][2] / float(y_last @ y_last))
+        np.multiply(q, pairs[-1][2] / float(y_last @ y_last), out=q)
     for (s_vec, y_vec, sy), a in zip(pairs, reversed(alphas), strict=True):
-        q = q + (a - float(y_vec @ q) / sy) * s_vec
+        np.add(q, np.multiply(a - float(y_vec @ q) / sy, s_vec, out=scratch), out=q)
     return q
 
 
