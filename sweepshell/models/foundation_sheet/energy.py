@@ -114,12 +114,6 @@ class SheetProblem:
     moment_symbols
         Rows (kx², ky², kx ky, L): one product gives the mean strains and the linear
         energy by Parseval.
-    spectrum_index
-        Flat ``rfft2`` indices of every nonzero mode of the height's half spectrum: the
-        unique modes, then the mirrored partners on the k_x = 0 axis.
-    spectrum_symbols
-        ``hessian_symbols`` at ``spectrum_index``: the spectra of (Wxx, Wyy, Wxy) are
-        these times the height's modes, zero elsewhere.
     """
 
     n: int
@@ -142,8 +136,6 @@ class SheetProblem:
     unique_curvature_filter: np.ndarray = field(repr=False)
     unique_symbols: np.ndarray = field(repr=False)
     moment_symbols: np.ndarray = field(repr=False)
-    spectrum_index: np.ndarray = field(repr=False)
-    spectrum_symbols: np.ndarray = field(repr=False)
 
     @property
     def modes(self) -> int:
@@ -236,7 +228,6 @@ def build_sheet_problem(n: int, cells: int, substrate: str, poisson_ratio: float
                                -kyu * kyu, -kxu * kxu, 2.0 * kxu * kyu])
     # a unique mode stands for its pair: Parseval weight 2, times ½ of the mean strain
     moment_symbols = unique_symbols[[1, 2, 3, 0]]
-    spectrum_index = np.concatenate([unique_index, mirror_target])
     return SheetProblem(n=int(n), cells=int(cells), substrate=substrate,
                         poisson_ratio=float(poisson_ratio),
                         overstrain=(float(overstrain[0]), float(overstrain[1])),
@@ -246,9 +237,7 @@ def build_sheet_problem(n: int, cells: int, substrate: str, poisson_ratio: float
                         mirror_source=mirror_source, mirror_target=mirror_target,
                         unique_precondition=unique_precondition,
                         unique_curvature_filter=curvature_filter.ravel()[u],
-                        unique_symbols=unique_symbols, moment_symbols=moment_symbols,
-                        spectrum_index=spectrum_index,
-                        spectrum_symbols=hessian_symbols.reshape(3, -1)[:, spectrum_index])
+                        unique_symbols=unique_symbols, moment_symbols=moment_symbols)
 
 
 def _rfft2_public(a: np.ndarray) -> np.ndarray:
@@ -322,9 +311,7 @@ def evaluate_sheet_energy(problem: SheetProblem, v: np.ndarray) -> tuple[float, 
     e_mean = 0.5 * ((1 - nu) * (Mxx * Mxx + Myy * Myy + 2 * Mxy * Mxy) + nu * trM * trM)
     Nxx, Nyy, Nxy = (1 - nu) * Mxx + nu * trM, (1 - nu) * Myy + nu * trM, (1 - nu) * Mxy
     # Gaussian-curvature (Airy) part; the three second derivatives share one batched FFT
-    spectra = np.zeros((3, p.kx.size), dtype=complex)
-    spectra[:, p.spectrum_index] = p.spectrum_symbols * np.concatenate([Wu, np.conj(Wu[p.mirror_source])])
-    H = _irfft2(spectra.reshape(3, *p.kx.shape), n)
+    H = _irfft2(p.hessian_symbols * _scatter_modes(p, Wu), n)
     g = H[0] * H[1] - H[2] * H[2]
     G = _rfft2(g)
     cG = 0.5 * (1 - nu * nu)
