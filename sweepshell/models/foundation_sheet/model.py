@@ -88,7 +88,7 @@ import numpy as np
 
 from sweepshell.errors import ParameterError
 from sweepshell.models.base import BatchResult, OutputSpec, ParameterSpec, Status, SweepModel
-from sweepshell.models.foundation_sheet.patterns import PATTERN_NAMES, classify_pattern, measure_pattern
+from sweepshell.models.foundation_sheet.patterns import PATTERN_NAMES
 from sweepshell.models.foundation_sheet.point import fill_point_outputs, solve_sheet_point
 from sweepshell.models.foundation_sheet.scales import MIN_MODES_PER_WAVELENGTH, compute_sheet_scales
 
@@ -288,7 +288,7 @@ class FoundationSheetModel(SweepModel):
                                        answer.energy * scales["energy_scale"][i],
                                        scales["critical_wavelength"][i] * cells[i], s["flat_tolerance"])
                     out["pattern_confidence"][i] = answer.confidence
-                    regime[i] = classify_pattern(measure_pattern(answer.height), s["flat_tolerance"] / ratio)
+                    regime[i] = answer.pattern
             except (FloatingPointError, ValueError, np.linalg.LinAlgError):
                 status[i] = Status.failed
                 regime[i] = -1
