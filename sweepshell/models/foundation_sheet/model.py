@@ -152,7 +152,7 @@ class FoundationSheetModel(SweepModel):
     )
     regimes: ClassVar[tuple[str, ...]] = PATTERN_NAMES
     #: seconds per point on one core, between the stripe and labyrinth costs recorded in theory.md
-    cost_hint: ClassVar[float] = 0.9
+    cost_hint: ClassVar[float] = 0.7
 
     def __init__(self, *, seeds: Sequence[int] = (1, 2, 3), perturbation: float = 0.01,
                  gradient_tolerance: float = 1e-4, max_iterations: int = 4000,
