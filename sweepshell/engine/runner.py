@@ -190,9 +190,10 @@ def run_plan(plan: SweepPlan, *, observer: RunObserver | None = None, claim_ttl:
         if claims is None or not block_shape:
             raise
 
+        uncounted = set(claims.held)  # claimed, maybe written, never counted (e.g. a result not yet collected)
         claims.release_all()
         observer.close()
-        summary = _final_summary(plan, block_shape, tally, t0)
+        summary = _final_summary(plan, block_shape, tally, t0, uncounted)
         raise SweepInterrupted(summary) from None
     except Exception as exc:
         cause = describe_outside_fault(exc)
@@ -297,20 +298,21 @@ def _drive(client: Any, plan: SweepPlan, pending: list[Block], claims: ClaimBook
                 last_beat = time.monotonic()
     except KeyboardInterrupt:
         client.cancel(list(in_flight))
-        # a worker may have written a block whose result was never collected; the ledger says so at the end
-        tally["uncollected"] = list(in_flight.values())
         raise
 
 
-def _final_summary(plan: SweepPlan, block_shape: tuple[int, ...], tally: dict[str, Any], t0: float) -> RunSummary:
+def _final_summary(plan: SweepPlan, block_shape: tuple[int, ...], tally: dict[str, Any], t0: float,
+                   uncounted: set[tuple[int, ...]] | None = None) -> RunSummary:
     """Summarise the run from the store's ledger and the tally.
 
-    Blocks submitted but not collected when the run was interrupted count as computed by this run
-    when the ledger holds them final: their claims were this runner's, so its workers wrote them.
+    ``uncounted`` are the indices of blocks this runner still held claims on when it was
+    interrupted: those the ledger holds final were written by this run (its workers or itself) and
+    count as computed, though their results were never collected.
     """
     ledger = read_ledger(plan.store_path, block_shape)
-    for block in tally.pop("uncollected", []):
-        if not np.any(ledger[block.slices] == Status.pending):
+    held = uncounted or set()
+    for block in iter_blocks(plan.shape, block_shape) if held else ():
+        if block.index in held and not np.any(ledger[block.slices] == Status.pending):
             tally["computed"] += block.n_points
             tally["blocks"] += 1
     return RunSummary(store_path=plan.store_path, total=plan.n_points, counts=_counts(ledger),
