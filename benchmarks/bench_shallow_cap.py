@@ -5,7 +5,10 @@ apex deflection (a natural-parameter loop, one cap at a time, the pressure as un
 parameter); the limit pressure is the parabola vertex through the largest sampled pressures,
 refined twice through samples six times closer around it (agreement with the model ~5e-8, the
 reference's own error: it starts at x = 1e-4 instead of the axis).
-Prints ms per point (best of three runs) and the speed ratio; no asserts on time.
+Prints ms per point (best of three runs) and the speed ratio; no asserts on time. The
+axisymmetric batch is also timed with its first limit points refined along the arc of the
+bracketing step (the path the asymmetric scan keeps) instead of solved for directly, as a ratio
+in the same run.
 
 Run: ``python benchmarks/bench_shallow_cap.py``
 """
@@ -13,11 +16,13 @@ Run: ``python benchmarks/bench_shallow_cap.py``
 from __future__ import annotations
 
 import time
+from unittest import mock
 
 import numpy as np
 from scipy.integrate import solve_bvp
 
 from sweepshell.models import make_model
+from sweepshell.models.shallow_cap import solver
 
 NU = 0.3
 C = np.sqrt(3.0 * (1.0 - NU**2))
@@ -98,6 +103,18 @@ def time_per_point(model, lam: np.ndarray, repeats: int = 3) -> float:  # type: 
     return best / lam.size
 
 
+def time_without_fold_solve(model, lam: np.ndarray) -> float:  # type: ignore[no-untyped-def]
+    """Per-point time with every limit point refined along its bracketing step (no direct solve)."""
+    trace = solver.trace_cap_paths
+
+    def refined(*args, **kwargs):  # type: ignore[no-untyped-def]
+        return trace(*args, **{**kwargs, "fold_solve": False})
+
+    with mock.patch.object(solver, "trace_cap_paths", refined):
+        model.solve_batch(make_inputs(lam))
+        return time_per_point(model, lam)
+
+
 def main() -> None:
     fast = make_model("shallow_cap", {"asymmetric_modes": 0, "check_bistability": False})
     scan = make_model("shallow_cap", {"check_bistability": False})
@@ -121,6 +138,10 @@ def main() -> None:
     for lam, a, b in zip(LAMBDAS, ours, ref, strict=True):
         print(f"{lam:6.2f}  {a:.8f}    {b:.8f}        {abs(a - b) / b:.1e}")
     print(f"axisymmetric limit pressure, batch of {big.size}: {t_fast * 1e3:.2f} ms/point")
+    t_arc = time_without_fold_solve(fast, big)
+    t_direct = time_per_point(fast, big)
+    print(f"  limit points refined along the arc instead: {t_arc * 1e3:.2f} ms/point "
+          f"(direct solve {t_direct * 1e3:.2f} ms/point, {t_arc / t_direct:.2f}x)")
     for lo, hi in ((3.5, 8.0), (8.0, 14.0), (14.0, 20.0)):
         band = np.linspace(lo, hi, 100)
         print(f"  lambda {lo:4.1f} .. {hi:4.1f}: {time_per_point(fast, band) * 1e3:.2f} ms/point")

@@ -5,8 +5,9 @@ Same algorithm as :func:`sweepshell.numerics.arclength.trace_paths` with the sto
 :func:`sweepshell.numerics.arc_refine.refine_on_arc` for the measures ``t_μ`` and ``μ``, written
 for one cap at a time so that a cap's whole axisymmetric path runs in compiled code. The numpy
 versions stay the specification (and serve the tests that compare both); results agree to
-rounding. The Newton corrector and the packed per-cap parameters are in
-:mod:`.compiled_newton` (their names are explained there).
+rounding (the direct limit-point solve of :mod:`.compiled_fold`, used without the asymmetric
+scan, has no numpy counterpart: it is tested against the refinement). The Newton corrector and
+the packed per-cap parameters are in :mod:`.compiled_newton` (their names are explained there).
 """
 
 from __future__ import annotations
@@ -14,6 +15,7 @@ from __future__ import annotations
 import numpy as np
 from numba import njit
 
+from sweepshell.models.shallow_cap.compiled_fold import FOLD_START, try_fold
 from sweepshell.models.shallow_cap.compiled_newton import (
     _P_APEX,
     _P_DEFL,
@@ -87,19 +89,21 @@ def _trace(z0: np.ndarray, t0: np.ndarray, w: np.ndarray, first_step: float, max
            max_points: int, max_turn_deg: float, tol: float, max_iter: int, max_drift: float, mu_max: float,
            defl_max: float, check_bi: bool, max_suction: float, prm: np.ndarray, imp: np.ndarray,
            eig: np.ndarray, b: np.ndarray, x: np.ndarray, xl: np.ndarray, d1e: np.ndarray, sigma: np.ndarray,
-           integ: np.ndarray, orient_ref: float, zh: np.ndarray, th: np.ndarray, sh: np.ndarray,
-           dh: np.ndarray) -> tuple[int, int]:
+           integ: np.ndarray, orient_ref: float, fold_solve: bool, zh: np.ndarray, th: np.ndarray,
+           sh: np.ndarray, dh: np.ndarray) -> tuple[int, int, int]:
     """Trace one cap's path into ``zh``, ``th``, ``sh`` and its apex deflections into ``dh``.
 
     ``orient_ref`` is the path's orientation at ``z0`` (see ``correct_one``): a step whose end has
-    the other one is rejected unless shorter than ``CROSS_STEP``. Returns (accepted points,
-    trace state).
+    the other one is rejected unless shorter than ``CROSS_STEP``. ``fold_solve``: the first limit
+    point is solved for from inside its corner (:func:`.compiled_fold.try_fold`), the next path
+    point. Returns (accepted points, trace state, index of the solved limit point or -1).
     """
     m1 = z0.shape[0]
     zh[0], th[0], sh[0], dh[0] = z0, t0, 0.0, 0.0
     count, h, step_cap, turn_cap = 1, first_step, max_step, max_turn_deg
     fold_seen = went_negative = False
     turn_rate_prev = 0.0
+    fold_at, fold_below = -1, FOLD_START if fold_solve else 0.0
     z, tn = np.empty(m1), np.empty(m1)
     bt, xlt = np.ascontiguousarray(b.T), np.ascontiguousarray(xl.T)
     while True:
@@ -121,17 +125,28 @@ def _trace(z0: np.ndarray, t0: np.ndarray, w: np.ndarray, first_step: float, max
         if not ok:
             h *= 0.5
             if h < min_step:
-                return count, _TRACE_STALLED
+                return count, _TRACE_STALLED, fold_at
             continue
         zh[count], th[count], sh[count] = z, tn, h
-        bracketed = tc[m1 - 1] > 0.0 and tn[m1 - 1] <= 0.0
+        h_last = h
         h, turn_rate_prev = _next_step(h, its, cosang, cos_max, turn_cap, turn_rate_prev, step_max)
+        if fold_below > 0.0 and fold_at < 0 and not fold_seen and count + 1 < max_points:
+            # inside the corner of the first limit point: solve for it directly; it follows z
+            kept, dist = try_fold(z, tn, tc, h_last, w, tol, max_iter, orient_ref, fold_below, prm, imp, eig, b, bt,
+                                  x, xl, xlt, d1e, sigma, zh[count + 1], th[count + 1])
+            if kept:
+                dh[count] = _apex_deflection(z, prm, integ)
+                count += 1
+                zc, tc = zh[count - 1], th[count - 1]
+                z[:], tn[:], sh[count], fold_at = zh[count], th[count], dist, count
+            elif 0.0 < tn[m1 - 1] < fold_below:
+                fold_below = 0.7 * tn[m1 - 1]  # retried once the corner has turned further
+        bracketed = tc[m1 - 1] > 0.0 and tn[m1 - 1] <= 0.0
         # stopping rule of solve_caps
         mu_n = z[m1 - 1]
         if mu_n < zc[m1 - 1]:
             fold_seen = True
-        defl = _apex_deflection(z, prm, integ)
-        dh[count] = defl
+        dh[count] = defl = _apex_deflection(z, prm, integ)
         count += 1
         if prm[_P_MISMATCH] != 0.0:
             defl = abs(defl)
@@ -147,9 +162,9 @@ def _trace(z0: np.ndarray, t0: np.ndarray, w: np.ndarray, first_step: float, max
                 went_negative = True
             done = done or (went_negative and mu_n >= 0) or mu_n < -min(mu_max, max_suction)
         if done:
-            return count, _TRACE_DONE
+            return count, _TRACE_DONE, fold_at
         if count >= max_points:
-            return count, _TRACE_STEP_LIMIT
+            return count, _TRACE_STEP_LIMIT, fold_at
 
 
 @njit(cache=True)
@@ -203,13 +218,16 @@ def trace_cap_paths(pb: CapPathProblem, z0: np.ndarray, t0: np.ndarray, w: np.nd
                     max_step: float, min_step: float, max_points: int, max_turn_deg: float, tol: float,
                     max_iter: int, mu_max: np.ndarray, defl_max: np.ndarray, check_bistability: bool,
                     max_suction: float, max_drift: float = 0.2, orientation: np.ndarray | None = None,
-                    ) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+                    fold_solve: bool = False,
+                    ) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
     """Trace every cap's axisymmetric path, one cap at a time in compiled code.
 
     ``orientation`` is each path's orientation at ``z0`` (from :func:`initial_tangents`;
-    computed here when not given). Returns ``(z, t, step, count, state, deflection)`` laid out
-    as :class:`sweepshell.numerics.arclength.PathHistory` (rows past ``count`` NaN, steps 0),
-    ``deflection`` the apex deflection over h of every point; the history length is the
+    computed here when not given). With ``fold_solve`` the first limit point is solved for
+    directly from inside its corner (see ``_trace``). Returns ``(z, t, step, count, state,
+    deflection, fold_at)`` laid out as :class:`sweepshell.numerics.arclength.PathHistory` (rows
+    past ``count`` NaN, steps 0), ``deflection`` the apex deflection over h of every point,
+    ``fold_at`` the index of the solved limit point (-1: none); the history length is the
     longest path (at least ``min(max_points, 48)``).
     """
     n, m1 = z0.shape
@@ -219,18 +237,19 @@ def trace_cap_paths(pb: CapPathProblem, z0: np.ndarray, t0: np.ndarray, w: np.nd
         orientation = initial_tangents(pb, z0, w, t0 * w[None, :])[1]
     count = np.empty(n, dtype=int)
     state = np.empty(n, dtype=np.int8)
+    fold_at = np.empty(n, dtype=int)
     paths = []
     zbuf = np.empty((max_points, m1))
     tbuf = np.empty((max_points, m1))
     sbuf = np.empty(max_points)
     dbuf = np.empty(max_points)
     for i in range(n):
-        c, st = _trace(np.ascontiguousarray(z0[i]), np.ascontiguousarray(t0[i]), w, first_step, max_step,
+        c, st, fold_at[i] = _trace(np.ascontiguousarray(z0[i]), np.ascontiguousarray(t0[i]), w, first_step, max_step,
                        min_step, max_points, max_turn_deg, tol, max_iter, max_drift, float(mu_max[i]),
                        float(defl_max[i]), check_bistability, max_suction, prm[i],
                        np.ascontiguousarray(pb.imperfection[i]), np.ascontiguousarray(pb.eigen_stress[i]),
                        np.ascontiguousarray(pb.stretch_inverse[i]), x, xl, d1e, sigma, integ, float(orientation[i]),
-                       zbuf, tbuf, sbuf, dbuf)
+                       fold_solve, zbuf, tbuf, sbuf, dbuf)
         count[i], state[i] = c, st
         paths.append((zbuf[:c].copy(), tbuf[:c].copy(), sbuf[:c].copy(), dbuf[:c].copy()))
     cap = max(min(max_points, 48), int(count.max()) if n else 0)
@@ -241,7 +260,7 @@ def trace_cap_paths(pb: CapPathProblem, z0: np.ndarray, t0: np.ndarray, w: np.nd
     for i, (zp, tp, sp, dp) in enumerate(paths):
         c = zp.shape[0]
         zh[i, :c], th[i, :c], sh[i, :c], dh[i, :c] = zp, tp, sp, dp
-    return zh, th, sh, count, state, dh
+    return zh, th, sh, count, state, dh, fold_at
 
 
 def correct_caps_on_arc(pb: CapPathProblem, anchor: np.ndarray, tangent: np.ndarray, s: np.ndarray,

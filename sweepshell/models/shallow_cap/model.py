@@ -60,7 +60,7 @@ class ShallowCapModel(SweepModel):
     """Shallow spherical cap under pressure or an apex force: limit points and bifurcations."""
 
     name: ClassVar[str] = "shallow_cap"
-    version: ClassVar[str] = "1.9"
+    version: ClassVar[str] = "1.10"
     summary: ClassVar[str] = ("shallow spherical cap (Föppl–von Kármán): snap-through, asymmetric "
                               "bifurcation, apex indentation, mismatch strain, dimple imperfections")
     parameters: ClassVar[tuple[ParameterSpec, ...]] = (
@@ -113,7 +113,7 @@ class ShallowCapModel(SweepModel):
         return False
 
     # seconds per point with the scan and bistability (benchmarks/bench_shallow_cap.py; theory.md)
-    cost_hint: ClassVar[float] = 0.025
+    cost_hint: ClassVar[float] = 0.022
 
     def __init__(self, *, nodes: int = 0, asymmetric_modes: int = 30, max_pressure: float = 2.0,
                  max_indentation: float = 1.0, path_samples: int = 64, check_bistability: bool = True,
@@ -176,7 +176,7 @@ class ShallowCapModel(SweepModel):
     def estimated_cost(self) -> float:
         """Seconds per pressure point on one core with these settings (sizes blocks; see ``cost_hint``)."""
         s = self._settings
-        cost = 0.001 + 0.00035 * int(s["asymmetric_modes"])
+        cost = 0.0008 + 0.00028 * int(s["asymmetric_modes"])
         return cost + (0.0045 if s["check_bistability"] else 0.0)
 
     @property

@@ -1,8 +1,8 @@
 """The asymmetric scan of the shallow-cap model: stability determinants along each traced path.
 
 All wave numbers n = 1…N are evaluated at sampled path points up to the first limit point;
-the first step where a determinant changes sign brackets a ``cos nθ`` bifurcation, which is
-then located inside the step and refined along the arc.
+the first step where a determinant changes sign brackets a ``cos nθ`` bifurcation, which
+:mod:`.bifurcations` then locates inside the step and refines along the arc.
 """
 
 from __future__ import annotations
@@ -11,18 +11,14 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from sweepshell.models.shallow_cap.compiled import correct_caps_on_arc
 from sweepshell.models.shallow_cap.kernels import CapPathProblem
 from sweepshell.models.shallow_cap.modes import compute_mode_determinants, select_stability_nodes
-from sweepshell.numerics.arc_refine import refine_on_arc
-from sweepshell.numerics.arclength import PathHistory
 
-__all__ = ["ModeCrossings", "refine_bifurcations", "scan_modes"]
+__all__ = ["ModeCrossings", "scan_modes"]
 
 _DET_CHUNK = 1024
 _DET_CHUNK_ELEMENTS = 12_500_000  # ~100 MB per (states, M, M) float64 stack of stability matrices
 _SCAN_ROUND = 8  # sampled path points per cap evaluated before looking for a flip
-_CROSSING_SAMPLES = 4  # interior points of a flipped step at which its crossings are located
 
 
 @dataclass(frozen=True)
@@ -60,11 +56,6 @@ def _modes_determinants(pb: CapPathProblem, z: np.ndarray, idx: np.ndarray,
         sl = slice(lo, lo + chunk)
         sign[sl], logdet[sl] = compute_mode_determinants(pb, z[sl], idx[sl], modes)
     return sign, logdet
-
-
-def _ratio_to(crossings: ModeCrossings, rows: np.ndarray, sg: np.ndarray, ld: np.ndarray) -> np.ndarray:
-    """Signed determinant ratio of the states (sign ``sg``, log|det| ``ld``) to the crossings' step start."""
-    return sg * crossings.sign[rows] * np.exp(np.clip(ld - crossings.logdet[rows], -700, 700))
 
 
 def _evaluate_in_rounds(pb: CapPathProblem, zh: np.ndarray, sampled: np.ndarray,
@@ -161,107 +152,3 @@ def scan_modes(pb: CapPathProblem, zh: np.ndarray, scanned: np.ndarray, scan_end
             out.append((int(i), int(modes[k]), float(ratio), float(prev_s[k]), float(prev_l[k])))
     cols = list(zip(*out, strict=True))
     return jb, ModeCrossings(*(np.asarray(c) for c in cols))
-
-
-def bracket_first_crossings(pb: CapPathProblem, hist: PathHistory, jb: np.ndarray, crossings: ModeCrossings,
-                            w: np.ndarray, tol: float,
-                            ) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
-    """Locate each crossing inside its step and keep the earliest ones per cap.
-
-    The determinants of a cap's crossing wave numbers are evaluated at ``_CROSSING_SAMPLES``
-    evenly spaced points of the flipped step (on the same arc as the refinement). Each crossing
-    gets the sub-interval of its first sign change; a cap keeps the crossings of its earliest
-    sub-interval (several if they share it: their order inside is left to the refinement).
-    Caps whose samples do not all converge keep every crossing and the whole step.
-
-    Returns
-    -------
-    keep, s_lo, s_hi, g_lo, g_hi
-        Per crossing: kept or not, and the bracket (arclengths from the step's start, and the
-        determinant ratios to the step's start at both ends).
-    """
-    cp, cm = crossings.point, crossings.mode
-    caps, cap_of = np.unique(cp, return_inverse=True)
-    cap_of = cap_of.reshape(-1)
-    q = _CROSSING_SAMPLES
-    frac = np.arange(1, q + 1) / (q + 1)
-    jr = jb[caps]
-    step = hist.step[caps, jr]
-    anchor = np.repeat(hist.z[caps, jr - 1], q, axis=0)
-    tangent = np.repeat(hist.t[caps, jr - 1], q, axis=0)
-    sample_cap = np.repeat(caps, q)
-    z, conv, _, _ = correct_caps_on_arc(pb, anchor, tangent, (step[:, None] * frac[None, :]).ravel(),
-                                        sample_cap, w, tol=tol, max_iter=8)
-    settled = np.asarray(np.asarray(conv, dtype=bool).reshape(-1, q).all(axis=1))
-    rows = (cap_of[:, None] * q + np.arange(q)[None, :]).ravel()  # each crossing's samples
-    crossing_of = np.repeat(np.arange(cp.size), q)
-    g_flat = np.full(rows.size, np.nan)
-    mode_rows = np.repeat(cm, q)
-    for mode in np.unique(cm):
-        sel = mode_rows == mode
-        sg, ld = compute_mode_determinants(pb, np.nan_to_num(z[rows[sel]]), sample_cap[rows[sel]],
-                                           np.array([mode]))
-        g_flat[sel] = _ratio_to(crossings, crossing_of[sel], sg[:, 0], ld[:, 0])
-    g = g_flat.reshape(cp.size, q)
-    flipped = np.asarray(g <= 0)
-    sub = np.where(flipped.any(axis=1), np.argmax(flipped, axis=1), q)  # crossing in (s_sub, s_sub+1)
-    earliest = np.full(caps.size, q)
-    np.minimum.at(earliest, cap_of, sub)
-    ok = settled[cap_of]
-    keep = ~ok | (sub == earliest[cap_of])
-    bounds = np.concatenate([[0.0], frac, [1.0]])
-    row = np.arange(cp.size)
-    s_step = step[cap_of]
-    s_lo = np.where(ok, bounds[sub] * s_step, 0.0)
-    s_hi = np.where(ok, bounds[sub + 1] * s_step, s_step)
-    g_lo = np.where(ok & (sub > 0), g[row, np.maximum(sub - 1, 0)], 1.0)
-    g_hi = np.where(ok & (sub < q), g[row, np.minimum(sub, q - 1)], crossings.ratio)
-    return keep, s_lo, s_hi, g_lo, g_hi
-
-
-def refine_bifurcations(pb: CapPathProblem, hist: PathHistory, jb: np.ndarray, crossings: ModeCrossings,
-                        w: np.ndarray, tol: float) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
-    """Refine each cap's first determinant zero along the arc of its flipped step.
-
-    Several wave numbers often change sign within one step (deep caps, the sphere's nearly
-    degenerate spectrum): sampling the step first keeps only those that change sign in its
-    earliest flipped part, and the earliest refined zero per cap wins.
-
-    Returns
-    -------
-    z, s, mode, ok
-        Per cap ``(n, m+1)`` state at the bifurcation (NaN: none), its arclength from the start
-        of the step before (inf: none), its wave number (0: none) and whether the refinement
-        converged (True where there was nothing to refine).
-    """
-    n, _, m1 = hist.z.shape
-    z_bif = np.full((n, m1), np.nan)
-    s_bif = np.full(n, np.inf)
-    mode_bif = np.zeros(n, dtype=int)
-    ok = np.ones(n, dtype=bool)
-    if not crossings.point.size:
-        return z_bif, s_bif, mode_bif, ok
-    keep, s_lo, s_hi, g_lo, g_hi = bracket_first_crossings(pb, hist, jb, crossings, w, tol)
-    crossings = crossings.take(keep)
-    s_lo, s_hi, g_lo, g_hi = s_lo[keep], s_hi[keep], g_lo[keep], g_hi[keep]
-    cp, cm = crossings.point, crossings.mode
-    jr = jb[cp]
-
-    def measure(z: np.ndarray, t: np.ndarray, pos: np.ndarray) -> np.ndarray:
-        out = np.empty(z.shape[0])
-        for mode in np.unique(cm[pos]):
-            sel = cm[pos] == mode
-            sg, ld = compute_mode_determinants(pb, z[sel], cp[pos[sel]], np.array([mode]))
-            out[sel] = _ratio_to(crossings, pos[sel], sg[:, 0], ld[:, 0])
-        return out
-
-    zb, _, sb, okb = refine_on_arc(
-        pb, hist.z[cp, jr - 1], hist.t[cp, jr - 1], s_hi, g_lo, g_hi, cp, w,
-        measure, tol=tol, max_iter=8, iterations=40, s_tol=1e-9, corrector=correct_caps_on_arc, s_lo=s_lo)
-    sb = np.where(okb, sb, np.inf)
-    order = np.lexsort((sb, cp))
-    first = order[np.r_[True, cp[order][1:] != cp[order][:-1]]]
-    pts = cp[first]
-    z_bif[pts], s_bif[pts], mode_bif[pts] = zb[first], sb[first], cm[first]
-    ok[pts] &= np.isfinite(sb[first])
-    return z_bif, s_bif, mode_bif, ok

@@ -22,12 +22,13 @@ from typing import Any
 import numpy as np
 
 from sweepshell.models.base import Status
+from sweepshell.models.shallow_cap.bifurcations import refine_bifurcations
 from sweepshell.models.shallow_cap.bistability import check_bistability
 from sweepshell.models.shallow_cap.compiled import initial_tangents, refine_caps_on_arc, trace_cap_paths
 from sweepshell.models.shallow_cap.kernels import CapPathProblem
 from sweepshell.models.shallow_cap.problem import CapInputs, build_batch_problem
 from sweepshell.models.shallow_cap.sampling import sample_paths
-from sweepshell.models.shallow_cap.scan import refine_bifurcations, scan_modes
+from sweepshell.models.shallow_cap.scan import scan_modes
 from sweepshell.numerics.arclength import TRACE_DONE, TRACE_STEP_LIMIT, PathHistory
 
 __all__ = ["CapInputs", "CapSolution", "solve_caps"]
@@ -67,6 +68,7 @@ class _Paths:
     load_unit: np.ndarray
     stiffness: np.ndarray
     mu_max: np.ndarray
+    fold_at: np.ndarray  # index of the directly solved first limit point (-1: none)
 
 
 @dataclass(frozen=True)
@@ -111,14 +113,17 @@ def _trace_paths(pb: CapPathProblem, caps: CapInputs, settings: Mapping[str, Any
         mu_max = np.where(pb.mismatch, np.abs(caps.mismatch_strain) / np.abs(pb.force_scale), mu_max)
     inversion = caps.lam**2 / (2.0 * np.sqrt(3.0 * (1.0 - caps.nu**2)))  # 2H/h
     defl_max = np.where(apex, float(settings["max_indentation"]) * inversion, 1.5 * inversion + 2.0)
-    zh, th, sh, count, state, path_deflection = trace_cap_paths(
+    # without the asymmetric scan the first limit point is solved for directly from inside its
+    # corner; the scan keeps every step through the corner (it samples stability at each)
+    zh, th, sh, count, state, path_deflection, fold_at = trace_cap_paths(
         pb, z0, t0, w, first_step=_FIRST_STEP, max_step=_MAX_STEP, min_step=1e-7,
         max_points=int(settings["max_points"]), max_turn_deg=float(settings["max_turn_deg"]),
         tol=float(settings["tolerance"]), max_iter=8, mu_max=mu_max, defl_max=defl_max,
-        check_bistability=bool(settings["check_bistability"]), max_suction=_MAX_SUCTION, orientation=orientation)
+        check_bistability=bool(settings["check_bistability"]), max_suction=_MAX_SUCTION, orientation=orientation,
+        fold_solve=int(settings["asymmetric_modes"]) == 0)
     hist = PathHistory(z=zh, t=th, step=sh, count=count, state=state)
     return _Paths(hist=hist, deflection=path_deflection, weights=w, load_unit=pb.force_scale, stiffness=stiffness,
-                  mu_max=mu_max)
+                  mu_max=mu_max, fold_at=fold_at)
 
 
 def _first_folds(paths: _Paths) -> tuple[np.ndarray, np.ndarray]:
@@ -136,12 +141,18 @@ def _first_folds(paths: _Paths) -> tuple[np.ndarray, np.ndarray]:
 
 def _refine_folds(pb: CapPathProblem, paths: _Paths, rf: np.ndarray, jf: np.ndarray,
                   tol: float) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-    """Refine the limit points of the caps ``rf``: per cap state (NaN), arclength (inf) and success."""
+    """Refine the limit points of the caps ``rf``: per cap state (NaN), arclength (inf) and success.
+
+    A limit point solved for during the trace (the point after the bracket's start) is taken as it is.
+    """
     hist = paths.hist
     n, _, m1 = hist.z.shape
     z_fold = np.full((n, m1), np.nan)
     s_fold = np.full(n, np.inf)
     ok = np.ones(n, dtype=bool)
+    solved = rf[paths.fold_at[rf] == jf[rf] + 1]
+    z_fold[solved], s_fold[solved] = hist.z[solved, jf[solved] + 1], hist.step[solved, jf[solved] + 1]
+    rf = rf[paths.fold_at[rf] != jf[rf] + 1]
     if rf.size:
         jr = jf[rf]
         tmu = hist.t[:, :, -1]

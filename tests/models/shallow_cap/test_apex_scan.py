@@ -30,7 +30,7 @@ def trace_apex_paths(lam, clamped, immovable, nodes, max_deflection):  # type: i
     n = lam.size
     pb = build_problem(lam, np.full(n, NU), clamped, immovable, np.ones(n, bool), np.zeros(n), np.full(n, 2.0), nodes)
     w, z0, t0 = make_initial_tangent(pb)
-    zh, _, _, count, _, _ = trace_cap_paths(
+    zh, _, _, count, *_ = trace_cap_paths(
         pb, z0, t0, w, first_step=0.1, max_step=0.25, min_step=1e-7, max_points=400, max_turn_deg=12.0, tol=1e-10,
         max_iter=8, mu_max=np.full(n, np.inf), defl_max=np.asarray(max_deflection, float), check_bistability=False,
         max_suction=2.0)

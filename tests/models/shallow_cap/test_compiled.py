@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import numpy as np
+import pytest
 
 from sweepshell.models.shallow_cap.compiled import correct_caps_on_arc, trace_cap_paths
 from sweepshell.models.shallow_cap.problem import build_problem
@@ -64,7 +65,7 @@ def test_compiled_path_tracing_matches_trace_paths():
 
     want = trace_paths(pb, z0, t0, idx, w, first_step=0.1, max_step=0.25, min_step=1e-7, max_points=400,
                        max_angle_deg=12.0, tol=1e-10, max_iter=8, is_finished=is_finished, orientation=pb.orientation)
-    zh, th, sh, count, state, _ = trace_cap_paths(pb, z0, t0, w, first_step=0.1, max_step=0.25, min_step=1e-7,
+    zh, th, sh, count, state, *_ = trace_cap_paths(pb, z0, t0, w, first_step=0.1, max_step=0.25, min_step=1e-7,
                                                max_points=400, max_turn_deg=12.0, tol=1e-10, max_iter=8,
                                                mu_max=mu_max, defl_max=defl_max, check_bistability=False,
                                                max_suction=2.0)
@@ -129,7 +130,7 @@ def test_compiled_fold_refinement_matches_refine_on_arc():
     from sweepshell.numerics.arc_refine import refine_on_arc
 
     pb, w, idx, z0, t0 = make_mixed_problem()
-    zh, th, sh, _, _, _ = trace_cap_paths(pb, z0, t0, w, first_step=0.1, max_step=0.25, min_step=1e-7,
+    zh, th, sh, *_ = trace_cap_paths(pb, z0, t0, w, first_step=0.1, max_step=0.25, min_step=1e-7,
                                            max_points=400, max_turn_deg=12.0, tol=1e-10, max_iter=8,
                                            mu_max=np.full(idx.size, np.inf), defl_max=np.full(idx.size, 1e3),
                                            check_bistability=False, max_suction=2.0)
@@ -171,3 +172,61 @@ def test_stretching_inverse_shared_per_poisson_ratio_and_edge_is_exact():
         block = pb.xl / pb.lam[i] ** 2
         block[0] = d1 - pb.nu[i] * np.eye(1, m)[0] if pb.immovable[i] else np.eye(1, m)[0]
         np.testing.assert_allclose(pb.stretch_inverse[i] @ block, np.eye(m), atol=1e-9)
+
+
+def test_second_derivative_of_the_quadratic_residual(rng):
+    # the residual is a quadratic polynomial of the state: R(z+u+v) - R(z+u) - R(z+v) + R(z) = R''[u, v]
+    from sweepshell.models.shallow_cap.compiled_fold import _second_derivative
+    from sweepshell.models.shallow_cap.compiled_newton import pack_cap_parameters
+
+    pb, _, idx, _, _ = make_mixed_problem()
+    prm = pack_cap_parameters(pb)
+    m = pb.size
+    for i in idx:  # pressure, apex force, mismatch; all edges
+        z, u, v = (0.3 * rng.standard_normal(2 * m + 1) for _ in range(3))
+        res = [pb.linearize(s[None], np.array([i]))[0][0] for s in (z + u + v, z + u, z + v, z)]
+        want = res[0] - res[1] - res[2] + res[3]
+        got1, got2 = np.empty(m), np.empty(m)
+        _second_derivative(u, v, prm[i], np.ascontiguousarray(pb.eigen_stress[i]), pb.sigma, got1, got2)
+        np.testing.assert_allclose(np.concatenate([got1, got2]), want, rtol=0, atol=1e-9 * np.abs(want).max())
+
+
+def test_direct_fold_solve_finds_the_refined_limit_point():
+    # the limit point solved for from inside its corner is the one the bracketing steps refine to
+    from sweepshell.models.shallow_cap.compiled import _shared, refine_caps_on_arc
+    from sweepshell.models.shallow_cap.compiled_fold import solve_fold
+    from sweepshell.models.shallow_cap.compiled_newton import pack_cap_parameters
+
+    pb, w, idx, z0, t0 = make_mixed_problem()
+    kw = {"first_step": 0.1, "max_step": 0.25, "min_step": 1e-7, "max_points": 400, "max_turn_deg": 12.0,
+          "tol": 1e-10, "max_iter": 8, "mu_max": np.full(idx.size, np.inf), "defl_max": np.full(idx.size, 1e3),
+          "check_bistability": False, "max_suction": 2.0}
+    zh, th, sh, _, _, _, fold_at = trace_cap_paths(pb, z0, t0, w, **kw)
+    tmu = th[:, :, -1]
+    bracket = (tmu[:, :-1] > 0) & (tmu[:, 1:] <= 0)
+    rows = np.nonzero(bracket.any(axis=1))[0]
+    assert rows.size >= 3 and np.all(fold_at == -1)
+    j = np.argmax(bracket[rows], axis=1)
+    want, _, _, ok = refine_caps_on_arc(pb, zh[rows, j], th[rows, j], sh[rows, j + 1], tmu[rows, j],
+                                        tmu[rows, j + 1], rows, w, use_load=False, tol=1e-10, max_iter=8,
+                                        iterations=40, s_tol=1e-9)
+    assert ok.all()
+    x, xl, d1e, sigma, _ = _shared(pb)
+    prm = pack_cap_parameters(pb)
+    for r, i in enumerate(rows):
+        b = np.ascontiguousarray(pb.stretch_inverse[i])
+        start = j[r] - 1 if tmu[i, j[r] - 1] < 0.45 else j[r]  # from inside the corner
+        z, t = zh[i, start].copy(), np.empty(z0.shape[1])
+        conv, _, _ = solve_fold(z, th[i, start] * w, w, 1e-10, 8, prm[i], np.ascontiguousarray(pb.imperfection[i]),
+                                np.ascontiguousarray(pb.eigen_stress[i]), b, np.ascontiguousarray(b.T), x, xl,
+                                np.ascontiguousarray(xl.T), d1e, sigma, t)
+        assert conv
+        assert z[-1] == pytest.approx(want[r, -1], rel=1e-9)  # both within the Newton tolerance
+        np.testing.assert_allclose(z, want[r], rtol=0, atol=1e-6)
+        assert t[-1] == 0.0 and abs(np.sum(t * t * w) - 1.0) < 1e-12
+    # the trace that solves for the fold ends on it, at the same load
+    zs, _, _, cs, _, _, fs = trace_cap_paths(pb, z0, t0, w, fold_solve=True, **kw)
+    solved = rows[fs[rows] >= 0]
+    assert solved.size >= 2
+    np.testing.assert_array_equal(fs[solved], cs[solved] - 1)
+    np.testing.assert_allclose(zs[solved, fs[solved], -1], want[np.isin(rows, solved), -1], rtol=1e-9)

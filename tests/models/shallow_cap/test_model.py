@@ -139,7 +139,7 @@ def test_path_orientation_keeps_its_sign_through_a_limit_point():
     pb = build_problem(np.array([9.0]), np.array([NU]), np.array([True]), np.array([True]), np.array([False]),
                       np.zeros(1), np.full(1, 2.0), 24)
     w, z0, t0 = make_initial_tangent(pb)
-    zh, th, _, count, _, _ = trace_cap_paths(pb, z0, t0, w, first_step=0.1, max_step=0.25, min_step=1e-7,
+    zh, th, _, count, *_ = trace_cap_paths(pb, z0, t0, w, first_step=0.1, max_step=0.25, min_step=1e-7,
                                           max_points=400, max_turn_deg=8.0, tol=1e-10, max_iter=8,
                                           mu_max=np.full(1, 3.0), defl_max=np.full(1, 50.0),
                                           check_bistability=True, max_suction=2.0)
@@ -226,31 +226,38 @@ def test_pinned_deep_cap_is_bistable_with_a_near_mirror_inverted_state():
 
 def test_locating_crossings_inside_the_step_keeps_the_first_bifurcation(monkeypatch):
     # common practice, no source: refining only the wave numbers that change sign in the earliest
-    # sampled part of the flipped step gives the same critical state as refining all of them
-    from sweepshell.models.shallow_cap import scan
+    # sampled part of the flipped step, and dropping those whose bracket lies past another's, gives
+    # the same critical state as refining every crossing on the whole step
+    from sweepshell.models.shallow_cap import bifurcations
 
     lam = np.array([6.0, 8.5, 11.0, 14.0, 17.0, 20.0])
     inputs = cap_inputs(lam, dimple_amplitude=np.array([0.0, 0.1, 0.0, 0.3, 0.0, 0.05]))
     model = make_model("shallow_cap", {"check_bistability": False})
-    kept: list[tuple[int, int]] = []
-    real = scan.bracket_first_crossings
+    counts: list[tuple[int, int]] = []
+    real_find = bifurcations.find_zeros_on_arc
 
-    def recording(*args):  # type: ignore[no-untyped-def]
-        out = real(*args)
-        kept.append((int(out[0].sum()), out[0].size))
-        return out
+    def recording(*args, **kwargs):  # type: ignore[no-untyped-def]
+        z, s, ok = real_find(*args, **kwargs)
+        counts.append((int(np.isfinite(s).sum()), s.size))
+        return z, s, ok
 
-    monkeypatch.setattr(scan, "bracket_first_crossings", recording)
+    monkeypatch.setattr(bifurcations, "find_zeros_on_arc", recording)
     pruned = model.solve_batch(inputs).outputs
-    assert sum(k for k, _ in kept) < sum(n for _, n in kept)  # crossings were dropped
+    real_sample = bifurcations.sample_flipped_steps
 
-    def keep_all(pb, hist, jb, crossings, w, tol):  # type: ignore[no-untyped-def]
-        step = hist.step[crossings.point, jb[crossings.point]]
-        n = crossings.point.size
-        return np.ones(n, dtype=bool), np.zeros(n), step, np.ones(n), crossings.ratio
+    def whole_step(*args):  # type: ignore[no-untyped-def]
+        s, g, settled = real_sample(*args)
+        return s, g, np.zeros_like(settled)  # as if no sample had converged: every crossing on the whole step
 
-    monkeypatch.setattr(scan, "bracket_first_crossings", keep_all)
+    def every_zero(*args, **kwargs):  # type: ignore[no-untyped-def]
+        kwargs["group"] = None
+        return real_find(*args, **kwargs)
+
+    monkeypatch.setattr(bifurcations, "sample_flipped_steps", whole_step)
+    monkeypatch.setattr(bifurcations, "find_zeros_on_arc", every_zero)
     full = model.solve_batch(inputs).outputs
+    assert sum(n for _, n in counts) > len(counts)  # several crossings per flipped step
+    assert sum(k for k, _ in counts) < sum(n for _, n in counts)  # and some were dropped
     assert np.sum(full["critical_wavenumber"] > 0) >= 4  # bifurcations: the pruning was exercised
     np.testing.assert_array_equal(pruned["critical_wavenumber"], full["critical_wavenumber"])
     np.testing.assert_allclose(pruned["critical_load"], full["critical_load"], rtol=1e-8)
