@@ -38,6 +38,11 @@ converge with the stability grid: at λ = 10, δ ≈ h the lowest eigenvalues of
 λ⁴ are 1.3724, 1.4645, 1.6489 on 3M and 4M nodes for M = 24, 34, 48 (within 4·10⁻⁴). A 2M grid
 is enough at λ = 10 but not at λ = 20 (spurious modes again), hence 3M; this costs about
 8× the scan of a pressure point.
+The asymmetric scan of apex-force states first screens every path step on a cheaper grid, the
+state's own nodes with the interpolant filtered (its Chebyshev coefficients times
+``exp(−36 (k/K)⁸)``, which damps the wiggles of the interpolated log-singular curvature that
+make the unfiltered own grid spurious), and evaluates this stability grid only where the
+screen's signs change (:mod:`.screened_scan`): the screen decides where to look, never the result.
 Pressure and mismatch states keep the state's grid (a sharp-edged mismatch strain's kink is
 handled by that grid's node on the edge, see :mod:`sweepshell.numerics.radial_chebyshev`).
 """
@@ -192,7 +197,7 @@ def select_stability_nodes(problem: CapPathProblem, idx: np.ndarray, screen: boo
     smaller screening grid (``APEX_SCREEN_REFINEMENT`` times the state's nodes).
     """
     factor = APEX_SCREEN_REFINEMENT if screen else APEX_STABILITY_REFINEMENT
-    return np.where(problem.apex[idx], int(round(factor * problem.size)), problem.size)
+    return np.where(problem.apex[idx], round(factor * problem.size), problem.size)
 
 
 @lru_cache(maxsize=16)

@@ -1,24 +1,25 @@
 """Screened asymmetric scan of apex-force caps: a cheap grid says where the stability grid must look.
 
 An apex-force state's stability determinants are those of its interpolant on a grid three times
-the state's (:mod:`.modes`), about 27 times the work of the state's own grid per determinant.
-The scan needs the signs of all wave numbers at every path step up to the first sign change,
-so here every step is first evaluated on the screening grid (half again the state's nodes, the
+the state's (:mod:`.modes`), 27 times the work of the state's own grid per determinant. The
+scan needs the signs of all wave numbers at every path step up to the first sign change, so
+here every step is first evaluated on the screening grid (the state's own nodes with the
 interpolant filtered: :func:`~.modes.select_stability_nodes` with ``screen``), which follows
-the stability grid's low eigenvalues to about 10⁻³ of the load, and the stability grid is
-evaluated only
+the stability grid's low eigenvalues only roughly, and the stability grid is evaluated only
 
-- at the path's first point (the reference signs),
-- at every step where a screening sign differs from the screen's own reference (all wave
-  numbers), and from then on at every step for the wave numbers whose screening sign changed
-  while the stability grid's did not (the screen ran ahead of it: its later changes cannot be
-  seen on the screen),
+- at the path's first point (the reference signs), when a cap first needs them,
+- at every step where a screening sign differs from the screen's own first-point sign (all
+  wave numbers), and from then on at every step for the wave numbers whose screening sign
+  changed while the stability grid's did not (the screen ran ahead: its later changes of
+  those wave numbers cannot be seen on the screen, so the stability grid watches them),
 - backwards from a step where a stability sign changed, step by step, until a step without
-  change: the first changed step is the cap's first flip, as the unscreened scan defines it.
+  change: the first changed step of that run is the cap's first flip, as the unscreened scan
+  defines it, with the same crossings.
 
-What the screen cannot see is a window (a sign change and its return) of the stability grid
-that the screen misses entirely; the screen's eigenvalues differ by about 10⁻³ relative, so
-that is a window narrower than that, which step sampling misses too (``theory.md``).
+A screen that lags or leads the stability grid by a few steps, or has spurious sign changes,
+costs more stability-grid evaluations but gives the same first flip. What it cannot see is a
+window of the stability grid (a sign change and its return) that the screen misses entirely
+while never changing sign itself.
 """
 
 from __future__ import annotations
@@ -99,9 +100,9 @@ class _CapScan:
             j, now = k, det_k
         (now_s, now_l), (prev_s, prev_l) = now, prev
         out = []
-        for k in np.nonzero((now_s != self.ref) & (now_s != prev_s))[0]:
-            ratio = prev_s[k] * now_s[k] * np.exp(np.clip(now_l[k] - prev_l[k], -700, 700))
-            out.append((self.cap, int(self.modes[k]), float(ratio), float(prev_s[k]), float(prev_l[k])))
+        for c in np.nonzero((now_s != self.ref) & (now_s != prev_s))[0]:
+            ratio = prev_s[c] * now_s[c] * np.exp(np.clip(now_l[c] - prev_l[c], -700, 700))
+            out.append((self.cap, int(self.modes[c]), float(ratio), float(prev_s[c]), float(prev_l[c])))
         return j, out
 
 
