@@ -32,6 +32,7 @@ from sweepshell.models.shallow_cap.modes import compute_mode_determinants
 __all__ = ["scan_screened"]
 
 _ROUND = 8  # path steps per cap screened before looking at them
+Crossing = tuple[int, int, float, float, float]  # cap, wave number, determinant ratio, sign and log|det| before
 
 
 def _evaluate(pb: CapPathProblem, z: np.ndarray, cap: int, modes: np.ndarray,
@@ -72,7 +73,7 @@ class _CapScan:
         sg, ld = _evaluate(self.pb, self.zh[self.cap, j:j + 1], self.cap, self.modes)
         return sg[0], ld[0]
 
-    def visit(self, j: int, screen_sign: np.ndarray) -> tuple[int, list[tuple[int, int, float, float, float]]] | None:
+    def visit(self, j: int, screen_sign: np.ndarray) -> tuple[int, list[Crossing]] | None:
         """Look at step ``j`` with its screening signs; return ``(first flipped step, crossings)`` or None."""
         trigger = (screen_sign != self.screen_ref) & ~self.watched
         if trigger.any():
@@ -89,7 +90,7 @@ class _CapScan:
             return None
         return self._first_flip(j, self._all(j))
 
-    def _first_flip(self, j: int, now: tuple[np.ndarray, np.ndarray]) -> tuple[int, list]:  # type: ignore[type-arg]
+    def _first_flip(self, j: int, now: tuple[np.ndarray, np.ndarray]) -> tuple[int, list[Crossing]]:
         """Walk back from the flipped step ``j`` to the first step of its run of flipped steps."""
         prev = self.checked_det
         for k in range(j - 1, self.checked, -1):
@@ -99,7 +100,7 @@ class _CapScan:
                 break
             j, now = k, det_k
         (now_s, now_l), (prev_s, prev_l) = now, prev
-        out = []
+        out: list[Crossing] = []
         for c in np.nonzero((now_s != self.ref) & (now_s != prev_s))[0]:
             ratio = prev_s[c] * now_s[c] * np.exp(np.clip(now_l[c] - prev_l[c], -700, 700))
             out.append((self.cap, int(self.modes[c]), float(ratio), float(prev_s[c]), float(prev_l[c])))
@@ -107,7 +108,7 @@ class _CapScan:
 
 
 def scan_screened(pb: CapPathProblem, zh: np.ndarray, caps: np.ndarray, scan_end: np.ndarray, modes: np.ndarray,
-                  stride: int) -> tuple[np.ndarray, list[tuple[int, int, float, float, float]]]:
+                  stride: int) -> tuple[np.ndarray, list[Crossing]]:
     """Return the first path step of the caps ``caps`` where a stability determinant changed sign.
 
     Same result as evaluating every wave number at every ``stride``-th step on the stability
@@ -121,7 +122,7 @@ def scan_screened(pb: CapPathProblem, zh: np.ndarray, caps: np.ndarray, scan_end
         tuples ``(cap, wave number, determinant ratio, sign before, log|det| before)``.
     """
     jb = np.full(caps.size, -1)
-    found: list[tuple[int, int, float, float, float]] = []
+    found: list[Crossing] = []
     if caps.size == 0:
         return jb, found
     screen_ref, _ = compute_mode_determinants(pb, zh[caps, 0], caps, modes, screen=True)
