@@ -38,6 +38,11 @@ converge with the stability grid: at λ = 10, δ ≈ h the lowest eigenvalues of
 λ⁴ are 1.3724, 1.4645, 1.6489 on 3M and 4M nodes for M = 24, 34, 48 (within 4·10⁻⁴). A 2M grid
 is enough at λ = 10 but not at λ = 20 (spurious modes again), hence 3M; this costs about
 8× the scan of a pressure point.
+The asymmetric scan of apex-force states first screens every path step on a cheaper grid, the
+state's own nodes with the interpolant filtered (its Chebyshev coefficients times
+``exp(−36 (k/K)⁸)``, which damps the wiggles of the interpolated log-singular curvature that
+make the unfiltered own grid spurious), and evaluates this stability grid only where the
+screen's signs change (:mod:`.screened_scan`): the screen decides where to look, never the result.
 Pressure and mismatch states keep the state's grid (a sharp-edged mismatch strain's kink is
 handled by that grid's node on the edge, see :mod:`sweepshell.numerics.radial_chebyshev`).
 """
@@ -54,6 +59,7 @@ from sweepshell.models.shallow_cap.kernels import CapPathProblem
 from sweepshell.numerics.radial_chebyshev import build_interpolation_matrix, build_radial_grid, to_chebyshev_coordinate
 
 __all__ = [
+    "APEX_SCREEN_REFINEMENT",
     "APEX_STABILITY_REFINEMENT",
     "ModeCoefficients",
     "build_mode_matrices",
@@ -65,6 +71,10 @@ __all__ = [
 ]
 
 APEX_STABILITY_REFINEMENT = 3
+# the screening grid of apex-force scans (scan.py): nodes per state node, and the exponential
+# filter exp(−α (k/K)^p) of the interpolant's Chebyshev coefficients (α, p)
+APEX_SCREEN_REFINEMENT = 1.0
+APEX_SCREEN_FILTER = (36.0, 8.0)
 
 
 @dataclass(frozen=True)
@@ -179,27 +189,45 @@ class ModeCoefficients:
     immovable: np.ndarray
 
 
-def select_stability_nodes(problem: CapPathProblem, idx: np.ndarray) -> np.ndarray:
+def select_stability_nodes(problem: CapPathProblem, idx: np.ndarray, screen: bool = False) -> np.ndarray:
     """Return the node count of each state's stability grid, ``(k,)``.
 
     ``APEX_STABILITY_REFINEMENT`` times the state's nodes for apex-force states (see the module
-    docstring), the state's own nodes otherwise.
+    docstring), the state's own nodes otherwise; with ``screen``, apex-force states get the
+    smaller screening grid (``APEX_SCREEN_REFINEMENT`` times the state's nodes).
     """
-    return np.where(problem.apex[idx], APEX_STABILITY_REFINEMENT * problem.size, problem.size)
+    factor = APEX_SCREEN_REFINEMENT if screen else APEX_STABILITY_REFINEMENT
+    return np.where(problem.apex[idx], round(factor * problem.size), problem.size)
+
+
+@lru_cache(maxsize=16)
+def _build_odd_filter(size: int, alpha: float, order: float) -> np.ndarray:
+    """Return ``F`` ``(size, size)``: half-grid values of an odd function → those of its filtered interpolant.
+
+    The interpolant's Chebyshev coefficients ``a_k`` (degree ``K = 2·size − 1``) are multiplied by
+    ``exp(−α (k/K)^order)``.
+    """
+    n = 2 * size - 1
+    t = np.cos(np.pi * np.outer(np.arange(n + 1), np.arange(n + 1)) / n)
+    full = (t * np.exp(-alpha * (np.arange(n + 1) / n) ** order)[None, :]) @ np.linalg.inv(t)
+    return full[:size, :size] - full[:size, n - np.arange(size)]
 
 
 @lru_cache(maxsize=32)
-def _build_refinement(size: int, nodes: int, stretch: float = 0.0,
-                     centre: float = 0.0) -> tuple[np.ndarray, np.ndarray]:
+def _build_refinement(size: int, nodes: int, stretch: float = 0.0, centre: float = 0.0,
+                      smooth: bool = False) -> tuple[np.ndarray, np.ndarray]:
     """Return ``(E, D E)``: values and slopes at the ``nodes`` grid of the odd interpolant on ``size`` nodes.
 
     The interpolation runs in the Chebyshev coordinate ξ of the ``size`` grid. The cubic map of
     ``stretch`` is the same for every node count, so there the fine grid's ξ are its unstretched
     nodes; the clustered map of ``centre`` depends on the node count, so its ξ are computed.
+    With ``smooth`` the interpolant is filtered first (``APEX_SCREEN_FILTER``, the screening grid).
     """
     fine = build_radial_grid(nodes, stretch, centre)
     xi = build_radial_grid(nodes).x if centre == 0.0 else to_chebyshev_coordinate(fine.x, size, stretch, centre)
     e = build_interpolation_matrix(size, -1, xi)
+    if smooth:
+        e = e @ _build_odd_filter(size, *APEX_SCREEN_FILTER)
     de = fine.d1[-1] @ e
     e.setflags(write=False)
     de.setflags(write=False)
@@ -207,7 +235,7 @@ def _build_refinement(size: int, nodes: int, stretch: float = 0.0,
 
 
 def compute_mode_coefficients(problem: CapPathProblem, z: np.ndarray, idx: np.ndarray,
-                              nodes: int | None = None) -> ModeCoefficients:
+                              nodes: int | None = None, smooth: bool = False) -> ModeCoefficients:
     """Return the stability coefficients of axisymmetric states ``z`` ``(k, 2M+1)``.
 
     Parameters
@@ -218,6 +246,8 @@ def compute_mode_coefficients(problem: CapPathProblem, z: np.ndarray, idx: np.nd
         stress slope ``f`` (their derivatives exact), which is how apex-force states are
         analysed (:func:`select_stability_nodes`); that path ignores the mismatch strain's
         exact stress slope, so it is meant for pressure and apex-force states.
+    smooth
+        Filter the interpolant (``APEX_SCREEN_FILTER``; the screening grid of apex-force scans).
     """
     g = problem.grid
     x = g.x
@@ -227,8 +257,8 @@ def compute_mode_coefficients(problem: CapPathProblem, z: np.ndarray, idx: np.nd
     kap = problem.kappa[idx]
     ybar = y + (kap * p)[:, None] * problem.sigma[None, :]
     imp = problem.imperfection[idx]
-    if nodes is not None and nodes != g.size:
-        e, de = _build_refinement(g.size, int(nodes), g.stretch, g.centre)
+    if nodes is not None and (nodes != g.size or smooth):
+        e, de = _build_refinement(g.size, int(nodes), g.stretch, g.centre, smooth)
         slope = ybar - (x[None, :] - imp)
         return ModeCoefficients(
             f=lam2[:, None] * (fs @ e.T), df=lam2[:, None] * (fs @ de.T),
@@ -298,7 +328,8 @@ def _reduced_matrices(problem: CapPathProblem, co: ModeCoefficients, modes: np.n
 
 
 def compute_mode_determinants(problem: CapPathProblem, z: np.ndarray, idx: np.ndarray, modes: np.ndarray,
-                              coefficients: ModeCoefficients | None = None) -> tuple[np.ndarray, np.ndarray]:
+                              coefficients: ModeCoefficients | None = None,
+                              screen: bool = False) -> tuple[np.ndarray, np.ndarray]:
     """Return ``(sign, log|det|)`` of the reduced stability matrices, shape ``(k, len(modes))``.
 
     The determinant is that of ``A − B S⁻¹ C``: the full one divided by the state-independent
@@ -317,25 +348,30 @@ def compute_mode_determinants(problem: CapPathProblem, z: np.ndarray, idx: np.nd
     coefficients
         Precomputed :func:`compute_mode_coefficients` of the same states, if at hand (their
         grid is used for every state).
+    screen
+        Apex-force states on the screening grid (:func:`select_stability_nodes`, filtered
+        interpolant) instead of the stability grid: an approximation that only tells the scan
+        where to look (:mod:`.scan`).
     """
     sign = np.empty((z.shape[0], len(modes)))
     logdet = np.empty_like(sign)
-    for rows, co in _group_coefficients(problem, z, idx, coefficients):
+    for rows, co in _group_coefficients(problem, z, idx, coefficients, screen):
         for j, _, a in _reduced_matrices(problem, co, modes):
             sign[rows, j], logdet[rows, j] = np.linalg.slogdet(a)
     return sign, logdet
 
 
 def _group_coefficients(problem: CapPathProblem, z: np.ndarray, idx: np.ndarray,
-                        coefficients: ModeCoefficients | None = None):  # type: ignore[no-untyped-def]
+                        coefficients: ModeCoefficients | None = None,
+                        screen: bool = False):  # type: ignore[no-untyped-def]
     """Yield ``(rows, coefficients)`` per stability grid of the states."""
     if coefficients is not None:
         yield np.arange(z.shape[0]), coefficients
         return
-    nodes = select_stability_nodes(problem, idx)
+    nodes = select_stability_nodes(problem, idx, screen)
     for size in np.unique(nodes):
         rows = np.nonzero(nodes == size)[0]
-        yield rows, compute_mode_coefficients(problem, z[rows], idx[rows], int(size))
+        yield rows, compute_mode_coefficients(problem, z[rows], idx[rows], int(size), screen)
 
 
 def count_unstable_modes(problem: CapPathProblem, z: np.ndarray, idx: np.ndarray, modes: np.ndarray) -> np.ndarray:

@@ -13,12 +13,14 @@ import numpy as np
 
 from sweepshell.models.shallow_cap.kernels import CapPathProblem
 from sweepshell.models.shallow_cap.modes import compute_mode_determinants, select_stability_nodes
+from sweepshell.models.shallow_cap.screened_scan import scan_screened
 
 __all__ = ["ModeCrossings", "scan_modes"]
 
 _DET_CHUNK = 1024
 _DET_CHUNK_ELEMENTS = 12_500_000  # ~100 MB per (states, M, M) float64 stack of stability matrices
 _SCAN_ROUND = 8  # sampled path points per cap evaluated before looking for a flip
+SCREEN_APEX = True  # apex-force caps are scanned on the screening grid first (screened_scan.py)
 
 
 @dataclass(frozen=True)
@@ -105,6 +107,38 @@ def scan_modes(pb: CapPathProblem, zh: np.ndarray, scanned: np.ndarray, scan_end
                modes: np.ndarray, stride: int) -> tuple[np.ndarray, ModeCrossings]:
     """Return the first path step where a stability determinant changed sign, per cap.
 
+    Apex-force caps are scanned by :func:`~.screened_scan.scan_screened` (a cheap screening
+    grid first, their stability grid where it matters), the others by evaluating every sampled
+    step (:func:`_scan_every_step`).
+
+    Returns
+    -------
+    step, crossings
+        ``(n,)`` index of the first step with a flip (-1: none), and the wave numbers that
+        flipped in that step.
+    """
+    jb = np.full(zh.shape[0], -1)
+    if modes.size == 0 or not scanned.any():
+        return jb, _NO_CROSSINGS
+    screened = scanned & pb.apex if SCREEN_APEX else np.zeros_like(scanned)
+    caps = np.nonzero(screened)[0]
+    jb[caps], out = scan_screened(pb, zh, caps, scan_end, modes, stride)
+    rest = scanned & ~screened
+    if rest.any():
+        jb_rest, out_rest = _scan_every_step(pb, zh, rest, scan_end, modes, stride)
+        jb[rest] = jb_rest[rest]
+        out += out_rest
+    if not out:
+        return jb, _NO_CROSSINGS
+    out.sort(key=lambda c: c[0])
+    cols = list(zip(*out, strict=True))
+    return jb, ModeCrossings(*(np.asarray(c) for c in cols))
+
+
+def _scan_every_step(pb: CapPathProblem, zh: np.ndarray, scanned: np.ndarray, scan_end: np.ndarray,
+                     modes: np.ndarray, stride: int) -> tuple[np.ndarray, list[tuple[int, int, float, float, float]]]:
+    """Return the first path step where a stability determinant changed sign, per cap (every sample evaluated).
+
     All wave numbers are evaluated at every ``stride``-th accepted step (and at the last one);
     path steps are short where the state changes fast (near folds), so this sampling is
     densest where determinants move fastest. The samples are evaluated in rounds along the
@@ -117,13 +151,11 @@ def scan_modes(pb: CapPathProblem, zh: np.ndarray, scanned: np.ndarray, scan_end
     Returns
     -------
     step, crossings
-        ``(n,)`` index of the first step with a flip (-1: none), and the wave numbers that
-        flipped in that step.
+        ``(n,)`` index of the first step with a flip (-1: none), and the crossings of that step
+        as tuples ``(cap, wave number, determinant ratio, sign before, log|det| before)``.
     """
     n = zh.shape[0]
     jb = np.full(n, -1)
-    if modes.size == 0 or not scanned.any():
-        return jb, _NO_CROSSINGS
     steps = np.arange(zh.shape[1])
     inside = (steps[None, :] <= scan_end[:, None]) & scanned[:, None]
     sampled = inside & ((steps[None, :] % stride == 0) | (steps[None, :] == scan_end[:, None]))
@@ -133,7 +165,7 @@ def scan_modes(pb: CapPathProblem, zh: np.ndarray, scanned: np.ndarray, scan_end
     any_flip = flip_at.any(axis=2)
     rows = np.nonzero(any_flip.any(axis=1))[0]
     if rows.size == 0:
-        return jb, _NO_CROSSINGS
+        return jb, []
     j_hi = np.argmax(any_flip[rows], axis=1)
     j_lo = (j_hi - 1) // stride * stride
     flipped = flip_at[rows, j_hi]  # (r, modes)
@@ -150,5 +182,4 @@ def scan_modes(pb: CapPathProblem, zh: np.ndarray, scanned: np.ndarray, scan_end
         for k in np.nonzero(cand & (now_s != prev_s))[0]:
             ratio = prev_s[k] * now_s[k] * np.exp(np.clip(now_l[k] - prev_l[k], -700, 700))
             out.append((int(i), int(modes[k]), float(ratio), float(prev_s[k]), float(prev_l[k])))
-    cols = list(zip(*out, strict=True))
-    return jb, ModeCrossings(*(np.asarray(c) for c in cols))
+    return jb, out

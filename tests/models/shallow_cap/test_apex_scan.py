@@ -207,3 +207,38 @@ def test_scanning_in_rounds_finds_the_same_first_flip(monkeypatch):
     np.testing.assert_array_equal(rounds["critical_wavenumber"], at_once["critical_wavenumber"])
     np.testing.assert_array_equal(rounds["critical_load"], at_once["critical_load"])
     assert np.all(rounds["critical_wavenumber"][:2] > 0)
+
+
+def test_screened_scan_finds_the_critical_states_of_the_full_scan(monkeypatch):
+    # common practice, no source: the screened scan (screening grid everywhere, the stability grid where a
+    # screening sign changes) and the scan that evaluates the stability grid at every path step agree:
+    # pinned λ = 8 (n = 1), clamped λ = 10 (the n = 4 window of about one step) and sliding λ = 20 (n = 3)
+    from sweepshell.models.shallow_cap import scan
+
+    model = make_model("shallow_cap", {"check_bistability": False, "path_samples": 8})
+    inputs = cap_inputs([8.0, 10.0, 20.0], load="apex_force", edge=np.array(["pinned", "clamped", "clamped"]),
+                        edge_inplane=np.array(["immovable", "immovable", "sliding"]))
+    screened = model.solve_batch(inputs).outputs
+    monkeypatch.setattr(scan, "SCREEN_APEX", False)
+    full = model.solve_batch(inputs).outputs
+    np.testing.assert_array_equal(screened["critical_wavenumber"], [1.0, 4.0, 3.0])
+    np.testing.assert_array_equal(screened["critical_wavenumber"], full["critical_wavenumber"])
+    np.testing.assert_allclose(screened["critical_load"], full["critical_load"], rtol=1e-9)
+
+
+def test_a_screen_with_spurious_modes_still_gives_the_stability_grid_answer(monkeypatch):
+    # common practice, no source: the screen only says where to look. On the state's own grid without the
+    # filter (spurious n = 2, 3 sign changes at the first loaded step) the screened scan watches those wave
+    # numbers on the stability grid and still finds n = 4 at P = 9.4474 for the clamped λ = 10 cap
+    from sweepshell.models.shallow_cap import modes
+
+    monkeypatch.setattr(modes, "APEX_SCREEN_REFINEMENT", 1.0)
+    monkeypatch.setattr(modes, "APEX_SCREEN_FILTER", (0.0, 8.0))
+    modes._build_refinement.cache_clear()
+    try:
+        model = make_model("shallow_cap", {"check_bistability": False, "path_samples": 8})
+        out = model.solve_batch(cap_inputs([10.0], load="apex_force")).outputs
+    finally:
+        modes._build_refinement.cache_clear()
+    np.testing.assert_array_equal(out["critical_wavenumber"], [4.0])
+    np.testing.assert_allclose(out["critical_load"], [9.4474], rtol=1e-4)
