@@ -73,6 +73,11 @@ class RadialGrid:
         The cubic map's β (0: plain Chebyshev points).
     centre
         The clustered map's ρ (0: no clustering); ``x`` then holds ρ exactly.
+    split, interface, d4, jumps, flux_weight
+        Of a two-domain grid split at ρ = ``split`` (0: one domain) with ρ at index
+        ``interface``, its fourth-derivative matrices, the rows of the one-sided derivative
+        differences at ρ and the weight of the first one in a second-order equation's row
+        there (:mod:`sweepshell.numerics.radial_two_domain`).
     """
 
     x: np.ndarray
@@ -83,6 +88,11 @@ class RadialGrid:
     moment2: dict[int, np.ndarray]
     stretch: float = 0.0
     centre: float = 0.0
+    split: float = 0.0
+    interface: int = 0
+    d4: dict[int, np.ndarray] | None = None
+    jumps: dict[int, np.ndarray] | None = None
+    flux_weight: float = 0.0
 
     @property
     def size(self) -> int:
