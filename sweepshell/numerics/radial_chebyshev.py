@@ -285,4 +285,5 @@ def build_radial_grid(m: int, stretch: float = 0.0, centre: float = 0.0) -> Radi
         for arr in table.values():
             arr.setflags(write=False)
     x.setflags(write=False)
-    return RadialGrid(x=x, stretch=float(stretch), centre=float(centre), **ops)
+    return RadialGrid(x=x, d1=ops["d1"], d2=ops["d2"], d3=ops["d3"], integral=ops["integral"],
+                      moment2=ops["moment2"], stretch=float(stretch), centre=float(centre))

@@ -160,5 +160,6 @@ def build_split_grid(m: int, rho: float, outer: int) -> RadialGrid:
             row.setflags(write=False)
             ops[key][par] = row
     x.setflags(write=False)
-    return RadialGrid(x=x, stretch=0.0, centre=0.0, split=float(rho), interface=p, jumps=jumps,
-                      flux_weight=rho / (w_out + w_in), **ops)
+    return RadialGrid(x=x, d1=ops["d1"], d2=ops["d2"], d3=ops["d3"], integral=ops["integral"],
+                      moment2=ops["moment2"], split=float(rho), interface=p, d4=ops["d4"], jumps=jumps,
+                      flux_weight=rho / (w_out + w_in))
