@@ -37,9 +37,10 @@ def get_mismatch_nodes(settings: Mapping[str, Any], lam: np.ndarray) -> np.ndarr
     """Return the grid size of mismatch-strain points with shell parameters ``lam``.
 
     Sharp edge (``mismatch_step_width`` 0), on the grid clustered at the edge
-    (:func:`choose_grid_centres`): ``nodes``, or when automatic 44 + 1.8λ (even, 48 … 96), the
-    size that gives about 10⁻⁴ relative accuracy of the critical load (the measurements are in
-    ``theory.md`` and tests/models/shallow_cap/test_mismatch_sharp.py). Smoothed edge: the edge
+    (``mismatch_grid`` clustered, :func:`choose_grid_centres`): ``nodes``, or when automatic
+    44 + 1.8λ (even, 48 … 96), the size that gives about 10⁻⁴ relative accuracy of the critical
+    load (the measurements are in ``theory.md`` and tests/models/shallow_cap/test_mismatch_sharp.py);
+    the two-domain grid's counts are :func:`get_split_counts` (:func:`choose_grid_splits`). Smoothed edge: the edge
     sits inside the cap, where the Chebyshev grid is coarsest, and results lose digits fast when
     w·nodes falls below about 3.4, so ``nodes`` (when automatic max(34, 16 + 1.5λ), even) is
     raised until w·nodes ≥ 3.4.
@@ -60,8 +61,10 @@ def get_mismatch_nodes(settings: Mapping[str, Any], lam: np.ndarray) -> np.ndarr
 def choose_grid_centres(settings: Mapping[str, Any], eigen: np.ndarray, radius: np.ndarray) -> np.ndarray:
     """Return each point's clustering centre ρ of the radial grid (0: none; see ``build_radial_grid``).
 
-    Mismatch points with a sharp edge inside the cap (``mismatch_step_width`` 0, ρ < 1) get the
-    grid clustered around x = ±ρ with a node on ρ: their response has a kink there (a jump of
+    Mismatch points with a sharp edge inside the cap (``mismatch_step_width`` 0, ρ < 1) and
+    ``mismatch_grid`` clustered get the grid clustered around x = ±ρ with a node on ρ (with
+    ``mismatch_grid`` split the two-domain grid of :func:`choose_grid_splits`):
+    their response has a kink there (a jump of
     the hoop prestress and of the third derivative of the slope), which a plain grid resolves
     only to first order, oscillating with where ρ falls between nodes.
     """
@@ -81,8 +84,11 @@ def get_split_counts(lam: float, rho: float, nodes: int = 0) -> tuple[int, int]:
     The measured need for about 10⁻⁵ relative accuracy of the critical load (against 96 nodes
     with the same rule; ladders in ``theory.md``): ``p = 20 + 1.4 λ (1 − ρ)`` on the outer side
     (the edge layer, the layer at ρ and wrinkles around a disc), ``q = 8 + 1.5 λ ρ`` on the inner
-    one, M = p + q. A given ``nodes`` M is shared in the same proportion (at least 8 and 6).
+    one, M = p + q, with λ rounded up to an even number so that points of one region radius and
+    nearby λ share a grid (and a batch). A given ``nodes`` M is shared in the same proportion (at
+    least 8 and 6).
     """
+    lam = 2.0 * math.ceil(lam / 2.0)
     p_need, q_need = 20.0 + 1.4 * lam * (1.0 - rho), 8.0 + 1.5 * lam * rho
     if nodes <= 0:
         p, q = math.ceil(p_need), math.ceil(q_need)
@@ -119,7 +125,8 @@ def choose_grids(settings: Mapping[str, Any], lam: np.ndarray, apex: np.ndarray,
     varies fastest there: dimpled caps (``dimple_grid_stretch``) and apex forces
     (``apex_grid_stretch``); perfect caps under pressure keep Chebyshev points, whose edge
     clustering the asymmetric modes need; mismatch points use :func:`get_mismatch_nodes` (and
-    sharp-edged ones the clustered map of :func:`choose_grid_centres`).
+    sharp-edged ones the clustered map of :func:`choose_grid_centres`, or the two-domain grid of
+    :func:`choose_grid_splits`, which sets its own counts).
     Counts are even, from 16 to 96.
     """
     scan = int(settings["asymmetric_modes"]) > 0
