@@ -6,6 +6,7 @@ the bending/substrate part of the Hessian is the identity.
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass
 
 import numpy as np
@@ -85,7 +86,7 @@ def minimize_sheet_energy(problem: SheetProblem, z0: np.ndarray, *, gradient_tol
     converged = False
     iterations = 0
     while iterations < max_iterations:
-        if float(np.max(np.abs(g))) <= gradient_tolerance:
+        if float(np.abs(g).max()) <= gradient_tolerance:
             converged = True
             break
         iterations += 1
@@ -109,7 +110,7 @@ def minimize_sheet_energy(problem: SheetProblem, z0: np.ndarray, *, gradient_tol
             history.append(f / n2)
         if not np.isfinite(f):
             break
-    gnorm = float(np.max(np.abs(g)))
+    gnorm = float(np.abs(g).max())
     finite = bool(np.isfinite(f) and np.all(np.isfinite(x)))
     # a line search that stalls at round-off with a small gradient is converged in practice
     converged = finite and (converged or gnorm <= 100.0 * gradient_tolerance)
@@ -119,18 +120,23 @@ def minimize_sheet_energy(problem: SheetProblem, z0: np.ndarray, *, gradient_tol
 
 
 def _compute_lbfgs_direction(g: np.ndarray, pairs: list[tuple[np.ndarray, np.ndarray, float]]) -> np.ndarray:
-    """Return the L-BFGS descent direction by the two-loop recursion."""
+    """Return the L-BFGS descent direction by the two-loop recursion.
+
+    The updates run in place on one work vector and one scratch vector (the same
+    arithmetic as ``q = q − a·y``, without a new array per pair).
+    """
     q = -g
+    scratch = np.empty_like(q)
     alphas = []
     for s_vec, y_vec, sy in reversed(pairs):
         a = float(s_vec @ q) / sy
         alphas.append(a)
-        q = q - a * y_vec
+        np.subtract(q, np.multiply(a, y_vec, out=scratch), out=q)
     if pairs:
         y_last = pairs[-1][1]
-        q = q * (pairs[-1][2] / float(y_last @ y_last))
+        np.multiply(q, pairs[-1][2] / float(y_last @ y_last), out=q)
     for (s_vec, y_vec, sy), a in zip(pairs, reversed(alphas), strict=True):
-        q = q + (a - float(y_vec @ q) / sy) * s_vec
+        np.add(q, np.multiply(a - float(y_vec @ q) / sy, s_vec, out=scratch), out=q)
     return q
 
 
@@ -148,7 +154,7 @@ def _search_line(problem: SheetProblem, x: np.ndarray, f: float, d: np.ndarray,
     with np.errstate(over="ignore", invalid="ignore"):
         for _ in range(60):
             f_t, g_t = evaluate_sheet_energy(problem, x + t * d)
-            if np.isfinite(f_t) and np.all(np.isfinite(g_t)) and f_t <= f + c1 * t * slope:
+            if math.isfinite(f_t) and np.isfinite(g_t).all() and f_t <= f + c1 * t * slope:
                 break
             t *= 0.5
         else:
@@ -157,7 +163,7 @@ def _search_line(problem: SheetProblem, x: np.ndarray, f: float, d: np.ndarray,
             if float(g_t @ d) >= 0.5 * slope:
                 break
             f_2, g_2 = evaluate_sheet_energy(problem, x + 2.0 * t * d)
-            if not (np.isfinite(f_2) and np.all(np.isfinite(g_2))
+            if not (math.isfinite(f_2) and np.isfinite(g_2).all()
                     and f_2 <= f + c1 * 2.0 * t * slope and f_2 < f_t):
                 break
             t, f_t, g_t = 2.0 * t, f_2, g_2

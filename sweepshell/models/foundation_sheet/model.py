@@ -88,7 +88,7 @@ import numpy as np
 
 from sweepshell.errors import ParameterError
 from sweepshell.models.base import BatchResult, OutputSpec, ParameterSpec, Status, SweepModel
-from sweepshell.models.foundation_sheet.patterns import PATTERN_NAMES, classify_pattern, measure_pattern
+from sweepshell.models.foundation_sheet.patterns import PATTERN_NAMES
 from sweepshell.models.foundation_sheet.point import fill_point_outputs, solve_sheet_point
 from sweepshell.models.foundation_sheet.scales import MIN_MODES_PER_WAVELENGTH, compute_sheet_scales
 
@@ -152,7 +152,7 @@ class FoundationSheetModel(SweepModel):
     )
     regimes: ClassVar[tuple[str, ...]] = PATTERN_NAMES
     #: seconds per point on one core, between the stripe and labyrinth costs recorded in theory.md
-    cost_hint: ClassVar[float] = 0.9
+    cost_hint: ClassVar[float] = 0.7
 
     def __init__(self, *, seeds: Sequence[int] = (1, 2, 3), perturbation: float = 0.01,
                  gradient_tolerance: float = 1e-4, max_iterations: int = 4000,
@@ -288,7 +288,7 @@ class FoundationSheetModel(SweepModel):
                                        answer.energy * scales["energy_scale"][i],
                                        scales["critical_wavelength"][i] * cells[i], s["flat_tolerance"])
                     out["pattern_confidence"][i] = answer.confidence
-                    regime[i] = classify_pattern(measure_pattern(answer.height), s["flat_tolerance"] / ratio)
+                    regime[i] = answer.pattern
             except (FloatingPointError, ValueError, np.linalg.LinAlgError):
                 status[i] = Status.failed
                 regime[i] = -1

@@ -150,7 +150,7 @@ def _measure_local_order(F: np.ndarray, mx: np.ndarray, my: np.ndarray,
     hist = hist / max(float(hist.sum()), 1e-300)
     half = round(HERRINGBONE_WINDOW_DEG / (180.0 / DIRECTION_BINS))
     offsets = np.arange(-half, half + 1)
-    window = np.array([hist[(i + offsets) % DIRECTION_BINS].sum() for i in range(DIRECTION_BINS)])
+    window = hist[(np.arange(DIRECTION_BINS)[:, None] + offsets) % DIRECTION_BINS].sum(axis=1)
     first = int(np.argmax(window))
     # the second family must not overlap the first window
     blocked = (first + np.arange(-2 * half, 2 * half + 1)) % DIRECTION_BINS
@@ -207,8 +207,9 @@ def measure_peak_amplitude(height: np.ndarray, newton_steps: int = 6) -> float:
     def refine(iy: int, ix: int, sign: float) -> float:
         x, y = float(ix), float(iy)
         best = sign * float(h[iy, ix])
+        # the series terms at the current point, reused by the next step's derivatives
+        e = c * np.exp(1j * (kx * x + ky * y))
         for _ in range(newton_steps):
-            e = c * np.exp(1j * (kx * x + ky * y))
             gx, gy = float(np.sum(1j * kx * e).real), float(np.sum(1j * ky * e).real)
             hxx = float(np.sum(-kx * kx * e).real)
             hyy = float(np.sum(-ky * ky * e).real)
@@ -219,7 +220,8 @@ def measure_peak_amplitude(height: np.ndarray, newton_steps: int = 6) -> float:
             if abs(dx) > 1.0 or abs(dy) > 1.0:
                 break
             x, y = x + dx, y + dy
-            value = sign * float(np.sum(c * np.exp(1j * (kx * x + ky * y))).real)
+            e = c * np.exp(1j * (kx * x + ky * y))
+            value = sign * float(np.sum(e).real)
             best = max(best, value)
         return sign * best
 

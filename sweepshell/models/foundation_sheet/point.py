@@ -22,7 +22,12 @@ from sweepshell.models.foundation_sheet.energy import (
     project_field_to_modes,
 )
 from sweepshell.models.foundation_sheet.minimize import SheetMinimum, minimize_sheet_energy
-from sweepshell.models.foundation_sheet.patterns import classify_pattern, measure_pattern, measure_peak_amplitude
+from sweepshell.models.foundation_sheet.patterns import (
+    PATTERN_NAMES,
+    classify_pattern,
+    measure_pattern,
+    measure_peak_amplitude,
+)
 
 __all__ = ["SheetPointAnswer", "fill_point_outputs", "sample_periodic_field", "solve_sheet_point"]
 
@@ -43,6 +48,8 @@ class SheetPointAnswer:
         Share of converged starts ending in the chosen pattern.
     iterations
         L-BFGS iterations of the chosen start.
+    pattern
+        Index into ``PATTERN_NAMES`` of the chosen equilibrium (-1 when not converged).
     """
 
     status: int
@@ -50,6 +57,7 @@ class SheetPointAnswer:
     height: np.ndarray | None
     confidence: float
     iterations: int
+    pattern: int = -1
 
 
 def solve_sheet_point(modes: int, cells: int, substrate: str, nu: float, overstrain: tuple[float, float],
@@ -63,7 +71,8 @@ def solve_sheet_point(modes: int, cells: int, substrate: str, nu: float, overstr
     s1, s2 = overstrain
     problem = build_sheet_problem(modes, cells, substrate, nu, (s1, s2))
     if problem.linear_stability_margin() >= 0.0:
-        return SheetPointAnswer(Status.no_instability, 0.0, np.zeros((problem.n, problem.n)), 1.0, 0)
+        return SheetPointAnswer(Status.no_instability, 0.0, np.zeros((problem.n, problem.n)), 1.0, 0,
+                                PATTERN_NAMES.index("flat"))
     found = _run_seeds(problem, height_ratio, settings, seed_energies)
     if settings["mirror_starts"] and s1 != s2:
         mirrored = build_sheet_problem(modes, cells, substrate, nu, (s2, s1))
@@ -72,11 +81,12 @@ def solve_sheet_point(modes: int, cells: int, substrate: str, nu: float, overstr
         found += [(e, w.T.copy(), it) for e, w, it in _run_seeds(mirrored, height_ratio, settings, unused)]
     if not found:
         return SheetPointAnswer(Status.not_converged, np.nan, None, np.nan, 0)
-    energy, height, iterations = min(found, key=lambda c: c[0])
+    best = min(range(len(found)), key=lambda j: found[j][0])
+    energy, height, iterations = found[best]
     flat_amplitude = settings["flat_tolerance"] / height_ratio
     patterns = [classify_pattern(measure_pattern(c[1]), flat_amplitude) for c in found]
-    chosen = classify_pattern(measure_pattern(height), flat_amplitude)
-    return SheetPointAnswer(Status.ok, energy, height, patterns.count(chosen) / len(patterns), iterations)
+    chosen = patterns[best]
+    return SheetPointAnswer(Status.ok, energy, height, patterns.count(chosen) / len(patterns), iterations, chosen)
 
 
 def _run_seeds(problem: SheetProblem, height_ratio: float, settings: Mapping[str, Any],

@@ -260,3 +260,22 @@ def test_mirrored_starts_make_swapped_strains_mirror_images() -> None:
     np.testing.assert_allclose(height[:3], np.swapaxes(height[3:], 1, 2), atol=1e-12 * np.abs(height).max())
     confidence = result.outputs["pattern_confidence"]
     assert np.all((confidence > 0) & (confidence <= 1)) and np.all(confidence[:3] == confidence[3:])
+
+
+def test_energy_transforms_match_scipy_fft_and_fall_back(monkeypatch: pytest.MonkeyPatch) -> None:
+    # the energy's direct transforms give scipy.fft's bits; without the binding, the public functions
+    import sys
+
+    import scipy.fft
+
+    from sweepshell.models.foundation_sheet import energy
+
+    stack = np.random.default_rng(4).standard_normal((3, 16, 16))
+    spectrum = scipy.fft.rfft2(stack, axes=(-2, -1))
+    np.testing.assert_array_equal(energy._rfft2(stack), spectrum)
+    np.testing.assert_array_equal(energy._irfft2(spectrum, 16), scipy.fft.irfft2(spectrum, s=(16, 16)))
+    import scipy.fft._pocketfft as binding_package
+
+    monkeypatch.setitem(sys.modules, "scipy.fft._pocketfft.pypocketfft", None)
+    monkeypatch.delattr(binding_package, "pypocketfft")
+    assert energy._choose_transforms() == (energy._rfft2_public, energy._irfft2_public)
