@@ -14,9 +14,10 @@ import numpy as np
 import pytest
 
 from sweepshell.models import make_model
-from sweepshell.models.shallow_cap import modes
+from sweepshell.models.shallow_cap import modes, solver
 from sweepshell.models.shallow_cap.grids import choose_grid_splits, get_split_counts
-from sweepshell.models.shallow_cap.problem import build_problem
+from sweepshell.models.shallow_cap.modes import count_unstable_modes
+from sweepshell.models.shallow_cap.problem import CapInputs, build_batch_problem, build_problem
 from tests.conftest import cap_inputs
 from tests.models.shallow_cap.test_mismatch_reference import NU, disc_inclusion_stress, linear_state
 
@@ -131,3 +132,22 @@ def test_flat_plate_with_a_sharp_disc_is_the_lame_inclusion(immovable, annulus):
     away = x != rho
     np.testing.assert_allclose(n_r, want_r, atol=1e-9)
     np.testing.assert_allclose(n_t[away], want_t[away], atol=1e-9)
+
+
+def test_unstable_mode_counts_agree_with_the_clustered_grid():
+    # common practice, no source: the eigenvalue counts (the bistability check) with the interface rows
+    # eliminated, against the clustered grid at nearly the same load (λ = 8 disc, sliding edge; measured
+    # n = 4 … 8 unstable at e ≈ −4.19, n = 3 … 12 at e ≈ −5.46 on both)
+    one = np.ones(1, dtype=bool)
+    caps = CapInputs(np.array([8.0]), np.array([NU]), one, ~one, ~one, np.zeros(1), np.full(1, 2.0), mismatch=one,
+                     mismatch_strain=np.array([-6.0]), mismatch_radius=np.array([0.5]), annulus=~one)
+    counts = []
+    for grid in ({"nodes": 40, "grid_split": 0.5, "grid_outer": 26}, {"nodes": 60, "grid_centre": 0.5}):
+        settings = {**make_model("shallow_cap", FAST).settings, "grid_stretch": 0.0, **grid}
+        pb = build_batch_problem(caps, settings)
+        hist = solver._trace_paths(pb, caps, settings).hist
+        e = hist.z[0, :hist.count[0], -1] * pb.force_scale[0]
+        rows = [int(np.argmin(np.abs(e - target))) for target in (-2.0, -4.2, -5.5)]
+        counts.append(count_unstable_modes(pb, hist.z[0, rows], np.zeros(3, dtype=int), np.arange(1, 13)))
+    np.testing.assert_array_equal(counts[0], counts[1])
+    assert counts[0][0].sum() == 0 and counts[0][1].tolist() == [0, 0, 0, 1, 1, 1, 1, 1, 0, 0, 0, 0]
