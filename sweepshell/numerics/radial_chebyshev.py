@@ -73,6 +73,11 @@ class RadialGrid:
         The cubic map's β (0: plain Chebyshev points).
     centre
         The clustered map's ρ (0: no clustering); ``x`` then holds ρ exactly.
+    split, interface, d4, jumps, flux_weight
+        Of a two-domain grid split at ρ = ``split`` (0: one domain) with ρ at index
+        ``interface``, its fourth-derivative matrices, the rows of the one-sided derivative
+        differences at ρ and the weight of the first one in a second-order equation's row
+        there (:mod:`sweepshell.numerics.radial_two_domain`).
     """
 
     x: np.ndarray
@@ -83,6 +88,11 @@ class RadialGrid:
     moment2: dict[int, np.ndarray]
     stretch: float = 0.0
     centre: float = 0.0
+    split: float = 0.0
+    interface: int = 0
+    d4: dict[int, np.ndarray] | None = None
+    jumps: dict[int, np.ndarray] | None = None
+    flux_weight: float = 0.0
 
     @property
     def size(self) -> int:
@@ -275,4 +285,5 @@ def build_radial_grid(m: int, stretch: float = 0.0, centre: float = 0.0) -> Radi
         for arr in table.values():
             arr.setflags(write=False)
     x.setflags(write=False)
-    return RadialGrid(x=x, stretch=float(stretch), centre=float(centre), **ops)
+    return RadialGrid(x=x, d1=ops["d1"], d2=ops["d2"], d3=ops["d3"], integral=ops["integral"],
+                      moment2=ops["moment2"], stretch=float(stretch), centre=float(centre))

@@ -238,8 +238,9 @@ class CapPostbucklingModel(SweepModel):
         idx = np.nonzero(rows)[0]
         if idx.size == 0:
             return out
+        # the clustered grid of a sharp mismatch edge, as this model's own paths (choose_mismatch_grid)
         scan = ShallowCapModel(asymmetric_modes=self._settings["asymmetric_modes"], check_bistability=False,
-                               max_pressure=self._settings["max_pressure"], path_samples=2)
+                               max_pressure=self._settings["max_pressure"], path_samples=2, mismatch_grid="clustered")
         sub = {p.name: np.asarray(inputs[p.name])[idx] for p in ShallowCapModel.parameters}
         found = scan.solve_batch(sub)
         wn = found.outputs["critical_wavenumber"]

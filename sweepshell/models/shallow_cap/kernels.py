@@ -162,6 +162,10 @@ class CapPathProblem:
             self.eigen_edge = np.zeros(n)
         self.size = g.size
         self.xl = x[:, None] * g.d2[-1] + g.d1[-1] - np.diag(1.0 / x)
+        if g.split > 0.0 and g.jumps is not None:
+            # two-domain grid: the row at the shared node ρ is the weighted mean of the one-sided
+            # collocations plus the jump of u' (see sweepshell.numerics.radial_two_domain)
+            self.xl[g.interface] += g.flux_weight * g.jumps[-1][0]
         self.sigma, self.dsigma, _ = singular_slope(x)
         c = np.sqrt(3.0 * (1.0 - self.nu**2))
         self.kappa = 2.0 * c**2 / np.pi

@@ -48,7 +48,7 @@ from typing import Any, ClassVar
 import numpy as np
 
 from sweepshell.models.base import BatchResult, OutputSpec, ParameterSpec, Status, SweepModel
-from sweepshell.models.shallow_cap.grids import choose_grid_centres, choose_grids
+from sweepshell.models.shallow_cap.grids import choose_grid_centres, choose_grid_splits, choose_grids
 from sweepshell.models.shallow_cap.solver import CapInputs, CapSolution, solve_caps
 
 __all__ = ["ShallowCapModel"]
@@ -119,7 +119,8 @@ class ShallowCapModel(SweepModel):
                  max_indentation: float = 1.0, path_samples: int = 64, check_bistability: bool = True,
                  tolerance: float = 1e-10, max_points: int = 400, max_base_ratio: float = 0.5,
                  max_turn_deg: float = 12.0, scan_stride: int = 1, mismatch_step_width: float = 0.0,
-                 dimple_grid_stretch: float = 0.5, apex_grid_stretch: float = 0.85) -> None:
+                 dimple_grid_stretch: float = 0.5, apex_grid_stretch: float = 0.85,
+                 mismatch_grid: str = "clustered") -> None:
         super().__init__()
         for key, beta in (("dimple_grid_stretch", dimple_grid_stretch), ("apex_grid_stretch", apex_grid_stretch)):
             if not 0.0 <= float(beta) < 1.0:
@@ -128,6 +129,9 @@ class ShallowCapModel(SweepModel):
         if not float(mismatch_step_width) >= 0.0:
             raise ValueError(f"settings.mismatch_step_width must be 0 (a sharp edge) or a positive smoothing "
                              f"width over the base radius; got {mismatch_step_width}")
+        if mismatch_grid not in ("clustered", "split"):
+            raise ValueError(f"settings.mismatch_grid must be 'clustered' (one grid clustered at a sharp region "
+                             f"edge) or 'split' (two domains split there); got {mismatch_grid!r}")
         if int(nodes) != 0 and int(nodes) < 8:
             raise ValueError(f"settings.nodes must be 0 (automatic) or at least 8; got {nodes}")
         if not 0.0 < float(max_turn_deg) <= 45.0:
@@ -142,6 +146,7 @@ class ShallowCapModel(SweepModel):
             "scan_stride": max(int(scan_stride), 1),
             "mismatch_step_width": float(mismatch_step_width),
             "dimple_grid_stretch": float(dimple_grid_stretch), "apex_grid_stretch": float(apex_grid_stretch),
+            "mismatch_grid": str(mismatch_grid),
         }
 
     @property
@@ -280,13 +285,15 @@ def _solve_by_grid(s: Mapping[str, Any], eigen: np.ndarray, *args: np.ndarray) -
     lam, nu, clamped, immovable, apex, amp, width, strain, radius, annulus = args
     nodes, stretch = choose_grids(s, lam, apex, eigen, amp, width)
     centre = choose_grid_centres(s, eigen, radius)
-    keys = np.stack([nodes.astype(float), stretch, centre], axis=1)
+    nodes, split, outer = choose_grid_splits(s, lam, eigen, radius, nodes)
+    keys = np.stack([nodes.astype(float), stretch, centre, split, outer.astype(float)], axis=1)
     groups, inverse = np.unique(keys, axis=0, return_inverse=True)
     inverse = inverse.reshape(-1)
     parts: list[tuple[np.ndarray, CapSolution]] = []
-    for k, (size, beta, rho) in enumerate(groups):
+    for k, (size, beta, rho, cut, p) in enumerate(groups):
         rows = np.nonzero(inverse == k)[0]
-        settings = {**s, "nodes": int(size), "grid_stretch": float(beta), "grid_centre": float(rho)}
+        settings = {**s, "nodes": int(size), "grid_stretch": float(beta), "grid_centre": float(rho),
+                    "grid_split": float(cut), "grid_outer": int(p)}
         caps = CapInputs(lam[rows], nu[rows], clamped[rows], immovable[rows], apex[rows], amp[rows], width[rows],
                          mismatch=eigen[rows], mismatch_strain=strain[rows], mismatch_radius=radius[rows],
                          annulus=annulus[rows])

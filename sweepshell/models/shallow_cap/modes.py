@@ -56,6 +56,7 @@ import numpy as np
 
 from sweepshell.models.shallow_cap.compiled_modes import assemble_reduced_stability
 from sweepshell.models.shallow_cap.kernels import CapPathProblem
+from sweepshell.models.shallow_cap.split_modes import add_sliding_n1_row, build_split_field_rows, sliding_n1_stress
 from sweepshell.numerics.radial_chebyshev import build_interpolation_matrix, build_radial_grid, to_chebyshev_coordinate
 
 __all__ = [
@@ -87,6 +88,7 @@ class FieldOperators:
     w3_edge: np.ndarray
     bilaplacian: np.ndarray  # x² ∇⁴_n (x^m v)
     bracket: np.ndarray  # x (x^m v)' − n² x^m v, the radial part of x² [ζ₀-like, ·]
+    inner_rows: np.ndarray | None = None  # two-domain grid: bilaplacian, bracket, w2 rows at ρ's inner neighbour
 
 
 @dataclass(frozen=True)
@@ -103,7 +105,12 @@ class ModeOperators:
     stress: FieldOperators
 
 
-def _field_operators(size: int, n: int, m: int, stretch: float, centre: float) -> FieldOperators:
+def _field_operators(size: int, n: int, m: int, stretch: float, centre: float, split: float = 0.0,
+                     outer: int = 0) -> FieldOperators:
+    if split > 0.0:
+        w0, w1, w2, w3_edge, bilaplacian, bracket, inner_rows = build_split_field_rows(size, n, m, split, outer)
+        return FieldOperators(w0=w0, w1=w1, w2=w2, w3_edge=w3_edge, bilaplacian=bilaplacian, bracket=bracket,
+                              inner_rows=inner_rows)
     g = build_radial_grid(size, stretch, centre)
     x = g.x
     pv = 1 if (n - m) % 2 == 0 else -1
@@ -122,14 +129,15 @@ def _field_operators(size: int, n: int, m: int, stretch: float, centre: float) -
 
 
 @lru_cache(maxsize=512)
-def build_mode_operators(size: int, n: int, stretch: float = 0.0, centre: float = 0.0) -> ModeOperators:
+def build_mode_operators(size: int, n: int, stretch: float = 0.0, centre: float = 0.0, split: float = 0.0,
+                         outer: int = 0) -> ModeOperators:
     """Return the operators of wave number ``n ≥ 1`` on a half grid of ``size`` nodes (cached).
 
-    ``stretch`` and ``centre`` choose the grid map (see
-    :func:`~sweepshell.numerics.radial_chebyshev.build_radial_grid`).
+    ``stretch``, ``centre``, ``split`` and ``outer`` choose the grid (see
+    :func:`~sweepshell.models.shallow_cap.grids.get_cap_grid`).
     """
-    return ModeOperators(n=n, deflection=_field_operators(size, n, 1 if n == 1 else 2, stretch, centre),
-                         stress=_field_operators(size, n, 3 if n == 1 else 2, stretch, centre))
+    return ModeOperators(n=n, deflection=_field_operators(size, n, 1 if n == 1 else 2, stretch, centre, split, outer),
+                         stress=_field_operators(size, n, 3 if n == 1 else 2, stretch, centre, split, outer))
 
 
 def _stress_edge_rows(ops: ModeOperators, nu: float, immovable: bool) -> tuple[np.ndarray, np.ndarray]:
@@ -154,16 +162,18 @@ def _stress_edge_rows(ops: ModeOperators, nu: float, immovable: bool) -> tuple[n
 
 @lru_cache(maxsize=2048)
 def _build_stress_reduction(size: int, n: int, nu: float, immovable: bool, stretch: float = 0.0,
-                           centre: float = 0.0) -> np.ndarray:
+                           centre: float = 0.0, split: float = 0.0, outer: int = 0) -> np.ndarray:
     """Return ``[P₁; P₂] S⁻¹`` (``2M × M``), the fixed part of ``B S⁻¹`` (cached).
 
     ``B = −(diag(ζ'') P₁ + diag(x ζ') P₂)`` with ``P₁ = x φ' − n² φ``, ``P₂ = φ''`` operators on
     the stress function, zero on the two edge rows.
     """
-    ops = build_mode_operators(size, n, stretch, centre)
+    ops = build_mode_operators(size, n, stretch, centre, split, outer)
     so = ops.stress
     s = so.bilaplacian.copy()
     s[0], s[1] = _stress_edge_rows(ops, nu, immovable)
+    if split > 0.0 and n == 1 and not immovable and so.inner_rows is not None:
+        sliding_n1_stress(s, so.bilaplacian, so.inner_rows, outer)  # see split_modes
     p = np.concatenate([so.bracket, so.w2], axis=0)
     k = np.linalg.solve(s.T, p.T).T
     k[[0, 1, size, size + 1]] = 0.0
@@ -308,22 +318,30 @@ def build_mode_matrices(ops: ModeOperators, x: np.ndarray, co: ModeCoefficients)
 
 def _reduced_matrices(problem: CapPathProblem, co: ModeCoefficients, modes: np.ndarray):  # type: ignore[no-untyped-def]
     """Yield ``(j, n, A − B S⁻¹ C)`` ``(k, M, M)`` for each wave number of ``modes`` (on the grid of ``co``)."""
-    stretch, centre = problem.grid.stretch, problem.grid.centre
+    g = problem.grid
     m = co.f.shape[1]
-    x = problem.grid.x if m == problem.size else build_radial_grid(m, stretch, centre).x
+    # a finer stability grid (apex forces) is a single grid of the same map
+    key = (g.stretch, g.centre, g.split, g.interface) if m == problem.size else (g.stretch, g.centre, 0.0, 0)
+    x = g.x if m == problem.size else build_radial_grid(m, g.stretch, g.centre).x
     keys = list(zip(co.nu.tolist(), co.immovable.tolist(), strict=True))
     unique = sorted(set(keys))
     group = np.array([unique.index(key) for key in keys], dtype=np.int64) if len(unique) > 1 \
         else np.zeros(len(keys), dtype=np.int64)
     f, df, zeta1, zeta2 = (np.ascontiguousarray(v) for v in (co.f, co.df, co.zeta1, co.zeta2))
     for j, n in enumerate(modes):
-        ops = build_mode_operators(m, int(n), stretch, centre)
+        ops = build_mode_operators(m, int(n), *key)
         wo = ops.deflection
-        reduction = np.stack([_build_stress_reduction(m, int(n), nu, im, stretch, centre) for nu, im in unique])
+        reduction = np.stack([_build_stress_reduction(m, int(n), nu, im, *key) for nu, im in unique])
         a = assemble_reduced_stability(wo.bilaplacian, wo.bracket, wo.w2, wo.w0[0].copy(), wo.w1[0].copy(),
                                        wo.w2[0].copy(), x, reduction, group, f, df, zeta1, zeta2,
                                        co.nu.astype(float), co.clamped.astype(bool), co.immovable.astype(bool),
-                                       int(n) == 1)
+                                       int(n) == 1 and not key[2])
+        sliding = np.nonzero(~co.immovable)[0]
+        if key[2] and n == 1 and wo.inner_rows is not None and sliding.size:
+            part = a[sliding]
+            add_sliding_n1_row(part, wo.inner_rows, x, key[3], reduction[group[sliding]], co.zeta1[sliding],
+                               co.zeta2[sliding])
+            a[sliding] = part
         yield j, int(n), a
 
 
@@ -385,11 +403,15 @@ def count_unstable_modes(problem: CapPathProblem, z: np.ndarray, idx: np.ndarray
     """
     out = np.zeros((z.shape[0], len(modes)), dtype=int)
     for rows, co in _group_coefficients(problem, z, idx):
-        x = build_radial_grid(co.f.shape[1], problem.grid.stretch, problem.grid.centre).x
+        size, g = co.f.shape[1], problem.grid
+        x = g.x if size == problem.size else build_radial_grid(size, g.stretch, g.centre).x
+        # rows of edge and interface conditions (a two-domain grid's ρ and its neighbours) are eliminated
+        fixed = [0, 1, g.interface - 1, g.interface, g.interface + 1] if g.split and size == problem.size else [0, 1]
+        keep = np.setdiff1d(np.arange(size), fixed)
         for j, n, a in _reduced_matrices(problem, co, modes):
-            edge, edge_in = a[:, :2, :2], a[:, :2, 2:]
-            inner = a[:, 2:, 2:] - a[:, 2:, :2] @ np.linalg.solve(edge, edge_in)
-            mass = x[2:] ** ((1 if n == 1 else 2) + 2)
+            edge, edge_in = a[:, fixed][:, :, fixed], a[:, fixed][:, :, keep]
+            inner = a[:, keep][:, :, keep] - a[:, keep][:, :, fixed] @ np.linalg.solve(edge, edge_in)
+            mass = x[keep] ** ((1 if n == 1 else 2) + 2)
             sigma = np.linalg.eigvals(inner / mass[None, :, None])
             out[rows, j] = np.count_nonzero(sigma.real < 0.0, axis=1)
     return out

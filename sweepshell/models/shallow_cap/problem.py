@@ -8,8 +8,8 @@ from typing import Any
 
 import numpy as np
 
+from sweepshell.models.shallow_cap.grids import get_cap_grid
 from sweepshell.models.shallow_cap.kernels import CapPathProblem, eigenstrain_stress
-from sweepshell.numerics.radial_chebyshev import build_radial_grid
 
 __all__ = ["CapInputs", "build_batch_problem", "build_problem"]
 
@@ -57,7 +57,8 @@ def build_problem(lam: np.ndarray, nu: np.ndarray, clamped: np.ndarray, immovabl
                  apex: np.ndarray, amplitude: np.ndarray, width: np.ndarray, nodes: int, *,
                  mismatch: np.ndarray | None = None, mismatch_strain: np.ndarray | None = None,
                  mismatch_radius: np.ndarray | None = None, annulus: np.ndarray | None = None,
-                 step_width: float = 0.1, stretch: float = 0.0, centre: float = 0.0) -> CapPathProblem:
+                 step_width: float = 0.1, stretch: float = 0.0, centre: float = 0.0, split: float = 0.0,
+                 outer: int = 0) -> CapPathProblem:
     """Return the batched axisymmetric problem of the given caps.
 
     The mismatch arrays (all or none) select the mismatch load per cap: its direction is the
@@ -67,9 +68,10 @@ def build_problem(lam: np.ndarray, nu: np.ndarray, clamped: np.ndarray, immovabl
     model's default is the sharp edge). ``nodes``, ``stretch`` and
     ``centre`` choose the radial grid (see
     :func:`~sweepshell.numerics.radial_chebyshev.build_radial_grid`; a sharp edge wants
-    ``centre`` = its radius, which puts a node on it).
+    ``centre`` = its radius, which puts a node on it); ``split`` ρ > 0 with ``outer`` the
+    two-domain grid split at ρ instead (:func:`~.grids.get_cap_grid`).
     """
-    grid = build_radial_grid(nodes, stretch, centre)
+    grid = get_cap_grid(nodes, stretch, centre, split, outer)
     x = grid.x
     n = lam.shape[0]
     c = np.sqrt(3.0 * (1.0 - nu**2))
@@ -101,4 +103,5 @@ def build_batch_problem(caps: CapInputs, settings: Mapping[str, Any]) -> CapPath
                          mismatch_radius=caps.mismatch_radius, annulus=caps.annulus,
                          step_width=float(settings.get("mismatch_step_width", 0.1)),
                          stretch=float(settings.get("grid_stretch", 0.0)),
-                         centre=float(settings.get("grid_centre", 0.0)))
+                         centre=float(settings.get("grid_centre", 0.0)), split=float(settings.get("grid_split", 0.0)),
+                         outer=int(settings.get("grid_outer", 0)))

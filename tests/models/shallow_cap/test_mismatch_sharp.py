@@ -1,10 +1,11 @@
 """The ``shallow_cap`` mismatch strain with a sharp-edged region (``mismatch_step_width`` 0, the default).
 
 e = ε*/ε_cl (ε_cl = 2h/(R c)), negative = shrinkage; λ the shell parameter; ρ the region's
-radius over a. The sharp edge is solved on nodes clustered around ±ρ with a node on ρ
-(:mod:`sweepshell.numerics.radial_chebyshev`). Two cases: a shrinking central disc (λ = 8,
-ρ = 0.5, clamped, immovable; wrinkles in n = 6 around the disc) and a swelling annulus
-(λ = 6, ρ = 0.5; n = 12).
+radius over a. These tests solve the sharp edge on nodes clustered around ±ρ with a node on ρ
+(``mismatch_grid`` clustered, :mod:`sweepshell.numerics.radial_chebyshev`); the two-domain
+grid split at ρ (``mismatch_grid`` split) is tested in ``test_mismatch_split.py``. Two cases: a
+shrinking central disc (λ = 8, ρ = 0.5, clamped, immovable; wrinkles in n = 6 around the disc) and
+a swelling annulus (λ = 6, ρ = 0.5; n = 12).
 """
 
 from __future__ import annotations
@@ -19,7 +20,7 @@ from sweepshell.models.shallow_cap.solver import CapInputs, solve_caps
 from tests.conftest import cap_inputs
 from tests.models.shallow_cap.test_mismatch_reference import NU, disc_inclusion_stress, linear_state
 
-FAST = {"check_bistability": False, "asymmetric_modes": 8, "path_samples": 8}
+FAST = {"check_bistability": False, "asymmetric_modes": 8, "path_samples": 8, "mismatch_grid": "clustered"}
 DISC = {"lam": 8.0, "mismatch_strain": -6.0}
 ANNULUS = {"lam": 6.0, "mismatch_strain": 8.0, "mismatch_region": "annulus"}
 
@@ -87,7 +88,7 @@ def test_sharp_edge_is_the_limit_of_smoothed_edges(case, automatic_nodes):
     widths = np.array([0.1, 0.05, 0.025])
     smooth = [critical(case, mismatch_step_width=float(w), nodes=int(np.ceil(4.0 / w)))[0] for w in widths]
     fit = np.linalg.solve(np.stack([np.ones(3), widths**2, widths**3], axis=1), smooth)[0]
-    nodes, _ = choose_grids(make_model("shallow_cap").settings, np.array([case["lam"]]),
+    nodes, _ = choose_grids(make_model("shallow_cap", FAST).settings, np.array([case["lam"]]),
                             np.zeros(1, dtype=bool), np.ones(1, dtype=bool), np.zeros(1), np.full(1, 2.0))
     assert nodes[0] == automatic_nodes
     sharp, _ = critical(case)
@@ -128,8 +129,9 @@ def test_flat_plate_with_a_sharp_disc_is_the_lame_inclusion(immovable, annulus):
 
 
 def test_sharp_edge_is_the_default_and_points_with_other_radii_get_their_own_grid():
-    settings = make_model("shallow_cap").settings
-    assert settings["mismatch_step_width"] == 0.0
+    default = make_model("shallow_cap").settings
+    assert default["mismatch_step_width"] == 0.0 and default["mismatch_grid"] == "clustered"
+    settings = make_model("shallow_cap", FAST).settings
     eigen = np.array([True, True, True, False])
     radius = np.array([0.5, 0.3, 1.0, 0.5])
     np.testing.assert_array_equal(choose_grid_centres(settings, eigen, radius), [0.5, 0.3, 0.0, 0.0])
