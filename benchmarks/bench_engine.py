@@ -28,7 +28,7 @@ REPO = Path(__file__).resolve().parents[1]
 
 
 def _sweep_file(folder: Path, points: int, work: float, path_samples: int, name: str) -> Path:
-    n_eta = int(round(points ** 0.5))
+    n_eta = round(points ** 0.5)
     n_load = max(1, points // n_eta)
     text = f"""\
     name: {name}

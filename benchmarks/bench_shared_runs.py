@@ -25,7 +25,7 @@ REPO = Path(__file__).resolve().parents[1]
 
 
 def _sweep(folder: Path, points: int, work: float) -> Path:
-    n = int(round(points ** 0.5))
+    n = round(points ** 0.5)
     path = folder / "team.yaml"
     path.write_text(textwrap.dedent(f"""\
         name: team
@@ -65,7 +65,7 @@ def main() -> None:
     with tempfile.TemporaryDirectory() as tmp:
         folder = Path(tmp)
         sweep = str(_sweep(folder, args.points, args.work))
-        n = int(round(args.points ** 0.5)) ** 2
+        n = round(args.points ** 0.5) ** 2
         t_local = _timed([_run([sweep, "executor.workers=2", "store.path=a.zarr"], folder)])
         with LocalCluster(n_workers=2, threads_per_worker=1, processes=True, dashboard_address=":0") as cluster:
             t_dist = _timed([_run([sweep, "executor=distributed", f"executor.address={cluster.scheduler_address}",
