@@ -48,6 +48,7 @@ __all__ = [
     "RadialGrid",
     "build_interpolation_matrix",
     "build_radial_grid",
+    "chebyshev_matrix",
     "get_cluster_width",
     "to_chebyshev_coordinate",
 ]
@@ -99,7 +100,7 @@ class RadialGrid:
         return int(self.x.shape[0])
 
 
-def _chebyshev_matrix(n: int) -> tuple[np.ndarray, np.ndarray]:
+def chebyshev_matrix(n: int) -> tuple[np.ndarray, np.ndarray]:
     """Return the Chebyshev–Gauss–Lobatto points and differentiation matrix of order ``n``."""
     x = np.cos(np.pi * np.arange(n + 1) / n)
     c = np.ones(n + 1)
@@ -257,7 +258,7 @@ def build_radial_grid(m: int, stretch: float = 0.0, centre: float = 0.0) -> Radi
     if not 0.0 <= centre < 1.0 or (centre > 0.0 and stretch != 0.0):
         raise ValueError(f"centre must be in [0, 1) and needs stretch 0, got centre {centre}, stretch {stretch}")
     n = 2 * m - 1
-    xf, d = _chebyshev_matrix(n)
+    xf, d = chebyshev_matrix(n)
     d2 = d @ d
     d3 = d2 @ d
     gl_x, gl_w = np.polynomial.legendre.leggauss(4 * m + 8)

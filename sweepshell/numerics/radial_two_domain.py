@@ -38,7 +38,7 @@ from functools import lru_cache
 
 import numpy as np
 
-from sweepshell.numerics.radial_chebyshev import RadialGrid, build_interpolation_matrix
+from sweepshell.numerics.radial_chebyshev import RadialGrid, build_interpolation_matrix, chebyshev_matrix
 
 __all__ = ["build_split_grid", "get_split_counts"]
 
@@ -52,18 +52,6 @@ def get_split_counts(m: int, outer_share: float) -> tuple[int, int]:
     """
     p = min(max(6, round(outer_share * m)), m - 4)
     return p, m - p
-
-
-def _cheb(n: int) -> tuple[np.ndarray, np.ndarray]:
-    """Return the Chebyshev–Gauss–Lobatto points of order ``n`` and their differentiation matrix."""
-    x = np.cos(np.pi * np.arange(n + 1) / n)
-    c = np.ones(n + 1)
-    c[0] = c[-1] = 2.0
-    c *= (-1.0) ** np.arange(n + 1)
-    dx = x[:, None] - x[None, :]
-    d = np.outer(c, 1.0 / c) / (dx + np.eye(n + 1))
-    d -= np.diag(d.sum(axis=1))
-    return x, d
 
 
 def _powers(d: np.ndarray) -> list[np.ndarray]:
@@ -116,12 +104,12 @@ def build_split_grid(m: int, rho: float, outer: int) -> RadialGrid:
         raise ValueError(f"split grid needs 0 < rho < 1 and 6 <= outer <= m - 4; got rho {rho}, m {m}, outer {outer}")
     p, q = outer, m - outer
     half = 0.5 * (1.0 - rho)
-    t_out, d_out = _cheb(p)
+    t_out, d_out = chebyshev_matrix(p)
     x = np.concatenate([0.5 * (1.0 + rho) + half * t_out, rho * np.cos(np.pi * np.arange(1, q) / (2 * q - 1))])
     x[0], x[p] = 1.0, rho
     d_outer = [dk / half ** (k + 1) for k, dk in enumerate(_powers(d_out))]
     n_in = 2 * q - 1
-    _, d_in = _cheb(n_in)
+    _, d_in = chebyshev_matrix(n_in)
     inner_full = [dk / rho ** (k + 1) for k, dk in enumerate(_powers(d_in))]
     w_out = half * 2.0 / (p * (p + 1))
     w_in = rho * 2.0 / (n_in * (n_in + 1))
