@@ -23,7 +23,7 @@ from collections.abc import Iterator
 import numpy as np
 
 from sweepshell.models import make_model
-from sweepshell.models.shallow_cap import modes, scan
+from sweepshell.models.shallow_cap import modes, scan, stability_grid
 
 
 def draw_caps(n: int, seed: int, dimpled_share: float) -> dict[str, np.ndarray]:
@@ -77,9 +77,9 @@ def main() -> int:
     ap.add_argument("--filter", type=float, nargs=2, default=None, metavar=("ALPHA", "ORDER"))
     args = ap.parse_args()
     if args.screen_nodes is not None:
-        modes.APEX_SCREEN_REFINEMENT = args.screen_nodes
+        stability_grid.APEX_SCREEN_REFINEMENT = args.screen_nodes
     if args.filter is not None:
-        modes.APEX_SCREEN_FILTER = tuple(args.filter)
+        stability_grid.APEX_SCREEN_FILTER = tuple(args.filter)
     caps = draw_caps(args.caps, args.seed, args.dimpled)
     model = make_model("shallow_cap", {"check_bistability": False, "path_samples": 8})
     results, seconds, work = {}, {}, {}

@@ -12,8 +12,9 @@ from dataclasses import dataclass
 import numpy as np
 
 from sweepshell.models.shallow_cap.kernels import CapPathProblem
-from sweepshell.models.shallow_cap.modes import compute_mode_determinants, select_stability_nodes
+from sweepshell.models.shallow_cap.modes import compute_mode_determinants
 from sweepshell.models.shallow_cap.screened_scan import scan_screened
+from sweepshell.models.shallow_cap.stability_grid import select_stability_nodes
 
 __all__ = ["ModeCrossings", "scan_modes"]
 

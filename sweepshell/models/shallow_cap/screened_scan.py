@@ -4,7 +4,7 @@ An apex-force state's stability determinants are those of its interpolant on a g
 the state's (:mod:`.modes`), 27 times the work of the state's own grid per determinant. The
 scan needs the signs of all wave numbers at every path step up to the first sign change, so
 here every step is first evaluated on the screening grid (the state's own nodes with the
-interpolant filtered: :func:`~.modes.select_stability_nodes` with ``screen``), which follows
+interpolant filtered: :func:`~.stability_grid.select_stability_nodes` with ``screen``), which follows
 the stability grid's low eigenvalues only roughly, and the stability grid is evaluated only
 
 - at the path's first point (the reference signs), when a cap first needs them,

@@ -9,14 +9,13 @@ from scipy import optimize
 from sweepshell.models import make_model
 from sweepshell.models.shallow_cap.compiled import trace_cap_paths
 from sweepshell.models.shallow_cap.modes import (
-    APEX_STABILITY_REFINEMENT,
     _reduced_matrices,
     compute_mode_coefficients,
     compute_mode_determinants,
     count_unstable_modes,
-    select_stability_nodes,
 )
 from sweepshell.models.shallow_cap.problem import build_problem
+from sweepshell.models.shallow_cap.stability_grid import APEX_STABILITY_REFINEMENT, select_stability_nodes
 from tests.conftest import cap_inputs
 from tests.models.shallow_cap.test_model import make_initial_tangent
 
@@ -230,15 +229,15 @@ def test_a_screen_with_spurious_modes_still_gives_the_stability_grid_answer(monk
     # common practice, no source: the screen only says where to look. On the state's own grid without the
     # filter (spurious n = 2, 3 sign changes at the first loaded step) the screened scan watches those wave
     # numbers on the stability grid and still finds n = 4 at P = 9.4474 for the clamped λ = 10 cap
-    from sweepshell.models.shallow_cap import modes
+    from sweepshell.models.shallow_cap import stability_grid
 
-    monkeypatch.setattr(modes, "APEX_SCREEN_REFINEMENT", 1.0)
-    monkeypatch.setattr(modes, "APEX_SCREEN_FILTER", (0.0, 8.0))
-    modes._build_refinement.cache_clear()
+    monkeypatch.setattr(stability_grid, "APEX_SCREEN_REFINEMENT", 1.0)
+    monkeypatch.setattr(stability_grid, "APEX_SCREEN_FILTER", (0.0, 8.0))
+    stability_grid.build_refinement.cache_clear()
     try:
         model = make_model("shallow_cap", {"check_bistability": False, "path_samples": 8})
         out = model.solve_batch(cap_inputs([10.0], load="apex_force")).outputs
     finally:
-        modes._build_refinement.cache_clear()
+        stability_grid.build_refinement.cache_clear()
     np.testing.assert_array_equal(out["critical_wavenumber"], [4.0])
     np.testing.assert_allclose(out["critical_load"], [9.4474], rtol=1e-4)
