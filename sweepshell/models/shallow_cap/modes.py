@@ -25,7 +25,6 @@ handled by that grid's node on the edge, see :mod:`sweepshell.numerics.radial_ch
 from __future__ import annotations
 
 from dataclasses import dataclass
-from functools import lru_cache
 
 import numpy as np
 
@@ -33,6 +32,7 @@ from sweepshell.models.shallow_cap.compiled_modes import assemble_reduced_stabil
 from sweepshell.models.shallow_cap.kernels import CapPathProblem
 from sweepshell.models.shallow_cap.split_modes import add_sliding_n1_row, build_split_field_rows, sliding_n1_stress
 from sweepshell.models.shallow_cap.stability_grid import build_refinement, select_stability_nodes
+from sweepshell.numerics.array_cache import cache_arrays
 from sweepshell.numerics.radial_chebyshev import build_radial_grid
 
 __all__ = [
@@ -94,7 +94,7 @@ def _field_operators(size: int, n: int, m: int, stretch: float, centre: float, s
                           bracket=x[:, None] * w1 - n * n * w0)
 
 
-@lru_cache(maxsize=512)
+@cache_arrays(64 * 2**20)
 def build_mode_operators(size: int, n: int, stretch: float = 0.0, centre: float = 0.0, split: float = 0.0,
                          outer: int = 0) -> ModeOperators:
     """Return the operators of wave number ``n ≥ 1`` on a half grid of ``size`` nodes (cached).
@@ -126,7 +126,32 @@ def _stress_edge_rows(ops: ModeOperators, nu: float, immovable: bool) -> tuple[n
     return e_theta, de_theta - e_r - shear
 
 
-@lru_cache(maxsize=2048)
+@dataclass(frozen=True)
+class _AssemblyOperators:
+    """What the compiled assembly of one wave number takes of its deflection operators (edge rows contiguous)."""
+
+    bilaplacian: np.ndarray
+    bracket: np.ndarray
+    w2: np.ndarray
+    w0_edge: np.ndarray
+    w1_edge: np.ndarray
+    w2_edge: np.ndarray
+    inner_rows: np.ndarray | None
+
+
+# The operator caches of the scan are bounded by bytes, not entries: a sweep over many grid sizes
+# (apex-force caps over λ = 6 … 30 use 17 state sizes, each with its 3× stability grid, times 30
+# wave numbers) keeps every size's operators (about 210 MB and 140 MB there) instead of rebuilding
+# them in every block, while caps on large grids cannot grow the caches without bound.
+@cache_arrays(320 * 2**20)
+def _build_assembly_operators(size: int, n: int, stretch: float = 0.0, centre: float = 0.0, split: float = 0.0,
+                              outer: int = 0) -> _AssemblyOperators:
+    wo = build_mode_operators(size, n, stretch, centre, split, outer).deflection
+    return _AssemblyOperators(bilaplacian=wo.bilaplacian, bracket=wo.bracket, w2=wo.w2, w0_edge=wo.w0[0].copy(),
+                              w1_edge=wo.w1[0].copy(), w2_edge=wo.w2[0].copy(), inner_rows=wo.inner_rows)
+
+
+@cache_arrays(256 * 2**20)
 def _build_stress_reduction(size: int, n: int, nu: float, immovable: bool, stretch: float = 0.0,
                            centre: float = 0.0, split: float = 0.0, outer: int = 0) -> np.ndarray:
     """Return ``[P₁; P₂] S⁻¹`` (``2M × M``), the fixed part of ``B S⁻¹`` (cached).
@@ -250,11 +275,10 @@ def _reduced_matrices(problem: CapPathProblem, co: ModeCoefficients, modes: np.n
         else np.zeros(len(keys), dtype=np.int64)
     f, df, zeta1, zeta2 = (np.ascontiguousarray(v) for v in (co.f, co.df, co.zeta1, co.zeta2))
     for j, n in enumerate(modes):
-        ops = build_mode_operators(m, int(n), *key)
-        wo = ops.deflection
+        wo = _build_assembly_operators(m, int(n), *key)
         reduction = np.stack([_build_stress_reduction(m, int(n), nu, im, *key) for nu, im in unique])
-        a = assemble_reduced_stability(wo.bilaplacian, wo.bracket, wo.w2, wo.w0[0].copy(), wo.w1[0].copy(),
-                                       wo.w2[0].copy(), x, reduction, group, f, df, zeta1, zeta2,
+        a = assemble_reduced_stability(wo.bilaplacian, wo.bracket, wo.w2, wo.w0_edge, wo.w1_edge,
+                                       wo.w2_edge, x, reduction, group, f, df, zeta1, zeta2,
                                        co.nu.astype(float), co.clamped.astype(bool), co.immovable.astype(bool),
                                        int(n) == 1 and not key[2])
         sliding = np.nonzero(~co.immovable)[0]

@@ -36,6 +36,7 @@ from functools import lru_cache
 import numpy as np
 
 from sweepshell.models.shallow_cap.kernels import CapPathProblem
+from sweepshell.numerics.array_cache import cache_arrays
 from sweepshell.numerics.radial_chebyshev import build_interpolation_matrix, build_radial_grid, to_chebyshev_coordinate
 
 __all__ = [
@@ -77,7 +78,7 @@ def _build_odd_filter(size: int, alpha: float, order: float) -> np.ndarray:
     return full[:size, :size] - full[:size, n - np.arange(size)]
 
 
-@lru_cache(maxsize=32)
+@cache_arrays(64 * 2**20)
 def build_refinement(size: int, nodes: int, stretch: float = 0.0, centre: float = 0.0,
                       smooth: bool = False) -> tuple[np.ndarray, np.ndarray]:
     """Return ``(E, D E)``: values and slopes at the ``nodes`` grid of the odd interpolant on ``size`` nodes.
