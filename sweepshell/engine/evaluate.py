@@ -17,6 +17,7 @@ from typing import Any
 
 import numpy as np
 
+from sweepshell.engine.blas_threads import one_blas_thread
 from sweepshell.errors import QueryError, StoreMismatchError
 from sweepshell.models import make_model
 from sweepshell.models.base import TRUSTED_STATUSES, BatchResult, SweepModel
@@ -127,7 +128,8 @@ class PointEvaluator:
 
     def _solve(self, inputs: dict[str, np.ndarray], n: int) -> BatchResult:
         try:
-            return self.model.solve_batch(inputs)
+            with one_blas_thread():
+                return self.model.solve_batch(inputs)
         except Exception:  # a model bug: keep going, the points are recorded as failed
             log.exception("model %s raised on %d new points; they are marked failed", self.model.name, n)
             return self.model.empty_result(n)
