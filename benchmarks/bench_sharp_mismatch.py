@@ -76,8 +76,8 @@ def _fresh(model, inputs):  # type: ignore[no-untyped-def]
     from sweepshell.models.shallow_cap import modes, split_modes
     from sweepshell.numerics import radial_chebyshev, radial_two_domain
 
-    for fn in (modes.build_mode_operators, modes._build_stress_reduction, split_modes._split_parts,
-               radial_two_domain.build_split_grid, radial_chebyshev.build_radial_grid):
+    for fn in (modes.build_mode_operators, modes._build_assembly_operators, modes._build_stress_reduction,
+               split_modes._split_parts, radial_two_domain.build_split_grid, radial_chebyshev.build_radial_grid):
         fn.cache_clear()
     return model.solve_batch(inputs)
 
