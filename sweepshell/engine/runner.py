@@ -7,6 +7,7 @@ written are simply recomputed by the next run.
 
 from __future__ import annotations
 
+import contextlib
 import logging
 import time
 from collections.abc import Callable
@@ -15,6 +16,7 @@ from typing import Any
 
 import numpy as np
 
+from sweepshell.engine.blas_threads import one_blas_thread
 from sweepshell.engine.claims import ClaimBook, open_claims, remove_stale_claims
 from sweepshell.engine.executors import (
     check_scheduler_reachable,
@@ -185,7 +187,10 @@ def run_plan(plan: SweepPlan, *, observer: RunObserver | None = None, claim_ttl:
                 if model.kernels_to_compile() else ""
             # a caller's client is used as given; otherwise executor auto computes small work here
             in_process = client is None and plan.executor.runs_in_process(plan.estimated_seconds(to_compute))
-            _compute(plan, None if in_process else get_client, pending, claims, observer, tally, donors, note)
+            # blocks computed in this process (in process, threads executor, a caller's client) use one BLAS thread
+            here = in_process or client is not None or plan.executor.kind == "threads"
+            with one_blas_thread() if here else contextlib.nullcontext():
+                _compute(plan, None if in_process else get_client, pending, claims, observer, tally, donors, note)
     except KeyboardInterrupt:
         if claims is None or not block_shape:
             raise

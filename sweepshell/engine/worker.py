@@ -15,7 +15,6 @@ from typing import Any
 
 import numpy as np
 
-from sweepshell.engine.blas_threads import one_blas_thread
 from sweepshell.engine.reuse import Donor, take_from_donors
 from sweepshell.models import make_model
 from sweepshell.models.base import BatchResult, Status, SweepModel
@@ -58,11 +57,6 @@ def build_block_inputs(model: SweepModel, axis_names: Sequence[str], axis_values
 
 def solve_points(model: SweepModel, inputs: Mapping[str, np.ndarray]) -> BatchResult:
     """Run ``model.solve_batch``; if it raises (a bug), retry point by point and mark raisers failed."""
-    with one_blas_thread():
-        return _solve_points(model, inputs)
-
-
-def _solve_points(model: SweepModel, inputs: Mapping[str, np.ndarray]) -> BatchResult:
     n = len(next(iter(inputs.values())))
     try:
         return _checked(model, model.solve_batch(inputs), n)

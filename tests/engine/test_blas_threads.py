@@ -1,17 +1,16 @@
-"""Model points computed in this process run on one BLAS thread; the caller's count comes back afterwards."""
+"""Model points computed in the caller's process run on one BLAS thread; the caller's count comes back afterwards."""
 
 from __future__ import annotations
-
-import threading
 
 import numpy as np
 import pytest
 from threadpoolctl import threadpool_info, threadpool_limits
 
+from sweepshell import open_sweep, run_sweep
 from sweepshell.engine.blas_threads import one_blas_thread
-from sweepshell.engine.worker import solve_points
 from sweepshell.models import make_model
-from tests.conftest import model_inputs
+from sweepshell.models.base import Status
+from tests.conftest import COLUMN_SWEEP, write_sweep
 
 
 def blas_threads() -> set[int]:
@@ -20,6 +19,7 @@ def blas_threads() -> set[int]:
 
 @pytest.fixture
 def two_threads():
+    """The caller's BLAS on two threads (a notebook's default on this machine)."""
     import scipy.linalg  # noqa: F401  (its BLAS too)
 
     with threadpool_limits(limits=2, user_api="blas"):
@@ -28,7 +28,21 @@ def two_threads():
         yield
 
 
-def test_the_limit_holds_inside_and_is_lifted_after(two_threads):
+@pytest.fixture
+def seen_threads(monkeypatch):
+    """The BLAS thread counts the column model's ``solve_batch`` runs with, one set per call."""
+    cls = type(make_model("winkler_column", {}))
+    solve, seen = cls.solve_batch, []
+
+    def recording(self, inputs):  # type: ignore[no-untyped-def]
+        seen.append(frozenset(blas_threads()))
+        return solve(self, inputs)
+
+    monkeypatch.setattr(cls, "solve_batch", recording)
+    return seen
+
+
+def test_the_limit_holds_inside_nested_uses_and_is_lifted_after(two_threads):
     with one_blas_thread():
         assert blas_threads() == {1}
         with one_blas_thread():
@@ -37,35 +51,20 @@ def test_the_limit_holds_inside_and_is_lifted_after(two_threads):
     assert blas_threads() == {2}
 
 
-def test_overlapping_threads_share_one_limit(two_threads):
-    # the threads executor: one block ends while another still computes; the limit stays until both end
-    inside, release, seen = threading.Event(), threading.Event(), []
-
-    def long_block() -> None:
-        with one_blas_thread():
-            inside.set()
-            release.wait(10)
-            seen.append(blas_threads())
-
-    worker = threading.Thread(target=long_block)
-    worker.start()
-    inside.wait(10)
-    with one_blas_thread():
-        pass
-    assert blas_threads() == {1}
-    release.set()
-    worker.join(10)
-    assert seen == [{1}]
+@pytest.mark.parametrize("executor", ["auto", "threads"])
+def test_blocks_computed_in_this_process_use_one_thread(workdir, two_threads, seen_threads, executor):
+    # auto: a small sweep runs in this process; threads: dask worker threads of this process
+    sweep = write_sweep(workdir, COLUMN_SWEEP + f"executor: {{kind: {executor}, workers: 2}}\n")
+    summary = run_sweep(str(sweep), ["reuse=false"])
+    assert summary.complete and summary.extra["executor"] == ("in-process" if executor == "auto" else "threads")
+    assert seen_threads and set(seen_threads) == {frozenset({1})}
     assert blas_threads() == {2}
+    assert not np.any(open_sweep(workdir / "results" / "column.zarr").status.values == Status.pending)
 
 
-def test_solving_points_runs_under_the_limit(two_threads, monkeypatch):
-    model = make_model("winkler_column", {})
-    seen = []
-    solve = model.solve_batch
-    monkeypatch.setattr(model, "solve_batch", lambda inputs: (seen.append(blas_threads()), solve(inputs))[1])
-    inputs = model_inputs(model, load_ratio=[0.5, 5.0])
-    result = solve_points(model, inputs)
-    assert seen == [{1}]
-    np.testing.assert_array_equal(result.regime, [0, 1])  # stable below the Euler load, buckled above
+def test_refinement_points_use_one_thread(store, two_threads, seen_threads):
+    from sweepshell.engine.refine import refine_store
+
+    assert refine_store(store, levels=1).evaluations > 0
+    assert seen_threads and set(seen_threads) == {frozenset({1})}
     assert blas_threads() == {2}
