@@ -72,7 +72,8 @@ def test_sigkill_at_random_instants_then_resume_is_identical(workdir, s3_bucket,
 
 
 def test_two_runners_on_one_bucket_compute_each_block_once(workdir, s3_bucket):
-    sweep = write_sweep(workdir, SWEEP.replace("work_seconds: 0.004", "work_seconds: 0.01"))
+    # 6 s of work each way: both runners get blocks even when one starts a few seconds after the other
+    sweep = write_sweep(workdir, SWEEP.replace("work_seconds: 0.004", "work_seconds: 0.02"))
     reference = run_sweep(str(sweep), ["executor=threads", "store.path=reference.zarr"])
     url = f"{s3_bucket}/results/s3_column.zarr"
     # started together, they also race to create the store: one uploads it, the other waits for its root
