@@ -17,22 +17,11 @@ import contextlib
 import time
 
 import numpy as np
+from bench_shallow_cap import make_inputs  # this folder is on sys.path when run as a script
 from threadpoolctl import threadpool_info
 
 from sweepshell.engine.blas_threads import one_blas_thread
 from sweepshell.models import make_model
-
-
-def make_inputs(lam: np.ndarray, load: str) -> dict[str, np.ndarray]:
-    n = lam.size
-    out = {"shell_parameter": lam, "poisson_ratio": np.full(n, 0.3), "edge": np.array(["clamped"] * n),
-           "edge_inplane": np.array(["immovable"] * n), "load": np.array([load] * n),
-           "dimple_amplitude": np.zeros(n), "dimple_width": np.full(n, 2.0),
-           "mismatch_strain": np.full(n, -8.0), "mismatch_radius": np.full(n, 0.5),
-           "mismatch_region": np.array(["disc"] * n)}
-    for k in ("thickness", "sphere_radius", "base_radius", "youngs_modulus"):
-        out[k] = np.full(n, np.nan)
-    return out
 
 
 def main() -> None:

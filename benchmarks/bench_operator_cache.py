@@ -21,23 +21,11 @@ from functools import lru_cache
 os.environ.setdefault("OPENBLAS_NUM_THREADS", "1")  # as the command line and dask's workers run models
 
 import numpy as np
+from bench_shallow_cap import make_inputs  # this folder is on sys.path when run as a script
 
 from sweepshell.models import make_model
 from sweepshell.models.shallow_cap import modes
 from sweepshell.numerics.array_cache import ArrayCache
-
-
-def make_inputs(lam: np.ndarray, load: str) -> dict[str, np.ndarray]:
-    n = lam.size
-    out = {"shell_parameter": lam, "poisson_ratio": np.full(n, 0.3), "edge": np.array(["clamped"] * n),
-           "edge_inplane": np.array(["immovable"] * n), "load": np.array([load] * n),
-           "dimple_amplitude": np.zeros(n), "dimple_width": np.full(n, 2.0),
-           "mismatch_strain": np.full(n, -8.0), "mismatch_radius": np.full(n, 0.5),
-           "mismatch_region": np.array(["disc"] * n)}
-    for k in ("thickness", "sphere_radius", "base_radius", "youngs_modulus"):
-        out[k] = np.full(n, np.nan)
-    return out
-
 
 BUILDERS = {"build_mode_operators": 512, "_build_assembly_operators": 512, "_build_stress_reduction": 2048,
             "build_refinement": 32}  # the former entry-count bounds

@@ -29,10 +29,11 @@ C = np.sqrt(3.0 * (1.0 - NU**2))
 LAMBDAS = np.array([3.6, 4.0, 4.5, 5.0])  # displacement control is monotone here
 
 
-def make_inputs(lam: np.ndarray) -> dict[str, np.ndarray]:
+def make_inputs(lam: np.ndarray, load: str = "pressure") -> dict[str, np.ndarray]:
+    """Clamped immovable perfect caps at shell parameters ``lam`` (also imported by other benchmarks)."""
     n = lam.size
     out = {"shell_parameter": lam, "poisson_ratio": np.full(n, NU), "edge": np.array(["clamped"] * n),
-           "edge_inplane": np.array(["immovable"] * n), "load": np.array(["pressure"] * n),
+           "edge_inplane": np.array(["immovable"] * n), "load": np.array([load] * n),
            "dimple_amplitude": np.zeros(n), "dimple_width": np.full(n, 2.0),
            "mismatch_strain": np.full(n, -8.0), "mismatch_radius": np.full(n, 0.5),
            "mismatch_region": np.array(["disc"] * n)}
