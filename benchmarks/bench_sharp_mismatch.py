@@ -77,6 +77,7 @@ def _fresh(model, inputs):  # type: ignore[no-untyped-def]
     from sweepshell.numerics import radial_chebyshev, radial_two_domain
 
     for fn in (modes.build_mode_operators, modes._build_assembly_operators, modes._build_stress_reduction,
+               modes._build_poisson_correction,
                split_modes._split_parts, radial_two_domain.build_split_grid, radial_chebyshev.build_radial_grid):
         fn.cache_clear()
     return model.solve_batch(inputs)

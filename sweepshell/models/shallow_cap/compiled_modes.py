@@ -10,16 +10,20 @@ __all__ = ["assemble_reduced_stability"]
 
 @njit(cache=True)
 def assemble_reduced_stability(bilap: np.ndarray, bracket: np.ndarray, w2: np.ndarray, w0e: np.ndarray,
-                               w1e: np.ndarray, w2e: np.ndarray, x: np.ndarray, reduction: np.ndarray,
-                               group: np.ndarray, f: np.ndarray, df: np.ndarray, zeta1: np.ndarray,
-                               zeta2: np.ndarray, nu: np.ndarray, clamped: np.ndarray, immovable: np.ndarray,
+                               w1e: np.ndarray, w2e: np.ndarray, x: np.ndarray, red_sliding: np.ndarray,
+                               red_immovable: np.ndarray, left: np.ndarray, right: np.ndarray,
+                               corrected: np.ndarray, group: np.ndarray, f: np.ndarray, df: np.ndarray,
+                               zeta1: np.ndarray, zeta2: np.ndarray, nu: np.ndarray, clamped: np.ndarray,
+                               immovable: np.ndarray,
                                keep_row1: bool) -> np.ndarray:
     """Return the reduced stability matrices ``A − B S⁻¹ C`` ``(k, M, M)`` of one wave number.
 
     Compiled form of ``shallow_cap_modes._deflection_blocks`` and the stress elimination of
     ``_reduced_matrices`` (same formulas, fused per state). ``bilap``, ``bracket``, ``w2`` are
-    the deflection operators, ``w0e``, ``w1e``, ``w2e`` their edge rows; ``reduction[g]`` is
-    ``[P₁; P₂] S⁻¹`` of the state's (ν, in-plane edge) group ``group[p]``; ``keep_row1``:
+    the deflection operators, ``w0e``, ``w1e``, ``w2e`` their edge rows; ``red_sliding``,
+    ``red_immovable`` are ``[P₁; P₂] S⁻¹`` at ν = 0 of the two in-plane edges, and a state of
+    (ν, in-plane edge) group ``g = group[p]`` with ``corrected[g]`` subtracts ``left[g] @ right[g]``
+    from it (the immovable edge's ν, ``modes._build_poisson_correction``); ``keep_row1``:
     sliding n = 1 keeps the interior equation in row 1 of ``C``.
     """
     k, m = f.shape
@@ -45,7 +49,7 @@ def assemble_reduced_stability(bilap: np.ndarray, bracket: np.ndarray, w2: np.nd
             elif not keep_row1:
                 c[1, j] = 0.0
         # rows 0, 1 of B are edge rows (zero)
-        red = reduction[group[p]]
+        red = red_immovable if immovable[p] else red_sliding
         for j in range(m):
             g[0, j] = 0.0
             g[1, j] = 0.0
@@ -55,4 +59,13 @@ def assemble_reduced_stability(bilap: np.ndarray, bracket: np.ndarray, w2: np.nd
             for j in range(m):
                 g[i, j] = z2i * red[i, j] + xz1i * red[m + i, j]
         a += np.dot(g, c)
+        q = group[p]
+        if corrected[q]:
+            lf = left[q]
+            rc = np.dot(right[q], c)
+            for i in range(2, m):
+                l0 = zeta2[p, i] * lf[i, 0] + x[i] * zeta1[p, i] * lf[m + i, 0]
+                l1 = zeta2[p, i] * lf[i, 1] + x[i] * zeta1[p, i] * lf[m + i, 1]
+                for j in range(m):
+                    a[i, j] -= l0 * rc[0, j] + l1 * rc[1, j]
     return out

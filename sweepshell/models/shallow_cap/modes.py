@@ -25,6 +25,7 @@ handled by that grid's node on the edge, see :mod:`sweepshell.numerics.radial_ch
 from __future__ import annotations
 
 from dataclasses import dataclass
+from functools import lru_cache
 
 import numpy as np
 
@@ -152,24 +153,51 @@ def _build_assembly_operators(size: int, n: int, stretch: float = 0.0, centre: f
 
 
 @cache_arrays(256 * 2**20)
-def _build_stress_reduction(size: int, n: int, nu: float, immovable: bool, stretch: float = 0.0,
-                           centre: float = 0.0, split: float = 0.0, outer: int = 0) -> np.ndarray:
-    """Return ``[P₁; P₂] S⁻¹`` (``2M × M``), the fixed part of ``B S⁻¹`` (cached).
+def _build_stress_reduction(size: int, n: int, immovable: bool, stretch: float = 0.0, centre: float = 0.0,
+                            split: float = 0.0, outer: int = 0) -> np.ndarray:
+    """Return ``K₀ = [P₁; P₂] S₀⁻¹`` (``2M × M``), the fixed part of ``B S⁻¹`` at ν = 0 (cached).
 
     ``B = −(diag(ζ'') P₁ + diag(x ζ') P₂)`` with ``P₁ = x φ' − n² φ``, ``P₂ = φ''`` operators on
-    the stress function, zero on the two edge rows.
+    the stress function, zero on the two edge rows. Only the immovable edge rows of ``S`` depend
+    on ν, linearly (:func:`_build_poisson_correction`), so one matrix serves every Poisson's ratio.
     """
-    ops = build_mode_operators(size, n, stretch, centre, split, outer)
-    so = ops.stress
-    s = so.bilaplacian.copy()
-    s[0], s[1] = _stress_edge_rows(ops, nu, immovable)
-    if split > 0.0 and n == 1 and not immovable and so.inner_rows is not None:
-        sliding_n1_stress(s, so.bilaplacian, so.inner_rows, outer)  # see split_modes
+    s, _ = _stress_block(size, n, immovable, stretch, centre, split, outer)
+    so = build_mode_operators(size, n, stretch, centre, split, outer).stress
     p = np.concatenate([so.bracket, so.w2], axis=0)
     k = np.linalg.solve(s.T, p.T).T
     k[[0, 1, size, size + 1]] = 0.0
     k.setflags(write=False)
     return k
+
+
+def _stress_block(size: int, n: int, immovable: bool, stretch: float, centre: float, split: float,
+                  outer: int) -> tuple[np.ndarray, np.ndarray]:
+    """Return the stress block ``S₀`` at ν = 0 and its edge rows' ν-derivative ``D`` (``2 × M``)."""
+    ops = build_mode_operators(size, n, stretch, centre, split, outer)
+    so = ops.stress
+    s = so.bilaplacian.copy()
+    s[0], s[1] = _stress_edge_rows(ops, 0.0, immovable)
+    if split > 0.0 and n == 1 and not immovable and so.inner_rows is not None:
+        sliding_n1_stress(s, so.bilaplacian, so.inner_rows, outer)  # see split_modes
+    return s, np.stack(_stress_edge_rows(ops, 1.0, immovable)) - s[:2]
+
+
+@lru_cache(maxsize=4096)
+def _build_poisson_correction(size: int, n: int, nu: float, stretch: float = 0.0, centre: float = 0.0,
+                              split: float = 0.0, outer: int = 0) -> tuple[np.ndarray, np.ndarray]:
+    """Return ``L`` (``2M × 2``) and ``R`` (``2 × M``) with ``[P₁; P₂] S_ν⁻¹ = K₀ − L R``, immovable edge (cached).
+
+    ``S_ν = S₀ + E ν D`` (``E``: the two edge rows) is a rank-2 change, so by the Woodbury identity
+    ``S_ν⁻¹ = S₀⁻¹ − S₀⁻¹E (I + ν D S₀⁻¹E)⁻¹ ν D S₀⁻¹``: ``L = K₀E (I + ν D S₀⁻¹E)⁻¹``, ``R = ν D S₀⁻¹``.
+    """
+    s, d = _stress_block(size, n, True, stretch, centre, split, outer)
+    s_inv_e = np.linalg.solve(s, np.eye(size)[:, :2])
+    right = nu * np.linalg.solve(s.T, d.T).T
+    left = _build_stress_reduction(size, n, True, stretch, centre, split, outer)[:, :2] @ np.linalg.inv(
+        np.eye(2) + nu * (d @ s_inv_e))
+    left.setflags(write=False)
+    right.setflags(write=False)
+    return left, right
 
 
 @dataclass(frozen=True)
@@ -269,22 +297,29 @@ def _reduced_matrices(problem: CapPathProblem, co: ModeCoefficients, modes: np.n
     # a finer stability grid (apex forces) is a single grid of the same map
     key = (g.stretch, g.centre, g.split, g.interface) if m == problem.size else (g.stretch, g.centre, 0.0, 0)
     x = g.x if m == problem.size else build_radial_grid(m, g.stretch, g.centre).x
-    keys = list(zip(co.nu.tolist(), co.immovable.tolist(), strict=True))
-    unique = sorted(set(keys))
-    group = np.array([unique.index(key) for key in keys], dtype=np.int64) if len(unique) > 1 \
-        else np.zeros(len(keys), dtype=np.int64)
+    # sliding edges' stress blocks do not depend on ν: those states share one group
+    groups = [(nu if im else 0.0, im) for nu, im in zip(co.nu.tolist(), co.immovable.tolist(), strict=True)]
+    unique = sorted(set(groups))
+    group = np.array([unique.index(u) for u in groups], dtype=np.int64) if len(unique) > 1 \
+        else np.zeros(len(groups), dtype=np.int64)
+    corrected = np.array([im and nu != 0.0 for nu, im in unique])
     f, df, zeta1, zeta2 = (np.ascontiguousarray(v) for v in (co.f, co.df, co.zeta1, co.zeta2))
     for j, n in enumerate(modes):
         wo = _build_assembly_operators(m, int(n), *key)
-        reduction = np.stack([_build_stress_reduction(m, int(n), nu, im, *key) for nu, im in unique])
+        bases = {im: _build_stress_reduction(m, int(n), im, *key) for im in {im for _, im in unique}}
+        left, right = np.zeros((len(unique), 2 * m, 2)), np.zeros((len(unique), 2, m))
+        for u in np.nonzero(corrected)[0]:
+            left[u], right[u] = _build_poisson_correction(m, int(n), unique[u][0], *key)
+        base_sliding = bases[False] if False in bases else bases[True]
+        base_immovable = bases.get(True, base_sliding)
         a = assemble_reduced_stability(wo.bilaplacian, wo.bracket, wo.w2, wo.w0_edge, wo.w1_edge,
-                                       wo.w2_edge, x, reduction, group, f, df, zeta1, zeta2,
-                                       co.nu.astype(float), co.clamped.astype(bool), co.immovable.astype(bool),
-                                       int(n) == 1 and not key[2])
+                                       wo.w2_edge, x, base_sliding, base_immovable, left, right, corrected,
+                                       group, f, df, zeta1, zeta2, co.nu.astype(float), co.clamped.astype(bool),
+                                       co.immovable.astype(bool), int(n) == 1 and not key[2])
         sliding = np.nonzero(~co.immovable)[0]
         if key[2] and n == 1 and wo.inner_rows is not None and sliding.size:
             part = a[sliding]
-            add_sliding_n1_row(part, wo.inner_rows, x, key[3], reduction[group[sliding]], co.zeta1[sliding],
+            add_sliding_n1_row(part, wo.inner_rows, x, key[3], base_sliding[None], co.zeta1[sliding],
                                co.zeta2[sliding])
             a[sliding] = part
         yield j, int(n), a

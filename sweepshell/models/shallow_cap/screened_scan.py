@@ -5,16 +5,18 @@ the state's (:mod:`.modes`), 27 times the work of the state's own grid per deter
 scan needs the signs of all wave numbers at every path step up to the first sign change, so
 here every step is first evaluated on the screening grid (the state's own nodes with the
 interpolant filtered: :func:`~.stability_grid.select_stability_nodes` with ``screen``), which follows
-the stability grid's low eigenvalues only roughly, and the stability grid is evaluated only
+the stability grid's low eigenvalues only roughly. The stability grid is evaluated
 
-- at the path's first point (the reference signs), when a cap first needs them,
-- at every step where a screening sign differs from the screen's own first-point sign (all
-  wave numbers), and from then on at every step for the wave numbers whose screening sign
-  changed while the stability grid's did not (the screen ran ahead: its later changes of
-  those wave numbers cannot be seen on the screen, so the stability grid watches them),
-- backwards from a step where a stability sign changed, step by step, until a step without
-  change: the first changed step of that run is the cap's first flip, as the unscreened scan
-  defines it, with the same crossings.
+- at the path's first point (the reference signs), only when the path does not start unloaded
+  and stress-free: an unloaded cap's signs are the flat plate's (:func:`compute_unloaded_signs`),
+- from a step where a screening sign differs from the screen's own first-point sign on, at every
+  step, for those wave numbers (they stay watched: a screen that ran ahead of the stability
+  grid shows nothing of their later changes),
+- at a step where a watched wave number's stability sign changed, for every wave number (one
+  whose screen lags may have changed in the same step or earlier), and
+- backwards from there, step by step, for the wave numbers changed or watched there, until a
+  step without change: the first changed step of that run is the cap's first flip, as the
+  unscreened scan defines it, with the same crossings.
 
 A screen that lags or leads the stability grid by a few steps, or has spurious sign changes,
 costs more stability-grid evaluations but gives the same first flip. What it cannot see is a
@@ -24,12 +26,15 @@ while never changing sign itself.
 
 from __future__ import annotations
 
+from functools import lru_cache
+
 import numpy as np
 
 from sweepshell.models.shallow_cap.kernels import CapPathProblem
-from sweepshell.models.shallow_cap.modes import compute_mode_determinants
+from sweepshell.models.shallow_cap.modes import build_mode_operators, compute_mode_determinants
+from sweepshell.models.shallow_cap.stability_grid import select_stability_nodes
 
-__all__ = ["scan_screened"]
+__all__ = ["compute_unloaded_signs", "scan_screened"]
 
 _ROUND = 8  # path steps per cap screened before looking at them
 Crossing = tuple[int, int, float, float, float]  # cap, wave number, determinant ratio, sign and log|det| before
@@ -41,70 +46,107 @@ def _evaluate(pb: CapPathProblem, z: np.ndarray, cap: int, modes: np.ndarray,
 
 
 class _CapScan:
-    """The screened scan of one cap: its references and what the stability grid has seen so far."""
+    """The screened scan of one cap: its references and the wave numbers the stability grid watches."""
 
     def __init__(self, pb: CapPathProblem, zh: np.ndarray, cap: int, modes: np.ndarray,
-                 screen_ref: np.ndarray) -> None:
+                 screen_ref: np.ndarray, unloaded_ref: np.ndarray | None) -> None:
         self.pb, self.zh, self.cap, self.modes = pb, zh, cap, modes
         self.screen_ref = screen_ref
         self.watched = np.zeros(modes.size, dtype=bool)
-        self.checked = 0  # last step evaluated for every wave number on the stability grid, no flip there
-        self._checked_det: tuple[np.ndarray, np.ndarray] | None = None  # None: the first point's
-        self._first: tuple[np.ndarray, np.ndarray] | None = None
-
-    def _reference(self) -> tuple[np.ndarray, np.ndarray]:
-        """Signs and log|det| of the path's first point (evaluated when first needed: a cap whose screen
-        never changes needs no stability-grid determinant at all)."""
-        if self._first is None:
-            self._first = self._all(0)
-        return self._first
+        self._ref = unloaded_ref
 
     @property
     def ref(self) -> np.ndarray:
-        """The reference signs: the stability grid's at the path's first point."""
-        return self._reference()[0]
+        """The reference signs: the stability grid's at the path's first point (evaluated when first
+        needed unless the path starts unloaded: a cap whose screen never changes needs none)."""
+        if self._ref is None:
+            self._ref = self._at(0, np.ones(self.modes.size, dtype=bool))[0]
+        return self._ref
 
-    @property
-    def checked_det(self) -> tuple[np.ndarray, np.ndarray]:
-        """Signs and log|det| at step ``checked``."""
-        return self._reference() if self._checked_det is None else self._checked_det
-
-    def _all(self, j: int) -> tuple[np.ndarray, np.ndarray]:
-        sg, ld = _evaluate(self.pb, self.zh[self.cap, j:j + 1], self.cap, self.modes)
+    def _at(self, j: int, which: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """Signs and log|det| of step ``j``'s wave numbers ``which`` (a mask) on the stability grid."""
+        sg, ld = _evaluate(self.pb, self.zh[self.cap, j:j + 1], self.cap, self.modes[which])
         return sg[0], ld[0]
 
     def visit(self, j: int, screen_sign: np.ndarray) -> tuple[int, list[Crossing]] | None:
         """Look at step ``j`` with its screening signs; return ``(first flipped step, crossings)`` or None."""
-        trigger = (screen_sign != self.screen_ref) & ~self.watched
-        if trigger.any():
-            sg, ld = self._all(j)
-            if not (sg != self.ref).any():
-                self.watched |= trigger
-                self.checked, self._checked_det = j, (sg, ld)
-                return None
-            return self._first_flip(j, (sg, ld))
-        if not self.watched.any():
+        look = self.watched | (screen_sign != self.screen_ref)
+        if not look.any():
             return None
-        sg_w, _ = _evaluate(self.pb, self.zh[self.cap, j:j + 1], self.cap, self.modes[self.watched])
-        if not (sg_w[0] != self.ref[self.watched]).any():
+        sg, _ = self._at(j, look)
+        if not (sg != self.ref[look]).any():
+            self.watched = look
             return None
-        return self._first_flip(j, self._all(j))
+        return self._first_flip(j, look)
 
-    def _first_flip(self, j: int, now: tuple[np.ndarray, np.ndarray]) -> tuple[int, list[Crossing]]:
-        """Walk back from the flipped step ``j`` to the first step of its run of flipped steps."""
-        prev = self.checked_det
-        for k in range(j - 1, self.checked, -1):
-            det_k = self._all(k)
-            if not (det_k[0] != self.ref).any():
-                prev = det_k
+    def _first_flip(self, j: int, look: np.ndarray) -> tuple[int, list[Crossing]]:
+        """Walk back from the flipped step ``j`` to the first step of its run of flipped steps.
+
+        The run's first step is evaluated for every wave number (one whose screen lags may have
+        flipped there too, or earlier); the steps before it only for the wave numbers flipped there
+        and those the screen has flagged: any other one changed there and back is a window the
+        screen missed, which the module docstring excludes.
+        """
+        every = np.ones(self.modes.size, dtype=bool)
+        k, (sg, ld) = j, self._at(j, every)
+        sub = look.copy()
+        while True:
+            sub |= sg != self.ref
+            ref = self.ref[sub]
+            s = k - 1
+            prev = self._at(s, sub)
+            while s > 0 and (prev[0] != ref).any():
+                s -= 1
+                prev = self._at(s, sub)
+            if s == k - 1:
                 break
-            j, now = k, det_k
-        (now_s, now_l), (prev_s, prev_l) = now, prev
+            k = s + 1  # a longer run: its first step, for every wave number
+            sg, ld = self._at(k, every)
+        now_s, now_l, (prev_s, prev_l) = sg[sub], ld[sub], prev
         out: list[Crossing] = []
-        for c in np.nonzero((now_s != self.ref) & (now_s != prev_s))[0]:
+        for c in np.nonzero((now_s != ref) & (now_s != prev_s))[0]:
             ratio = prev_s[c] * now_s[c] * np.exp(np.clip(now_l[c] - prev_l[c], -700, 700))
-            out.append((self.cap, int(self.modes[c]), float(ratio), float(prev_s[c]), float(prev_l[c])))
-        return j, out
+            out.append((self.cap, int(self.modes[sub][c]), float(ratio), float(prev_s[c]), float(prev_l[c])))
+        return k, out
+
+
+def compute_unloaded_signs(problem: CapPathProblem, idx: np.ndarray, modes: np.ndarray) -> np.ndarray:
+    """Return the determinant signs of the unloaded, stress-free states of apex-force caps ``idx``, ``(k, len(modes))``.
+
+    A stress-free shallow cap is stable whatever its rise or dimple: its bending and stretching
+    energies are both positive. So no determinant vanishes along the family of stress-free
+    shapes from the flat plate (ζ = 0) to the cap's unloaded one, and each sign is the flat
+    plate's on the same stability grid. That sign depends only on the grid, the wave number
+    and the bending edge row, and is cached by them: the reference signs of a path that starts
+    unloaded, without assembling the cap's matrices. tests/models/shallow_cap/test_apex_scan.py
+    compares them with the assembled ones over rises, dimples, edges and Poisson's ratios.
+    """
+    g = problem.grid
+    nodes = select_stability_nodes(problem, idx)
+    if np.any(nodes == problem.size):
+        raise ValueError("unloaded signs are for apex-force caps on their refined stability grid")
+    out = np.empty((idx.size, len(modes)))
+    key = tuple(int(n) for n in modes)
+    for r, i in enumerate(idx):
+        clamped = bool(problem.clamped[i])
+        nu = 0.0 if clamped else float(problem.nu[i])
+        out[r] = _flat_plate_signs(int(nodes[r]), g.stretch, g.centre, clamped, nu, key)
+    return out
+
+
+@lru_cache(maxsize=512)
+def _flat_plate_signs(size: int, stretch: float, centre: float, clamped: bool, nu: float,
+                      modes: tuple[int, ...]) -> np.ndarray:
+    """Signs of the reduced matrices at ζ = f = 0 (the bilaplacian with the bending edge rows)."""
+    out = np.empty(len(modes))
+    for j, n in enumerate(modes):
+        wo = build_mode_operators(size, n, stretch, centre).deflection
+        a = wo.bilaplacian.copy()
+        a[0] = wo.w0[0]
+        a[1] = wo.w1[0] if clamped else wo.w2[0] + nu * wo.w1[0]
+        out[j] = np.linalg.slogdet(a)[0]
+    out.setflags(write=False)
+    return out
 
 
 def scan_screened(pb: CapPathProblem, zh: np.ndarray, caps: np.ndarray, scan_end: np.ndarray, modes: np.ndarray,
@@ -126,7 +168,11 @@ def scan_screened(pb: CapPathProblem, zh: np.ndarray, caps: np.ndarray, scan_end
     if caps.size == 0:
         return jb, found
     screen_ref, _ = compute_mode_determinants(pb, zh[caps, 0], caps, modes, screen=True)
-    scans = [_CapScan(pb, zh, int(c), modes, screen_ref[r]) for r, c in enumerate(caps)]
+    unloaded = ~pb.mismatch[caps] & ~np.any(zh[caps, 0] != 0.0, axis=1)
+    refs = np.full((caps.size, modes.size), np.nan)
+    refs[unloaded] = compute_unloaded_signs(pb, caps[unloaded], modes)
+    scans = [_CapScan(pb, zh, int(c), modes, screen_ref[r], refs[r] if unloaded[r] else None)
+             for r, c in enumerate(caps)]
     samples = []
     for c in caps:
         steps = np.arange(1, scan_end[c] + 1)

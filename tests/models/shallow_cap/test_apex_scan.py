@@ -241,3 +241,23 @@ def test_a_screen_with_spurious_modes_still_gives_the_stability_grid_answer(monk
         stability_grid.build_refinement.cache_clear()
     np.testing.assert_array_equal(out["critical_wavenumber"], [4.0])
     np.testing.assert_allclose(out["critical_load"], [9.4474], rtol=1e-4)
+
+
+@pytest.mark.parametrize("nodes", [24, 36])
+def test_unloaded_caps_have_the_flat_plates_determinant_signs(nodes):
+    # common practice, no source: a stress-free shallow cap is stable whatever its rise or dimple (bending and
+    # stretching energies are both positive), so its determinants keep the flat plate's signs. The screened scan
+    # takes its reference signs from the flat plate; here they are compared with the assembled ones over rises
+    # λ 0.5 … 40, dimples of both signs, both bending and in-plane edges and four Poisson's ratios
+    from sweepshell.models.shallow_cap.screened_scan import compute_unloaded_signs
+
+    rng = np.random.default_rng(nodes)
+    n = 16
+    dimpled = np.arange(n) % 2 == 1
+    pb = build_problem(rng.uniform(0.5, 40.0, n), rng.choice([0.0, 0.25, 0.3, 0.45], n), rng.random(n) < 0.5,
+                       rng.random(n) < 0.5, np.ones(n, bool), np.where(dimpled, rng.uniform(-1.0, 2.0, n), 0.0),
+                       rng.uniform(0.3, 6.0, n), nodes)
+    idx = np.arange(n)
+    assembled, logdet = compute_mode_determinants(pb, np.zeros((n, 2 * pb.size + 1)), idx, MODES)
+    np.testing.assert_array_equal(compute_unloaded_signs(pb, idx, MODES), assembled)
+    assert np.all(np.ptp(logdet, axis=0) > 5.0)  # the caps' matrices are far from one another's

@@ -58,7 +58,7 @@ def test_sliding_n1_stress_operator_is_regular():
     # stress block is singular if ρ's inner neighbour holds an interface row (the gauge Φ = x solves
     # the outer side); with that row moved to row 1 its smallest singular value is of the single grid's order
     size, outer = get_split_counts(8.0, 0.5, 40)
-    reduction = modes._build_stress_reduction(size, 1, 0.3, False, 0.0, 0.0, 0.5, outer)
+    reduction = modes._build_stress_reduction(size, 1, False, 0.0, 0.0, 0.5, outer)
     assert np.all(np.isfinite(reduction))
     ops = modes.build_mode_operators(size, 1, 0.0, 0.0, 0.5, outer)
     s = ops.stress.bilaplacian.copy()
