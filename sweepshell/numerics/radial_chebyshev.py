@@ -38,6 +38,7 @@ kink at ρ converges only algebraically on any such grid, but with a constant th
 
 from __future__ import annotations
 
+from collections.abc import Iterator, Mapping
 from dataclasses import dataclass
 from functools import lru_cache
 
@@ -67,9 +68,11 @@ class RadialGrid:
     d1, d2, d3
         Dicts parity (+1 / -1) → first, second, third derivative matrices ``(M, M)``.
     integral
-        Dict parity → weights ``w`` with ``w @ u ≈ ∫_0^1 u dx``.
+        Parity → weights ``w`` with ``w @ u ≈ ∫_0^1 u dx`` (computed on first use on a single grid:
+        the finer grids of stability operators never integrate, and their Gauss–Legendre rule of
+        4M + 8 points costs more than their derivative matrices).
     moment2
-        Dict parity → weights with ``w @ u ≈ ∫_0^1 u x² dx``.
+        Parity → weights with ``w @ u ≈ ∫_0^1 u x² dx`` (as ``integral``).
     stretch
         The cubic map's β (0: plain Chebyshev points).
     centre
@@ -85,8 +88,8 @@ class RadialGrid:
     d1: dict[int, np.ndarray]
     d2: dict[int, np.ndarray]
     d3: dict[int, np.ndarray]
-    integral: dict[int, np.ndarray]
-    moment2: dict[int, np.ndarray]
+    integral: Mapping[int, np.ndarray]
+    moment2: Mapping[int, np.ndarray]
     stretch: float = 0.0
     centre: float = 0.0
     split: float = 0.0
@@ -261,17 +264,12 @@ def build_radial_grid(m: int, stretch: float = 0.0, centre: float = 0.0) -> Radi
     xf, d = chebyshev_matrix(n)
     d2 = d @ d
     d3 = d2 @ d
-    gl_x, gl_w = np.polynomial.legendre.leggauss(4 * m + 8)
-    gl_x = 0.5 * (gl_x + 1.0)
-    gl_w = 0.5 * gl_w
     if centre > 0.0:
         x, g1, g2, g3 = _cluster_map(xf[:m], m, centre)
         x[0] = 1.0
-        gx, gx1, _, _ = _cluster_map(gl_x, m, centre)
     else:
         x, g1, g2, g3 = _map_to_x(xf[:m], stretch)
-        gx, gx1, _, _ = _map_to_x(gl_x, stretch)
-    ops: dict[str, dict[int, np.ndarray]] = {"d1": {}, "d2": {}, "d3": {}, "integral": {}, "moment2": {}}
+    ops: dict[str, dict[int, np.ndarray]] = {"d1": {}, "d2": {}, "d3": {}}
     for p in (1, -1):
         e1, e2, e3 = _reduce(d, m, p), _reduce(d2, m, p), _reduce(d3, m, p)
         # chain rule: d/dx = (1/g') d/dξ, and so on
@@ -279,12 +277,43 @@ def build_radial_grid(m: int, stretch: float = 0.0, centre: float = 0.0) -> Radi
         ops["d2"][p] = e2 / g1[:, None] ** 2 - (g2 / g1**3)[:, None] * e1
         ops["d3"][p] = (e3 / g1[:, None] ** 3 - (3.0 * g2 / g1**4)[:, None] * e2
                         + (3.0 * g2**2 / g1**5 - g3 / g1**4)[:, None] * e1)
-        e = build_interpolation_matrix(m, p, gl_x)
-        ops["integral"][p] = (gl_w * gx1) @ e
-        ops["moment2"][p] = (gl_w * gx1 * gx**2) @ e
     for table in ops.values():
         for arr in table.values():
             arr.setflags(write=False)
     x.setflags(write=False)
-    return RadialGrid(x=x, d1=ops["d1"], d2=ops["d2"], d3=ops["d3"], integral=ops["integral"],
-                      moment2=ops["moment2"], stretch=float(stretch), centre=float(centre))
+    return RadialGrid(x=x, d1=ops["d1"], d2=ops["d2"], d3=ops["d3"],
+                      integral=_GridWeights(m, stretch, centre, "integral"),
+                      moment2=_GridWeights(m, stretch, centre, "moment2"), stretch=float(stretch), centre=float(centre))
+
+
+class _GridWeights(Mapping[int, np.ndarray]):
+    """Quadrature weights of :func:`build_radial_grid`'s grid, per parity, computed on first use."""
+
+    def __init__(self, m: int, stretch: float, centre: float, which: str) -> None:
+        self._key, self._which = (m, stretch, centre), which
+
+    def __getitem__(self, parity: int) -> np.ndarray:
+        return _build_quadrature_weights(*self._key)[self._which][parity]
+
+    def __iter__(self) -> Iterator[int]:
+        return iter((1, -1))
+
+    def __len__(self) -> int:
+        return 2
+
+
+@lru_cache(maxsize=64)
+def _build_quadrature_weights(m: int, stretch: float, centre: float) -> dict[str, dict[int, np.ndarray]]:
+    """Return the ``integral`` and ``moment2`` weights of the grid (Gauss–Legendre, 4M + 8 points, cached)."""
+    gl_x, gl_w = np.polynomial.legendre.leggauss(4 * m + 8)
+    gl_x = 0.5 * (gl_x + 1.0)
+    gl_w = 0.5 * gl_w
+    gx, gx1, _, _ = _cluster_map(gl_x, m, centre) if centre > 0.0 else _map_to_x(gl_x, stretch)
+    out: dict[str, dict[int, np.ndarray]] = {"integral": {}, "moment2": {}}
+    for p in (1, -1):
+        e = build_interpolation_matrix(m, p, gl_x)
+        out["integral"][p] = (gl_w * gx1) @ e
+        out["moment2"][p] = (gl_w * gx1 * gx**2) @ e
+        out["integral"][p].setflags(write=False)
+        out["moment2"][p].setflags(write=False)
+    return out

@@ -75,7 +75,7 @@ def choose_grid_centres(settings: Mapping[str, Any], eigen: np.ndarray, radius: 
 def _sharp_split(settings: Mapping[str, Any], eigen: np.ndarray, radius: np.ndarray) -> np.ndarray:
     """Return which points are sharp-edged mismatch points on the two-domain grid."""
     return (eigen & (float(settings["mismatch_step_width"]) == 0.0) & (radius < 1.0)
-            & (str(settings.get("mismatch_grid", "clustered")) == "split"))
+            & (str(settings.get("mismatch_grid", "split")) == "split"))
 
 
 def get_split_counts(lam: float, rho: float, nodes: int = 0) -> tuple[int, int]:

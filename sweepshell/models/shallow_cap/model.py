@@ -120,7 +120,7 @@ class ShallowCapModel(SweepModel):
                  tolerance: float = 1e-10, max_points: int = 400, max_base_ratio: float = 0.5,
                  max_turn_deg: float = 12.0, scan_stride: int = 1, mismatch_step_width: float = 0.0,
                  dimple_grid_stretch: float = 0.5, apex_grid_stretch: float = 0.85,
-                 mismatch_grid: str = "clustered") -> None:
+                 mismatch_grid: str = "split") -> None:
         super().__init__()
         for key, beta in (("dimple_grid_stretch", dimple_grid_stretch), ("apex_grid_stretch", apex_grid_stretch)):
             if not 0.0 <= float(beta) < 1.0:

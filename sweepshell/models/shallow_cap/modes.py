@@ -30,8 +30,9 @@ from functools import lru_cache
 import numpy as np
 
 from sweepshell.models.shallow_cap.compiled_modes import assemble_reduced_stability
+from sweepshell.models.shallow_cap.field_operators import FieldOperators, build_field_operators
 from sweepshell.models.shallow_cap.kernels import CapPathProblem
-from sweepshell.models.shallow_cap.split_modes import add_sliding_n1_row, build_split_field_rows, sliding_n1_stress
+from sweepshell.models.shallow_cap.split_modes import add_sliding_n1_row, sliding_n1_stress
 from sweepshell.models.shallow_cap.stability_grid import build_refinement, select_stability_nodes
 from sweepshell.numerics.array_cache import cache_arrays
 from sweepshell.numerics.radial_chebyshev import build_radial_grid
@@ -44,19 +45,6 @@ __all__ = [
     "compute_mode_determinants",
     "count_unstable_modes",
 ]
-
-@dataclass(frozen=True)
-class FieldOperators:
-    """Values and derivatives of ``x^m v`` (rows: nodes, columns: half-grid values of ``v``)."""
-
-    w0: np.ndarray
-    w1: np.ndarray
-    w2: np.ndarray
-    w3_edge: np.ndarray
-    bilaplacian: np.ndarray  # x² ∇⁴_n (x^m v)
-    bracket: np.ndarray  # x (x^m v)' − n² x^m v, the radial part of x² [ζ₀-like, ·]
-    inner_rows: np.ndarray | None = None  # two-domain grid: bilaplacian, bracket, w2 rows at ρ's inner neighbour
-
 
 @dataclass(frozen=True)
 class ModeOperators:
@@ -72,29 +60,6 @@ class ModeOperators:
     stress: FieldOperators
 
 
-def _field_operators(size: int, n: int, m: int, stretch: float, centre: float, split: float = 0.0,
-                     outer: int = 0) -> FieldOperators:
-    if split > 0.0:
-        w0, w1, w2, w3_edge, bilaplacian, bracket, inner_rows = build_split_field_rows(size, n, m, split, outer)
-        return FieldOperators(w0=w0, w1=w1, w2=w2, w3_edge=w3_edge, bilaplacian=bilaplacian, bracket=bracket,
-                              inner_rows=inner_rows)
-    g = build_radial_grid(size, stretch, centre)
-    x = g.x
-    pv = 1 if (n - m) % 2 == 0 else -1
-    pn = 1 if n % 2 == 0 else -1
-    d1, d2, d3 = g.d1[pv], g.d2[pv], g.d3[pv]
-    xm = x**m
-    eye = np.eye(size)
-    w0 = np.diag(xm)
-    w1 = np.diag(m * x ** (m - 1)) + xm[:, None] * d1
-    w2 = np.diag(m * (m - 1) * x ** (m - 2)) + (2 * m * x ** (m - 1))[:, None] * d1 + xm[:, None] * d2
-    w3_edge = m * (m - 1) * (m - 2) * eye[0] + 3 * m * (m - 1) * d1[0] + 3 * m * d2[0] + d3[0]
-    lap = (x ** (m - 2))[:, None] * ((x**2)[:, None] * d2 + ((2 * m + 1) * x)[:, None] * d1 + (m * m - n * n) * eye)
-    outer = (x**2)[:, None] * g.d2[pn] + x[:, None] * g.d1[pn] - n * n * eye
-    return FieldOperators(w0=w0, w1=w1, w2=w2, w3_edge=w3_edge, bilaplacian=outer @ lap,
-                          bracket=x[:, None] * w1 - n * n * w0)
-
-
 @cache_arrays(64 * 2**20)
 def build_mode_operators(size: int, n: int, stretch: float = 0.0, centre: float = 0.0, split: float = 0.0,
                          outer: int = 0) -> ModeOperators:
@@ -103,8 +68,9 @@ def build_mode_operators(size: int, n: int, stretch: float = 0.0, centre: float 
     ``stretch``, ``centre``, ``split`` and ``outer`` choose the grid (see
     :func:`~sweepshell.models.shallow_cap.grids.get_cap_grid`).
     """
-    return ModeOperators(n=n, deflection=_field_operators(size, n, 1 if n == 1 else 2, stretch, centre, split, outer),
-                         stress=_field_operators(size, n, 3 if n == 1 else 2, stretch, centre, split, outer))
+    grid = (stretch, centre, split, outer)
+    return ModeOperators(n=n, deflection=build_field_operators(size, n, 1 if n == 1 else 2, *grid),
+                         stress=build_field_operators(size, n, 3 if n == 1 else 2, *grid))
 
 
 def _stress_edge_rows(ops: ModeOperators, nu: float, immovable: bool) -> tuple[np.ndarray, np.ndarray]:

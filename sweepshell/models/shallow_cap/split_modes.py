@@ -50,7 +50,7 @@ def _split_parts(size: int, m: int, pv: int, split: float, outer: int) -> tuple[
 def build_split_field_rows(size: int, n: int, m: int, split: float, outer: int) -> tuple[np.ndarray, ...]:
     """Return ``(w0, w1, w2, w3_edge, bilaplacian, bracket, inner_rows)`` of ``x^m v``, wave number ``n``.
 
-    The fields of :class:`.modes.FieldOperators` on the grid ``build_split_grid(size, split,
+    The fields of :class:`.field_operators.FieldOperators` on the grid ``build_split_grid(size, split,
     outer)``: rows ρ − 1, ρ, ρ + 1 (indices ``outer − 1 … outer + 1``) of ``bilaplacian`` hold
     the interface conditions (scaled to unit largest entry), those of ``bracket`` and ``w2`` are
     zero; ``inner_rows`` keeps the collocation rows of ``bilaplacian``, ``bracket``, ``w2`` at

@@ -37,7 +37,8 @@ def _follow(lam, n, *, apex=False, edge="clamped", inplane="immovable", amplitud
 
 
 def _shallow(lam, *, load="pressure", edge="clamped", inplane="immovable", amplitude=0.0, nodes=0, **more):
-    model = ShallowCapModel(check_bistability=False, nodes=nodes)
+    # this model follows sharp mismatch edges on shallow_cap's clustered grid (choose_mismatch_grid)
+    model = ShallowCapModel(check_bistability=False, nodes=nodes, mismatch_grid="clustered")
     inputs = {p.name: np.array([p.default]) for p in model.parameters}
     inputs.update(shell_parameter=np.array([float(lam)]), edge=np.array([edge]), edge_inplane=np.array([inplane]),
                   dimple_amplitude=np.array([amplitude]), load=np.array([load]),

@@ -125,7 +125,7 @@ def test_flat_plate_with_a_sharp_disc_is_the_lame_inclusion(immovable, annulus):
 
 def test_sharp_edge_is_the_default_and_points_with_other_radii_get_their_own_grid():
     default = make_model("shallow_cap").settings
-    assert default["mismatch_step_width"] == 0.0 and default["mismatch_grid"] == "clustered"
+    assert default["mismatch_step_width"] == 0.0 and default["mismatch_grid"] == "split"
     settings = make_model("shallow_cap", FAST).settings
     eigen = np.array([True, True, True, False])
     radius = np.array([0.5, 0.3, 1.0, 0.5])
