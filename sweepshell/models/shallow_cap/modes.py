@@ -29,7 +29,7 @@ from functools import lru_cache
 
 import numpy as np
 
-from sweepshell.models.shallow_cap.compiled_modes import assemble_reduced_stability
+from sweepshell.models.shallow_cap.compiled_modes import assemble_reduced_stability, slogdet_in_place
 from sweepshell.models.shallow_cap.field_operators import FieldOperators, build_field_operators
 from sweepshell.models.shallow_cap.kernels import CapPathProblem
 from sweepshell.models.shallow_cap.split_modes import add_sliding_n1_row, sliding_n1_stress
@@ -45,6 +45,10 @@ __all__ = [
     "compute_mode_determinants",
     "count_unstable_modes",
 ]
+
+# up to this size the compiled LU is faster than np.linalg.slogdet (benchmarks/bench_small_slogdet.py)
+SMALL_LU_NODES = 64
+
 
 @dataclass(frozen=True)
 class ModeOperators:
@@ -321,7 +325,8 @@ def compute_mode_determinants(problem: CapPathProblem, z: np.ndarray, idx: np.nd
     logdet = np.empty_like(sign)
     for rows, co in _group_coefficients(problem, z, idx, coefficients, screen):
         for j, _, a in _reduced_matrices(problem, co, modes):
-            sign[rows, j], logdet[rows, j] = np.linalg.slogdet(a)
+            small = a.shape[1] <= SMALL_LU_NODES
+            sign[rows, j], logdet[rows, j] = slogdet_in_place(a) if small else np.linalg.slogdet(a)
     return sign, logdet
 
 
