@@ -17,6 +17,9 @@ the stability grid's low eigenvalues only roughly. The stability grid is evaluat
 - backwards from there, step by step, for the wave numbers changed or watched there, until a
   step without change: the first changed step of that run is the cap's first flip, as the
   unscreened scan defines it, with the same crossings.
+- at the scanned range's last step, for every wave number, when no flip was found: a screen that
+  lags the stability grid may not have changed yet where the range ends, and a change found
+  there is walked back to its first step as above.
 
 A screen that lags or leads the stability grid by a few steps, or has spurious sign changes,
 costs more stability-grid evaluations but gives the same first flip. What it cannot see is a
@@ -79,7 +82,15 @@ class _CapScan:
             return None
         return self._first_flip(j, look)
 
-    def _first_flip(self, j: int, look: np.ndarray) -> tuple[int, list[Crossing]]:
+    def finish(self, j: int) -> tuple[int, list[Crossing]] | None:
+        """Check the last scanned step ``j`` for every wave number; return its first flip as ``visit`` or None."""
+        at_j = self._at(j, np.ones(self.modes.size, dtype=bool))
+        if not (at_j[0] != self.ref).any():
+            return None
+        return self._first_flip(j, self.watched, at_j)
+
+    def _first_flip(self, j: int, look: np.ndarray,
+                    at_j: tuple[np.ndarray, np.ndarray] | None = None) -> tuple[int, list[Crossing]]:
         """Walk back from the flipped step ``j`` to the first step of its run of flipped steps.
 
         The run's first step is evaluated for every wave number (one whose screen lags may have
@@ -88,7 +99,7 @@ class _CapScan:
         screen missed, which the module docstring excludes.
         """
         every = np.ones(self.modes.size, dtype=bool)
-        k, (sg, ld) = j, self._at(j, every)
+        k, (sg, ld) = j, self._at(j, every) if at_j is None else at_j
         sub = look.copy()
         while True:
             sub |= sg != self.ref
@@ -155,7 +166,7 @@ def scan_screened(pb: CapPathProblem, zh: np.ndarray, caps: np.ndarray, scan_end
 
     Same result as evaluating every wave number at every ``stride``-th step on the stability
     grid (the steps in between when one changed) up to ``scan_end``, except for windows the
-    screen misses (module docstring).
+    screen misses (module docstring): a change that lasts to ``scan_end`` is always found.
 
     Returns
     -------
@@ -199,4 +210,9 @@ def scan_screened(pb: CapPathProblem, zh: np.ndarray, caps: np.ndarray, scan_end
                 still.append(r)
         active = still
         start += _ROUND
+    for last in np.nonzero(jb < 0)[0].tolist():
+        result = scans[last].finish(int(samples[last][-1])) if samples[last].size else None
+        if result is not None:
+            jb[last] = result[0]
+            found.extend(result[1])
     return jb, found

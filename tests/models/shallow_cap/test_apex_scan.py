@@ -261,3 +261,23 @@ def test_unloaded_caps_have_the_flat_plates_determinant_signs(nodes):
     assembled, logdet = compute_mode_determinants(pb, np.zeros((n, 2 * pb.size + 1)), idx, MODES)
     np.testing.assert_array_equal(compute_unloaded_signs(pb, idx, MODES), assembled)
     assert np.all(np.ptp(logdet, axis=0) > 5.0)  # the caps' matrices are far from one another's
+
+
+def test_a_flip_the_screen_shows_too_late_is_found_at_the_end_of_the_range(monkeypatch):
+    # common practice, no source: a screen on half the state's nodes lags the stability grid. For this clamped
+    # sliding cap (λ = 10.2201, ν = 0.4) n = 2 flips just before the force maximum (P = 6.20354 against 6.20715)
+    # and that screen has not changed by the end of the scanned range; the check of the range's last step on
+    # the stability grid finds the flip, as the unscreened scan does (without it the fold was reported)
+    from sweepshell.models.shallow_cap import scan, stability_grid
+
+    model = make_model("shallow_cap", {"check_bistability": False, "path_samples": 8})
+    inputs = cap_inputs([10.2201], load="apex_force", edge_inplane="sliding")
+    inputs["poisson_ratio"] = np.array([0.4])
+    monkeypatch.setattr(stability_grid, "APEX_SCREEN_REFINEMENT", 0.5)
+    lagging = model.solve_batch(inputs).outputs
+    monkeypatch.setattr(scan, "SCREEN_APEX", False)
+    full = model.solve_batch(inputs).outputs
+    np.testing.assert_array_equal(lagging["critical_wavenumber"], [2.0])
+    np.testing.assert_array_equal(full["critical_wavenumber"], [2.0])
+    np.testing.assert_allclose(lagging["critical_load"], full["critical_load"], rtol=1e-9)
+    np.testing.assert_allclose(full["critical_load"], [6.20354], rtol=1e-5)
