@@ -1,14 +1,15 @@
 """Where an apex-force point's time goes: screen, stability grid, trace, refinement (one run).
 
 Solves a batch of apex-force caps twice with the asymmetric scan (the first run builds the grids
-and operators, as a sweep's worker has them after its first block) and times the second by phase (CPU time, which a shared machine disturbs less than wall time):
-the screening determinants (every path step on the state's own grid), the stability-grid
-determinants (3× grid, where the screen says), the path trace and the bifurcation refinement.
+and operators, as a sweep's worker has them after its first block) and times the second by phase
+in CPU time, which a shared machine disturbs less than wall time: the screening determinants
+(every path step on the state's own grid), the stability-grid determinants (3× grid, where the
+screen says), the path trace and the bifurcation refinement.
 ``--caps perfect``: perfect clamped immovable caps, λ uniform on 6 … 30 (ν = 0.3); ``mix``: the
 caps of ``check_apex_scan.py`` (all edges, four ν, a third dimpled). Prints ms per point; no asserts.
 Compare versions by running it on two checkouts, alternately.
 
-Run: ``python benchmarks/bench_apex_phases.py [--caps perfect|mix] [--count 60]``
+Run: ``python benchmarks/bench_apex_phases.py [--caps perfect|mix] [--count 60] [--screen-nodes 1.0]``
 """
 
 from __future__ import annotations
@@ -27,7 +28,7 @@ from bench_shallow_cap import make_inputs  # this folder is on sys.path when run
 from check_apex_scan import draw_caps
 
 from sweepshell.models import make_model
-from sweepshell.models.shallow_cap import screened_scan, solver
+from sweepshell.models.shallow_cap import screened_scan, solver, stability_grid
 
 SECONDS: Counter[str] = Counter()
 
@@ -51,7 +52,10 @@ def main() -> None:
     ap.add_argument("--caps", choices=("perfect", "mix"), default="perfect")
     ap.add_argument("--count", type=int, default=60)
     ap.add_argument("--seed", type=int, default=1)
+    ap.add_argument("--screen-nodes", type=float, default=None, help="screening grid over state nodes")
     args = ap.parse_args()
+    if args.screen_nodes is not None:
+        stability_grid.APEX_SCREEN_REFINEMENT = args.screen_nodes
     if args.caps == "mix":
         inputs = draw_caps(args.count, args.seed, 1 / 3)
     else:
