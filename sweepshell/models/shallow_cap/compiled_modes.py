@@ -75,9 +75,9 @@ def assemble_reduced_stability(bilap: np.ndarray, bracket: np.ndarray, w2: np.nd
 def slogdet_in_place(a: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """Return ``(sign, log|det|)`` of the matrices ``a`` ``(k, M, M)``, overwriting them with their LU factors.
 
-    LU with partial pivoting, row by row; for the small matrices of scans on a state's own grid
-    (M up to about 64) it is 1.2–2× faster than ``np.linalg.slogdet``, which copies each matrix
-    and calls LAPACK one matrix at a time (measured in ``benchmarks/bench_small_slogdet.py``).
+    LU with partial pivoting, row by row. For the small matrices of scans on a state's own grid
+    it is faster than ``np.linalg.slogdet``, which copies each matrix and calls LAPACK one matrix
+    at a time (``benchmarks/bench_small_slogdet.py``); LAPACK's blocked LU wins on large ones.
     The row updates index with unsigned integers, which lets the compiler vectorise them.
     """
     k, n, _ = a.shape

@@ -14,7 +14,8 @@ immovable ``u_r = u_θ = 0`` or sliding ``N_r = N_rθ = 0``). The collocated mat
 and its stress block ``S`` (in-plane bilaplacian with its edge rows) does not depend on the
 state. So ``det = det S · det(A − B S⁻¹ C)`` and the state-dependent factor, an ``M``-square
 determinant instead of a ``2M``-square one, carries every sign change along a path. ``S⁻¹`` is
-folded into two fixed matrices per wave number, Poisson's ratio and in-plane edge.
+folded into two fixed matrices per wave number and in-plane edge, with a rank-2 correction for
+Poisson's ratio (which enters only the immovable edge's rows of ``S``).
 
 Apex-force states are analysed on a finer grid than the state's, as the polynomial interpolant
 of the discrete state (:mod:`.stability_grid`, which gives the reasons and measurements).

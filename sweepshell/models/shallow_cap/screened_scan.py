@@ -13,18 +13,18 @@ the stability grid's low eigenvalues only roughly. The stability grid is evaluat
   step, for those wave numbers (they stay watched: a screen that ran ahead of the stability
   grid shows nothing of their later changes),
 - at a step where a watched wave number's stability sign changed, for every wave number (one
-  whose screen lags may have changed in the same step or earlier), and
+  whose screen lags may have changed in the same step or earlier),
 - backwards from there, step by step, for the wave numbers changed or watched there, until a
-  step without change: the first changed step of that run is the cap's first flip, as the
-  unscreened scan defines it, with the same crossings.
+  step without change: the first changed step of that run (evaluated for every wave number) is
+  the cap's first flip, as the unscreened scan defines it, with the same crossings, and
 - at the scanned range's last step, for every wave number, when no flip was found: a screen that
   lags the stability grid may not have changed yet where the range ends, and a change found
   there is walked back to its first step as above.
 
 A screen that lags or leads the stability grid by a few steps, or has spurious sign changes,
 costs more stability-grid evaluations but gives the same first flip. What it cannot see is a
-window of the stability grid (a sign change and its return) that the screen misses entirely
-while never changing sign itself.
+window of the stability grid (a sign change and its return) that the screen misses entirely,
+unless another wave number changes in the window's first step.
 """
 
 from __future__ import annotations
