@@ -5,6 +5,8 @@ from __future__ import annotations
 import numpy as np
 from numba import njit
 
+from sweepshell.models.shallow_cap.compiled_newton import lu_solve
+
 __all__ = ["assemble_reduced_stability", "slogdet_in_place"]
 
 
@@ -75,10 +77,10 @@ def assemble_reduced_stability(bilap: np.ndarray, bracket: np.ndarray, w2: np.nd
 def slogdet_in_place(a: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """Return ``(sign, log|det|)`` of the matrices ``a`` ``(k, M, M)``, overwriting them with their LU factors.
 
-    LU with partial pivoting, row by row. For the small matrices of scans on a state's own grid
-    it is faster than ``np.linalg.slogdet``, which copies each matrix and calls LAPACK one matrix
-    at a time (``benchmarks/bench_small_slogdet.py``); LAPACK's blocked LU wins on large ones.
-    The row updates index with unsigned integers, which lets the compiler vectorise them.
+    The corrector's LU with partial pivoting (:func:`~.compiled_newton.lu_solve`, no right-hand
+    side). For the small matrices of scans on a state's own grid it is faster than
+    ``np.linalg.slogdet``, which copies each matrix and calls LAPACK one matrix at a time
+    (``benchmarks/bench_small_slogdet.py``); LAPACK's blocked LU wins on large ones.
     """
     k, n, _ = a.shape
     sign = np.empty(k)
@@ -86,36 +88,9 @@ def slogdet_in_place(a: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     u = np.empty(n)
     for p in range(k):
         g = a[p]
-        sg, acc = 1.0, 0.0
-        for c in range(n):
-            piv, big = c, abs(g[c, c])
-            for i in range(c + 1, n):
-                v = abs(g[i, c])
-                if v > big:
-                    piv, big = i, v
-            lo, hi = np.uint64(c), np.uint64(n)
-            gc = g[c]
-            if piv != c:
-                sg = -sg
-                gp = g[piv]
-                for j in range(lo, hi):
-                    tmp = gc[j]
-                    gc[j] = gp[j]
-                    gp[j] = tmp
-            for j in range(lo, hi):
-                u[j] = gc[j]
-            if u[c] == 0.0:
-                sg, acc = 0.0, -np.inf
-                break
-            if u[c] < 0.0:
-                sg = -sg
-            acc += np.log(abs(u[c]))
-            inv = 1.0 / u[c]
-            lo1 = np.uint64(c + 1)
-            for i in range(c + 1, n):
-                gi = g[i]
-                lik = gi[c] * inv
-                for j in range(lo1, hi):
-                    gi[j] -= lik * u[j]
-        sign[p], logdet[p] = sg, acc
+        sign[p] = lu_solve(g, n, u)
+        acc = 0.0
+        for i in range(n):
+            acc += np.log(abs(g[i, i]))
+        logdet[p] = acc if sign[p] != 0.0 else -np.inf
     return sign, logdet
