@@ -9,6 +9,11 @@ processes do the same. A sweep started from Python (a notebook's numpy already l
 threads) computes its in-process blocks, the blocks of the threads executor and its boundary
 and refinement points under this limit, set and lifted by the calling thread (the run, or the
 evaluator), so the caller's count comes back afterwards.
+
+Setting the limit walks the process's loaded libraries (``dl_iterate_phdr`` with a Python
+callback, which holds the dynamic loader's lock and needs the GIL), so it is set before the run
+starts threads of its own: a thread importing an extension module holds the GIL and waits for
+that lock, and the two would wait for each other for ever.
 """
 
 from __future__ import annotations

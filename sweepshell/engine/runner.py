@@ -168,8 +168,11 @@ def run_plan(plan: SweepPlan, *, observer: RunObserver | None = None, claim_ttl:
     tally: dict[str, Any] = {"model_seconds": 0.0, "computed": 0, "blocks": 0, "by_others": 0, "reused": 0,
                              "damaged": 0}
     claims: ClaimBook | None = None
+    # blocks computed in this process (in process, threads executor, a caller's client) use one BLAS
+    # thread; the limit is set before start_client_early starts its thread (see blas_threads)
+    here = client is not None or plan.executor.kind in ("auto", "threads")
     try:
-        with start_client_early(plan, client) as get_client:
+        with one_blas_thread() if here else contextlib.nullcontext(), start_client_early(plan, client) as get_client:
             if not existing:
                 block_shape, _ = prepare_store(plan, model)
             ledger = read_ledger(path, block_shape)
@@ -187,10 +190,7 @@ def run_plan(plan: SweepPlan, *, observer: RunObserver | None = None, claim_ttl:
                 if model.kernels_to_compile() else ""
             # a caller's client is used as given; otherwise executor auto computes small work here
             in_process = client is None and plan.executor.runs_in_process(plan.estimated_seconds(to_compute))
-            # blocks computed in this process (in process, threads executor, a caller's client) use one BLAS thread
-            here = in_process or client is not None or plan.executor.kind == "threads"
-            with one_blas_thread() if here else contextlib.nullcontext():
-                _compute(plan, None if in_process else get_client, pending, claims, observer, tally, donors, note)
+            _compute(plan, None if in_process else get_client, pending, claims, observer, tally, donors, note)
     except KeyboardInterrupt:
         if claims is None or not block_shape:
             raise

@@ -68,3 +68,25 @@ def test_refinement_points_use_one_thread(store, two_threads, seen_threads):
     assert refine_store(store, levels=1).evaluations > 0
     assert seen_threads and set(seen_threads) == {frozenset({1})}
     assert blas_threads() == {2}
+
+
+def test_the_limit_is_set_before_the_run_starts_threads(workdir, monkeypatch):
+    # setting the limit walks the loaded libraries under the dynamic loader's lock and needs the GIL; a
+    # worker-starting thread importing an extension module holds the GIL and waits for that lock. With the
+    # limit set after the threads executor's start thread began, `sweepshell run` hung for ever (seen in the
+    # lowest-versions check). So the limit must be taken while the run has no threads of its own
+    import threading
+
+    from sweepshell.engine import blas_threads
+
+    started_with: list[list[str]] = []
+    limit = blas_threads.one_blas_thread
+
+    def recording():  # type: ignore[no-untyped-def]
+        started_with.append([t.name for t in threading.enumerate() if t.name.startswith("sweepshell-start")])
+        return limit()
+
+    monkeypatch.setattr("sweepshell.engine.runner.one_blas_thread", recording)
+    sweep = write_sweep(workdir, COLUMN_SWEEP + "executor: {kind: threads, workers: 2}\n")
+    assert run_sweep(str(sweep), ["reuse=false"]).complete
+    assert started_with == [[]]
