@@ -168,8 +168,9 @@ def run_plan(plan: SweepPlan, *, observer: RunObserver | None = None, claim_ttl:
     tally: dict[str, Any] = {"model_seconds": 0.0, "computed": 0, "blocks": 0, "by_others": 0, "reused": 0,
                              "damaged": 0}
     claims: ClaimBook | None = None
-    # blocks computed in this process (in process, threads executor, a caller's client) use one BLAS
-    # thread; the limit is set before start_client_early starts its thread (see blas_threads)
+    # blocks computed in this process (executor auto's small work, the threads executor, a caller's
+    # client) use one BLAS thread; auto decides only later, and the limit costs nothing when its work
+    # goes to worker processes. It is set before start_client_early starts its thread (see blas_threads)
     here = client is not None or plan.executor.kind in ("auto", "threads")
     try:
         with one_blas_thread() if here else contextlib.nullcontext(), start_client_early(plan, client) as get_client:
